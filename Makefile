@@ -1,0 +1,118 @@
+# station: one Makefile for the program, its libraries, tests and benchmarks.
+# `make` builds build/station; `make check` runs every test; `make check SAN=1`
+# builds into build-san/ with AddressSanitizer + UndefinedBehaviorSanitizer.
+# Every .c file in core/, calib/ and station/ belongs to its library or the
+# program; every tests/*/test_*.c is one cmocka test program.
+
+VERSION := 0.1.0
+PREFIX  ?= /usr/local
+DESTDIR ?=
+PYTHON  ?= /usr/bin/python3
+
+SAN ?= 0
+ifeq ($(SAN),1)
+BUILD   ?= build-san
+OPT     ?= -O1 -g -fno-omit-frame-pointer
+SANFLAGS := -fsanitize=address,undefined -fno-sanitize-recover=undefined
+else
+BUILD   ?= build
+OPT     ?= -O2 -g
+SANFLAGS :=
+endif
+
+PKGS      := libpng xgboost inih jansson nettle
+TEST_PKGS := cmocka
+PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
+PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
+TEST_CFLAGS := $(shell pkg-config --cflags $(TEST_PKGS) 2>/dev/null)
+TEST_LIBS   := $(shell pkg-config --libs $(TEST_PKGS) 2>/dev/null)
+
+# Our flags come first and user CFLAGS after, but the warnings are restated
+# last so no CFLAGS from outside can drop them.
+WARN := -Wall -Wextra -Werror
+ST_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) $(SANFLAGS) $(PKG_CFLAGS) \
+             -I. -MMD -MP $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
+ST_LDFLAGS := $(SANFLAGS) $(LDFLAGS)
+LIBS := $(PKG_LIBS) -lpthread -lm
+
+CORE_SRC    := $(sort $(wildcard core/*.c))
+CALIB_SRC   := $(sort $(wildcard calib/*.c))
+STATION_SRC := $(sort $(wildcard station/*.c))
+STATION_LIB_SRC := $(filter-out station/main.c,$(STATION_SRC))
+TEST_SRC    := $(sort $(wildcard tests/*/test_*.c))
+TOOL_SRC    := $(sort $(wildcard tests/tools/*.c))
+BENCH_SRC   := $(sort $(wildcard tests/bench/*.c))
+
+obj = $(patsubst %.c,$(BUILD)/%.o,$(1))
+CORE_LIB    := $(BUILD)/libstationcore.a
+CALIB_LIB   := $(BUILD)/libstationcalib.a
+STATION_LIB := $(BUILD)/libstationapp.a
+STATION_BIN := $(BUILD)/station
+TEST_BINS   := $(patsubst %.c,$(BUILD)/%,$(TEST_SRC))
+TOOL_BINS   := $(patsubst %.c,$(BUILD)/%,$(TOOL_SRC))
+BENCH_BINS  := $(patsubst %.c,$(BUILD)/%,$(BENCH_SRC))
+APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
+
+.PHONY: all check demo bench install uninstall clean deps deps-test
+all: $(STATION_BIN)
+
+$(BUILD)/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ST_CFLAGS) -c $< -o $@
+
+$(BUILD)/tests/%.o: tests/%.c
+	@mkdir -p $(dir $@)
+	$(CC) $(ST_CFLAGS) $(TEST_CFLAGS) -c $< -o $@
+
+$(CORE_LIB): $(call obj,$(CORE_SRC))
+	$(AR) rcs $@ $^
+$(CALIB_LIB): $(call obj,$(CALIB_SRC))
+	$(AR) rcs $@ $^
+$(STATION_LIB): $(call obj,$(STATION_LIB_SRC))
+	$(AR) rcs $@ $^
+
+$(STATION_BIN): $(call obj,station/main.c) $(APP_LIBS)
+	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS)
+
+$(BUILD)/tests/%: $(BUILD)/tests/%.o $(APP_LIBS)
+	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS) $(TEST_LIBS)
+
+# Debian packages: `make deps` installs what is missing when run as root,
+# otherwise prints the exact apt-get line and stops.
+DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev
+DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
+             python3-xgboost python3-opencv python3-pil libsixel-examples
+deps:
+	@sh tests/deps.sh $(DEB_BUILD)
+deps-test:
+	@sh tests/deps.sh $(DEB_BUILD) $(DEB_TEST)
+
+check: deps-test
+	@$(MAKE) --no-print-directory test-programs
+	@BUILD=$(BUILD) PYTHON=$(PYTHON) SAN=$(SAN) sh tests/run.sh
+
+.PHONY: test-programs
+test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS)
+
+DEMO_OUT ?= $(BUILD)/demo
+demo: deps
+	@$(MAKE) --no-print-directory $(STATION_BIN)
+	$(STATION_BIN) demo --out $(DEMO_OUT)
+
+bench: deps-test
+	@$(MAKE) --no-print-directory test-programs
+	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/bench/run.sh
+
+install: $(STATION_BIN)
+	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/station/recipes
+	install -m 755 $(STATION_BIN) $(DESTDIR)$(PREFIX)/bin/station
+	install -m 644 recipes/*.ini recipes/README.md $(DESTDIR)$(PREFIX)/share/station/recipes/
+
+uninstall:
+	rm -f $(DESTDIR)$(PREFIX)/bin/station
+	rm -rf $(DESTDIR)$(PREFIX)/share/station
+
+clean:
+	rm -rf build build-san
+
+-include $(shell find $(BUILD) -name '*.d' 2>/dev/null)

@@ -1,0 +1,37 @@
+/* forest: our own evaluator of a saved XGBoost multi:softprob tree model.
+ *
+ * Loads the JSON model that booster_save writes (learner.gradient_booster
+ * .model.trees, tree_info, base_score, num_class) into flat node arrays and
+ * evaluates it exactly as XGBoost does: go left when x < split (float
+ * compare), missing (NaN) follows default_left, leaf values summed per class
+ * in tree order in float starting from base_score, then softmax.  It agrees
+ * with XGBoosterPredictFromDense to 1e-6 in probability (tests prove it).
+ * A loaded forest is read-only and may be shared by threads. */
+#ifndef ST_FOREST_H
+#define ST_FOREST_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "err.h"
+
+struct forest;
+
+int forest_load(const char *json_path, struct forest **out, struct err *e);
+void forest_free(struct forest *f);
+
+int forest_nclasses(const struct forest *f);
+int forest_nfeatures(const struct forest *f);  /* largest split index + 1 */
+int forest_ntrees(const struct forest *f);
+int forest_max_depth(const struct forest *f);
+
+/* Probabilities for n rows of nfeat floats: prob[i * nclasses + k]. */
+void forest_predict(const struct forest *f, const float *x, size_t n, int nfeat, float *prob);
+
+/* Per row: class = argmax probability, conf = that probability.  Rows are
+ * split over `threads` threads.  Returns ST_OK or an error when nfeat is
+ * smaller than the model needs or threads cannot start. */
+int forest_classify(const struct forest *f, const float *x, size_t n, int nfeat, int threads,
+                    uint8_t *cls, float *conf, struct err *e);
+
+#endif

@@ -1,0 +1,54 @@
+/* inspect: the per-frame pipeline, frame in, verdict out.
+ *
+ * An inspector owns everything one frame needs: the recipe (a copy), the
+ * loaded tree model, the feature context and every per-frame buffer, sized
+ * for the last frame size and reused while the size stays (first touch of
+ * fresh memory costs more than the work on small frames).  inspector_new
+ * refuses a model that does not belong to the recipe (model_check).
+ * inspector_run computes features, classifies every pixel (class and
+ * confidence), finds the defect regions, measures image quality and judges;
+ * any failure inside leaves the caller with an error and no verdict, and
+ * the caller reports NO_VERDICT — never PASS.  One inspector serves one
+ * thread at a time; the stages themselves use recipe.feat.threads and
+ * recipe.train.threads worker threads. */
+#ifndef ST_INSPECT_H
+#define ST_INSPECT_H
+
+#include "features.h"
+#include "forest.h"
+#include "image.h"
+#include "judge.h"
+#include "model.h"
+#include "recipe.h"
+#include "regions.h"
+
+struct inspect_times {
+    double features_ms, classify_ms, regions_ms, verdict_ms;
+};
+
+struct inspector;
+
+int inspector_new(const struct recipe *r, struct inspector **out, struct err *e);
+void inspector_free(struct inspector *in);
+
+/* Features and per-pixel classes only (what evaluation needs). */
+int inspector_classify(struct inspector *in, const struct image *img, struct inspect_times *t,
+                       struct err *e);
+/* Classify, then regions, quality and verdict. */
+int inspector_run(struct inspector *in, const struct image *img, struct judgement *j,
+                  struct inspect_times *t, struct err *e);
+
+/* Results of the last call; owned by the inspector, valid until the next call. */
+const struct image *inspector_classes(const struct inspector *in);
+const struct fstack *inspector_features(const struct inspector *in);
+const struct forest *inspector_forest(const struct inspector *in);
+const float *inspector_confidence(const struct inspector *in);
+const struct region_set *inspector_regions(const struct inspector *in);
+const struct quality *inspector_quality(const struct inspector *in);
+const struct recipe *inspector_recipe(const struct inspector *in);
+const struct model_meta *inspector_model(const struct inspector *in);
+int inspector_threads(const struct inspector *in);
+/* Classifier threads (1 = inline); features threads follow recipe.feat.threads. */
+void inspector_set_threads(struct inspector *in, int threads);
+
+#endif

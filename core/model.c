@@ -1,0 +1,173 @@
+#include "model.h"
+
+#include <jansson.h>
+#include <stdio.h>
+#include <string.h>
+
+int model_meta_path(const char *model_path, char *buf, size_t len, struct err *e)
+{
+    int n = snprintf(buf, len, "%s.meta.json", model_path);
+    if (n < 0 || (size_t)n >= len)
+        return err_set(e, ST_ERANGE, "%s: path too long", model_path);
+    return ST_OK;
+}
+
+static int features_signature(const struct feat_spec *spec, char hex[SHA256_HEX_LEN],
+                              struct err *e)
+{
+    int n = feat_count(spec);
+    size_t cap = (size_t)n * 40 + 1, len = 0;
+    char buf[64 * 40 + 1];
+    if (cap > sizeof buf)
+        return err_set(e, ST_ERANGE, "too many features (%d)", n);
+    for (int k = 0; k < n; k++) {
+        char name[40];
+        feat_name(spec, k, name, sizeof name);
+        len += (size_t)snprintf(buf + len, sizeof buf - len, "%s\n", name);
+    }
+    sha256_hex_buffer(buf, len, hex);
+    return ST_OK;
+}
+
+int model_meta_from_recipe(const struct recipe *r, struct model_meta *m, struct err *e)
+{
+    memset(m, 0, sizeof *m);
+    m->format = MODEL_META_FORMAT;
+    snprintf(m->product, sizeof m->product, "%s", r->product);
+    m->recipe_version = r->version;
+    m->nclasses = r->nclasses;
+    for (int c = 0; c < r->nclasses; c++)
+        snprintf(m->classes[c], sizeof m->classes[c], "%s", r->cls[c].name);
+    m->nfeatures = feat_count(&r->feat);
+    m->depth = r->train.depth;
+    return features_signature(&r->feat, m->features_sha256, e);
+}
+
+int model_meta_save(const char *model_path, const struct model_meta *m, struct err *e)
+{
+    char path[PATH_MAX];
+    int rc = model_meta_path(model_path, path, sizeof path, e);
+    if (rc)
+        return rc;
+    json_t *classes = json_array(), *samples = json_object();
+    for (int c = 0; c < m->nclasses; c++) {
+        json_array_append_new(classes, json_string(m->classes[c]));
+        json_object_set_new(samples, m->classes[c],
+                            json_pack("{s:I,s:i}", "pixels", (json_int_t)m->samples[c], "images",
+                                      m->images[c]));
+    }
+    json_t *o = json_pack("{s:i,s:s,s:i,s:s,s:s,s:i,s:o,s:o,s:i,s:i,s:f,s:s}", "format",
+                          m->format, "product", m->product, "recipe_version", m->recipe_version,
+                          "model_sha256", m->model_sha256, "features_sha256",
+                          m->features_sha256, "features", m->nfeatures, "classes", classes,
+                          "training_samples", samples, "best_round", m->best_round, "depth",
+                          m->depth, "validation_mlogloss", m->val_mlogloss, "trained_utc",
+                          m->trained_utc);
+    if (!o)
+        return err_set(e, ST_ENOMEM, "%s: cannot build metadata", path);
+    if (json_dump_file(o, path, JSON_INDENT(2) | JSON_SORT_KEYS) != 0)
+        rc = err_set(e, ST_EIO, "%s: cannot write model metadata", path);
+    json_decref(o);
+    return rc;
+}
+
+static int copy_str(json_t *o, const char *key, char *dst, size_t len, const char *path,
+                    struct err *e)
+{
+    const char *s = json_string_value(json_object_get(o, key));
+    if (!s || strlen(s) >= len)
+        return err_set(e, ST_EFORMAT, "%s: '%s' missing or too long", path, key);
+    memcpy(dst, s, strlen(s) + 1);
+    return ST_OK;
+}
+
+int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
+{
+    char path[PATH_MAX];
+    int rc = model_meta_path(model_path, path, sizeof path, e);
+    if (rc)
+        return rc;
+    memset(m, 0, sizeof *m);
+    json_error_t je;
+    json_t *o = json_load_file(path, 0, &je);
+    if (!o)
+        return err_set(e, ST_EFORMAT, "%s:%d: %s", path, je.line, je.text);
+    json_t *fmt = json_object_get(o, "format");
+    json_t *classes = json_object_get(o, "classes");
+    if (!json_is_integer(fmt)) {
+        rc = err_set(e, ST_EFORMAT, "%s: 'format' missing", path);
+        goto done;
+    }
+    m->format = (int)json_integer_value(fmt);
+    if (m->format > MODEL_META_FORMAT || m->format < 1) {
+        rc = err_set(e, ST_EFORMAT, "%s: format %d is not supported (1..%d)", path, m->format,
+                     MODEL_META_FORMAT);
+        goto done;
+    }
+    if ((rc = copy_str(o, "product", m->product, sizeof m->product, path, e)) ||
+        (rc = copy_str(o, "model_sha256", m->model_sha256, sizeof m->model_sha256, path, e)) ||
+        (rc = copy_str(o, "features_sha256", m->features_sha256, sizeof m->features_sha256,
+                       path, e)) ||
+        (rc = copy_str(o, "trained_utc", m->trained_utc, sizeof m->trained_utc, path, e)))
+        goto done;
+    if (!json_is_array(classes) || json_array_size(classes) < 2 ||
+        json_array_size(classes) > RECIPE_MAX_CLASSES) {
+        rc = err_set(e, ST_EFORMAT, "%s: 'classes' must list 2..%d names", path,
+                     RECIPE_MAX_CLASSES);
+        goto done;
+    }
+    m->nclasses = (int)json_array_size(classes);
+    json_t *samples = json_object_get(o, "training_samples");
+    for (int c = 0; c < m->nclasses; c++) {
+        const char *s = json_string_value(json_array_get(classes, (size_t)c));
+        if (!s || strlen(s) >= sizeof m->classes[c]) {
+            rc = err_set(e, ST_EFORMAT, "%s: class %d is not a short string", path, c);
+            goto done;
+        }
+        memcpy(m->classes[c], s, strlen(s) + 1);
+        json_t *sc = json_object_get(samples, s);
+        m->samples[c] = (size_t)json_integer_value(json_object_get(sc, "pixels"));
+        m->images[c] = (int)json_integer_value(json_object_get(sc, "images"));
+    }
+    m->recipe_version = (int)json_integer_value(json_object_get(o, "recipe_version"));
+    m->nfeatures = (int)json_integer_value(json_object_get(o, "features"));
+    m->best_round = (int)json_integer_value(json_object_get(o, "best_round"));
+    m->depth = (int)json_integer_value(json_object_get(o, "depth"));
+    m->val_mlogloss = json_number_value(json_object_get(o, "validation_mlogloss"));
+done:
+    json_decref(o);
+    return rc;
+}
+
+int model_check(const struct recipe *r, struct model_meta *m, struct err *e)
+{
+    int rc = model_meta_load(r->model_path, m, e);
+    if (rc)
+        return rc;
+    struct model_meta want;
+    if ((rc = model_meta_from_recipe(r, &want, e)))
+        return rc;
+    if (strcmp(m->product, want.product) != 0)
+        return err_set(e, ST_EFORMAT, "%s: model was trained for product '%s', recipe is '%s'",
+                       r->model_path, m->product, want.product);
+    if (m->nclasses != want.nclasses)
+        return err_set(e, ST_EFORMAT, "%s: model has %d classes, recipe %s has %d",
+                       r->model_path, m->nclasses, r->path, want.nclasses);
+    for (int c = 0; c < m->nclasses; c++)
+        if (strcmp(m->classes[c], want.classes[c]) != 0)
+            return err_set(e, ST_EFORMAT, "%s: model class %d is '%s', recipe says '%s'",
+                           r->model_path, c, m->classes[c], want.classes[c]);
+    if (strcmp(m->features_sha256, want.features_sha256) != 0)
+        return err_set(e, ST_EFORMAT,
+                       "%s: model was trained on other features than recipe %s selects; retrain",
+                       r->model_path, r->path);
+    char hex[SHA256_HEX_LEN];
+    if ((rc = sha256_hex_file(r->model_path, hex, e)))
+        return rc;
+    if (strcmp(hex, m->model_sha256) != 0)
+        return err_set(e, ST_EFORMAT,
+                       "%s: SHA-256 %.12s... differs from %.12s... recorded at training; the "
+                       "model file was changed",
+                       r->model_path, hex, m->model_sha256);
+    return ST_OK;
+}

@@ -1,0 +1,54 @@
+/* cli: what every subcommand shares — exit statuses, the caution line,
+ * messages on stderr, the terminal progress line and the subcommand table.
+ *
+ * Machine-readable output goes to stdout as JSON lines; everything for a
+ * person goes to stderr. */
+#ifndef ST_CLI_H
+#define ST_CLI_H
+
+#include <stdio.h>
+
+enum exit_status {
+    EXIT_ALL_PASS = 0,   /* every part PASS (or the command succeeded) */
+    EXIT_ANY_FAIL = 1,   /* at least one FAIL, none NO_VERDICT */
+    EXIT_ANY_NONE = 2,   /* at least one NO_VERDICT */
+    EXIT_ERROR = 3,      /* bad input: recipe, model, dataset, option */
+    EXIT_USAGE = 4       /* wrong command line */
+};
+
+#define CLI_CAUTION                                                                       \
+    "Caution: station aids, and does not replace, qualified inspection and the site's own " \
+    "quality procedures."
+
+/* "station: message\n" on stderr. */
+void cli_say(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+
+/* A progress line rewritten in place on a terminal, one line per update
+ * (throttled) when stderr is not a terminal. */
+struct progress {
+    int tty;
+    double last_ms;
+};
+void progress_init(struct progress *p);
+void progress_update(struct progress *p, int force, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+void progress_done(struct progress *p);
+
+double cli_now_ms(void);
+
+/* Subcommands: each returns an exit_status. */
+int cmd_train(int argc, char **argv);
+int cmd_evaluate(int argc, char **argv);
+int cmd_inspect(int argc, char **argv);
+int cmd_demo(int argc, char **argv);
+int cmd_recipe(int argc, char **argv);
+int cmd_bench(int argc, char **argv);
+
+/* True when argv holds -h or --help; such commands print usage and return 0. */
+int cli_wants_help(int argc, char **argv);
+
+struct recipe;
+/* Loads a recipe; on failure prints the one-line reason and returns EXIT_ERROR. */
+int cli_load_recipe(const char *path, struct recipe *r);
+
+#endif

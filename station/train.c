@@ -1,0 +1,182 @@
+#include "train.h"
+
+#include <stdio.h>
+#include <string.h>
+#include <time.h>
+
+#include "cli.h"
+#include "core/booster.h"
+#include "core/dataset.h"
+#include "core/features.h"
+#include "core/model.h"
+#include "core/pngio.h"
+#include "core/trainset.h"
+
+/* Below these a defect class is too thin to trust (common practice, no
+ * source: a few hundred pixels from a handful of parts). */
+#define THIN_PIXELS 300
+#define THIN_IMAGES 3
+
+struct progress_state {
+    struct progress p;
+};
+
+static void on_round(void *user, int round, int rounds, double elapsed_s, double val_loss)
+{
+    struct progress_state *s = user;
+    double left = round > 0 ? elapsed_s / round * (rounds - round) : 0;
+    progress_update(&s->p, round == rounds, "training: round %d/%d  %.1f s elapsed  ~%.0f s left"
+                                            "  validation mlogloss %.4f",
+                    round, rounds, elapsed_s, left, val_loss);
+}
+
+/* Features of every labelled image into the sample. */
+static int sample_dataset(const struct recipe *r, const struct dataset *ds, struct trainset *all,
+                          int *used, struct err *e)
+{
+    struct feat_ctx *ctx = NULL;
+    struct fstack *fs = NULL;
+    struct image *img = NULL, *lab = NULL;
+    int rc = ST_OK, cw = 0, ch = 0;
+    uint64_t rng = (uint64_t)r->train.seed * 0x9e3779b97f4a7c15ull + 1;
+    struct progress p;
+    progress_init(&p);
+    *used = 0;
+    for (int i = 0; i < ds->n; i++) {
+        if (!ds->labelled[i])
+            continue;
+        char ip[PATH_MAX], lp[PATH_MAX];
+        if ((rc = dataset_image_path(ds, i, ip, sizeof ip, e)) ||
+            (rc = dataset_label_path(ds, i, lp, sizeof lp, e)) ||
+            (rc = pngio_load_rgb(ip, &img, e)) ||
+            (rc = pngio_load_label(lp, r->nclasses, &lab, e)))
+            goto fail;
+        if (lab->w != img->w || lab->h != img->h) {
+            rc = err_set(e, ST_EFORMAT, "%s: label mask is %dx%d but its image is %dx%d", lp,
+                         lab->w, lab->h, img->w, img->h);
+            goto fail;
+        }
+        if (!ctx || img->w != cw || img->h != ch) {
+            feat_ctx_free(ctx);
+            fstack_free(fs);
+            fs = NULL;
+            if (!(ctx = feat_ctx_new(&r->feat, img->w, img->h, e)) ||
+                !(fs = fstack_new(img->w, img->h, feat_count(&r->feat), e))) {
+                rc = e->code;
+                goto fail;
+            }
+            cw = img->w;
+            ch = img->h;
+        }
+        if ((rc = feat_compute(ctx, img, fs, e)) ||
+            (rc = trainset_add_image(all, fs, lab, r->samples_per_class, &rng, e))) {
+            if (rc != ST_OK && strncmp(e->msg, ip, strlen(ip)) != 0) {
+                char m[sizeof e->msg];
+                snprintf(m, sizeof m, "%s", e->msg);
+                err_set(e, rc, "%s: %s", ip, m);
+            }
+            goto fail;
+        }
+        (*used)++;
+        progress_update(&p, 0, "features: image %d of %d (%s)", i + 1, ds->n, ds->stems[i]);
+        image_free(img);
+        image_free(lab);
+        img = lab = NULL;
+    }
+    progress_update(&p, 1, "features: %d labelled images sampled, %zu pixels", *used, all->n);
+    progress_done(&p);
+fail:
+    image_free(img);
+    image_free(lab);
+    feat_ctx_free(ctx);
+    fstack_free(fs);
+    return rc;
+}
+
+int train_recipe(const struct recipe *r, const char *data_dir, struct train_report *rep,
+                 struct err *e)
+{
+    memset(rep, 0, sizeof *rep);
+    double t0 = cli_now_ms();
+    struct dataset ds;
+    int rc = dataset_open(data_dir, &ds, e);
+    if (rc)
+        return rc;
+    struct trainset all, tr, va;
+    trainset_init(&all, feat_count(&r->feat), r->nclasses);
+    trainset_init(&tr, all.nfeat, all.nclasses);
+    trainset_init(&va, all.nfeat, all.nclasses);
+    struct booster *b = NULL;
+    if ((rc = sample_dataset(r, &ds, &all, &rep->images, e)))
+        goto done;
+    if (rep->images == 0) {
+        rc = err_set(e, ST_EFORMAT, "%s/labels: no label masks for the images", data_dir);
+        goto done;
+    }
+    for (int c = 0; c < r->nclasses; c++) {
+        rep->per_class[c] = all.per_class[c];
+        rep->images_with[c] = all.images_with[c];
+        if (all.per_class[c] == 0) {
+            rc = err_set(e, ST_EFORMAT, "%s: no labelled pixel of class '%s'; cannot train",
+                         data_dir, r->cls[c].name);
+            goto done;
+        }
+    }
+    if ((rc = trainset_split(&all, r->validation_fraction, (uint64_t)r->train.seed, &tr, &va, e)))
+        goto done;
+    trainset_clear(&all);
+    rep->rows_train = tr.n;
+    rep->rows_val = va.n;
+    fprintf(stderr, "training: %zu pixels for training, %zu held out for early stopping\n", tr.n,
+            va.n);
+    struct progress_state ps;
+    progress_init(&ps.p);
+    if ((rc = booster_train(&r->train, r->nclasses, tr.x, tr.y, tr.n, va.x, va.y, va.n, tr.nfeat,
+                            on_round, &ps, &b, &rep->best_round, &rep->best_loss, e)))
+        goto done;
+    progress_done(&ps.p);
+    if ((rc = booster_save(b, r->model_path, e)))
+        goto done;
+    struct model_meta m;
+    if ((rc = model_meta_from_recipe(r, &m, e)) ||
+        (rc = sha256_hex_file(r->model_path, m.model_sha256, e)))
+        goto done;
+    for (int c = 0; c < r->nclasses; c++) {
+        m.samples[c] = rep->per_class[c];
+        m.images[c] = rep->images_with[c];
+    }
+    m.best_round = rep->best_round;
+    m.val_mlogloss = rep->best_loss;
+    time_t now = time(NULL);
+    struct tm tm;
+    gmtime_r(&now, &tm);
+    strftime(m.trained_utc, sizeof m.trained_utc, "%Y-%m-%dT%H:%M:%SZ", &tm);
+    rc = model_meta_save(r->model_path, &m, e);
+done:
+    rep->seconds = (cli_now_ms() - t0) / 1e3;
+    booster_free(b);
+    trainset_clear(&all);
+    trainset_clear(&tr);
+    trainset_clear(&va);
+    dataset_close(&ds);
+    return rc;
+}
+
+void train_print_report(const struct recipe *r, const struct train_report *rep)
+{
+    fprintf(stderr, "training sample (class-balanced, at most %d pixels per class per image):\n",
+            r->samples_per_class);
+    for (int c = 0; c < r->nclasses; c++) {
+        fprintf(stderr, "  %-12s %8zu pixels from %3d images%s\n", r->cls[c].name,
+                rep->per_class[c], rep->images_with[c], r->cls[c].is_defect ? "  (defect)" : "");
+        if (r->cls[c].is_defect &&
+            (rep->per_class[c] < THIN_PIXELS || rep->images_with[c] < THIN_IMAGES))
+            fprintf(stderr, "  warning: defect class '%s' has only %zu pixels in %d images; "
+                            "label more parts with it\n",
+                    r->cls[c].name, rep->per_class[c], rep->images_with[c]);
+    }
+    fprintf(stderr, "model: %s, best round %d of %d (depth %d), validation mlogloss %.4f, "
+                    "%.1f s\n",
+            r->model_path, rep->best_round, r->train.rounds, r->train.depth, rep->best_loss,
+            rep->seconds);
+}

@@ -1,0 +1,46 @@
+#!/bin/sh
+# Runs every test program and reference check; prints one closing line
+# "check: N passed, M failed" that CI reads.  Logs go to $BUILD/test-logs/.
+BUILD=${BUILD:-build}
+PYTHON=${PYTHON:-/usr/bin/python3}
+SAN=${SAN:-0}
+logs="$BUILD/test-logs"
+mkdir -p "$logs"
+pass=0
+fail=0
+failed=""
+run_one() {
+    name=$1
+    shift
+    log="$logs/$(echo "$name" | tr '/' '_').log"
+    if "$@" >"$log" 2>&1; then
+        pass=$((pass + 1))
+        echo "ok    $name"
+    else
+        fail=$((fail + 1))
+        failed="$failed $name"
+        echo "FAIL  $name (log: $log)"
+        tail -n 20 "$log" | sed 's/^/      /'
+    fi
+}
+export STATION_BUILD="$BUILD" STATION_PYTHON="$PYTHON"
+if [ "$SAN" = 1 ]; then
+    export ASAN_OPTIONS="detect_leaks=1:abort_on_error=0:halt_on_error=1"
+    export LSAN_OPTIONS="suppressions=$(pwd)/tests/lsan.supp:print_suppressions=0"
+    export UBSAN_OPTIONS="print_stacktrace=1:halt_on_error=1"
+fi
+for t in $(find "$BUILD/tests" -type f -name 'test_*' ! -name '*.o' ! -name '*.d' | sort); do
+    run_one "${t#$BUILD/}" "$t"
+done
+for s in tests/ref/test_*.py; do
+    [ -e "$s" ] || continue
+    run_one "$s" "$PYTHON" "$s"
+done
+for s in tests/e2e/test_*.sh; do
+    [ -e "$s" ] || continue
+    run_one "$s" sh "$s"
+done
+echo
+[ -n "$failed" ] && echo "failed:$failed"
+echo "check: $pass passed, $fail failed"
+[ "$fail" = 0 ]
