@@ -43,7 +43,7 @@ TEST_SRC    := $(sort $(wildcard tests/*/test_*.c))
 TOOL_SRC    := $(sort $(wildcard tests/tools/*.c))
 BENCH_SRC   := $(sort $(wildcard tests/bench/*.c))
 
-obj = $(patsubst %.c,$(BUILD)/%.o,$(1))
+obj = $(patsubst %.c,$(BUILD)/obj/%.o,$(1))
 CORE_LIB    := $(BUILD)/libstationcore.a
 CALIB_LIB   := $(BUILD)/libstationcalib.a
 STATION_LIB := $(BUILD)/libstationapp.a
@@ -56,7 +56,7 @@ APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
 .PHONY: all check demo bench install uninstall clean deps deps-test
 all: $(STATION_BIN)
 
-$(BUILD)/%.o: %.c
+$(BUILD)/obj/%.o: %.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ST_CFLAGS) -c $< -o $@
 
@@ -74,6 +74,12 @@ $(STATION_LIB): $(call obj,$(STATION_LIB_SRC))
 $(STATION_BIN): $(call obj,station/main.c) $(APP_LIBS)
 	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS)
 
+# core and calib tests link only the libraries they test; station tests and
+# tools may use the program's modules too.
+$(BUILD)/tests/core/%: $(BUILD)/tests/core/%.o $(CORE_LIB)
+	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS) $(TEST_LIBS)
+$(BUILD)/tests/calib/%: $(BUILD)/tests/calib/%.o $(CALIB_LIB) $(CORE_LIB)
+	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS) $(TEST_LIBS)
 $(BUILD)/tests/%: $(BUILD)/tests/%.o $(APP_LIBS)
 	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS) $(TEST_LIBS)
 

@@ -2,11 +2,15 @@
  *
  * The format is documented in recipes/README.md.  recipe_load parses with
  * inih, counts lines itself so every complaint reads `FILE:LINE: what is
- * wrong` (unknown section or key, duplicate key, bad value, value out of
- * range), and checks the whole after parsing (missing keys report the line
- * of their section, or line 0 when the section is missing).  Relative paths
- * resolve against the recipe's folder.  A recipe is a plain value: no heap,
- * copy it freely. */
+ * wrong` (unknown section or key, duplicate key, class or section, bad
+ * value: ST_EFORMAT; value out of range: ST_ERANGE), and checks the whole
+ * after parsing: a missing key names its section's header line
+ * (`FILE:LINE: [classifier] lacks key 'rounds'`), a missing section has no
+ * line (`FILE: missing section [scale]`), a defect class without its
+ * [tolerance NAME] names the class's header line.  A file that cannot be
+ * opened is ST_EIO.  The first error stops the parse.  Relative paths
+ * resolve against the recipe's folder.  On failure *r is left untouched.
+ * A recipe is a plain value: no heap, copy it freely. */
 #ifndef ST_RECIPE_H
 #define ST_RECIPE_H
 

@@ -1,0 +1,762 @@
+#include "recipe.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <ini.h>
+
+enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
+                SEC_GATES, SEC_KINDS };
+
+enum val_type {
+    V_FORMAT,   /* int >= 1, refused when newer than RECIPE_FORMAT */
+    V_INT,      /* int in [lo, hi] */
+    V_REAL,     /* double in [lo, hi] or (lo, hi] */
+    V_YESNO,    /* int 0/1 */
+    V_ID,       /* char[maxn] of [a-z0-9._-] */
+    V_TEXT,     /* char[maxn], free text */
+    V_COLOUR,   /* uint8_t[3] from #rrggbb */
+    V_REALS,    /* double[maxn] increasing, count at count_off */
+    V_FAMILIES, /* unsigned OR of enum feat_family */
+    V_MODEL     /* char[PATH_MAX], resolved against the recipe's folder */
+};
+
+enum {
+    K_OPTIONAL = 1u << 0, /* has a default set before parsing */
+    K_LO_OPEN = 1u << 1,  /* lower bound excluded */
+    K_NONE = 1u << 2      /* accepts "none", stored as -1 */
+};
+
+#define MAX_KEYS 10
+#define MAX_SECTIONS (5 + 2 * RECIPE_MAX_CLASSES)
+#define NAME_MAX_LEN ((int)sizeof(((struct recipe_class *)0)->name) - 1)
+
+struct key_def {
+    const char *name;
+    enum val_type type;
+    size_t off;       /* into the section's target (see section_base) */
+    size_t count_off; /* V_REALS: the int that receives the count */
+    double lo, hi;
+    int maxn;         /* V_REALS: most values; V_ID, V_TEXT: buffer size */
+    unsigned flags;
+};
+
+#define R(f) offsetof(struct recipe, f)
+#define CLS(f) offsetof(struct recipe_class, f)
+#define FEAT(f) offsetof(struct feat_spec, f)
+#define TOL(f) offsetof(struct recipe_tolerance, f)
+#define GATE(f) offsetof(struct recipe_gates, f)
+
+static const struct key_def product_keys[] = {
+    {"format", V_FORMAT, R(format), 0, 1, INT_MAX, 0, 0},
+    {"id", V_ID, R(product), 0, 0, 0, sizeof(((struct recipe *)0)->product), 0},
+    {"version", V_INT, R(version), 0, 1, INT_MAX, 0, 0},
+    {"description", V_TEXT, R(description), 0, 0, 0, sizeof(((struct recipe *)0)->description),
+     K_OPTIONAL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct key_def class_keys[] = {
+    {"defect", V_YESNO, CLS(is_defect), 0, 0, 0, 0, 0},
+    {"colour", V_COLOUR, CLS(rgb), 0, 0, 0, 0, 0},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct key_def features_keys[] = {
+    {"families", V_FAMILIES, FEAT(families), 0, 0, 0, 0, 0},
+    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, 0},
+    {"gabor_orientations", V_INT, FEAT(gabor_orientations), 0, 1, FEAT_MAX_ORIENT, 0,
+     K_OPTIONAL},
+    /* required only with family gabor: checked after parsing */
+    {"gabor_frequencies", V_REALS, FEAT(gabor_freqs), FEAT(ngabor_freqs), 0, 0.5,
+     FEAT_MAX_GABOR_FREQS, K_OPTIONAL | K_LO_OPEN},
+    {"normalise", V_YESNO, FEAT(normalise), 0, 0, 0, 0, K_OPTIONAL},
+    {"threads", V_INT, FEAT(threads), 0, 1, 64, 0, K_OPTIONAL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct key_def classifier_keys[] = {
+    {"model", V_MODEL, R(model_path), 0, 0, 0, 0, 0},
+    {"rounds", V_INT, R(train.rounds), 0, 1, 5000, 0, 0},
+    {"depth", V_INT, R(train.depth), 0, 1, 16, 0, 0},
+    {"learning_rate", V_REAL, R(train.eta), 0, 0, 1, 0, K_LO_OPEN},
+    {"seed", V_INT, R(train.seed), 0, 0, INT_MAX, 0, 0},
+    {"threads", V_INT, R(train.threads), 0, 1, 64, 0, 0},
+    {"early_stop", V_INT, R(train.early_stop), 0, 0, 1000, 0, 0},
+    {"samples_per_class", V_INT, R(samples_per_class), 0, 1, 1000000, 0, 0},
+    {"validation_fraction", V_REAL, R(validation_fraction), 0, 0, 0.5, 0, K_LO_OPEN},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct key_def scale_keys[] = {
+    {"mm_per_px_x", V_REAL, R(mm_per_px_x), 0, 0, 100, 0, K_LO_OPEN},
+    {"mm_per_px_y", V_REAL, R(mm_per_px_y), 0, 0, 100, 0, K_LO_OPEN},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct key_def tolerance_keys[] = {
+    {"min_area_mm2", V_REAL, TOL(min_area_mm2), 0, 0, INFINITY, 0, K_NONE},
+    {"max_area_mm2", V_REAL, TOL(max_area_mm2), 0, 0, INFINITY, 0, K_NONE | K_LO_OPEN},
+    {"max_total_mm2", V_REAL, TOL(max_total_mm2), 0, 0, INFINITY, 0, K_NONE | K_LO_OPEN},
+    {"max_count", V_INT, TOL(max_count), 0, 0, INT_MAX, 0, K_NONE},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct key_def gates_keys[] = {
+    {"min_level", V_REAL, GATE(min_level), 0, 0, 255, 0, K_OPTIONAL},
+    {"max_saturated", V_REAL, GATE(max_saturated), 0, 0, 1, 0, K_OPTIONAL},
+    {"min_part_fraction", V_REAL, GATE(min_part_fraction), 0, 0, 1, 0, K_OPTIONAL},
+    {"min_sharpness", V_REAL, GATE(min_sharpness), 0, 0, INFINITY, 0, K_OPTIONAL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
+static const struct sec_def {
+    const char *word;
+    int named;       /* [class NAME], [tolerance NAME] */
+    int required;
+    const struct key_def *keys;
+} sections[SEC_KINDS] = {
+    [SEC_PRODUCT] = {"product", 0, 1, product_keys},
+    [SEC_CLASS] = {"class", 1, 1, class_keys},
+    [SEC_FEATURES] = {"features", 0, 1, features_keys},
+    [SEC_CLASSIFIER] = {"classifier", 0, 1, classifier_keys},
+    [SEC_SCALE] = {"scale", 0, 1, scale_keys},
+    [SEC_TOLERANCE] = {"tolerance", 1, 0, tolerance_keys},
+    [SEC_GATES] = {"gates", 0, 0, gates_keys},
+};
+
+/* Same order as the bits of enum feat_family. */
+static const char *const family_names[] = {"colour",    "gauss",    "gradient", "laplace",
+                                           "hessian",   "structure", "localstd", "gabor"};
+#define NFAMILIES ((int)(sizeof family_names / sizeof family_names[0]))
+
+struct section {
+    enum sec_kind kind;
+    char name[32];
+    char title[48];         /* "class scratch", for messages */
+    int line;               /* of the header */
+    int key_line[MAX_KEYS]; /* where each key was set, 0 = not set */
+    int index;              /* class index, or slot in tolv */
+    void *base;
+};
+
+struct parse {
+    const char *path;
+    FILE *f;
+    int line;
+    int failed;
+    int fail_line;
+    int fail_code;
+    struct err *e;
+    struct recipe r;
+    struct recipe_tolerance tolv[RECIPE_MAX_CLASSES];
+    int ntol;
+    struct section sec[MAX_SECTIONS];
+    int nsec;
+    struct section *cur;
+};
+
+/* Line 0 means the complaint concerns the whole file. */
+__attribute__((format(printf, 4, 5))) static int fail_at(struct parse *p, int line, int code,
+                                                         const char *fmt, ...)
+{
+    char what[400];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(what, sizeof what, fmt, ap);
+    va_end(ap);
+    p->failed = 1;
+    p->fail_line = line;
+    p->fail_code = code;
+    if (line > 0)
+        return err_set(p->e, code, "%s:%d: %s", p->path, line, what);
+    return err_set(p->e, code, "%s: %s", p->path, what);
+}
+
+static int is_name_char(int c, int dot_ok)
+{
+    return (c >= 'a' && c <= 'z') || (c >= '0' && c <= '9') || c == '_' || c == '-' ||
+           (dot_ok && c == '.');
+}
+
+static int valid_name(const char *s, size_t maxlen, int dot_ok)
+{
+    size_t n = strlen(s);
+    if (n == 0 || n > maxlen)
+        return 0;
+    for (size_t i = 0; i < n; i++)
+        if (!is_name_char((unsigned char)s[i], dot_ok))
+            return 0;
+    return 1;
+}
+
+static int is_blank(int c)
+{
+    return c == ' ' || c == '\t' || c == '\r' || c == '\f' || c == '\v';
+}
+
+/* Copies the next blank-separated word of *s into buf and advances *s.
+ * Returns 0 at the end, -1 when the word does not fit, else 1. */
+static int next_word(const char **s, char *buf, size_t len)
+{
+    const char *a = *s;
+    while (is_blank((unsigned char)*a))
+        a++;
+    const char *b = a;
+    while (*b && !is_blank((unsigned char)*b))
+        b++;
+    *s = b;
+    if (a == b)
+        return 0;
+    if ((size_t)(b - a) >= len)
+        return -1;
+    memcpy(buf, a, (size_t)(b - a));
+    buf[b - a] = '\0';
+    return 1;
+}
+
+static int parse_long(const char *s, long *out)
+{
+    char *end;
+    errno = 0;
+    long v = strtol(s, &end, 10);
+    if (end == s || *end)
+        return -1;
+    /* strtol saturates on overflow, which the range check then refuses. */
+    *out = v;
+    return 0;
+}
+
+/* Only plain decimal notation: this keeps out nan, inf and hex floats. */
+static int parse_double(const char *s, double *out)
+{
+    if (!*s || s[strspn(s, "0123456789+-.eE")])
+        return -1;
+    char *end;
+    double v = strtod(s, &end);
+    if (end == s || *end || !isfinite(v))
+        return -1;
+    *out = v;
+    return 0;
+}
+
+static void range_text(const struct key_def *k, char *buf, size_t len)
+{
+    int integer = k->type == V_INT || k->type == V_FORMAT;
+    if (integer && k->hi >= INT_MAX)
+        snprintf(buf, len, ">= %.0f", k->lo);
+    else if (integer)
+        snprintf(buf, len, "%.0f..%.0f", k->lo, k->hi);
+    else if (isinf(k->hi))
+        snprintf(buf, len, "%s %g", (k->flags & K_LO_OPEN) ? ">" : ">=", k->lo);
+    else
+        snprintf(buf, len, "%c%g, %g]", (k->flags & K_LO_OPEN) ? '(' : '[', k->lo, k->hi);
+}
+
+static int in_range(const struct key_def *k, double v)
+{
+    int lo_ok = (k->flags & K_LO_OPEN) ? v > k->lo : v >= k->lo;
+    return lo_ok && v <= k->hi;
+}
+
+static int out_of_range(struct parse *p, const struct key_def *k, const char *value)
+{
+    char range[48];
+    range_text(k, range, sizeof range);
+    return fail_at(p, p->line, ST_ERANGE, "%s = %s is out of range; allowed: %s%s", k->name, value,
+                   range, (k->flags & K_NONE) ? " or none" : "");
+}
+
+static int store_reals(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    double *dst = (double *)(base + k->off);
+    int n = 0;
+    char word[64];
+    int got;
+    while ((got = next_word(&value, word, sizeof word)) != 0) {
+        double v;
+        if (got < 0 || parse_double(word, &v))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not a number", k->name,
+                           got < 0 ? "(overlong word)" : word);
+        if (n == k->maxn)
+            return fail_at(p, p->line, ST_ERANGE, "%s: more than %d values", k->name, k->maxn);
+        if (!in_range(k, v)) {
+            char range[48];
+            range_text(k, range, sizeof range);
+            return fail_at(p, p->line, ST_ERANGE, "%s: %s is out of range; allowed: %s", k->name,
+                           word, range);
+        }
+        /* equal values would give features with the same name */
+        if (n > 0 && v <= dst[n - 1])
+            return fail_at(p, p->line, ST_EFORMAT, "%s: values must increase", k->name);
+        dst[n++] = v;
+    }
+    if (n == 0)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one value", k->name);
+    *(int *)(base + k->count_off) = n;
+    return ST_OK;
+}
+
+static int store_families(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    unsigned fam = 0;
+    char word[32];
+    int got;
+    while ((got = next_word(&value, word, sizeof word)) != 0) {
+        int f = 0;
+        while (got > 0 && f < NFAMILIES && strcmp(word, family_names[f]))
+            f++;
+        if (got < 0 || f == NFAMILIES)
+            return fail_at(p, p->line, ST_EFORMAT,
+                           "%s: unknown family '%s' (known: colour gauss gradient laplace "
+                           "hessian structure localstd gabor)",
+                           k->name, got < 0 ? "(overlong word)" : word);
+        if (fam & (1u << f))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' listed twice", k->name, word);
+        fam |= 1u << f;
+    }
+    if (!fam)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one family", k->name);
+    *(unsigned *)(base + k->off) = fam;
+    return ST_OK;
+}
+
+static int hex_digit(int c)
+{
+    if (c >= '0' && c <= '9')
+        return c - '0';
+    if (c >= 'a' && c <= 'f')
+        return c - 'a' + 10;
+    if (c >= 'A' && c <= 'F')
+        return c - 'A' + 10;
+    return -1;
+}
+
+static int store_colour(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    uint8_t *rgb = (uint8_t *)(base + k->off);
+    int ok = strlen(value) == 7 && value[0] == '#';
+    for (int i = 0; ok && i < 3; i++) {
+        int hi = hex_digit((unsigned char)value[1 + 2 * i]);
+        int lo = hex_digit((unsigned char)value[2 + 2 * i]);
+        ok = hi >= 0 && lo >= 0;
+        if (ok)
+            rgb[i] = (uint8_t)(hi * 16 + lo);
+    }
+    if (!ok)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not #rrggbb", k->name, value);
+    return ST_OK;
+}
+
+static int ends_with(const char *s, const char *suffix)
+{
+    size_t n = strlen(s), m = strlen(suffix);
+    return n > m && !strcmp(s + n - m, suffix);
+}
+
+static int store_model(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    char *dst = base + k->off;
+    if (!ends_with(value, ".json") && !ends_with(value, ".ubj"))
+        return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .json or .ubj", k->name,
+                       value);
+    int n = value[0] == '/' ? snprintf(dst, PATH_MAX, "%s", value)
+                            : snprintf(dst, PATH_MAX, "%s/%s", p->r.dir, value);
+    if (n < 0 || n >= PATH_MAX)
+        return fail_at(p, p->line, ST_ERANGE, "%s: path too long", k->name);
+    return ST_OK;
+}
+
+static int store_value(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    long iv;
+    double dv;
+    int is_none = (k->flags & K_NONE) && !strcmp(value, "none");
+    switch (k->type) {
+    case V_FORMAT:
+    case V_INT:
+        if (is_none) {
+            *(int *)(base + k->off) = -1;
+            return ST_OK;
+        }
+        if (parse_long(value, &iv))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not an integer", k->name, value);
+        if (!in_range(k, (double)iv))
+            return out_of_range(p, k, value);
+        if (k->type == V_FORMAT && iv > RECIPE_FORMAT)
+            return fail_at(p, p->line, ST_EFORMAT,
+                           "format %ld is newer than this station supports (%d)", iv,
+                           RECIPE_FORMAT);
+        *(int *)(base + k->off) = (int)iv;
+        return ST_OK;
+    case V_REAL:
+        if (is_none) {
+            *(double *)(base + k->off) = -1;
+            return ST_OK;
+        }
+        if (parse_double(value, &dv))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not a number", k->name, value);
+        if (!in_range(k, dv))
+            return out_of_range(p, k, value);
+        *(double *)(base + k->off) = dv;
+        return ST_OK;
+    case V_YESNO:
+        if (strcmp(value, "yes") && strcmp(value, "no"))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not yes or no", k->name, value);
+        *(int *)(base + k->off) = !strcmp(value, "yes");
+        return ST_OK;
+    case V_ID:
+        if (!valid_name(value, (size_t)k->maxn - 1, 1))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must be 1..%d of a-z 0-9 . _ -",
+                           k->name, value, k->maxn - 1);
+        memcpy(base + k->off, value, strlen(value) + 1);
+        return ST_OK;
+    case V_TEXT:
+        if (strlen(value) >= (size_t)k->maxn)
+            return fail_at(p, p->line, ST_ERANGE, "%s: longer than %d characters", k->name,
+                           k->maxn - 1);
+        memcpy(base + k->off, value, strlen(value) + 1);
+        return ST_OK;
+    case V_COLOUR:
+        return store_colour(p, k, base, value);
+    case V_REALS:
+        return store_reals(p, k, base, value);
+    case V_FAMILIES:
+        return store_families(p, k, base, value);
+    case V_MODEL:
+        break;
+    }
+    return store_model(p, k, base, value);
+}
+
+static struct section *find_section(struct parse *p, enum sec_kind kind, const char *name)
+{
+    for (int i = 0; i < p->nsec; i++)
+        if (p->sec[i].kind == kind && !strcmp(p->sec[i].name, name))
+            return &p->sec[i];
+    return NULL;
+}
+
+static void *section_base(struct parse *p, struct section *s)
+{
+    switch (s->kind) {
+    case SEC_CLASS:
+        return &p->r.cls[s->index];
+    case SEC_FEATURES:
+        return &p->r.feat;
+    case SEC_TOLERANCE:
+        return &p->tolv[s->index];
+    case SEC_GATES:
+        return &p->r.gates;
+    default:
+        return &p->r;
+    }
+}
+
+/* Called by the reader on every line that opens with '[', before inih sees
+ * it: inih tells its handler nothing about section headers, and a section
+ * without keys would otherwise go unnoticed. */
+static int begin_section(struct parse *p, char *line)
+{
+    char *close = strchr(line, ']');
+    if (!close)
+        return fail_at(p, p->line, ST_EFORMAT, "section header lacks ']'");
+    const char *rest = close + 1;
+    while (is_blank((unsigned char)*rest))
+        rest++;
+    if (*rest && *rest != ';' && *rest != '#')
+        return fail_at(p, p->line, ST_EFORMAT, "text after ']'");
+
+    char inner[64];
+    const char *in = line + 1;
+    size_t len = (size_t)(close - in);
+    if (len >= sizeof inner)
+        return fail_at(p, p->line, ST_EFORMAT, "unknown section [%.*s]", (int)len, in);
+    memcpy(inner, in, len);
+    inner[len] = '\0';
+
+    char word[16], name[32], extra[8];
+    const char *cur = inner;
+    int gw = next_word(&cur, word, sizeof word);
+    int gn = next_word(&cur, name, sizeof name);
+    int gx = next_word(&cur, extra, sizeof extra);
+    int kind = 0;
+    while (gw > 0 && kind < SEC_KINDS && strcmp(word, sections[kind].word))
+        kind++;
+    if (gw <= 0 || kind == SEC_KINDS || gx != 0)
+        return fail_at(p, p->line, ST_EFORMAT, "unknown section [%s]", inner);
+    const struct sec_def *d = &sections[kind];
+    if (d->named && gn == 0)
+        return fail_at(p, p->line, ST_EFORMAT, "section [%s] needs a name, e.g. [%s scratch]",
+                       word, word);
+    if (!d->named && gn != 0)
+        return fail_at(p, p->line, ST_EFORMAT, "section [%s] takes no name", word);
+    if (d->named && (gn < 0 || !valid_name(name, (size_t)NAME_MAX_LEN, 0)))
+        return fail_at(p, p->line, ST_EFORMAT, "%s name '%s' must be 1..%d of a-z 0-9 _ -",
+                       word, gn < 0 ? "(overlong)" : name, NAME_MAX_LEN);
+    if (!d->named)
+        name[0] = '\0';
+
+    const struct section *dup = find_section(p, (enum sec_kind)kind, name);
+    if (dup && kind == SEC_CLASS)
+        return fail_at(p, p->line, ST_EFORMAT, "duplicate class '%s' (first on line %d)", name,
+                       dup->line);
+    if (dup)
+        return fail_at(p, p->line, ST_EFORMAT, "duplicate section [%s] (first on line %d)",
+                       dup->title, dup->line);
+
+    struct section *s = &p->sec[p->nsec];
+    memset(s, 0, sizeof *s);
+    s->kind = (enum sec_kind)kind;
+    s->line = p->line;
+    snprintf(s->name, sizeof s->name, "%s", name);
+    snprintf(s->title, sizeof s->title, "%s%s%s", word, d->named ? " " : "", name);
+    if (kind == SEC_CLASS) {
+        if (p->r.nclasses == RECIPE_MAX_CLASSES)
+            return fail_at(p, p->line, ST_ERANGE, "more than %d classes", RECIPE_MAX_CLASSES);
+        s->index = p->r.nclasses++;
+        snprintf(p->r.cls[s->index].name, sizeof p->r.cls[s->index].name, "%s", name);
+    } else if (kind == SEC_TOLERANCE) {
+        if (p->ntol == RECIPE_MAX_CLASSES)
+            return fail_at(p, p->line, ST_ERANGE, "more than %d tolerance sections",
+                           RECIPE_MAX_CLASSES);
+        s->index = p->ntol++;
+    }
+    s->base = section_base(p, s);
+    p->nsec++;
+    p->cur = s;
+    return ST_OK;
+}
+
+/* fgets for inih that also counts lines (this inih passes no line number to
+ * the handler, which runs on the line just read), refuses over-long lines
+ * instead of letting inih split them, and strips leading blanks so that
+ * inih never takes an indented line for a multi-line continuation. */
+static char *read_line(char *buf, int num, void *stream)
+{
+    struct parse *p = stream;
+    if (p->failed || num < 2)
+        return NULL;
+    int c, n = 0, nul = 0;
+    while ((c = getc(p->f)) != EOF && c != '\n') {
+        if (n < num - 1)
+            buf[n] = (char)c;
+        nul |= c == '\0';
+        n++;
+    }
+    if (ferror(p->f)) {
+        fail_at(p, 0, ST_EIO, "read error after line %d", p->line);
+        return NULL;
+    }
+    if (c == EOF && n == 0)
+        return NULL;
+    p->line++;
+    if (n > num - 1) {
+        fail_at(p, p->line, ST_EFORMAT, "line longer than %d characters", num - 1);
+        return NULL;
+    }
+    if (nul) {
+        fail_at(p, p->line, ST_EFORMAT, "line holds a NUL byte");
+        return NULL;
+    }
+    buf[n] = '\0';
+    size_t skip = p->line == 1 && !strncmp(buf, "\xEF\xBB\xBF", 3) ? 3 : 0;
+    while (is_blank((unsigned char)buf[skip]))
+        skip++;
+    memmove(buf, buf + skip, (size_t)n - skip + 1);
+    if (buf[0] == '[' && begin_section(p, buf) != ST_OK)
+        return NULL;
+    return buf;
+}
+
+static int on_key(void *user, const char *section, const char *name, const char *value)
+{
+    struct parse *p = user;
+    (void)section; /* p->cur tracks it, with the class or tolerance resolved */
+    if (!p->cur) {
+        fail_at(p, p->line, ST_EFORMAT, "key '%s' before any section", name);
+        return 0;
+    }
+    const struct key_def *keys = sections[p->cur->kind].keys;
+    int k = 0;
+    while (keys[k].name && strcmp(keys[k].name, name))
+        k++;
+    if (!keys[k].name) {
+        fail_at(p, p->line, ST_EFORMAT, "unknown key '%s' in [%s]", name, p->cur->title);
+        return 0;
+    }
+    if (p->cur->key_line[k]) {
+        fail_at(p, p->line, ST_EFORMAT, "duplicate key '%s' in [%s] (first on line %d)", name,
+                p->cur->title, p->cur->key_line[k]);
+        return 0;
+    }
+    p->cur->key_line[k] = p->line;
+    return store_value(p, &keys[k], p->cur->base, value) == ST_OK;
+}
+
+static int key_index(enum sec_kind kind, const char *name)
+{
+    const struct key_def *keys = sections[kind].keys;
+    int k = 0;
+    while (keys[k].name && strcmp(keys[k].name, name))
+        k++;
+    return k;
+}
+
+static int check_sections(struct parse *p)
+{
+    for (int kind = 0; kind < SEC_KINDS; kind++) {
+        if (!sections[kind].required)
+            continue;
+        int found = 0;
+        for (int i = 0; i < p->nsec && !found; i++)
+            found = p->sec[i].kind == (enum sec_kind)kind;
+        if (!found)
+            return fail_at(p, 0, ST_EFORMAT, "missing section [%s%s]", sections[kind].word,
+                           sections[kind].named ? " NAME" : "");
+    }
+    for (int i = 0; i < p->nsec; i++) {
+        const struct section *s = &p->sec[i];
+        const struct key_def *keys = sections[s->kind].keys;
+        for (int k = 0; keys[k].name; k++)
+            if (!(keys[k].flags & K_OPTIONAL) && !s->key_line[k])
+                return fail_at(p, s->line, ST_EFORMAT, "[%s] lacks key '%s'", s->title,
+                               keys[k].name);
+        if (s->kind == SEC_FEATURES && (p->r.feat.families & FEAT_GABOR) &&
+            !s->key_line[key_index(SEC_FEATURES, "gabor_frequencies")])
+            return fail_at(p, s->line, ST_EFORMAT,
+                           "[%s] lacks key 'gabor_frequencies' (required with family gabor)",
+                           s->title);
+    }
+    return ST_OK;
+}
+
+static int check_classes(struct parse *p)
+{
+    const struct recipe *r = &p->r;
+    const struct section *first = find_section(p, SEC_CLASS, r->cls[0].name);
+    if (r->cls[0].is_defect)
+        return fail_at(p, first->key_line[key_index(SEC_CLASS, "defect")], ST_EFORMAT,
+                       "class '%s' comes first, so it is the background and must have "
+                       "defect = no",
+                       r->cls[0].name);
+    int surface = 0, defect = 0;
+    for (int c = 1; c < r->nclasses; c++) {
+        surface += !r->cls[c].is_defect;
+        defect += r->cls[c].is_defect;
+    }
+    if (!surface)
+        return fail_at(p, 0, ST_EFORMAT,
+                       "needs a class with defect = no besides the background '%s'",
+                       r->cls[0].name);
+    if (!defect)
+        return fail_at(p, 0, ST_EFORMAT, "needs at least one class with defect = yes");
+    return ST_OK;
+}
+
+static int check_tolerances(struct parse *p)
+{
+    struct recipe *r = &p->r;
+    int have[RECIPE_MAX_CLASSES] = {0};
+    for (int c = 0; c < r->nclasses; c++)
+        r->tol[c] = (struct recipe_tolerance){-1, -1, -1, -1};
+    for (int i = 0; i < p->nsec; i++) {
+        const struct section *s = &p->sec[i];
+        if (s->kind != SEC_TOLERANCE)
+            continue;
+        int c = recipe_find_class(r, s->name);
+        if (c < 0)
+            return fail_at(p, s->line, ST_EFORMAT, "[%s] names no class", s->title);
+        if (!r->cls[c].is_defect)
+            return fail_at(p, s->line, ST_EFORMAT,
+                           "class '%s' is not a defect (defect = no) and takes no tolerance",
+                           s->name);
+        const struct recipe_tolerance *t = &p->tolv[s->index];
+        if (t->min_area_mm2 >= 0 && t->max_area_mm2 >= 0 && t->min_area_mm2 > t->max_area_mm2)
+            return fail_at(p, s->key_line[key_index(SEC_TOLERANCE, "min_area_mm2")], ST_ERANGE,
+                           "min_area_mm2 = %g exceeds max_area_mm2 = %g", t->min_area_mm2,
+                           t->max_area_mm2);
+        r->tol[c] = *t;
+        have[c] = 1;
+    }
+    for (int c = 0; c < r->nclasses; c++)
+        if (r->cls[c].is_defect && !have[c])
+            return fail_at(p, find_section(p, SEC_CLASS, r->cls[c].name)->line, ST_EFORMAT,
+                           "defect class '%s' has no [tolerance %s]", r->cls[c].name,
+                           r->cls[c].name);
+    return ST_OK;
+}
+
+static void set_defaults(struct recipe *r)
+{
+    r->feat.gabor_orientations = 4;
+    r->feat.normalise = 1;
+    r->feat.threads = 2;
+    r->gates.min_level = 40;
+    r->gates.max_saturated = 0.02;
+    r->gates.min_part_fraction = 0.05;
+    r->gates.min_sharpness = 1.0;
+}
+
+static int set_paths(struct parse *p, const char *path)
+{
+    struct recipe *r = &p->r;
+    size_t n = strlen(path);
+    if (n == 0 || n >= sizeof r->path)
+        return fail_at(p, 0, ST_ERANGE, "recipe path empty or too long");
+    memcpy(r->path, path, n + 1);
+    const char *slash = strrchr(path, '/');
+    if (!slash)
+        snprintf(r->dir, sizeof r->dir, ".");
+    else if (slash == path)
+        snprintf(r->dir, sizeof r->dir, "/");
+    else
+        snprintf(r->dir, sizeof r->dir, "%.*s", (int)(slash - path), path);
+    return ST_OK;
+}
+
+int recipe_load(const char *path, struct recipe *r, struct err *e)
+{
+    struct parse *p = calloc(1, sizeof *p);
+    int rc = ST_OK;
+    if (!p)
+        return err_set(e, ST_ENOMEM, "%s: out of memory", path);
+    p->path = path;
+    p->e = e;
+    set_defaults(&p->r);
+    if ((rc = set_paths(p, path)) != ST_OK)
+        goto fail;
+    p->f = fopen(path, "r");
+    if (!p->f) {
+        rc = err_set(e, ST_EIO, "%s: cannot open: %s", path, strerror(errno));
+        goto fail;
+    }
+    int bad_line = ini_parse_stream(read_line, p, on_key, p);
+    if (bad_line > 0 && (!p->failed || bad_line < p->fail_line)) {
+        rc = fail_at(p, bad_line, ST_EFORMAT, "expected [section] or key = value");
+        goto fail;
+    }
+    if (bad_line < 0) {
+        rc = fail_at(p, 0, ST_ENOMEM, "inih could not allocate its line buffer");
+        goto fail;
+    }
+    if (p->failed) {
+        rc = p->fail_code;
+        goto fail;
+    }
+    if ((rc = check_sections(p)) != ST_OK || (rc = check_classes(p)) != ST_OK ||
+        (rc = check_tolerances(p)) != ST_OK)
+        goto fail;
+    *r = p->r;
+fail:
+    if (p->f)
+        fclose(p->f);
+    free(p);
+    return rc;
+}
+
+int recipe_find_class(const struct recipe *r, const char *name)
+{
+    for (int c = 0; c < r->nclasses; c++)
+        if (!strcmp(r->cls[c].name, name))
+            return c;
+    return -1;
+}

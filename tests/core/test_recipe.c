@@ -1,0 +1,459 @@
+/* core/recipe: the demo recipe fills every field, a minimal recipe gets the
+ * documented defaults, and every kind of bad input is refused with the
+ * exact `FILE:LINE: ` prefix and its message.  Expected line numbers are
+ * counted from the test's own text (line_of), not from the parser.  Bad
+ * recipes are written to a fresh mkdtemp folder removed at the end.
+ * Reference for the values: recipes/README.md and recipes/ostrel-cap38.ini.
+ * Run from the repository root (tests/run.sh does). */
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <setjmp.h>
+#include <cmocka.h>
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "core/recipe.h"
+
+#define PRODUCT "[product]\nformat = 1\nid = t-1\nversion = 3\n\n"
+#define CLASSES                                                                                \
+    "[class background]\ndefect = no\ncolour = #000000\n"                                      \
+    "[class surface]\ndefect = no\ncolour = #00Ff00\n"                                         \
+    "[class scratch]   ; a comment after the header\ndefect = yes\ncolour = #ff0000\n"
+#define FEATURES "[features]\nfamilies = gauss gabor\nsigmas = 1 2\ngabor_frequencies = 0.25\n"
+#define CLASSIFIER_HEAD "[classifier]\nmodel = m.ubj\nrounds = 5\ndepth = 3\n"
+#define CLASSIFIER_TAIL                                                                        \
+    "learning_rate = 0.5\nseed = 0\nthreads = 1\nearly_stop = 0\n"                             \
+    "samples_per_class = 10\nvalidation_fraction = 0.5\n"
+#define CLASSIFIER CLASSIFIER_HEAD CLASSIFIER_TAIL
+#define SCALE "[scale]\nmm_per_px_x = 0.05\nmm_per_px_y = 0.07\n"
+#define TOL                                                                                    \
+    "[tolerance scratch]\nmin_area_mm2 = none\nmax_area_mm2 = 1\nmax_total_mm2 = none\n"       \
+    "max_count = 0\n"
+#define GOOD PRODUCT CLASSES FEATURES CLASSIFIER SCALE TOL
+
+static char dir[64];
+static char file[128];
+
+static int setup(void **state)
+{
+    (void)state;
+    snprintf(dir, sizeof dir, "/tmp/test_recipe_XXXXXX");
+    if (!mkdtemp(dir))
+        return -1;
+    snprintf(file, sizeof file, "%s/r.ini", dir);
+    return 0;
+}
+
+static int teardown(void **state)
+{
+    (void)state;
+    unlink(file);
+    return rmdir(dir);
+}
+
+static void write_text(const char *text)
+{
+    FILE *f = fopen(file, "w");
+    assert_non_null(f);
+    assert_int_equal(fputs(text, f) >= 0, 1);
+    assert_int_equal(fclose(f), 0);
+}
+
+/* 1-based line of the nth (1 = first) line that contains needle. */
+static int line_of(const char *text, const char *needle, int nth)
+{
+    int line = 1;
+    const char *s = text;
+    for (;;) {
+        const char *eol = strchr(s, '\n');
+        size_t len = eol ? (size_t)(eol - s) : strlen(s);
+        char buf[256];
+        assert_true(len < sizeof buf);
+        memcpy(buf, s, len);
+        buf[len] = '\0';
+        if (strstr(buf, needle) && --nth == 0)
+            return line;
+        assert_non_null(eol);
+        s = eol + 1;
+        line++;
+    }
+}
+
+static void load_ok(const char *text, struct recipe *r)
+{
+    struct err e;
+    err_clear(&e);
+    write_text(text);
+    int rc = recipe_load(file, r, &e);
+    if (rc != ST_OK)
+        print_error("unexpected failure: %s\n", e.msg);
+    assert_int_equal(rc, ST_OK);
+}
+
+/* Loads text and expects code with the message `FILE:LINE: ...what...`
+ * (line 0: `FILE: ...what...`); the recipe must be left untouched. */
+static void load_bad(const char *text, int code, int line, const char *what)
+{
+    struct err e;
+    err_clear(&e);
+    write_text(text);
+    static struct recipe r, before;
+    memset(&r, 0xab, sizeof r);
+    before = r;
+    int rc = recipe_load(file, &r, &e);
+    char prefix[160];
+    if (line > 0)
+        snprintf(prefix, sizeof prefix, "%s:%d: ", file, line);
+    else
+        snprintf(prefix, sizeof prefix, "%s: ", file);
+    if (rc != code || strncmp(e.msg, prefix, strlen(prefix)) || !strstr(e.msg, what))
+        print_error("got rc %d '%s', want rc %d '%s...%s'\n", rc, e.msg, code, prefix, what);
+    assert_int_equal(rc, code);
+    assert_int_equal(e.code, code);
+    assert_memory_equal(e.msg, prefix, strlen(prefix));
+    assert_non_null(strstr(e.msg, what));
+    assert_memory_equal(&r, &before, sizeof r);
+}
+
+static void test_demo_recipe(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    struct err e;
+    err_clear(&e);
+    int rc = recipe_load("recipes/ostrel-cap38.ini", &r, &e);
+    if (rc != ST_OK)
+        print_error("%s\n", e.msg);
+    assert_int_equal(rc, ST_OK);
+    assert_string_equal(r.path, "recipes/ostrel-cap38.ini");
+    assert_string_equal(r.dir, "recipes");
+    assert_int_equal(r.format, 1);
+    assert_string_equal(r.product, "ostrel-cap38");
+    assert_int_equal(r.version, 1);
+    assert_non_null(strstr(r.description, "Ostrel cap 38"));
+
+    static const struct {
+        const char *name;
+        int defect;
+        uint8_t rgb[3];
+    } cls[] = {{"background", 0, {0x1a, 0x1a, 0x1a}},
+               {"surface", 0, {0x3c, 0x8c, 0x50}},
+               {"scratch", 1, {0xe0, 0xc0, 0x20}},
+               {"pit", 1, {0xd0, 0x30, 0x30}},
+               {"stain", 1, {0x30, 0x70, 0xe0}}};
+    assert_int_equal(r.nclasses, 5);
+    for (int c = 0; c < 5; c++) {
+        assert_string_equal(r.cls[c].name, cls[c].name);
+        assert_int_equal(r.cls[c].is_defect, cls[c].defect);
+        assert_memory_equal(r.cls[c].rgb, cls[c].rgb, 3);
+        assert_int_equal(recipe_find_class(&r, cls[c].name), c);
+    }
+    assert_int_equal(recipe_find_class(&r, "dent"), -1);
+
+    assert_int_equal(r.feat.families, FEAT_COLOUR | FEAT_GAUSS | FEAT_GRADIENT | FEAT_LAPLACE |
+                                          FEAT_HESSIAN | FEAT_STRUCTURE | FEAT_LOCALSTD |
+                                          FEAT_GABOR);
+    assert_int_equal(r.feat.nsigmas, 3);
+    assert_true(r.feat.sigmas[0] == 1 && r.feat.sigmas[1] == 2 && r.feat.sigmas[2] == 4);
+    assert_int_equal(r.feat.gabor_orientations, 4);
+    assert_int_equal(r.feat.ngabor_freqs, 2);
+    assert_true(r.feat.gabor_freqs[0] == 0.1 && r.feat.gabor_freqs[1] == 0.25);
+    assert_int_equal(r.feat.normalise, 1);
+    assert_int_equal(r.feat.threads, 2);
+
+    assert_string_equal(r.model_path, "recipes/ostrel-cap38.model.json");
+    assert_int_equal(r.train.rounds, 60);
+    assert_int_equal(r.train.depth, 6);
+    assert_true(r.train.eta == 0.3);
+    assert_int_equal(r.train.seed, 7);
+    assert_int_equal(r.train.threads, 2);
+    assert_int_equal(r.train.early_stop, 10);
+    assert_int_equal(r.samples_per_class, 3000);
+    assert_true(r.validation_fraction == 0.2);
+    assert_true(r.mm_per_px_x == 0.1 && r.mm_per_px_y == 0.1);
+
+    static const struct recipe_tolerance tol[] = {{-1, -1, -1, -1},
+                                                  {-1, -1, -1, -1},
+                                                  {0.02, 0.6, 1.0, 2},
+                                                  {0.02, 0.3, 0.6, 3},
+                                                  {0.2, 3.0, 5.0, 1}};
+    for (int c = 0; c < 5; c++) {
+        assert_true(r.tol[c].min_area_mm2 == tol[c].min_area_mm2);
+        assert_true(r.tol[c].max_area_mm2 == tol[c].max_area_mm2);
+        assert_true(r.tol[c].max_total_mm2 == tol[c].max_total_mm2);
+        assert_int_equal(r.tol[c].max_count, tol[c].max_count);
+    }
+    assert_true(r.gates.min_level == 40 && r.gates.max_saturated == 0.02);
+    assert_true(r.gates.min_part_fraction == 0.05 && r.gates.min_sharpness == 1.0);
+}
+
+static void test_minimal_defaults(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(GOOD "[gates]\nmin_sharpness = 0\n", &r);
+    assert_string_equal(r.product, "t-1");
+    assert_int_equal(r.version, 3);
+    assert_string_equal(r.description, "");
+    assert_memory_equal(r.cls[1].rgb, ((uint8_t[]){0, 255, 0}), 3);
+    assert_int_equal(r.feat.families, FEAT_GAUSS | FEAT_GABOR);
+    assert_int_equal(r.feat.gabor_orientations, 4);
+    assert_int_equal(r.feat.normalise, 1);
+    assert_int_equal(r.feat.threads, 2);
+    char want[PATH_MAX];
+    snprintf(want, sizeof want, "%s/m.ubj", dir);
+    assert_string_equal(r.model_path, want);
+    assert_true(r.tol[2].min_area_mm2 == -1 && r.tol[2].max_area_mm2 == 1);
+    assert_true(r.tol[2].max_total_mm2 == -1 && r.tol[2].max_count == 0);
+    assert_true(r.gates.min_level == 40 && r.gates.min_sharpness == 0);
+}
+
+static void test_absolute_model_and_no_gabor(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(PRODUCT CLASSES "[features]\nfamilies = colour\nsigmas = 0.5\n"
+            "[classifier]\nmodel = /srv/models/x.json\nrounds = 5\ndepth = 3\n" CLASSIFIER_TAIL
+            SCALE TOL,
+            &r);
+    assert_string_equal(r.model_path, "/srv/models/x.json");
+    assert_int_equal(r.feat.ngabor_freqs, 0);
+}
+
+/* Without multi-line values an indented line is a key of its own. */
+static void test_indented_line_is_a_key(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER "    rounds = 9\n" SCALE TOL;
+    load_bad(text, ST_EFORMAT, line_of(text, "rounds", 2),
+             "duplicate key 'rounds' in [classifier] (first on line");
+}
+
+static void test_unknown_section(void **state)
+{
+    (void)state;
+    const char *text = GOOD "[lighting]\nlux = 5\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "[lighting]", 1), "unknown section [lighting]");
+}
+
+static void test_unknown_key(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER_HEAD "gamma = 1\n" CLASSIFIER_TAIL
+        SCALE TOL;
+    load_bad(text, ST_EFORMAT, line_of(text, "gamma", 1), "unknown key 'gamma' in [classifier]");
+}
+
+static void test_duplicate_key(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER_HEAD "depth = 4\n" CLASSIFIER_TAIL
+        SCALE TOL;
+    char what[96];
+    snprintf(what, sizeof what, "duplicate key 'depth' in [classifier] (first on line %d)",
+             line_of(text, "depth", 1));
+    load_bad(text, ST_EFORMAT, line_of(text, "depth", 2), what);
+}
+
+static void test_duplicate_class(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES "[class  surface ]\ndefect = no\ncolour = #010101\n"
+        FEATURES CLASSIFIER SCALE TOL;
+    char what[96];
+    snprintf(what, sizeof what, "duplicate class 'surface' (first on line %d)",
+             line_of(text, "[class surface]", 1));
+    load_bad(text, ST_EFORMAT, line_of(text, "[class  surface ]", 1), what);
+}
+
+static void test_duplicate_section(void **state)
+{
+    (void)state;
+    const char *text = GOOD SCALE;
+    load_bad(text, ST_EFORMAT, line_of(text, "[scale]", 2), "duplicate section [scale]");
+}
+
+static void test_bad_numbers(void **state)
+{
+    (void)state;
+    static const char *const bad[] = {"0.1x", "nan", "inf", "0x1p-2", "", "0.1 0.2"};
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        char text[2048], what[64];
+        snprintf(text, sizeof text, "%s%s%s%slearning_rate = %s\nseed = 0\nthreads = 1\n"
+                 "early_stop = 0\nsamples_per_class = 10\nvalidation_fraction = 0.5\n%s%s",
+                 PRODUCT, CLASSES, FEATURES, CLASSIFIER_HEAD, bad[i], SCALE, TOL);
+        snprintf(what, sizeof what, "learning_rate: '%s' is not a number", bad[i]);
+        load_bad(text, ST_EFORMAT, line_of(text, "learning_rate", 1), what);
+    }
+    const char *text = PRODUCT CLASSES FEATURES "[classifier]\nmodel = m.ubj\nrounds = 5.0\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "rounds", 1), "rounds: '5.0' is not an integer");
+}
+
+static void test_out_of_range(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES "[classifier]\nmodel = m.ubj\nrounds = 5\n"
+                                                "depth = 17\n";
+    load_bad(text, ST_ERANGE, line_of(text, "depth", 1),
+             "depth = 17 is out of range; allowed: 1..16");
+    text = PRODUCT CLASSES FEATURES "[classifier]\nlearning_rate = 0\n";
+    load_bad(text, ST_ERANGE, line_of(text, "learning_rate", 1),
+             "learning_rate = 0 is out of range; allowed: (0, 1]");
+    text = PRODUCT CLASSES "[features]\nsigmas = 1 20\n";
+    load_bad(text, ST_ERANGE, line_of(text, "sigmas", 1),
+             "sigmas: 20 is out of range; allowed: [0.5, 16]");
+    text = PRODUCT CLASSES "[features]\nsigmas = 2 1\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "sigmas", 1), "sigmas: values must increase");
+    text = PRODUCT "[tolerance pit]\nmax_count = -1\n";
+    load_bad(text, ST_ERANGE, line_of(text, "max_count", 1),
+             "max_count = -1 is out of range; allowed: >= 0 or none");
+    text = "[scale]\nmm_per_px_x = 100.5\n";
+    load_bad(text, ST_ERANGE, 2, "mm_per_px_x = 100.5 is out of range; allowed: (0, 100]");
+}
+
+static void test_min_area_above_max(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER SCALE
+        "[tolerance scratch]\nmin_area_mm2 = 2\nmax_area_mm2 = 1\nmax_total_mm2 = none\n"
+        "max_count = 0\n";
+    load_bad(text, ST_ERANGE, line_of(text, "min_area_mm2", 1),
+             "min_area_mm2 = 2 exceeds max_area_mm2 = 1");
+}
+
+static void test_missing_key(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER_HEAD "learning_rate = 0.5\nthreads = 1\n"
+        "early_stop = 0\nsamples_per_class = 10\nvalidation_fraction = 0.5\n" SCALE TOL;
+    load_bad(text, ST_EFORMAT, line_of(text, "[classifier]", 1),
+             "[classifier] lacks key 'seed'");
+    text = PRODUCT CLASSES "[features]\nfamilies = gabor\nsigmas = 1\n" CLASSIFIER SCALE TOL;
+    load_bad(text, ST_EFORMAT, line_of(text, "[features]", 1),
+             "[features] lacks key 'gabor_frequencies' (required with family gabor)");
+}
+
+static void test_missing_section(void **state)
+{
+    (void)state;
+    load_bad(PRODUCT CLASSES FEATURES CLASSIFIER TOL, ST_EFORMAT, 0, "missing section [scale]");
+}
+
+static void test_missing_tolerance(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER SCALE;
+    load_bad(text, ST_EFORMAT, line_of(text, "[class scratch]", 1),
+             "defect class 'scratch' has no [tolerance scratch]");
+}
+
+static void test_tolerance_for_non_defect(void **state)
+{
+    (void)state;
+    const char *text = GOOD "[tolerance surface]\nmin_area_mm2 = 0\nmax_area_mm2 = none\n"
+                            "max_total_mm2 = none\nmax_count = none\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "[tolerance surface]", 1),
+             "class 'surface' is not a defect");
+    text = GOOD "[tolerance dent]\nmin_area_mm2 = 0\nmax_area_mm2 = none\n"
+                "max_total_mm2 = none\nmax_count = none\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "[tolerance dent]", 1),
+             "[tolerance dent] names no class");
+}
+
+static void test_newer_format(void **state)
+{
+    (void)state;
+    load_bad("; a later station's recipe\n[product]\nformat = 2\n", ST_EFORMAT, 3,
+             "format 2 is newer than this station supports (1)");
+}
+
+static void test_bad_colour(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT "[class background]\ndefect = no\ncolour = #12345g\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "colour", 1), "colour: '#12345g' is not #rrggbb");
+    text = PRODUCT "[class background]\ndefect = no\ncolour = 123456\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "colour", 1), "colour: '123456' is not #rrggbb");
+}
+
+static void test_class_rules(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT "[class dirt]\ndefect = yes\ncolour = #000000\n" CLASSES FEATURES
+        CLASSIFIER SCALE TOL;
+    load_bad(text, ST_EFORMAT, line_of(text, "defect = yes", 1),
+             "class 'dirt' comes first, so it is the background and must have defect = no");
+    text = PRODUCT "[class background]\ndefect = no\ncolour = #000000\n"
+                   "[class scratch]\ndefect = yes\ncolour = #ff0000\n" FEATURES CLASSIFIER SCALE
+                       TOL;
+    load_bad(text, ST_EFORMAT, 0, "needs a class with defect = no besides the background");
+    text = PRODUCT "[class Scratch]\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "Scratch", 1),
+             "class name 'Scratch' must be 1..31 of a-z 0-9 _ -");
+}
+
+static void test_syntax(void **state)
+{
+    (void)state;
+    const char *text = PRODUCT "rounds 5\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "rounds", 1), "expected [section] or key = value");
+    load_bad("seed = 1\n", ST_EFORMAT, 1, "key 'seed' before any section");
+    load_bad("[product\n", ST_EFORMAT, 1, "section header lacks ']'");
+    load_bad("\n[product] x\n", ST_EFORMAT, 2, "text after ']'");
+    char text2[512];
+    snprintf(text2, sizeof text2, "[product]\ndescription = %0300d\n", 0);
+    load_bad(text2, ST_EFORMAT, 2, "line longer than");
+    load_bad("[features]\nfamilies = gauss sobel\n", ST_EFORMAT, 2,
+             "families: unknown family 'sobel'");
+    load_bad("[features]\nfamilies = gauss gauss\n", ST_EFORMAT, 2,
+             "families: 'gauss' listed twice");
+    load_bad("[classifier]\nmodel = m.bin\n", ST_EFORMAT, 2, "model: 'm.bin' must end in .json");
+}
+
+static void test_missing_file(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    struct err e;
+    err_clear(&e);
+    char path[160];
+    snprintf(path, sizeof path, "%s/none.ini", dir);
+    assert_int_equal(recipe_load(path, &r, &e), ST_EIO);
+    assert_int_equal(e.code, ST_EIO);
+    char prefix[176];
+    snprintf(prefix, sizeof prefix, "%s: cannot open", path);
+    assert_memory_equal(e.msg, prefix, strlen(prefix));
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_demo_recipe),
+        cmocka_unit_test(test_minimal_defaults),
+        cmocka_unit_test(test_absolute_model_and_no_gabor),
+        cmocka_unit_test(test_indented_line_is_a_key),
+        cmocka_unit_test(test_unknown_section),
+        cmocka_unit_test(test_unknown_key),
+        cmocka_unit_test(test_duplicate_key),
+        cmocka_unit_test(test_duplicate_class),
+        cmocka_unit_test(test_duplicate_section),
+        cmocka_unit_test(test_bad_numbers),
+        cmocka_unit_test(test_out_of_range),
+        cmocka_unit_test(test_min_area_above_max),
+        cmocka_unit_test(test_missing_key),
+        cmocka_unit_test(test_missing_section),
+        cmocka_unit_test(test_missing_tolerance),
+        cmocka_unit_test(test_tolerance_for_non_defect),
+        cmocka_unit_test(test_newer_format),
+        cmocka_unit_test(test_bad_colour),
+        cmocka_unit_test(test_class_rules),
+        cmocka_unit_test(test_syntax),
+        cmocka_unit_test(test_missing_file),
+    };
+    return cmocka_run_group_tests(tests, setup, teardown);
+}

@@ -1,0 +1,119 @@
+"""Checks of the demo run and of the subcommands a user runs on its output.
+
+Thresholds: about 93% pixel accuracy and 0.79 mean IoU is what a plain
+hybrid pipeline of this kind (filter or CNN features with boosted trees)
+usually reaches — a rule of thumb of the trade (common practice, no source).
+The independent reference for the metrics is sklearn (tests/ref/test_metrics.py);
+here the demo's own figures are recomputed from its evaluation JSON.
+"""
+import glob
+import json
+import os
+import subprocess
+import sys
+import tempfile
+
+station, out = sys.argv[1], sys.argv[2]
+recipe = os.path.join(out, "ostrel-cap38.ini")
+failures = 0
+
+
+def check(name, ok, detail=""):
+    global failures
+    print(("ok   " if ok else "FAIL ") + name + ("" if ok else ": " + str(detail)))
+    failures += 0 if ok else 1
+
+
+def run(*args):
+    return subprocess.run([station, *args], capture_output=True, text=True)
+
+
+summary = json.load(open(os.path.join(out, "summary.json")))
+for batch in ("nominal", "shifted"):
+    b = summary[batch]
+    ev = b["evaluation"]
+    check(f"{batch}: pixel accuracy {ev['pixel_accuracy']:.4f} >= 0.93",
+          ev["pixel_accuracy"] >= 0.93, ev["pixel_accuracy"])
+    check(f"{batch}: defect classes' mean IoU {ev['defect_mean_iou']:.4f} >= 0.79",
+          ev["defect_mean_iou"] >= 0.79, ev["defect_mean_iou"])
+    check(f"{batch}: no part with a defect over twice its tolerance passed "
+          f"({b['severe_passed']} of {b['severe_parts']})", b["severe_passed"] == 0, b)
+    # the summary's accuracy must be what its own confusion matrix says
+    cm = ev["confusion"]
+    total = sum(map(sum, cm))
+    acc = sum(cm[i][i] for i in range(len(cm))) / total
+    check(f"{batch}: accuracy agrees with its confusion matrix", abs(acc - ev["pixel_accuracy"]) < 1e-9,
+          (acc, ev["pixel_accuracy"]))
+    check(f"{batch}: every part judged", b["parts"] > 0 and sum(b["verdicts"].values()) == b["parts"], b)
+
+# worst-image sheets exist and are PNG
+sheets = glob.glob(os.path.join(out, "test", "evaluation", "worst-*.png"))
+check("worst-image sheets written", len(sheets) == 3 and all(open(s, "rb").read(8) == b"\x89PNG\r\n\x1a\n" for s in sheets), sheets)
+
+# inspect: JSON lines, exit status, and an unreadable image is NO_VERDICT
+images = sorted(glob.glob(os.path.join(out, "test", "images", "*.png")))[:6]
+with tempfile.TemporaryDirectory() as d:
+    bad = os.path.join(d, "cut.png")
+    with open(images[0], "rb") as f, open(bad, "wb") as g:
+        g.write(f.read()[:500])
+    r = run("inspect", recipe, *images, bad, "--overlay", d)
+    lines = [json.loads(l) for l in r.stdout.splitlines()]
+    check("inspect prints one JSON line per image", len(lines) == len(images) + 1, r.stdout[:300])
+    check("inspect: the cut file is NO_VERDICT with its reason",
+          lines[-1]["verdict"] == "NO_VERDICT" and "cut.png" in lines[-1]["reasons"][0]["message"], lines[-1])
+    check("inspect exit status 2 when any NO_VERDICT", r.returncode == 2, r.returncode)
+    check("inspect writes overlays", len(glob.glob(os.path.join(d, "*-overlay.png"))) == len(images))
+    check("inspect carries the caution", "does not replace" in r.stderr, r.stderr[-300:])
+    for l in lines[:-1]:
+        ok = l["verdict"] in ("PASS", "FAIL", "NO_VERDICT") and all(
+            {"rule", "class", "measured", "limit", "unit"} <= set(x) for x in l["reasons"]) and all(
+            "area_mm2" in x for x in l["defects"])
+        check(f"inspect JSON fields for {os.path.basename(l['image'])} ({l['verdict']})", ok, l)
+    verdicts = {l["verdict"] for l in lines[:-1]}
+    r2 = run("inspect", recipe, *images)
+    want = 2 if "NO_VERDICT" in verdicts else (1 if "FAIL" in verdicts else 0)
+    check(f"inspect exit status {want} for verdicts {sorted(verdicts)}", r2.returncode == want, r2.returncode)
+
+    # a dark frame must never pass: the same part with the light nearly off
+    import numpy as np
+    from PIL import Image
+    dark = os.path.join(d, "dark.png")
+    Image.fromarray((np.asarray(Image.open(images[0]).convert("RGB")) // 8).astype(np.uint8)).save(dark)
+    r3 = run("inspect", recipe, dark)
+    check("a nearly dark frame is not PASS", json.loads(r3.stdout)["verdict"] != "PASS", r3.stdout)
+
+    # evaluate --json carries the documented keys
+    r4 = run("evaluate", recipe, "--data", os.path.join(out, "test"), "--json", "--sheets", "none")
+    ev = json.loads(r4.stdout)
+    check("evaluate --json keys", {"pixel_accuracy", "mean_iou", "iou", "confusion"} <= set(ev), list(ev))
+    check("evaluate matches the demo's figures",
+          abs(ev["pixel_accuracy"] - summary["nominal"]["evaluation"]["pixel_accuracy"]) < 1e-12)
+
+    # a recipe typo: FILE:LINE and exit status 3
+    typo = os.path.join(d, "typo.ini")
+    text = open(recipe).read().replace("depth =", "dpeth =", 1)
+    open(typo, "w").write(text)
+    line = next(i + 1 for i, l in enumerate(text.splitlines()) if l.startswith("dpeth"))
+    r5 = run("recipe", "check", typo)
+    check("recipe check names FILE:LINE of an unknown key, exit 3",
+          r5.returncode == 3 and f"{typo}:{line}:" in r5.stderr, (r5.returncode, r5.stderr))
+    r6 = run("recipe", "check", recipe)
+    check("recipe check accepts the demo recipe", r6.returncode == 0, r6.stderr)
+
+    # a model that does not belong to the recipe is refused
+    model = os.path.join(out, "ostrel-cap38.model.json")
+    moved = os.path.join(d, "other.ini")
+    open(moved, "w").write(text.replace("dpeth =", "depth =").replace("sigmas = 1 2 4", "sigmas = 1 2"))
+    os.symlink(model, os.path.join(d, "ostrel-cap38.model.json"))
+    os.symlink(model + ".meta.json", os.path.join(d, "ostrel-cap38.model.json.meta.json"))
+    r7 = run("inspect", moved, images[0])
+    check("a model trained on other features is refused (exit 3)",
+          r7.returncode == 3 and "features" in r7.stderr, (r7.returncode, r7.stderr))
+
+# every subcommand has --help
+for cmd in ("demo", "train", "evaluate", "inspect", "recipe", "bench"):
+    r = run(cmd, "--help")
+    check(f"station {cmd} --help", r.returncode == 0 and "usage: station " + cmd in r.stdout, r.stdout[:100])
+r = run("--version")
+check("station --version", r.returncode == 0 and r.stdout.startswith("station "), r.stdout)
+sys.exit(1 if failures else 0)

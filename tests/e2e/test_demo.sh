@@ -1,0 +1,10 @@
+#!/bin/sh
+# End to end: the demo on a fixed seed, then the subcommands on its output.
+# The figures are checked by check_demo.py.
+set -eu
+BUILD=${STATION_BUILD:-build}
+PYTHON=${STATION_PYTHON:-/usr/bin/python3}
+out="$BUILD/e2e-demo"
+rm -rf "$out"
+"$BUILD/station" demo --out "$out" --seed 11
+exec "$PYTHON" tests/e2e/check_demo.py "$BUILD/station" "$out"
