@@ -132,15 +132,14 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
 
     int32_t nlab = label_pass(rs, classes, is_defect, nclasses, connectivity);
 
-    /* Resolve roots to dense region numbers in raster order of first pixel. */
-    int nreg = 0;
-    for (int32_t l = 0; l < nlab; l++) {
-        int32_t r = find_root(rs->parent, l);
-        rs->parent[l] = (r == l) ? -(++nreg) : r;  /* roots hold -(index+1) */
-    }
+    /* Resolve roots to dense region numbers in raster order of first pixel.
+     * A root is never larger than its members (unite keeps the smaller), so
+     * after flattening, one ascending pass numbers roots before members. */
     for (int32_t l = 0; l < nlab; l++)
-        if (rs->parent[l] >= 0)
-            rs->parent[l] = rs->parent[rs->parent[l]];
+        rs->parent[l] = find_root(rs->parent, l);
+    int nreg = 0;
+    for (int32_t l = 0; l < nlab; l++)
+        rs->parent[l] = rs->parent[l] == l ? -(++nreg) : rs->parent[rs->parent[l]];
 
     if (nreg > rs->cap) {
         struct region *p = realloc(rs->r, (size_t)nreg * sizeof *p);

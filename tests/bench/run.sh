@@ -1,0 +1,30 @@
+#!/bin/sh
+# make bench: per-stage figures of the station beside XGBoost's own predictor
+# (same model, same features) and the same filter bank in OpenCV from Python.
+# Figures, not a test: nothing here passes or fails on speed.
+set -eu
+BUILD=${BUILD:-build}
+PYTHON=${PYTHON:-/usr/bin/python3}
+REPEAT=${REPEAT:-15}
+demo="$BUILD/bench-demo"
+recipe="$demo/ostrel-cap38.ini"
+if [ ! -f "$demo/ostrel-cap38.model.json" ]; then
+    echo "bench: training the demo model first (station demo --out $demo)" >&2
+    "$BUILD/station" demo --out "$demo" --seed 1 >/dev/null 2>"$demo.log" || {
+        cat "$demo.log" >&2
+        exit 1
+    }
+fi
+results="$BUILD/bench-results.jsonl"
+: >"$results"
+for size in 640x480 1280x960; do
+    w=${size%x*}
+    h=${size#*x}
+    for t in 1 2; do
+        echo "bench: $size, $t thread(s)" >&2
+        s=$("$BUILD/station" bench "$recipe" --size "$size" --threads "$t" --repeat "$REPEAT" --xgboost)
+        o=$("$PYTHON" tests/bench/opencv_bank.py "$w" "$h" "$t" 5)
+        echo "{\"station\": $s, \"opencv\": $o}" >>"$results"
+    done
+done
+"$PYTHON" tests/bench/report.py "$results"
