@@ -30,7 +30,7 @@ TEST_LIBS   := $(shell pkg-config --libs $(TEST_PKGS) 2>/dev/null)
 # Our flags come first and user CFLAGS after, but the warnings are restated
 # last so no CFLAGS from outside can drop them.
 WARN := -Wall -Wextra -Werror
-ST_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) $(SANFLAGS) $(PKG_CFLAGS) \
+ST_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fno-math-errno $(SANFLAGS) $(PKG_CFLAGS) \
              -I. -MMD -MP $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
 ST_LDFLAGS := $(SANFLAGS) $(LDFLAGS)
 LIBS := $(PKG_LIBS) -lpthread -lm

@@ -48,7 +48,9 @@
  *   skimage.filters.gabor_kernel(f, theta, bandwidth=1, n_stds=3, offset=0)
  *   (isotropic envelope sigma = 0.5622 / f on skimage's square grid; see
  *   filters.h), as sqrt(real^2 + imag^2) of scipy.ndimage.convolve with
- *   the real and imaginary parts, mode 'reflect'.
+ *   the real and imaginary parts, mode 'reflect'.  Orientation pi - theta
+ *   uses the conjugate of theta's kx (its response then comes from theta's
+ *   passes); skimage's own kernel for it differs by rounding only.
  *
  * Feature order and names (feat_name):
  *   colour_r colour_g colour_b                               FEAT_COLOUR

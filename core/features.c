@@ -1,0 +1,901 @@
+#include "features.h"
+
+#include <math.h>
+#include <pthread.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "filters.h"
+
+#define SIGMA_FAMILIES (FEAT_GAUSS | FEAT_GRADIENT | FEAT_LAPLACE | FEAT_HESSIAN | FEAT_STRUCTURE | FEAT_LOCALSTD)
+#define ALL_FAMILIES (FEAT_COLOUR | SIGMA_FAMILIES | FEAT_GABOR)
+/* Grey in integer form, 299 R + 587 G + 114 B = 1000 * 255 * grey, so the
+ * brightness statistics are exact and the median comes from a histogram. */
+#define GREY_KEY_MAX 255000
+#define FEAT_MAX_GABORS (FEAT_MAX_GABOR_FREQS * FEAT_MAX_ORIENT)
+#define NROWS 8 /* row buffers per worker, enough for the busiest phase */
+/* the largest of the three plans: worker rows, planes, kernels */
+#define PLAN_MAX (FEAT_MAX_THREADS * (NROWS + 2))
+_Static_assert(PLAN_MAX >= 3 + FEAT_MAX_SIGMAS * 8 + FEAT_MAX_GABORS * 2 &&
+                   PLAN_MAX >= FEAT_MAX_SIGMAS * 3 + FEAT_MAX_GABORS * 4,
+               "plan too small");
+
+enum slot {
+    SLOT_GAUSS,
+    SLOT_GRADIENT,
+    SLOT_LAPLACE,
+    SLOT_HESS_HI,
+    SLOT_HESS_LO,
+    SLOT_STRUCT_HI,
+    SLOT_STRUCT_LO,
+    SLOT_LOCALSTD,
+    NSLOTS
+};
+
+static const struct {
+    unsigned family;
+    const char *name;
+} feat_slots[NSLOTS] = {
+    {FEAT_GAUSS, "gauss"},          {FEAT_GRADIENT, "gradient"},   {FEAT_LAPLACE, "laplace"},
+    {FEAT_HESSIAN, "hessian_hi"},   {FEAT_HESSIAN, "hessian_lo"},  {FEAT_STRUCTURE, "structure_hi"},
+    {FEAT_STRUCTURE, "structure_lo"}, {FEAT_LOCALSTD, "localstd"},
+};
+
+/* scipy.ndimage.sobel's passes as half kernels: [-1 0 1] and [1 2 1]. */
+static const float sobel_diff[2] = {0.0f, 1.0f};
+static const float sobel_smooth[2] = {2.0f, 1.0f};
+
+struct feat_sigma {
+    int r;
+    float *k0, *k1, *k2;      /* half kernels of radius r */
+    float *r0, *r1, *r2, *q0; /* row passes: grey by k0, k1, k2; J^2 by k0 */
+    float *gs;                /* G_s * I, kept whole for the Hessian's differences */
+    float *pr[3];             /* row passes (k0) of the Sobel products xx, xy, yy */
+    int idx[NSLOTS];          /* feature index per slot, -1 when not selected */
+};
+
+struct feat_gabor {
+    int r;
+    float *xre, *xim, *yre, *yim;
+    float *re, *im; /* row pass of grey by kx; im is NULL when kx is real */
+    int idx;
+    int y_real;     /* ky has no imaginary part (theta = 0) */
+    int mirror;     /* index of orientation pi - theta, answered from these passes, or -1 */
+    int shared;     /* this orientation is another one's mirror: no kernels, no planes */
+};
+
+struct feat_worker {
+    float *pad;
+    float *fb; /* n planar feature rows of the row being finished */
+    const float **src;
+    float *row[NROWS];
+};
+
+struct feat_ctx;
+typedef void (*feat_phase)(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1);
+
+struct feat_job {
+    struct feat_ctx *ctx;
+    feat_phase fn;
+    struct feat_worker *wk;
+    int y0, y1;
+};
+
+struct feat_ctx {
+    struct feat_spec spec;
+    int w, h, n;
+    int nthreads;
+    int rmax; /* largest radius of any pass, at least Sobel's 1 */
+    int idx_colour;
+    int nsig, ngab;
+    struct feat_sigma sig[FEAT_MAX_SIGMAS];
+    struct feat_gabor gab[FEAT_MAX_GABORS];
+    float *grey, *sob_d, *sob_s;
+    float *planes, *kernels, *rows;
+    float *zero; /* a row of zeros standing in for column passes that vanish */
+    const float **srcs;
+    uint32_t *hist;
+    struct feat_worker *wk;
+    struct feat_job *jobs;
+    pthread_t *tids;
+    /* set per frame, read by the workers */
+    const struct image *img;
+    struct fstack *out;
+    float scale_rgb, scale_grey, mean_grey;
+};
+
+void feat_spec_default(struct feat_spec *spec)
+{
+    memset(spec, 0, sizeof *spec);
+    spec->families = ALL_FAMILIES;
+    spec->nsigmas = 3;
+    spec->sigmas[0] = 1.0;
+    spec->sigmas[1] = 2.0;
+    spec->sigmas[2] = 4.0;
+    spec->gabor_orientations = 4;
+    spec->ngabor_freqs = 2;
+    spec->gabor_freqs[0] = 0.1;
+    spec->gabor_freqs[1] = 0.25;
+    spec->normalise = 1;
+    spec->threads = 2;
+}
+
+/* Values in [lo, hi] (NaN fails), pairwise distinct since equal ones would
+ * give equal feature names. */
+static int check_list(const double *v, int n, double lo, double hi, const char *what, struct err *e)
+{
+    for (int i = 0; i < n; i++) {
+        if (!(v[i] >= lo && v[i] <= hi))
+            return err_set(e, ST_ERANGE, "feature spec: %s %g outside %g..%g", what, v[i], lo, hi);
+        for (int j = 0; j < i; j++)
+            if (v[j] == v[i])
+                return err_set(e, ST_EINVAL, "feature spec: %s %g given twice", what, v[i]);
+    }
+    return ST_OK;
+}
+
+int feat_spec_check(const struct feat_spec *spec, struct err *e)
+{
+    if (spec->families == 0 || (spec->families & ~(unsigned)ALL_FAMILIES))
+        return err_set(e, ST_EINVAL, "feature spec: family set 0x%x is empty or has unknown bits",
+                       spec->families);
+    if (spec->families & SIGMA_FAMILIES) {
+        if (spec->nsigmas < 1 || spec->nsigmas > FEAT_MAX_SIGMAS)
+            return err_set(e, ST_ERANGE, "feature spec: %d sigmas, 1..%d allowed", spec->nsigmas,
+                           FEAT_MAX_SIGMAS);
+        int rc = check_list(spec->sigmas, spec->nsigmas, 0.5, 16.0, "sigma", e);
+        if (rc)
+            return rc;
+    }
+    if (spec->families & FEAT_GABOR) {
+        if (spec->gabor_orientations < 1 || spec->gabor_orientations > FEAT_MAX_ORIENT)
+            return err_set(e, ST_ERANGE, "feature spec: %d Gabor orientations, 1..%d allowed",
+                           spec->gabor_orientations, FEAT_MAX_ORIENT);
+        if (spec->ngabor_freqs < 1 || spec->ngabor_freqs > FEAT_MAX_GABOR_FREQS)
+            return err_set(e, ST_ERANGE, "feature spec: %d Gabor frequencies, 1..%d allowed",
+                           spec->ngabor_freqs, FEAT_MAX_GABOR_FREQS);
+        int rc = check_list(spec->gabor_freqs, spec->ngabor_freqs, 0.01, 0.5, "Gabor frequency", e);
+        if (rc)
+            return rc;
+    }
+    if (spec->normalise != 0 && spec->normalise != 1)
+        return err_set(e, ST_EINVAL, "feature spec: normalise %d is not 0 or 1", spec->normalise);
+    if (spec->threads < 1 || spec->threads > FEAT_MAX_THREADS)
+        return err_set(e, ST_ERANGE, "feature spec: %d threads, 1..%d allowed", spec->threads,
+                       FEAT_MAX_THREADS);
+    return ST_OK;
+}
+
+/* Feature index of every output in the documented order; returns the count.
+ * The spec must have passed feat_spec_check. */
+static int feat_layout(const struct feat_spec *spec, int *colour, int idx[FEAT_MAX_SIGMAS][NSLOTS],
+                       int *gabor)
+{
+    int k = 0;
+    *colour = -1;
+    if (spec->families & FEAT_COLOUR) {
+        *colour = k;
+        k += 3;
+    }
+    for (int i = 0; i < FEAT_MAX_SIGMAS; i++)
+        for (int s = 0; s < NSLOTS; s++)
+            idx[i][s] = (i < spec->nsigmas && (spec->families & feat_slots[s].family)) ? k++ : -1;
+    *gabor = -1;
+    if (spec->families & FEAT_GABOR) {
+        *gabor = k;
+        k += spec->ngabor_freqs * spec->gabor_orientations;
+    }
+    return k;
+}
+
+int feat_count(const struct feat_spec *spec)
+{
+    int colour, gabor, idx[FEAT_MAX_SIGMAS][NSLOTS];
+    if (feat_spec_check(spec, NULL))
+        return -1;
+    return feat_layout(spec, &colour, idx, &gabor);
+}
+
+int feat_name(const struct feat_spec *spec, int k, char *buf, size_t len)
+{
+    int colour, gabor, idx[FEAT_MAX_SIGMAS][NSLOTS];
+    if (feat_spec_check(spec, NULL))
+        return ST_EINVAL;
+    int n = feat_layout(spec, &colour, idx, &gabor);
+    if (k < 0 || k >= n)
+        return ST_ERANGE;
+    int got = -1;
+    if (colour >= 0 && k < colour + 3) {
+        got = snprintf(buf, len, "colour_%c", "rgb"[k - colour]);
+    } else if (gabor >= 0 && k >= gabor) {
+        int no = spec->gabor_orientations;
+        int f = (k - gabor) / no, t = (k - gabor) % no;
+        got = snprintf(buf, len, "gabor_f%g_t%g", spec->gabor_freqs[f], t * 180.0 / no);
+    } else {
+        for (int i = 0; i < spec->nsigmas; i++)
+            for (int s = 0; s < NSLOTS; s++)
+                if (idx[i][s] == k)
+                    got = snprintf(buf, len, "%s_s%g", feat_slots[s].name, spec->sigmas[i]);
+    }
+    return got >= 0 && (size_t)got < len ? ST_OK : ST_ERANGE;
+}
+
+static int all_zero(const float *k, int r)
+{
+    for (int j = 0; j <= r; j++)
+        if (k[j] != 0.0f)
+            return 0;
+    return 1;
+}
+
+/* A list of float buffers carved out of one allocation. */
+struct block_plan {
+    int n;
+    float **dst[PLAN_MAX];
+    size_t len[PLAN_MAX];
+};
+
+static void plan_add(struct block_plan *p, float **dst, size_t len)
+{
+    p->dst[p->n] = dst;
+    p->len[p->n] = len;
+    p->n++;
+}
+
+/* Allocates the sum of the lengths and points every dst into it. */
+static float *plan_alloc(const struct block_plan *p)
+{
+    size_t total = 0;
+    for (int i = 0; i < p->n; i++) {
+        if (p->len[i] > SIZE_MAX / sizeof(float) - total)
+            return NULL;
+        total += p->len[i];
+    }
+    float *base = malloc((total ? total : 1) * sizeof *base);
+    if (!base)
+        return NULL;
+    size_t at = 0;
+    for (int i = 0; i < p->n; i++) {
+        *p->dst[i] = base + at;
+        at += p->len[i];
+    }
+    return base;
+}
+
+static int ctx_plan_planes(struct feat_ctx *ctx, struct block_plan *p)
+{
+    unsigned fam = ctx->spec.families;
+    size_t plane = (size_t)ctx->w * (size_t)ctx->h;
+    p->n = 0;
+    if (fam & (SIGMA_FAMILIES | FEAT_GABOR))
+        plan_add(p, &ctx->grey, plane);
+    if (fam & FEAT_STRUCTURE) {
+        plan_add(p, &ctx->sob_d, plane);
+        plan_add(p, &ctx->sob_s, plane);
+    }
+    for (int i = 0; i < ctx->nsig; i++) {
+        struct feat_sigma *s = &ctx->sig[i];
+        if (fam & (SIGMA_FAMILIES & ~(unsigned)FEAT_STRUCTURE))
+            plan_add(p, &s->r0, plane);
+        if (fam & FEAT_GRADIENT)
+            plan_add(p, &s->r1, plane);
+        if (fam & FEAT_LAPLACE)
+            plan_add(p, &s->r2, plane);
+        if (fam & FEAT_LOCALSTD)
+            plan_add(p, &s->q0, plane);
+        if (fam & FEAT_HESSIAN)
+            plan_add(p, &s->gs, plane);
+        for (int c = 0; c < 3 && (fam & FEAT_STRUCTURE); c++)
+            plan_add(p, &s->pr[c], plane);
+    }
+    for (int i = 0; i < ctx->ngab; i++) {
+        struct feat_gabor *g = &ctx->gab[i];
+        if (g->shared)
+            continue;
+        plan_add(p, &g->re, plane);
+        if (!all_zero(g->xim, g->r))
+            plan_add(p, &g->im, plane);
+    }
+    ctx->planes = plan_alloc(p);
+    return ctx->planes ? ST_OK : ST_ENOMEM;
+}
+
+static const double feat_pi = 3.14159265358979323846;
+
+static double gabor_theta(const struct feat_spec *spec, int t)
+{
+    return t * feat_pi / spec->gabor_orientations;
+}
+
+static int ctx_plan_kernels(struct feat_ctx *ctx, struct block_plan *p)
+{
+    p->n = 0;
+    for (int i = 0; i < ctx->nsig; i++) {
+        struct feat_sigma *s = &ctx->sig[i];
+        plan_add(p, &s->k0, (size_t)s->r + 1);
+        plan_add(p, &s->k1, (size_t)s->r + 1);
+        plan_add(p, &s->k2, (size_t)s->r + 1);
+    }
+    for (int i = 0; i < ctx->ngab; i++) {
+        struct feat_gabor *g = &ctx->gab[i];
+        if (g->shared)
+            continue;
+        plan_add(p, &g->xre, (size_t)g->r + 1);
+        plan_add(p, &g->xim, (size_t)g->r + 1);
+        plan_add(p, &g->yre, (size_t)g->r + 1);
+        plan_add(p, &g->yim, (size_t)g->r + 1);
+    }
+    ctx->kernels = plan_alloc(p);
+    if (!ctx->kernels)
+        return ST_ENOMEM;
+    for (int i = 0; i < ctx->nsig; i++) {
+        struct feat_sigma *s = &ctx->sig[i];
+        filt_gauss_kernels(ctx->spec.sigmas[i], s->r, s->k0, s->k1, s->k2);
+    }
+    for (int i = 0; i < ctx->ngab; i++) {
+        struct feat_gabor *g = &ctx->gab[i];
+        int no = ctx->spec.gabor_orientations;
+        if (g->shared)
+            continue;
+        filt_gabor_kernels(ctx->spec.gabor_freqs[i / no], gabor_theta(&ctx->spec, i % no), g->r, g->xre,
+                           g->xim, g->yre, g->yim);
+        g->y_real = all_zero(g->yim, g->r);
+    }
+    return ST_OK;
+}
+
+static int ctx_alloc_workers(struct feat_ctx *ctx, struct block_plan *p)
+{
+    int nt = ctx->nthreads;
+    size_t nsrc = 2 * (size_t)ctx->rmax + 1;
+    ctx->wk = calloc((size_t)nt, sizeof *ctx->wk);
+    ctx->jobs = calloc((size_t)nt, sizeof *ctx->jobs);
+    ctx->tids = calloc((size_t)nt, sizeof *ctx->tids);
+    ctx->srcs = calloc((size_t)nt * nsrc, sizeof *ctx->srcs);
+    if (!ctx->wk || !ctx->jobs || !ctx->tids || !ctx->srcs)
+        return ST_ENOMEM;
+    p->n = 0;
+    for (int t = 0; t < nt; t++) {
+        struct feat_worker *wk = &ctx->wk[t];
+        wk->src = ctx->srcs + (size_t)t * nsrc;
+        plan_add(p, &wk->pad, (size_t)ctx->w + 2 * (size_t)ctx->rmax);
+        plan_add(p, &wk->fb, (size_t)ctx->w * (size_t)ctx->n);
+        for (int b = 0; b < NROWS; b++)
+            plan_add(p, &wk->row[b], (size_t)ctx->w);
+    }
+    ctx->rows = plan_alloc(p);
+    return ctx->rows ? ST_OK : ST_ENOMEM;
+}
+
+struct feat_ctx *feat_ctx_new(const struct feat_spec *spec, int w, int h, struct err *e)
+{
+    struct feat_ctx *ctx = NULL;
+    struct block_plan *plan = NULL;
+    if (feat_spec_check(spec, e) || image_check_size(w, h, 1, NULL, e))
+        return NULL;
+    ctx = calloc(1, sizeof *ctx);
+    plan = malloc(sizeof *plan);
+    if (!ctx || !plan)
+        goto fail;
+    ctx->spec = *spec;
+    ctx->w = w;
+    ctx->h = h;
+    ctx->nthreads = spec->threads < h ? spec->threads : h;
+    int colour, gabor, idx[FEAT_MAX_SIGMAS][NSLOTS];
+    ctx->n = feat_layout(spec, &colour, idx, &gabor);
+    ctx->idx_colour = colour;
+    ctx->rmax = 1;
+    if (spec->families & SIGMA_FAMILIES)
+        ctx->nsig = spec->nsigmas;
+    for (int i = 0; i < ctx->nsig; i++) {
+        struct feat_sigma *s = &ctx->sig[i];
+        s->r = filt_gauss_radius(spec->sigmas[i]);
+        memcpy(s->idx, idx[i], sizeof s->idx);
+        if (s->r > ctx->rmax)
+            ctx->rmax = s->r;
+    }
+    if (spec->families & FEAT_GABOR)
+        ctx->ngab = spec->ngabor_freqs * spec->gabor_orientations;
+    /* Orientation pi - theta has kx conjugated and the same ky, so for a
+     * real image its row pass is the conjugate of theta's and its response
+     * comes from theta's column passes with two signs flipped (gabor_row):
+     * pairing them halves the Gabor work for all orientations but 0 and
+     * pi/2.  skimage's kernel for pi - theta differs from the conjugate by
+     * rounding of cos and sin only. */
+    for (int i = 0; i < ctx->ngab; i++) {
+        struct feat_gabor *g = &ctx->gab[i];
+        int no = spec->gabor_orientations, t = i % no;
+        g->idx = gabor + i;
+        g->mirror = -1;
+        g->shared = 2 * t > no;
+        if (g->shared) {
+            ctx->gab[i - t + (no - t)].mirror = i;
+            continue;
+        }
+        g->r = filt_gabor_radius(spec->gabor_freqs[i / no], gabor_theta(spec, t));
+        if (g->r > ctx->rmax)
+            ctx->rmax = g->r;
+    }
+    /* kernels first: whether a Gabor kx is real decides its planes */
+    if (ctx_plan_kernels(ctx, plan) || ctx_plan_planes(ctx, plan) || ctx_alloc_workers(ctx, plan))
+        goto fail;
+    ctx->zero = calloc((size_t)w, sizeof *ctx->zero);
+    if (!ctx->zero)
+        goto fail;
+    if (spec->normalise) {
+        ctx->hist = malloc((GREY_KEY_MAX + 1) * sizeof *ctx->hist);
+        if (!ctx->hist)
+            goto fail;
+    }
+    free(plan);
+    return ctx;
+fail:
+    err_set(e, ST_ENOMEM, "features: out of memory for the scratch planes of a %dx%d frame", w, h);
+    free(plan);
+    feat_ctx_free(ctx);
+    return NULL;
+}
+
+void feat_ctx_free(struct feat_ctx *ctx)
+{
+    if (!ctx)
+        return;
+    free(ctx->planes);
+    free(ctx->kernels);
+    free(ctx->rows);
+    free(ctx->zero);
+    free(ctx->srcs);
+    free(ctx->hist);
+    free(ctx->wk);
+    free(ctx->jobs);
+    free(ctx->tids);
+    free(ctx);
+}
+
+static uint32_t grey_key(const uint8_t *p, int channels)
+{
+    return channels == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
+}
+
+/* Sets the per-frame scales and the mean grey from the brightness level. */
+static void frame_level(struct feat_ctx *ctx, const struct image *img)
+{
+    size_t npx = (size_t)ctx->w * (size_t)ctx->h;
+    int ch = img->channels;
+    uint64_t sum = 0;
+    if (ctx->hist)
+        memset(ctx->hist, 0, (GREY_KEY_MAX + 1) * sizeof *ctx->hist);
+    for (size_t i = 0; i < npx; i++) {
+        uint32_t key = grey_key(img->px + i * ch, ch);
+        sum += key;
+        if (ctx->hist)
+            ctx->hist[key]++;
+    }
+    double mean_key = (double)sum / (double)npx;
+    double scale = 1.0;
+    if (ctx->hist) {
+        /* integer keys above the exact mean sum / npx */
+        uint32_t first = (uint32_t)(sum / npx) + 1;
+        uint64_t count = 0;
+        for (uint32_t k = first; k <= GREY_KEY_MAX; k++)
+            count += ctx->hist[k];
+        double level_key = mean_key;
+        if (count) {
+            uint64_t lo = (count - 1) / 2, hi = count / 2, acc = 0;
+            uint32_t klo = first;
+            for (uint32_t k = first; k <= GREY_KEY_MAX; k++) {
+                if (acc <= lo && acc + ctx->hist[k] > lo)
+                    klo = k;
+                if (acc + ctx->hist[k] > hi) {
+                    level_key = 0.5 * ((double)klo + (double)k);
+                    break;
+                }
+                acc += ctx->hist[k];
+            }
+        }
+        double level = fmax(level_key / GREY_KEY_MAX, 1.0 / 255.0);
+        scale = 0.5 / level;
+    }
+    ctx->scale_rgb = (float)(scale / 255.0);
+    ctx->scale_grey = (float)(scale / GREY_KEY_MAX);
+    /* the same float expression as a pixel's grey, so a uniform frame has J = 0 exactly */
+    ctx->mean_grey = (float)mean_key * ctx->scale_grey;
+}
+
+/* Feature row k of the worker's planar buffer for the current row. */
+static float *frow(const struct feat_ctx *ctx, struct feat_worker *wk, int k)
+{
+    return wk->fb + (size_t)k * (size_t)ctx->w;
+}
+
+/* Writes the n planar feature rows as one pixel-major output row, so the
+ * stores run contiguously instead of one cache line per value; blocks of 16
+ * pixels keep the n source lines in L1. */
+FILT_HOT static void interleave_block(const float *restrict fb, size_t w, size_t n, size_t x0, size_t nx,
+                                      float *restrict o)
+{
+    for (size_t x = 0; x < nx; x++)
+        for (size_t k = 0; k < n; k++)
+            o[x * n + k] = fb[k * w + x0 + x];
+}
+
+static void interleave_row(const struct feat_ctx *ctx, const struct feat_worker *wk, int y)
+{
+    size_t n = (size_t)ctx->n, w = (size_t)ctx->w;
+    float *o = ctx->out->v + (size_t)y * w * n;
+    for (size_t x0 = 0; x0 < w; x0 += 16)
+        interleave_block(wk->fb, w, n, x0, w - x0 < 16 ? w - x0 : 16, o + x0 * n);
+}
+
+FILT_HOT static void grey_row(const uint8_t *restrict px, int ch, int w, float scale, float *restrict g)
+{
+    if (ch == 3)
+        for (int x = 0; x < w; x++)
+            g[x] = (float)(299 * px[3 * x] + 587 * px[3 * x + 1] + 114 * px[3 * x + 2]) * scale;
+    else
+        for (int x = 0; x < w; x++)
+            g[x] = (float)(1000 * px[x]) * scale;
+}
+
+FILT_HOT static void centred_square(const float *restrict g, float m, int w, float *restrict out)
+{
+    for (int x = 0; x < w; x++)
+        out[x] = (g[x] - m) * (g[x] - m);
+}
+
+FILT_HOT static void magnitude(const float *restrict a, const float *restrict b, int w, float *restrict out)
+{
+    for (int x = 0; x < w; x++)
+        out[x] = sqrtf(a[x] * a[x] + b[x] * b[x]);
+}
+
+FILT_HOT static void sum_rows(const float *restrict a, const float *restrict b, int w, float *restrict out)
+{
+    for (int x = 0; x < w; x++)
+        out[x] = a[x] + b[x];
+}
+
+/* sqrt(max(0, G(J^2) - (G J)^2)) with G J = G I - mean */
+FILT_HOT static void local_std(const float *restrict q, const float *restrict g, float m, int w,
+                               float *restrict out)
+{
+    for (int x = 0; x < w; x++) {
+        float d = g[x] - m;
+        out[x] = sqrtf(fmaxf(0.0f, q[x] - d * d));
+    }
+}
+
+/* |(a - s b) + i (c + s d)|, s = +-1: a complex column pass assembled from
+ * its four real parts */
+FILT_HOT static void complex_magnitude(const float *restrict a, const float *restrict b, const float *restrict c,
+                                       const float *restrict d, float s, int w, float *restrict out)
+{
+    for (int x = 0; x < w; x++) {
+        float re = a[x] - s * b[x], im = c[x] + s * d[x];
+        out[x] = sqrtf(re * re + im * im);
+    }
+}
+
+/* products of the Sobel derivatives: 0 = xx, 1 = xy, 2 = yy */
+FILT_HOT static void sobel_product(const float *restrict dx, const float *restrict dy, int c, int w,
+                                   float *restrict out)
+{
+    const float *restrict a = c == 2 ? dy : dx;
+    const float *restrict b = c == 0 ? dx : dy;
+    for (int x = 0; x < w; x++)
+        out[x] = a[x] * b[x];
+}
+
+/* A symmetric and an antisymmetric pass over the same source; either
+ * output may be NULL, and with both they share the loads. */
+static void sym_anti(const float *const *src, const float *ks, const float *ka, int r, int w, float *os, float *oa)
+{
+    if (os && oa)
+        filt_pair(src, ks, ka, r, w, os, oa);
+    else if (os)
+        filt_sym(src, ks, r, w, os);
+    else if (oa)
+        filt_anti(src, ka, r, w, oa);
+}
+
+/* Every pass that needs only its own row: grey, the row passes, the Sobel
+ * row parts. */
+static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
+{
+    const struct image *img = ctx->img;
+    int w = ctx->w, ch = img->channels, rmax = ctx->rmax;
+    const float **src = wk->src;
+    for (int y = y0; y < y1 && ctx->grey; y++) {
+        const uint8_t *px = img->px + (size_t)y * (size_t)w * (size_t)ch;
+        size_t off = (size_t)y * (size_t)w;
+        float *g = ctx->grey + off;
+        grey_row(px, ch, w, ctx->scale_grey, g);
+        filt_pad_row(g, w, rmax, wk->pad);
+        for (int i = 0; i < ctx->nsig; i++) {
+            struct feat_sigma *s = &ctx->sig[i];
+            filt_sources_row(wk->pad, rmax, s->r, src);
+            sym_anti(src, s->k0, s->k1, s->r, w, s->r0 ? s->r0 + off : NULL, s->r1 ? s->r1 + off : NULL);
+            if (s->r2)
+                filt_sym(src, s->k2, s->r, w, s->r2 + off);
+        }
+        if (ctx->sob_d) {
+            filt_sources_row(wk->pad, rmax, 1, src);
+            filt_anti(src, sobel_diff, 1, w, ctx->sob_d + off);
+            filt_sym(src, sobel_smooth, 1, w, ctx->sob_s + off);
+        }
+        for (int i = 0; i < ctx->ngab; i++) {
+            struct feat_gabor *gb = &ctx->gab[i];
+            if (gb->shared)
+                continue;
+            filt_sources_row(wk->pad, rmax, gb->r, src);
+            sym_anti(src, gb->xre, gb->xim, gb->r, w, gb->re + off, gb->im ? gb->im + off : NULL);
+        }
+        if (ctx->spec.families & FEAT_LOCALSTD) {
+            centred_square(g, ctx->mean_grey, w, wk->row[0]);
+            filt_pad_row(wk->row[0], w, rmax, wk->pad);
+            for (int i = 0; i < ctx->nsig; i++) {
+                struct feat_sigma *s = &ctx->sig[i];
+                filt_sources_row(wk->pad, rmax, s->r, src);
+                filt_sym(src, s->k0, s->r, w, s->q0 + off);
+            }
+        }
+    }
+}
+
+/* What the last phase reads beyond its own row: G_s * I whole (for the
+ * Hessian's differences) and the row passes of the Sobel products (which
+ * need the Sobel column pass first). */
+static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
+{
+    int w = ctx->w, h = ctx->h, rmax = ctx->rmax;
+    const float **src = wk->src;
+    for (int y = y0; y < y1; y++) {
+        size_t off = (size_t)y * (size_t)w;
+        for (int i = 0; i < ctx->nsig; i++) {
+            struct feat_sigma *s = &ctx->sig[i];
+            if (!s->gs)
+                continue;
+            filt_sources_col(s->r0, w, h, y, s->r, src);
+            filt_sym(src, s->k0, s->r, w, s->gs + off);
+        }
+        if (!ctx->sob_d)
+            continue;
+        float *dx = wk->row[0], *dy = wk->row[1], *prod = wk->row[2];
+        filt_sources_col(ctx->sob_d, w, h, y, 1, src);
+        filt_sym(src, sobel_smooth, 1, w, dx);
+        filt_sources_col(ctx->sob_s, w, h, y, 1, src);
+        filt_anti(src, sobel_diff, 1, w, dy);
+        for (int c = 0; c < 3; c++) {
+            sobel_product(dx, dy, c, w, prod);
+            filt_pad_row(prod, w, rmax, wk->pad);
+            for (int i = 0; i < ctx->nsig; i++) {
+                struct feat_sigma *s = &ctx->sig[i];
+                filt_sources_row(wk->pad, rmax, s->r, src);
+                filt_sym(src, s->k0, s->r, w, s->pr[c] + off);
+            }
+        }
+    }
+}
+
+static void colour_row(const struct feat_ctx *ctx, struct feat_worker *wk, int y)
+{
+    int ch = ctx->img->channels;
+    const uint8_t *px = ctx->img->px + (size_t)y * (size_t)ctx->w * (size_t)ch;
+    for (int c = 0; c < 3; c++) {
+        const uint8_t *p = px + (ch == 3 ? c : 0);
+        float *o = frow(ctx, wk, ctx->idx_colour + c);
+        for (int x = 0; x < ctx->w; x++)
+            o[x] = p[x * ch] * ctx->scale_rgb;
+    }
+}
+
+/* gauss, gradient, laplace, localstd of one sigma at row y */
+static void cols_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_sigma *s, int y)
+{
+    int w = ctx->w, h = ctx->h, r = s->r;
+    const float **src = wk->src;
+    float *gy = wk->row[1], *lyy = wk->row[2], *tmp = wk->row[3];
+    int kg = s->idx[SLOT_GAUSS];
+    float *g = kg >= 0 ? frow(ctx, wk, kg) : wk->row[0];
+    filt_sources_col(s->r0, w, h, y, r, src);
+    if (s->gs)
+        memcpy(g, s->gs + (size_t)y * (size_t)w, (size_t)w * sizeof *g);
+    sym_anti(src, s->k0, s->k1, r, w, s->gs ? NULL : g, s->r1 ? gy : NULL);
+    if (s->r2)
+        filt_sym(src, s->k2, r, w, lyy);
+    if (s->r1) {
+        filt_sources_col(s->r1, w, h, y, r, src);
+        filt_sym(src, s->k0, r, w, tmp);
+        magnitude(tmp, gy, w, frow(ctx, wk, s->idx[SLOT_GRADIENT]));
+    }
+    if (s->r2) {
+        filt_sources_col(s->r2, w, h, y, r, src);
+        filt_sym(src, s->k0, r, w, tmp);
+        sum_rows(tmp, lyy, w, frow(ctx, wk, s->idx[SLOT_LAPLACE]));
+    }
+    if (s->q0) {
+        filt_sources_col(s->q0, w, h, y, r, src);
+        filt_sym(src, s->k0, r, w, tmp);
+        local_std(tmp, g, ctx->mean_grey, w, frow(ctx, wk, s->idx[SLOT_LOCALSTD]));
+    }
+}
+
+/* numpy.gradient along x of one row (edge_order 1) */
+FILT_HOT static void grad_x(const float *restrict g, int w, float *restrict out)
+{
+    if (w == 1) {
+        out[0] = 0.0f;
+        return;
+    }
+    out[0] = g[1] - g[0];
+    for (int x = 1; x < w - 1; x++)
+        out[x] = (g[x + 1] - g[x - 1]) * 0.5f;
+    out[w - 1] = g[w - 1] - g[w - 2];
+}
+
+/* numpy.gradient along y at one row from its neighbour rows hi and lo:
+ * inv is 1/2 inside, 1 at the ends (one-sided) and 0 for a single row. */
+FILT_HOT static void grad_y(const float *restrict hi, const float *restrict lo, float inv, int w, float *restrict out)
+{
+    for (int x = 0; x < w; x++)
+        out[x] = (hi[x] - lo[x]) * inv;
+}
+
+static int y_lo(int y)
+{
+    return y > 0 ? y - 1 : 0;
+}
+
+static int y_hi(int y, int h)
+{
+    return y < h - 1 ? y + 1 : h - 1;
+}
+
+static float y_inv(int y, int h)
+{
+    int span = y_hi(y, h) - y_lo(y);
+    return span ? 1.0f / (float)span : 0.0f;
+}
+
+/* skimage _image_orthogonal_matrix22_eigvals */
+FILT_HOT static void eigen_2x2(const float *restrict a, const float *restrict b, const float *restrict c, int w,
+                               float *restrict hi, float *restrict lo)
+{
+    for (int x = 0; x < w; x++) {
+        float mid = (a[x] + c[x]) * 0.5f;
+        float d = a[x] - c[x];
+        float t = sqrtf(4.0f * b[x] * b[x] + d * d) * 0.5f;
+        hi[x] = mid + t;
+        lo[x] = mid - t;
+    }
+}
+
+static void hessian_row(struct feat_ctx *ctx, struct feat_worker *wk, const float *gs, int y)
+{
+    int w = ctx->w, h = ctx->h;
+    const float *row = gs + (size_t)y * (size_t)w;
+    const float *lo = gs + (size_t)y_lo(y) * (size_t)w, *hi = gs + (size_t)y_hi(y, h) * (size_t)w;
+    float *t1 = wk->row[0], *t2 = wk->row[1], *hxx = wk->row[2], *hxy = wk->row[3], *hyy = wk->row[4];
+    float inv = y_inv(y, h);
+    grad_x(row, w, t1);
+    grad_x(t1, w, hxx);
+    grad_x(hi, w, t1);
+    grad_x(lo, w, t2);
+    grad_y(t1, t2, inv, w, hxy);
+    int yh = y_hi(y, h), yl = y_lo(y);
+    grad_y(gs + (size_t)y_hi(yh, h) * w, gs + (size_t)y_lo(yh) * w, y_inv(yh, h), w, t1);
+    grad_y(gs + (size_t)y_hi(yl, h) * w, gs + (size_t)y_lo(yl) * w, y_inv(yl, h), w, t2);
+    grad_y(t1, t2, inv, w, hyy);
+}
+
+/* Hessian eigenvalues and the structure tensor's column passes of one sigma */
+static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_sigma *s, int y)
+{
+    int w = ctx->w, h = ctx->h;
+    if (s->gs) {
+        hessian_row(ctx, wk, s->gs, y);
+        eigen_2x2(wk->row[2], wk->row[3], wk->row[4], w, frow(ctx, wk, s->idx[SLOT_HESS_HI]),
+                  frow(ctx, wk, s->idx[SLOT_HESS_LO]));
+    }
+    if (s->pr[0]) {
+        for (int c = 0; c < 3; c++) {
+            filt_sources_col(s->pr[c], w, h, y, s->r, wk->src);
+            filt_sym(wk->src, s->k0, s->r, w, wk->row[5 + c]);
+        }
+        eigen_2x2(wk->row[5], wk->row[6], wk->row[7], w, frow(ctx, wk, s->idx[SLOT_STRUCT_HI]),
+                  frow(ctx, wk, s->idx[SLOT_STRUCT_LO]));
+    }
+}
+
+/* (U + iV) correlated with ky = yre + i yim down the columns is
+ * (A - B) + i (C + D) with A = U*yre, B = V*yim, C = V*yre, D = U*yim;
+ * parts that are 0 (V for a real kx, yim at theta = 0) are skipped.  The
+ * mirror orientation has V negated: (A + B) + i (D - C), the same magnitude
+ * as (A + B) + i (C - D). */
+static void gabor_row(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_gabor *gb, int y)
+{
+    int w = ctx->w, h = ctx->h, r = gb->r;
+    const float **src = wk->src;
+    float *a = wk->row[0], *b = ctx->zero, *c = ctx->zero, *d = ctx->zero;
+    filt_sources_col(gb->re, w, h, y, r, src);
+    if (!gb->y_real)
+        d = wk->row[3];
+    sym_anti(src, gb->yre, gb->yim, r, w, a, gb->y_real ? NULL : d);
+    if (gb->im) {
+        filt_sources_col(gb->im, w, h, y, r, src);
+        c = wk->row[2];
+        if (!gb->y_real)
+            b = wk->row[1];
+        sym_anti(src, gb->yre, gb->yim, r, w, c, gb->y_real ? NULL : b);
+    }
+    complex_magnitude(a, b, c, d, 1.0f, w, frow(ctx, wk, gb->idx));
+    if (gb->mirror >= 0)
+        complex_magnitude(a, b, c, d, -1.0f, w, frow(ctx, wk, ctx->gab[gb->mirror].idx));
+}
+
+/* Every feature of row y into the planar buffer, then out as one row. */
+static void phase_final(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
+{
+    for (int y = y0; y < y1; y++) {
+        if (ctx->idx_colour >= 0)
+            colour_row(ctx, wk, y);
+        for (int i = 0; i < ctx->nsig; i++) {
+            if (ctx->sig[i].r0)
+                cols_sigma(ctx, wk, &ctx->sig[i], y);
+            final_sigma(ctx, wk, &ctx->sig[i], y);
+        }
+        for (int i = 0; i < ctx->ngab; i++)
+            if (!ctx->gab[i].shared)
+                gabor_row(ctx, wk, &ctx->gab[i], y);
+        interleave_row(ctx, wk, y);
+    }
+}
+
+static void *feat_job_run(void *arg)
+{
+    struct feat_job *job = arg;
+    job->fn(job->ctx, job->wk, job->y0, job->y1);
+    return NULL;
+}
+
+/* Splits the rows over the workers; joining them is the barrier between
+ * phases.  A worker whose thread cannot start is run by the caller, which
+ * costs time but not the frame. */
+static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn)
+{
+    int nt = ctx->nthreads;
+    char started[FEAT_MAX_THREADS] = {0};
+    for (int t = 0; t < nt; t++)
+        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], ctx->h * t / nt, ctx->h * (t + 1) / nt};
+    for (int t = 1; t < nt; t++)
+        started[t] = pthread_create(&ctx->tids[t], NULL, feat_job_run, &ctx->jobs[t]) == 0;
+    feat_job_run(&ctx->jobs[0]);
+    for (int t = 1; t < nt; t++) {
+        if (started[t])
+            pthread_join(ctx->tids[t], NULL);
+        else
+            feat_job_run(&ctx->jobs[t]);
+    }
+}
+
+int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
+{
+    if (img->w != ctx->w || img->h != ctx->h || (img->channels != 1 && img->channels != 3))
+        return err_set(e, ST_EINVAL, "features: frame %dx%dx%d does not fit a context for %dx%d (1 or 3 channels)",
+                       img->w, img->h, img->channels, ctx->w, ctx->h);
+    if (out->w != ctx->w || out->h != ctx->h || out->n != ctx->n)
+        return err_set(e, ST_EINVAL, "features: stack %dx%dx%d given for %dx%d frames with %d features", out->w,
+                       out->h, out->n, ctx->w, ctx->h, ctx->n);
+    ctx->img = img;
+    ctx->out = out;
+    frame_level(ctx, img);
+    feat_run_phase(ctx, phase_rows);
+    if (ctx->spec.families & (FEAT_HESSIAN | FEAT_STRUCTURE))
+        feat_run_phase(ctx, phase_mid);
+    feat_run_phase(ctx, phase_final);
+    ctx->img = NULL;
+    ctx->out = NULL;
+    return ST_OK;
+}
