@@ -31,7 +31,10 @@ struct booster;
 
 /* Trains on n rows of nfeat floats (row-major) with labels y (class index
  * stored as float), validating on nval rows.  best_round receives the
- * round kept (1-based); best_loss its validation loss. */
+ * round kept (1-based); best_loss its validation loss (either may be
+ * NULL).  With early_stop 0 every round is kept and the last is "best".
+ * Labels that are not a class 0..nclasses-1 are refused (ST_ERANGE) before
+ * XGBoost sees them; 2..16 classes, 1..4096 features. */
 int booster_train(const struct booster_params *p, int nclasses, const float *x, const float *y,
                   size_t n, const float *xval, const float *yval, size_t nval, int nfeat,
                   booster_progress_fn progress, void *user, struct booster **out,

@@ -6,7 +6,16 @@
  * compare), missing (NaN) follows default_left, leaf values summed per class
  * in tree order in float starting from base_score, then softmax.  It agrees
  * with XGBoosterPredictFromDense to 1e-6 in probability (tests prove it).
- * A loaded forest is read-only and may be shared by threads. */
+ * A loaded forest is read-only and may be shared by threads.
+ *
+ * forest_load refuses (ST_EFORMAT, naming the file) anything but a gbtree
+ * multi:softprob model with 2..16 classes, the same tree count per class,
+ * numeric splits on feature indices below 4096 (at most 2048 distinct
+ * (feature, default direction) pairs), finite split and leaf values, and
+ * trees (every node reached once from the root) at most 64 deep.  Nodes
+ * not reachable from the root (XGBoost's deleted nodes) are ignored.
+ * Evaluation allocates nothing: its scratch lives on the stack (about
+ * 70 KiB per calling or worker thread). */
 #ifndef ST_FOREST_H
 #define ST_FOREST_H
 
@@ -25,12 +34,16 @@ int forest_nfeatures(const struct forest *f);  /* largest split index + 1 */
 int forest_ntrees(const struct forest *f);
 int forest_max_depth(const struct forest *f);
 
-/* Probabilities for n rows of nfeat floats: prob[i * nclasses + k]. */
+/* Probabilities for n rows of nfeat floats: prob[i * nclasses + k].
+ * nfeat must be at least forest_nfeatures(f); if it is not, every
+ * probability is NaN. */
 void forest_predict(const struct forest *f, const float *x, size_t n, int nfeat, float *prob);
 
 /* Per row: class = argmax probability, conf = that probability.  Rows are
- * split over `threads` threads.  Returns ST_OK or an error when nfeat is
- * smaller than the model needs or threads cannot start. */
+ * split over `threads` threads (at most 64; 1 or less runs on the calling
+ * thread), each taking whole blocks of rows.  Returns ST_OK, ST_EINVAL when
+ * nfeat is smaller than the model needs, or ST_ELIB when a thread cannot
+ * start (cls and conf are then incomplete). */
 int forest_classify(const struct forest *f, const float *x, size_t n, int nfeat, int threads,
                     uint8_t *cls, float *conf, struct err *e);
 

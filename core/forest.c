@@ -1,0 +1,620 @@
+#include "forest.h"
+
+#include <float.h>
+#include <math.h>
+#include <pthread.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <jansson.h>
+
+/* Layout.  Each tree is relabelled breadth-first so that the two children
+ * of a node are adjacent: right = left + 1.  A node is a 64-bit word (input
+ * offset in the low half, split key in the high half) plus its left child
+ * and leaf value in parallel arrays, so a walk step is three loads (word,
+ * input, left child), a shift and an add-with-carry of the compare.
+ * A leaf points to itself with key UINT32_MAX, which no input key reaches,
+ * so every row of a tree takes exactly `depth` steps and the walk has no
+ * branch.
+ *
+ * Keys.  Floats are compared as unsigned integers: key(v) flips all bits of
+ * a negative float and sets the sign bit of a positive one, which orders
+ * keys as the floats, once -0 is made +0 (they compare equal as floats).
+ * Splits and inputs alike become keys, so the compare needs no float
+ * register and the split travels in the same load as the offset.
+ *
+ * Missing values.  XGBoost sends NaN to default_left and otherwise goes
+ * right iff !(x < split).  Rows are copied per block into a scratch
+ * "slot" table with one column per (feature, default direction) pair the
+ * model uses: NaN becomes -inf in a default-left column and +inf in a
+ * default-right one.  With finite splits, (x' >= split) then reproduces
+ * XGBoost's choice for every x, NaN included, with no test for NaN in the
+ * walk.  The table is column-major (slot * block + row) so that the offset
+ * stored in a node is the same for every row of the block and a row of a
+ * group of GROUP rows is a constant displacement.
+ *
+ * Blocks: trees outer, rows inner, so a tree's nodes stay in L1 while a
+ * block of rows walks it; GROUP rows walk together so their independent
+ * load chains overlap.  Margins are summed per class in tree order in
+ * float, the order XGBoost's CPU predictor uses, so the sums agree
+ * bitwise. */
+
+#define MAX_FEATURES 4096
+#define MAX_SLOTS 2048
+#define MAX_CLASSES 16
+#define MAX_DEPTH 64
+#define MAX_TREE_NODES (1 << 20)
+#define MAX_NODES (1 << 24)
+#define MAX_THREADS 64
+#define GROUP 8
+#define MAX_BLOCK 64
+/* Keys in the per-call slot table; MAX_SLOTS * GROUP fits. */
+#define SCRATCH_KEYS 16384
+#define LEAF_KEY UINT32_MAX
+
+struct tree {
+    uint32_t first; /* index of the root in the node arrays */
+    uint16_t depth;
+    uint16_t cls;
+};
+
+struct forest {
+    int nclasses, nfeatures, ntrees, max_depth;
+    int nslots, block;
+    float base_score;
+    struct tree *trees;
+    size_t nnodes;
+    uint64_t *node; /* key(split) << 32 | slot * block; LEAF_KEY << 32 in a leaf */
+    uint32_t *left; /* relative to the tree's root; a leaf points to itself */
+    float *val;     /* leaf value; 0 in a split */
+    uint16_t slot_feat[MAX_SLOTS];
+    float slot_nan[MAX_SLOTS];
+};
+
+/* ---- loading ---------------------------------------------------------- */
+
+static int bad(struct err *e, const char *path, const char *fmt, ...)
+    __attribute__((format(printf, 3, 4)));
+
+static int bad(struct err *e, const char *path, const char *fmt, ...)
+{
+    char buf[400];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(buf, sizeof buf, fmt, ap);
+    va_end(ap);
+    return err_set(e, ST_EFORMAT, "%s: %s", path, buf);
+}
+
+/* Walks a dotted path of object keys; NULL when any step is missing. */
+static json_t *dig(json_t *j, const char *keys)
+{
+    char key[64];
+    while (j && *keys) {
+        size_t len = strcspn(keys, ".");
+        if (len >= sizeof key)
+            return NULL;
+        memcpy(key, keys, len);
+        key[len] = '\0';
+        j = json_object_get(j, key);
+        keys += len + (keys[len] == '.');
+    }
+    return j;
+}
+
+/* XGBoost writes model parameters as JSON strings ("3", "5E-1"). */
+static int param_long(const char *path, json_t *root, const char *keys, long *out, struct err *e)
+{
+    const char *s = json_string_value(dig(root, keys));
+    if (!s)
+        return bad(e, path, "%s is missing or not a string", keys);
+    char *end;
+    long v = strtol(s, &end, 10);
+    if (end == s || *end)
+        return bad(e, path, "%s \"%s\" is not an integer", keys, s);
+    *out = v;
+    return ST_OK;
+}
+
+static int param_float(const char *path, json_t *root, const char *keys, float *out,
+                       struct err *e)
+{
+    const char *s = json_string_value(dig(root, keys));
+    if (!s)
+        return bad(e, path, "%s is missing or not a string", keys);
+    char *end;
+    float v = strtof(s, &end);
+    if (end == s || *end || !isfinite(v))
+        return bad(e, path, "%s \"%s\" is not a finite number", keys, s);
+    *out = v;
+    return ST_OK;
+}
+
+static int param_name(const char *path, json_t *root, const char *keys, const char *want,
+                      struct err *e)
+{
+    const char *s = json_string_value(dig(root, keys));
+    if (!s || strcmp(s, want) != 0)
+        return bad(e, path, "%s is \"%s\", only \"%s\" is supported", keys, s ? s : "(missing)",
+                   want);
+    return ST_OK;
+}
+
+/* The arrays of one tree, all num_nodes long. */
+struct jtree {
+    size_t nn;
+    json_t *lc, *rc, *si, *sc, *dl, *st;
+};
+
+static int tree_arrays(const char *path, json_t *jt, int t, struct jtree *a, struct err *e)
+{
+    static const char *const names[] = {"left_children", "right_children", "split_indices",
+                                        "split_conditions", "default_left"};
+    json_t **dst[] = {&a->lc, &a->rc, &a->si, &a->sc, &a->dl};
+    long nn;
+    int rc = param_long(path, jt, "tree_param.num_nodes", &nn, e);
+    if (rc != ST_OK)
+        return rc;
+    if (nn < 1 || nn > MAX_TREE_NODES)
+        return bad(e, path, "tree %d has %ld nodes, outside 1..%d", t, nn, MAX_TREE_NODES);
+    a->nn = (size_t)nn;
+    for (size_t k = 0; k < sizeof names / sizeof names[0]; k++) {
+        json_t *arr = json_object_get(jt, names[k]);
+        if (!json_is_array(arr) || json_array_size(arr) != a->nn)
+            return bad(e, path, "tree %d: %s is missing or not %zu long", t, names[k], a->nn);
+        *dst[k] = arr;
+    }
+    /* Categorical splits follow other rules; split_type is absent in
+     * models written before categorical support, which are numeric. */
+    a->st = json_object_get(jt, "split_type");
+    if (a->st && (!json_is_array(a->st) || json_array_size(a->st) != a->nn))
+        return bad(e, path, "tree %d: split_type is not %zu long", t, a->nn);
+    return ST_OK;
+}
+
+static int int_at(json_t *arr, size_t i, long long *v)
+{
+    json_t *x = json_array_get(arr, i);
+    if (json_is_integer(x)) {
+        *v = json_integer_value(x);
+        return 1;
+    }
+    if (json_is_boolean(x)) {
+        *v = json_is_true(x);
+        return 1;
+    }
+    return 0;
+}
+
+static uint32_t float_key(float v)
+{
+    uint32_t b;
+    v += 0.0f; /* -0 becomes +0 */
+    memcpy(&b, &v, sizeof b);
+    return b & 0x80000000u ? ~b : b | 0x80000000u;
+}
+
+static int is_leaf(uint64_t node) { return (uint32_t)(node >> 32) == LEAF_KEY; }
+
+/* Per-load scratch for the breadth-first relabelling of one tree. */
+struct bfs {
+    uint32_t *queue; /* original node ids in new order */
+    uint32_t *seen;  /* tree number + 1 that reached the node (no clearing per tree) */
+    uint16_t *depth;
+};
+
+/* Appends tree t, relabelled breadth-first, at f->nnodes.  Split offsets
+ * are stored as (feature << 1 | default_left) until the slots are known. */
+static int tree_add(struct forest *f, const char *path, const struct jtree *a, int t,
+                    struct bfs *q, struct err *e)
+{
+    size_t base = f->nnodes, head = 0, tail = 1;
+    unsigned maxd = 0;
+    q->queue[0] = 0;
+    q->seen[0] = (uint32_t)t + 1;
+    q->depth[0] = 0;
+    while (head < tail) {
+        size_t id = q->queue[head], nid = base + head;
+        unsigned d = q->depth[head];
+        head++;
+        long long l, r, feat, dl, type = 0;
+        if (!int_at(a->lc, id, &l) || !int_at(a->rc, id, &r))
+            return bad(e, path, "tree %d node %zu: child is not an integer", t, id);
+        /* Checked as a double: converting one beyond float range is undefined. */
+        double c = json_number_value(json_array_get(a->sc, id));
+        if (!json_is_number(json_array_get(a->sc, id)) || !(fabs(c) <= FLT_MAX))
+            return bad(e, path, "tree %d node %zu: split_conditions is not a finite number", t, id);
+        if (l == -1 && r == -1) {
+            f->node[nid] = (uint64_t)LEAF_KEY << 32;
+            f->left[nid] = (uint32_t)(nid - base);
+            f->val[nid] = (float)c;
+            continue;
+        }
+        if (l < 0 || r < 0 || (size_t)l >= a->nn || (size_t)r >= a->nn)
+            return bad(e, path, "tree %d node %zu: children %lld, %lld outside 0..%zu", t, id, l, r,
+                       a->nn - 1);
+        /* A node reached twice means a cycle or shared subtree: not a tree. */
+        if (q->seen[l] == (uint32_t)t + 1 || q->seen[r] == (uint32_t)t + 1 || l == r)
+            return bad(e, path, "tree %d node %zu: child %lld or %lld reached twice", t, id, l, r);
+        if (!int_at(a->si, id, &feat) || feat < 0 || feat >= MAX_FEATURES)
+            return bad(e, path, "tree %d node %zu: split index outside 0..%d", t, id,
+                       MAX_FEATURES - 1);
+        if (!int_at(a->dl, id, &dl) || (dl != 0 && dl != 1))
+            return bad(e, path, "tree %d node %zu: default_left is not 0 or 1", t, id);
+        if (a->st && (!int_at(a->st, id, &type) || type != 0))
+            return bad(e, path, "tree %d node %zu: categorical split not supported", t, id);
+        if (d + 1 > MAX_DEPTH)
+            return bad(e, path, "tree %d is deeper than %d", t, MAX_DEPTH);
+        f->node[nid] = (uint64_t)float_key((float)c) << 32 | (uint64_t)(feat << 1 | dl);
+        f->left[nid] = (uint32_t)tail;
+        f->val[nid] = 0.0f;
+        if (feat + 1 > f->nfeatures)
+            f->nfeatures = (int)feat + 1;
+        q->queue[tail] = (uint32_t)l;
+        q->queue[tail + 1] = (uint32_t)r;
+        q->seen[l] = q->seen[r] = (uint32_t)t + 1;
+        q->depth[tail] = q->depth[tail + 1] = (uint16_t)(d + 1);
+        tail += 2;
+        if (d + 1 > maxd)
+            maxd = d + 1;
+    }
+    f->nnodes += tail;
+    f->trees[t].first = (uint32_t)base;
+    f->trees[t].depth = (uint16_t)maxd;
+    if ((int)maxd > f->max_depth)
+        f->max_depth = (int)maxd;
+    return ST_OK;
+}
+
+/* Numbers the (feature, default direction) pairs in feature order so the
+ * per-block copy reads each row front to back, then turns the keys stored
+ * by tree_add into table offsets. */
+static int assign_slots(struct forest *f, const char *path, struct err *e)
+{
+    static const uint16_t unused = UINT16_MAX;
+    uint16_t slot_of[2 * MAX_FEATURES];
+    for (size_t k = 0; k < 2 * MAX_FEATURES; k++)
+        slot_of[k] = unused;
+    for (size_t i = 0; i < f->nnodes; i++)
+        if (!is_leaf(f->node[i]))
+            slot_of[(uint32_t)f->node[i]] = 0;
+    int s = 0;
+    for (size_t k = 0; k < 2 * MAX_FEATURES; k++) {
+        if (slot_of[k] == unused)
+            continue;
+        if (s == MAX_SLOTS)
+            return bad(e, path, "model splits on more than %d (feature, default) pairs", MAX_SLOTS);
+        f->slot_feat[s] = (uint16_t)(k >> 1);
+        f->slot_nan[s] = (k & 1) ? -INFINITY : INFINITY;
+        slot_of[k] = (uint16_t)s++;
+    }
+    f->nslots = s;
+    int block = s ? SCRATCH_KEYS / s / GROUP * GROUP : MAX_BLOCK;
+    f->block = block < MAX_BLOCK ? block : MAX_BLOCK;
+    for (size_t i = 0; i < f->nnodes; i++)
+        if (!is_leaf(f->node[i]))
+            f->node[i] = (f->node[i] >> 32 << 32) |
+                         (uint64_t)slot_of[(uint32_t)f->node[i]] * (uint64_t)f->block;
+    return ST_OK;
+}
+
+static int check_tree_info(struct forest *f, const char *path, json_t *info, struct err *e)
+{
+    int count[MAX_CLASSES] = {0};
+    for (int t = 0; t < f->ntrees; t++) {
+        long long c;
+        if (!int_at(info, (size_t)t, &c) || c < 0 || c >= f->nclasses)
+            return bad(e, path, "tree_info[%d] is not a class 0..%d", t, f->nclasses - 1);
+        f->trees[t].cls = (uint16_t)c;
+        count[c]++;
+    }
+    for (int k = 1; k < f->nclasses; k++)
+        if (count[k] != count[0])
+            return bad(e, path, "class %d has %d trees, class 0 has %d", k, count[k], count[0]);
+    return ST_OK;
+}
+
+static int load_trees(struct forest *f, const char *path, json_t *jtrees, struct err *e)
+{
+    struct jtree *a = calloc((size_t)f->ntrees + 1, sizeof *a);
+    struct bfs q = {0};
+    int rc = ST_ENOMEM;
+    if (!a)
+        goto nomem;
+    size_t total = 0, maxnn = 0;
+    for (int t = 0; t < f->ntrees; t++) {
+        json_t *jt = json_array_get(jtrees, (size_t)t);
+        if (!json_is_object(jt)) {
+            rc = bad(e, path, "tree %d is not an object", t);
+            goto fail;
+        }
+        rc = tree_arrays(path, jt, t, &a[t], e);
+        if (rc != ST_OK)
+            goto fail;
+        total += a[t].nn;
+        if (total > MAX_NODES) {
+            rc = bad(e, path, "model has more than %d nodes", MAX_NODES);
+            goto fail;
+        }
+        if (a[t].nn > maxnn)
+            maxnn = a[t].nn;
+    }
+    rc = ST_ENOMEM;
+    /* +1: a model of no trees still gets valid (unused) pointers. */
+    f->node = calloc(total + 1, sizeof *f->node);
+    f->left = calloc(total + 1, sizeof *f->left);
+    f->val = calloc(total + 1, sizeof *f->val);
+    q.queue = calloc(maxnn + 1, sizeof *q.queue);
+    q.seen = calloc(maxnn + 1, sizeof *q.seen);
+    q.depth = calloc(maxnn + 1, sizeof *q.depth);
+    if (!f->node || !f->left || !f->val || !q.queue || !q.seen || !q.depth)
+        goto nomem;
+    for (int t = 0; t < f->ntrees; t++) {
+        rc = tree_add(f, path, &a[t], t, &q, e);
+        if (rc != ST_OK)
+            goto fail;
+    }
+    rc = assign_slots(f, path, e);
+    goto fail;
+nomem:
+    rc = err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
+fail:
+    free(q.depth);
+    free(q.seen);
+    free(q.queue);
+    free(a);
+    return rc;
+}
+
+int forest_load(const char *json_path, struct forest **out, struct err *e)
+{
+    const char *path = json_path;
+    *out = NULL;
+    json_error_t jerr;
+    json_t *root = json_load_file(path, JSON_REJECT_DUPLICATES, &jerr);
+    if (!root) {
+        if (json_error_code(&jerr) == json_error_cannot_open_file)
+            return err_set(e, ST_EIO, "%s: %s", path, jerr.text);
+        return err_set(e, ST_EFORMAT, "%s:%d: %s", path, jerr.line, jerr.text);
+    }
+    struct forest *f = calloc(1, sizeof *f);
+    int rc;
+    if (!f) {
+        rc = err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
+        goto fail;
+    }
+    json_t *learner = json_object_get(root, "learner");
+    long ncls, ntrees;
+    if ((rc = param_name(path, learner, "objective.name", "multi:softprob", e)) ||
+        (rc = param_name(path, learner, "gradient_booster.name", "gbtree", e)) ||
+        (rc = param_long(path, learner, "learner_model_param.num_class", &ncls, e)) ||
+        (rc = param_float(path, learner, "learner_model_param.base_score", &f->base_score, e)) ||
+        (rc = param_long(path, learner, "gradient_booster.model.gbtree_model_param.num_trees",
+                         &ntrees, e)))
+        goto fail;
+    if (ncls < 2 || ncls > MAX_CLASSES) {
+        rc = bad(e, path, "num_class %ld outside 2..%d", ncls, MAX_CLASSES);
+        goto fail;
+    }
+    json_t *jtrees = dig(learner, "gradient_booster.model.trees");
+    json_t *info = dig(learner, "gradient_booster.model.tree_info");
+    if (!json_is_array(jtrees) || !json_is_array(info) || ntrees < 0 || ntrees > MAX_NODES ||
+        json_array_size(jtrees) != (size_t)ntrees || json_array_size(info) != (size_t)ntrees) {
+        rc = bad(e, path, "trees and tree_info do not both hold num_trees = %ld entries", ntrees);
+        goto fail;
+    }
+    f->nclasses = (int)ncls;
+    f->ntrees = (int)ntrees;
+    f->trees = calloc((size_t)ntrees + 1, sizeof *f->trees);
+    if (!f->trees) {
+        rc = err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
+        goto fail;
+    }
+    if ((rc = check_tree_info(f, path, info, e)) || (rc = load_trees(f, path, jtrees, e)))
+        goto fail;
+    json_decref(root);
+    *out = f;
+    return ST_OK;
+fail:
+    forest_free(f);
+    json_decref(root);
+    return rc;
+}
+
+void forest_free(struct forest *f)
+{
+    if (!f)
+        return;
+    free(f->trees);
+    free(f->node);
+    free(f->left);
+    free(f->val);
+    free(f);
+}
+
+int forest_nclasses(const struct forest *f) { return f->nclasses; }
+int forest_nfeatures(const struct forest *f) { return f->nfeatures; }
+int forest_ntrees(const struct forest *f) { return f->ntrees; }
+int forest_max_depth(const struct forest *f) { return f->max_depth; }
+
+/* ---- evaluation ------------------------------------------------------- */
+
+struct scratch {
+    uint32_t tab[SCRATCH_KEYS];            /* key at slot * block + row */
+    float margin[MAX_CLASSES * MAX_BLOCK]; /* class * block + row */
+};
+
+/* Fills the slot table for rows [0, nrows); rows up to the next multiple
+ * of GROUP are zero so whole groups can walk without a tail loop. */
+static void fill_table(const struct forest *f, const float *x, size_t nfeat, int nrows,
+                       uint32_t *tab)
+{
+    int padded = (nrows + GROUP - 1) / GROUP * GROUP;
+    for (int s = 0; s < f->nslots; s++) {
+        const float *col = x + f->slot_feat[s];
+        float nan_as = f->slot_nan[s];
+        uint32_t *dst = tab + (size_t)s * (size_t)f->block;
+        for (int r = 0; r < nrows; r++) {
+            float v = col[(size_t)r * nfeat];
+            dst[r] = float_key(isnan(v) ? nan_as : v);
+        }
+        for (int r = nrows; r < padded; r++)
+            dst[r] = 0;
+    }
+    /* A forest of single leaves still reads (and ignores) slot 0. */
+    if (f->nslots == 0)
+        memset(tab, 0, (size_t)padded * sizeof *tab);
+}
+
+/* One group of GROUP rows through one tree.  Kept out of line so that the
+ * compiler addresses row j of the group as a constant displacement from
+ * one base pointer instead of keeping GROUP row indices in registers. */
+__attribute__((noinline)) static void walk_group(const uint64_t *node, const uint32_t *left,
+                                                 const float *val, int depth, const uint32_t *xr,
+                                                 float *m)
+{
+    /* Every row starts at the root, so its step needs no node load; a
+     * single-leaf tree stays at its root as any leaf does. */
+    uint32_t i[GROUP];
+    const uint64_t root = node[0];
+#pragma GCC unroll 8
+    for (int j = 0; j < GROUP; j++)
+        i[j] = left[0] + ((xr + j)[(uint32_t)root] >= (uint32_t)(root >> 32));
+    for (int d = 1; d < depth; d++) {
+#pragma GCC unroll 8
+        for (int j = 0; j < GROUP; j++) {
+            uint64_t n = node[i[j]];
+            i[j] = left[i[j]] + ((xr + j)[(uint32_t)n] >= (uint32_t)(n >> 32));
+        }
+    }
+#pragma GCC unroll 8
+    for (int j = 0; j < GROUP; j++)
+        m[j] += val[i[j]];
+}
+
+/* Adds tree t's leaf values for the rows of a filled table. */
+static void walk_tree(const struct forest *f, const struct tree *t, const uint32_t *tab,
+                      int nrows, float *margin)
+{
+    const size_t b = t->first;
+    float *m = margin + (size_t)t->cls * MAX_BLOCK;
+    for (int r = 0; r < nrows; r += GROUP)
+        walk_group(f->node + b, f->left + b, f->val + b, t->depth, tab + r, m + r);
+}
+
+/* Probabilities of rows [0, nrows <= block) into prob[row * nclasses + k],
+ * softmax exactly as xgboost::common::Softmax: max in float, expf of the
+ * difference in float, their sum in double, each divided by the sum cast
+ * to float. */
+static void block_probs(const struct forest *f, const float *x, size_t nfeat, int nrows,
+                        struct scratch *s, float *prob)
+{
+    int K = f->nclasses;
+    fill_table(f, x, nfeat, nrows, s->tab);
+    for (int k = 0; k < K; k++)
+        for (int r = 0; r < MAX_BLOCK; r++)
+            s->margin[k * MAX_BLOCK + r] = f->base_score;
+    for (int t = 0; t < f->ntrees; t++)
+        walk_tree(f, &f->trees[t], s->tab, nrows, s->margin);
+    for (int r = 0; r < nrows; r++) {
+        float *p = prob + (size_t)r * (size_t)K;
+        float wmax = s->margin[r];
+        for (int k = 1; k < K; k++)
+            wmax = fmaxf(s->margin[k * MAX_BLOCK + r], wmax);
+        double wsum = 0.0;
+        for (int k = 0; k < K; k++) {
+            p[k] = expf(s->margin[k * MAX_BLOCK + r] - wmax);
+            wsum += p[k];
+        }
+        for (int k = 0; k < K; k++)
+            p[k] /= (float)wsum;
+    }
+}
+
+void forest_predict(const struct forest *f, const float *x, size_t n, int nfeat, float *prob)
+{
+    size_t K = (size_t)f->nclasses;
+    if (nfeat < f->nfeatures || nfeat < 0) {
+        for (size_t i = 0; i < n * K; i++)
+            prob[i] = NAN;
+        return;
+    }
+    struct scratch s;
+    for (size_t r = 0; r < n; r += (size_t)f->block) {
+        int nrows = n - r < (size_t)f->block ? (int)(n - r) : f->block;
+        block_probs(f, x + r * (size_t)nfeat, (size_t)nfeat, nrows, &s, prob + r * K);
+    }
+}
+
+struct job {
+    const struct forest *f;
+    const float *x;
+    size_t n, nfeat;
+    uint8_t *cls;
+    float *conf;
+};
+
+static void *job_run(void *arg)
+{
+    const struct job *j = arg;
+    const struct forest *f = j->f;
+    int K = f->nclasses;
+    struct scratch s;
+    float prob[MAX_BLOCK * MAX_CLASSES];
+    for (size_t r = 0; r < j->n; r += (size_t)f->block) {
+        int nrows = j->n - r < (size_t)f->block ? (int)(j->n - r) : f->block;
+        block_probs(f, j->x + r * j->nfeat, j->nfeat, nrows, &s, prob);
+        for (int i = 0; i < nrows; i++) {
+            const float *p = prob + i * K;
+            int best = 0;
+            for (int k = 1; k < K; k++)
+                if (p[k] > p[best])
+                    best = k;
+            j->cls[r + (size_t)i] = (uint8_t)best;
+            j->conf[r + (size_t)i] = p[best];
+        }
+    }
+    return NULL;
+}
+
+int forest_classify(const struct forest *f, const float *x, size_t n, int nfeat, int threads,
+                    uint8_t *cls, float *conf, struct err *e)
+{
+    if (nfeat < f->nfeatures || nfeat < 0)
+        return err_set(e, ST_EINVAL, "forest_classify: %d features given, the model uses %d",
+                       nfeat, f->nfeatures);
+    size_t blocks = (n + (size_t)f->block - 1) / (size_t)f->block;
+    size_t nt = threads < 1 ? 1 : threads > MAX_THREADS ? MAX_THREADS : (size_t)threads;
+    if (nt > blocks)
+        nt = blocks ? blocks : 1;
+    struct job jobs[MAX_THREADS];
+    pthread_t tid[MAX_THREADS];
+    /* Whole blocks per thread, so a thread's last block is the only short one. */
+    for (size_t t = 0; t < nt; t++) {
+        size_t b0 = blocks * t / nt, b1 = blocks * (t + 1) / nt;
+        size_t r0 = b0 * (size_t)f->block, r1 = b1 * (size_t)f->block;
+        if (r1 > n)
+            r1 = n;
+        jobs[t] = (struct job){f, x + r0 * (size_t)nfeat, r1 - r0, (size_t)nfeat, cls + r0,
+                               conf + r0};
+    }
+    if (nt == 1) {
+        job_run(&jobs[0]);
+        return ST_OK;
+    }
+    size_t started = 0;
+    int rc = ST_OK;
+    for (; started < nt; started++) {
+        int err = pthread_create(&tid[started], NULL, job_run, &jobs[started]);
+        if (err != 0) {
+            rc = err_set(e, ST_ELIB, "forest_classify: cannot start thread %zu of %zu (error %d)",
+                         started + 1, nt, err);
+            break;
+        }
+    }
+    for (size_t t = 0; t < started; t++)
+        pthread_join(tid[t], NULL);
+    return rc;
+}
