@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include <immintrin.h>
 #include <jansson.h>
 
 /* Layout.  Each tree is relabelled breadth-first so that the two children
@@ -39,7 +40,16 @@
  * block of rows walks it; GROUP rows walk together so their independent
  * load chains overlap.  Margins are summed per class in tree order in
  * float, the order XGBoost's CPU predictor uses, so the sums agree
- * bitwise. */
+ * bitwise.
+ *
+ * Wide walk.  On a processor with AVX-512 and for trees no deeper than
+ * WIDE_DEPTH, each tree is also stored as a complete tree, level by level
+ * (a leaf above the bottom becomes a node that always goes right, with its
+ * value copied to every bottom leaf under it), and 16 rows walk it in the
+ * lanes of one register: a level's split offsets and keys come from a
+ * register permute instead of a load per row, and only the input key is
+ * gathered.  It visits the same leaves as the walk above, so the sums are
+ * the same floats added in the same order. */
 
 #define MAX_FEATURES 4096
 #define MAX_SLOTS 2048
@@ -53,6 +63,16 @@
 /* Keys in the per-call slot table; MAX_SLOTS * GROUP fits. */
 #define SCRATCH_KEYS 16384
 #define LEAF_KEY UINT32_MAX
+#define WIDE_DEPTH 6
+#define WIDE_LANES 16
+
+/* One tree as a complete tree for the wide walk.  Level d < 5 holds its
+ * 2^d nodes at [16 d, 16 d + 16); level 5 holds 32 at [80, 112). */
+struct wide_tree {
+    uint32_t off[112];
+    uint32_t key[112];
+    float val[64];
+} __attribute__((aligned(64)));
 
 struct tree {
     uint32_t first; /* index of the root in the node arrays */
@@ -71,6 +91,7 @@ struct forest {
     float *val;     /* leaf value; 0 in a split */
     uint16_t slot_feat[MAX_SLOTS];
     float slot_nan[MAX_SLOTS];
+    struct wide_tree *wide; /* NULL when the wide walk does not apply */
 };
 
 /* ---- loading ---------------------------------------------------------- */
@@ -300,6 +321,47 @@ static int assign_slots(struct forest *f, const char *path, struct err *e)
     return ST_OK;
 }
 
+static void wide_fill(const struct forest *f, size_t base, size_t nid, int d, int depth,
+                      uint32_t pos, struct wide_tree *w)
+{
+    uint64_t node = f->node[nid];
+    if (d == depth) {
+        w->val[pos] = f->val[nid];
+        return;
+    }
+    uint32_t at = (d < 5 ? 16u * (uint32_t)d : 80u) + pos;
+    if (is_leaf(node)) {
+        /* key 0: every input key is >= 0, so the walk goes right and meets
+         * this leaf's value at the bottom whichever way */
+        w->off[at] = 0;
+        w->key[at] = 0;
+        wide_fill(f, base, nid, d + 1, depth, 2 * pos, w);
+        wide_fill(f, base, nid, d + 1, depth, 2 * pos + 1, w);
+        return;
+    }
+    w->off[at] = (uint32_t)node;
+    w->key[at] = (uint32_t)(node >> 32);
+    size_t l = base + f->left[nid];
+    wide_fill(f, base, l, d + 1, depth, 2 * pos, w);
+    wide_fill(f, base, l + 1, d + 1, depth, 2 * pos + 1, w);
+}
+
+static int wide_build(struct forest *f, const char *path, struct err *e)
+{
+    __builtin_cpu_init();
+    if (!__builtin_cpu_supports("avx512f") || f->max_depth > WIDE_DEPTH ||
+        f->block % WIDE_LANES != 0 || f->ntrees == 0)
+        return ST_OK;
+    f->wide = aligned_alloc(64, (size_t)f->ntrees * sizeof *f->wide);
+    if (!f->wide)
+        return err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
+    memset(f->wide, 0, (size_t)f->ntrees * sizeof *f->wide);
+    for (int t = 0; t < f->ntrees; t++)
+        wide_fill(f, f->trees[t].first, f->trees[t].first, 0, f->trees[t].depth, 0,
+                  &f->wide[t]);
+    return ST_OK;
+}
+
 static int check_tree_info(struct forest *f, const char *path, json_t *info, struct err *e)
 {
     int count[MAX_CLASSES] = {0};
@@ -356,7 +418,8 @@ static int load_trees(struct forest *f, const char *path, json_t *jtrees, struct
         if (rc != ST_OK)
             goto fail;
     }
-    rc = assign_slots(f, path, e);
+    if ((rc = assign_slots(f, path, e)) == ST_OK)
+        rc = wide_build(f, path, e);
     goto fail;
 nomem:
     rc = err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
@@ -431,6 +494,7 @@ void forest_free(struct forest *f)
     free(f->node);
     free(f->left);
     free(f->val);
+    free(f->wide);
     free(f);
 }
 
@@ -451,7 +515,8 @@ struct scratch {
 static void fill_table(const struct forest *f, const float *x, size_t nfeat, int nrows,
                        uint32_t *tab)
 {
-    int padded = (nrows + GROUP - 1) / GROUP * GROUP;
+    /* padded for the wide walk's 16 lanes too (a multiple of GROUP) */
+    int padded = (nrows + WIDE_LANES - 1) / WIDE_LANES * WIDE_LANES;
     for (int s = 0; s < f->nslots; s++) {
         const float *col = x + f->slot_feat[s];
         float nan_as = f->slot_nan[s];
@@ -504,6 +569,56 @@ static void walk_tree(const struct forest *f, const struct tree *t, const uint32
         walk_group(f->node + b, f->left + b, f->val + b, t->depth, tab + r, m + r);
 }
 
+/* Tree t for the rows [0, nrows) of a filled table, 16 lanes at a time,
+ * four registers interleaved so their gathers overlap. */
+__attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree *w, int depth,
+                                                         const uint32_t *tab, int nrows,
+                                                         float *m)
+{
+    const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
+    const __m512i one = _mm512_set1_epi32(1);
+    for (int r = 0; r < nrows; r += 4 * WIDE_LANES) {
+        int groups = (nrows - r + WIDE_LANES - 1) / WIDE_LANES;
+        if (groups > 4)
+            groups = 4;
+        __m512i p[4] = {_mm512_setzero_si512(), _mm512_setzero_si512(), _mm512_setzero_si512(),
+                        _mm512_setzero_si512()};
+        for (int d = 0; d < depth; d++) {
+            __m512i off, key;
+            if (d < 5) {
+                off = _mm512_load_si512(w->off + 16 * d);
+                key = _mm512_load_si512(w->key + 16 * d);
+            } else {
+                off = _mm512_load_si512(w->off + 80);
+                key = _mm512_load_si512(w->key + 80);
+            }
+            const __m512i off_hi = _mm512_load_si512(w->off + 96);
+            const __m512i key_hi = _mm512_load_si512(w->key + 96);
+            for (int g = 0; g < groups; g++) {
+                __m512i o = d < 5 ? _mm512_permutexvar_epi32(p[g], off)
+                                  : _mm512_permutex2var_epi32(off, p[g], off_hi);
+                __m512i k = d < 5 ? _mm512_permutexvar_epi32(p[g], key)
+                                  : _mm512_permutex2var_epi32(key, p[g], key_hi);
+                __m512i x = _mm512_i32gather_epi32(_mm512_add_epi32(o, lane),
+                                                   (const void *)(tab + r + WIDE_LANES * g), 4);
+                __mmask16 right = _mm512_cmpge_epu32_mask(x, k);
+                __m512i twice = _mm512_add_epi32(p[g], p[g]);
+                p[g] = _mm512_mask_add_epi32(twice, right, twice, one);
+            }
+        }
+        const __m512 v0 = _mm512_load_ps(w->val), v1 = _mm512_load_ps(w->val + 16);
+        const __m512 v2 = _mm512_load_ps(w->val + 32), v3 = _mm512_load_ps(w->val + 48);
+        for (int g = 0; g < groups; g++) {
+            __m512 lo = _mm512_permutex2var_ps(v0, p[g], v1);
+            __m512 hi = _mm512_permutex2var_ps(v2, p[g], v3);
+            __mmask16 upper = _mm512_test_epi32_mask(p[g], _mm512_set1_epi32(32));
+            __m512 leaf = _mm512_mask_blend_ps(upper, lo, hi);
+            float *mg = m + r + WIDE_LANES * g;
+            _mm512_storeu_ps(mg, _mm512_add_ps(_mm512_loadu_ps(mg), leaf));
+        }
+    }
+}
+
 /* Probabilities of rows [0, nrows <= block) into prob[row * nclasses + k],
  * softmax exactly as xgboost::common::Softmax: max in float, expf of the
  * difference in float, their sum in double, each divided by the sum cast
@@ -516,8 +631,13 @@ static void block_probs(const struct forest *f, const float *x, size_t nfeat, in
     for (int k = 0; k < K; k++)
         for (int r = 0; r < MAX_BLOCK; r++)
             s->margin[k * MAX_BLOCK + r] = f->base_score;
-    for (int t = 0; t < f->ntrees; t++)
-        walk_tree(f, &f->trees[t], s->tab, nrows, s->margin);
+    if (f->wide)
+        for (int t = 0; t < f->ntrees; t++)
+            wide_walk(&f->wide[t], f->trees[t].depth, s->tab, nrows,
+                      s->margin + (size_t)f->trees[t].cls * MAX_BLOCK);
+    else
+        for (int t = 0; t < f->ntrees; t++)
+            walk_tree(f, &f->trees[t], s->tab, nrows, s->margin);
     for (int r = 0; r < nrows; r++) {
         float *p = prob + (size_t)r * (size_t)K;
         float wmax = s->margin[r];

@@ -48,6 +48,9 @@ const struct quality *inspector_quality(const struct inspector *in);
 const struct recipe *inspector_recipe(const struct inspector *in);
 const struct model_meta *inspector_model(const struct inspector *in);
 int inspector_threads(const struct inspector *in);
+/* The locating pass (on by default; see inspect.c): off classifies every
+ * pixel in full, which the tests use to show the two agree. */
+void inspector_set_locating(struct inspector *in, int on);
 /* Classifier threads (1 = inline); features threads follow recipe.feat.threads. */
 void inspector_set_threads(struct inspector *in, int threads);
 

@@ -4,6 +4,7 @@
  * for `make bench`, which sets them beside XGBoost's own predictor (the
  * --xgboost option here) and an OpenCV filter bank (from Python). */
 #include <getopt.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -20,7 +21,9 @@ static void usage(FILE *f)
                "Inspects K simulated-bench frames of the given size with N threads and prints\n"
                "one JSON line: median, min and max milliseconds of features, classify,\n"
                "regions, verdict and the whole inspection. With --xgboost, also times\n"
-               "XGBoost's XGBoosterPredictFromDense on the same features and model.\n");
+               "XGBoost's XGBoosterPredictFromDense on the same features and model, and\n"
+               "reports max_abs_dp, the largest difference between its probabilities and\n"
+               "the station's evaluator on the first frame.\n");
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -77,7 +80,8 @@ int cmd_bench(int argc, char **argv)
     struct inspector *in = NULL;
     struct booster *b = NULL;
     struct image *img = NULL, *truth = NULL;
-    float *prob = NULL;
+    float *prob = NULL, *ours = NULL;
+    double max_dp = 0;
     double *v = calloc((size_t)repeat * 6, sizeof *v);
     int status = EXIT_ERROR;
     struct simbench_conditions cond;
@@ -85,7 +89,8 @@ int cmd_bench(int argc, char **argv)
     if (!v || inspector_new(&r, &in, &e) || (xgb && booster_load(r.model_path, threads, &b, &e)))
         goto done;
     size_t npix = (size_t)w * h;
-    if (xgb && !(prob = malloc(npix * r.nclasses * sizeof *prob))) {
+    if (xgb && (!(prob = malloc(npix * r.nclasses * sizeof *prob)) ||
+                !(ours = malloc(npix * r.nclasses * sizeof *ours)))) {
         err_set(&e, ST_ENOMEM, "out of memory");
         goto done;
     }
@@ -106,6 +111,16 @@ int cmd_bench(int argc, char **argv)
                                 r.nclasses, prob, &e))
                 goto done;
             x = cli_now_ms() - t0;
+            if (k < 0) {
+                /* the agreement of our evaluator with XGBoost's on this real model */
+                const struct fstack *fs = inspector_features(in);
+                forest_predict(inspector_forest(in), fs->v, npix, fs->n, ours);
+                for (size_t i = 0; i < npix * r.nclasses; i++) {
+                    double d = fabs((double)ours[i] - prob[i]);
+                    if (d > max_dp)
+                        max_dp = d;
+                }
+            }
         }
         if (k < 0)
             continue;
@@ -124,6 +139,8 @@ int cmd_bench(int argc, char **argv)
                           feat_count(&r.feat), "trees", forest_ntrees(inspector_forest(in)),
                           "depth", forest_max_depth(inspector_forest(in)), "classes",
                           r.nclasses);
+    if (xgb)
+        json_object_set_new(o, "max_abs_dp", json_real(max_dp));
     double *col = malloc((size_t)repeat * sizeof *col);
     for (int s = 0; s < (xgb ? 6 : 5) && col; s++) {
         for (int k = 0; k < repeat; k++)
@@ -140,6 +157,7 @@ done:
         cli_say("%s", e.msg);
     free(v);
     free(prob);
+    free(ours);
     image_free(img);
     image_free(truth);
     booster_free(b);

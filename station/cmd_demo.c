@@ -17,6 +17,7 @@
 #include "cli.h"
 #include "core/overlay.h"
 #include "core/pngio.h"
+#include "core/trainset.h"
 #include "evaluate.h"
 #include "simbench.h"
 #include "train.h"
@@ -32,7 +33,7 @@ static void usage(FILE *f)
                "inspects the test parts and compares every verdict with the truth.\n\n"
                "  --out DIR      where everything goes (default station-demo)\n"
                "  --seed N       series seed (default 1); the same seed gives the same parts\n"
-               "  --train N      training parts (default 40)\n"
+               "  --train N      training parts (default 60)\n"
                "  --test N       nominal test parts (default 30)\n"
                "  --shifted N    test parts under the next shift's conditions (default 20)\n"
                "  --recipe FILE  the demo recipe (default: recipes/%s next to the program)\n\n"
@@ -60,14 +61,36 @@ static int make_dataset_dirs(const char *dir, struct err *e)
     return rc;
 }
 
+/* A shift is not one fixed light and focus: parts sampled for training see
+ * the bench's usual spread (light +-10 %, noise +-25 %, focus +-20 %),
+ * drawn per part from the series seed.  jitter 0 renders every part at
+ * exactly cond. */
+static void jittered(const struct simbench_conditions *cond, uint64_t seed, int index,
+                     int jitter, struct simbench_conditions *out)
+{
+    *out = *cond;
+    if (!jitter)
+        return;
+    uint64_t s = seed * 0x9e3779b97f4a7c15ull ^ (uint64_t)index;
+    double u[3];
+    for (int k = 0; k < 3; k++)
+        u[k] = (double)(trainset_rng_next(&s) >> 11) / 4503599627370496.0 - 1.0;
+    out->light *= 1.0 + 0.10 * u[0];
+    out->noise *= 1.0 + 0.25 * u[1];
+    out->blur *= 1.0 + 0.20 * u[2];
+}
+
 static int render_set(const char *dir, uint64_t seed, int first, int n,
-                      const struct simbench_conditions *cond, int w, int h, struct err *e)
+                      const struct simbench_conditions *cond, int jitter, int w, int h,
+                      struct err *e)
 {
     int rc = make_dataset_dirs(dir, e);
     for (int i = 0; i < n && !rc; i++) {
         struct image *img = NULL, *truth = NULL;
+        struct simbench_conditions c;
         char p[PATH_MAX];
-        rc = simbench_render(seed, first + i, cond, w, h, &img, &truth, NULL, e);
+        jittered(cond, seed, first + i, jitter, &c);
+        rc = simbench_render(seed, first + i, &c, w, h, &img, &truth, NULL, e);
         if (!rc) {
             snprintf(p, sizeof p, "%s/images/part-%04d.png", dir, first + i);
             rc = pngio_save(p, img, 3, e);
@@ -260,10 +283,10 @@ static int run_demo(const struct demo_opts *o, struct err *e)
     snprintf(test_dir, sizeof test_dir, "%s/test", o->out);
     snprintf(shift_dir, sizeof shift_dir, "%s/test-shifted", o->out);
     /* test parts continue the series after the training parts: never the same part */
-    if ((rc = render_set(train_dir, o->seed, 0, o->ntrain, &nominal, w, h, e)) ||
-        (rc = render_set(test_dir, o->seed, o->ntrain, o->ntest, &nominal, w, h, e)) ||
-        (rc = render_set(shift_dir, o->seed, o->ntrain + o->ntest, o->nshifted, &shifted, w, h,
-                         e)))
+    if ((rc = render_set(train_dir, o->seed, 0, o->ntrain, &nominal, 1, w, h, e)) ||
+        (rc = render_set(test_dir, o->seed, o->ntrain, o->ntest, &nominal, 0, w, h, e)) ||
+        (rc = render_set(shift_dir, o->seed, o->ntrain + o->ntest, o->nshifted, &shifted, 0, w,
+                         h, e)))
         return rc;
     fprintf(stderr, "demo: rendered in %.1f s\n", (cli_now_ms() - t0) / 1e3);
 
@@ -319,7 +342,7 @@ int cmd_demo(int argc, char **argv)
         {"train", required_argument, NULL, 't'},  {"test", required_argument, NULL, 'T'},
         {"shifted", required_argument, NULL, 'S'}, {"recipe", required_argument, NULL, 'r'},
         {0, 0, 0, 0}};
-    struct demo_opts o = {.out = "station-demo", .seed = 1, .ntrain = 40, .ntest = 30,
+    struct demo_opts o = {.out = "station-demo", .seed = 1, .ntrain = 60, .ntest = 30,
                           .nshifted = 20};
     int c;
     optind = 1;

@@ -395,8 +395,8 @@ static void defect_make(struct defect *d, const struct part *p, const struct def
     d->cls = rng_int(r, SIM_SCRATCH, SIM_STAIN);
     if (d->cls == SIM_SCRATCH) {
         d->size = scale * rng_logrange(r, 15.0, 120.0);
-        d->width = rng_range(r, 1.0, 3.0);
-        d->depth = p->grain_std * rng_range(r, 2.5, 4.5);
+        d->width = rng_range(r, 2.0, 5.0);
+        d->depth = p->grain_std * rng_range(r, 3.5, 6.0);
         d->edge = rng_range(r, 0.15, 0.35);
         d->key = rng_next(r);
         double bend = rng_range(r, -0.18, 0.18);
@@ -414,13 +414,13 @@ static void defect_make(struct defect *d, const struct part *p, const struct def
             d->pts[i][1] = a0 * (d->y - hy) + a1 * (d->y + by) + a2 * (d->y + hy);
         }
     } else if (d->cls == SIM_PIT) {
-        d->size = rng_logrange(r, 1.5, 6.0);
+        d->size = rng_logrange(r, 1.5, 9.0);
         d->depth = rng_range(r, 35.0, 70.0);
         d->edge = rng_range(r, 25.0, 50.0);
         defect_place(d, p, prev, nprev, d->size + 1.0, r);
     } else {
         d->size = scale * rng_logrange(r, 12.0, 45.0);
-        d->dark = rng_range(r, 0.08, 0.15);
+        d->dark = rng_range(r, 0.10, 0.18);
         d->warm_r = rng_range(r, 0.0, 0.03);
         d->warm_b = rng_range(r, 0.01, 0.05);
         d->key = rng_next(r);
@@ -553,7 +553,7 @@ static void stain_draw(struct layers *L, const struct defect *d, int id)
             size_t i = (size_t)y * L->w + x;
             for (int c = 0; c < 3; c++)
                 L->mul[c][i] *= (float)(1.0 + op * (fac[c] - 1.0));
-            L->smooth[i] *= (float)(1.0 - 0.6 * op);
+            L->smooth[i] *= (float)(1.0 - 0.75 * op);
             if (op > 0.5)
                 mark(L, i, SIM_STAIN, id);
         }

@@ -158,8 +158,9 @@ static void test_demo_recipe(void **state)
     assert_int_equal(r.feat.families, FEAT_COLOUR | FEAT_GAUSS | FEAT_GRADIENT | FEAT_LAPLACE |
                                           FEAT_HESSIAN | FEAT_STRUCTURE | FEAT_LOCALSTD |
                                           FEAT_GABOR);
-    assert_int_equal(r.feat.nsigmas, 3);
-    assert_true(r.feat.sigmas[0] == 1 && r.feat.sigmas[1] == 2 && r.feat.sigmas[2] == 4);
+    assert_int_equal(r.feat.nsigmas, 4);
+    assert_true(r.feat.sigmas[0] == 1 && r.feat.sigmas[1] == 2 && r.feat.sigmas[2] == 4 &&
+                r.feat.sigmas[3] == 8);
     assert_int_equal(r.feat.gabor_orientations, 4);
     assert_int_equal(r.feat.ngabor_freqs, 2);
     assert_true(r.feat.gabor_freqs[0] == 0.1 && r.feat.gabor_freqs[1] == 0.25);
@@ -173,15 +174,15 @@ static void test_demo_recipe(void **state)
     assert_int_equal(r.train.seed, 7);
     assert_int_equal(r.train.threads, 2);
     assert_int_equal(r.train.early_stop, 10);
-    assert_int_equal(r.samples_per_class, 3000);
+    assert_int_equal(r.samples_per_class, 2000);
     assert_true(r.validation_fraction == 0.2);
-    assert_true(r.mm_per_px_x == 0.1 && r.mm_per_px_y == 0.1);
+    assert_true(r.mm_per_px_x == 0.17 && r.mm_per_px_y == 0.17);
 
     static const struct recipe_tolerance tol[] = {{-1, -1, -1, -1},
                                                   {-1, -1, -1, -1},
-                                                  {0.02, 0.6, 1.0, 2},
-                                                  {0.02, 0.3, 0.6, 3},
-                                                  {0.2, 3.0, 5.0, 1}};
+                                                  {0.15, 2.5, 4.0, 2},
+                                                  {0.1, 0.8, 1.5, 3},
+                                                  {1.5, 30, 45, 1}};
     for (int c = 0; c < 5; c++) {
         assert_true(r.tol[c].min_area_mm2 == tol[c].min_area_mm2);
         assert_true(r.tol[c].max_area_mm2 == tol[c].max_area_mm2);
