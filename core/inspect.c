@@ -1,5 +1,6 @@
 #include "inspect.h"
 
+#include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -11,10 +12,11 @@
  * so this halves the classifier's work or better; what it can miss is part
  * of the part narrower than the margin (ROI_STEP * ROI_MARGIN = 8 px) lying
  * entirely between background samples, which no real part of a recipe has.
- * Rows are classified in chunks so the scratch copy stays in cache. */
+ * Both passes split rows over the inspector's threads; the second pass
+ * classifies spans of the feature stack in place, without copying. */
 #define ROI_STEP 4
 #define ROI_MARGIN 2
-#define CHUNK 8192
+#define MAX_WORKERS 64
 
 struct inspector {
     struct recipe r;
@@ -32,10 +34,7 @@ struct inspector {
     int gw, gh;             /* grid of the locating pass */
     uint8_t *cell_cls, *need;
     float *cell_conf;
-    float *chunk;           /* CHUNK feature rows */
-    uint8_t chunk_cls[CHUNK];
-    float chunk_conf[CHUNK];
-    size_t chunk_idx[CHUNK];
+    float *grid_rows;       /* per worker: one grid row of samples' features */
     struct region_set rs;
     struct quality q;
 };
@@ -93,9 +92,14 @@ void inspector_free(struct inspector *in)
     free(in->cell_cls);
     free(in->need);
     free(in->cell_conf);
-    free(in->chunk);
+    free(in->grid_rows);
     regions_clear(&in->rs);
     free(in);
+}
+
+static int workers(const struct inspector *in)
+{
+    return in->threads < MAX_WORKERS ? in->threads : MAX_WORKERS;
 }
 
 static int ensure_size(struct inspector *in, int w, int h, struct err *e)
@@ -109,13 +113,13 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     free(in->cell_cls);
     free(in->need);
     free(in->cell_conf);
-    free(in->chunk);
+    free(in->grid_rows);
     in->feat = NULL;
     in->fs = NULL;
     in->classes = NULL;
     in->conf = NULL;
     in->cell_cls = in->need = NULL;
-    in->cell_conf = in->chunk = NULL;
+    in->cell_conf = in->grid_rows = NULL;
     in->w = in->h = 0;
     if (!(in->feat = feat_ctx_new(&in->r.feat, w, h, e)) ||
         !(in->fs = fstack_new(w, h, feat_count(&in->r.feat), e)) ||
@@ -128,51 +132,107 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->cell_cls = malloc(cells);
     in->need = malloc(cells);
     in->cell_conf = malloc(cells * sizeof *in->cell_conf);
-    in->chunk = malloc((size_t)CHUNK * in->fs->n * sizeof *in->chunk);
-    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->chunk)
+    in->grid_rows = malloc((size_t)workers(in) * in->gw * in->fs->n * sizeof *in->grid_rows);
+    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows)
         return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
     in->w = w;
     in->h = h;
     return ST_OK;
 }
 
-/* Classifies the pixels listed in chunk_idx[0..n) and scatters the result. */
-static int flush_chunk(struct inspector *in, size_t n, uint8_t *cls, float *conf, struct err *e)
+struct worker {
+    struct inspector *in;
+    int index, y0, y1;   /* rows of the grid (pass 1) or of the frame (pass 2) */
+    int rc;
+    struct err e;
+};
+
+/* Pass 1 for grid rows [y0, y1): the samples' features are gathered into
+ * the worker's buffer and their results land directly in the cell maps. */
+static void *grid_pass(void *arg)
 {
-    const int nf = in->fs->n;
-    for (size_t k = 0; k < n; k++)
-        memcpy(in->chunk + k * nf, in->fs->v + in->chunk_idx[k] * nf, (size_t)nf * sizeof(float));
-    int rc = forest_classify(in->forest, in->chunk, n, nf, in->threads, in->chunk_cls,
-                             in->chunk_conf, e);
-    for (size_t k = 0; k < n && rc == ST_OK; k++) {
-        cls[in->chunk_idx[k]] = in->chunk_cls[k];
-        conf[in->chunk_idx[k]] = in->chunk_conf[k];
+    struct worker *wk = arg;
+    struct inspector *in = wk->in;
+    const int nf = in->fs->n, gw = in->gw;
+    float *rows = in->grid_rows + (size_t)wk->index * gw * nf;
+    for (int gy = wk->y0; gy < wk->y1 && wk->rc == ST_OK; gy++) {
+        for (int gx = 0; gx < gw; gx++)
+            memcpy(rows + (size_t)gx * nf,
+                   in->fs->v + ((size_t)gy * ROI_STEP * in->w + (size_t)gx * ROI_STEP) * nf,
+                   (size_t)nf * sizeof *rows);
+        wk->rc = forest_classify(in->forest, rows, (size_t)gw, nf, 1,
+                                 in->cell_cls + (size_t)gy * gw, in->cell_conf + (size_t)gy * gw,
+                                 &wk->e);
     }
-    return rc;
+    return NULL;
+}
+
+/* Pass 2 for frame rows [y0, y1): runs of needed cells are contiguous in the
+ * pixel-major stack, so they are classified where they lie. */
+static void *full_pass(void *arg)
+{
+    struct worker *wk = arg;
+    struct inspector *in = wk->in;
+    const int w = in->w, gw = in->gw, nf = in->fs->n;
+    for (int y = wk->y0; y < wk->y1 && wk->rc == ST_OK; y++) {
+        const uint8_t *need = in->need + (size_t)(y / ROI_STEP) * gw;
+        const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
+        size_t row = (size_t)y * w;
+        for (int gx = 0; gx < gw && wk->rc == ST_OK;) {
+            int g1 = gx;
+            while (g1 < gw && need[g1] == need[gx])
+                g1++;
+            int x0 = gx * ROI_STEP, x1 = g1 * ROI_STEP < w ? g1 * ROI_STEP : w;
+            if (need[gx]) {
+                wk->rc = forest_classify(in->forest, in->fs->v + (row + x0) * nf,
+                                         (size_t)(x1 - x0), nf, 1, in->classes->px + row + x0,
+                                         in->conf + row + x0, &wk->e);
+            } else {
+                memset(in->classes->px + row + x0, 0, (size_t)(x1 - x0));
+                for (int x = x0; x < x1; x++)
+                    in->conf[row + x] = cc[x / ROI_STEP];
+            }
+            gx = g1;
+        }
+    }
+    return NULL;
+}
+
+/* Runs fn over rows [0, nrows) split between the inspector's threads. */
+static int run_workers(struct inspector *in, int nrows, void *(*fn)(void *), struct err *e)
+{
+    int nt = workers(in) < nrows ? workers(in) : nrows;
+    struct worker wk[MAX_WORKERS];
+    pthread_t tid[MAX_WORKERS];
+    int started[MAX_WORKERS] = {0};
+    for (int t = 0; t < nt; t++) {
+        wk[t] = (struct worker){in, t, nrows * t / nt, nrows * (t + 1) / nt, ST_OK, {0}};
+        err_clear(&wk[t].e);
+    }
+    /* a thread that cannot start leaves its rows to the caller */
+    for (int t = 1; t < nt; t++)
+        started[t] = pthread_create(&tid[t], NULL, fn, &wk[t]) == 0;
+    fn(&wk[0]);
+    for (int t = 1; t < nt; t++) {
+        if (started[t])
+            pthread_join(tid[t], NULL);
+        else
+            fn(&wk[t]);
+    }
+    for (int t = 0; t < nt; t++)
+        if (wk[t].rc) {
+            *e = wk[t].e;
+            return wk[t].rc;
+        }
+    return ST_OK;
 }
 
 static int classify_located(struct inspector *in, struct err *e)
 {
-    const int w = in->w, h = in->h, gw = in->gw, gh = in->gh;
-    size_t n = 0;
-    int rc = ST_OK;
-    /* pass 1: the grid samples, results stored per cell */
-    for (int gy = 0; gy < gh && rc == ST_OK; gy++)
-        for (int gx = 0; gx < gw && rc == ST_OK; gx++) {
-            in->chunk_idx[n++] = (size_t)gy * ROI_STEP * w + (size_t)gx * ROI_STEP;
-            if (n == CHUNK || (gy == gh - 1 && gx == gw - 1)) {
-                size_t first = (size_t)gy * gw + gx + 1 - n;
-                rc = flush_chunk(in, n, in->classes->px, in->conf, e);
-                for (size_t k = 0; k < n && rc == ST_OK; k++) {
-                    in->cell_cls[first + k] = in->classes->px[in->chunk_idx[k]];
-                    in->cell_conf[first + k] = in->conf[in->chunk_idx[k]];
-                }
-                n = 0;
-            }
-        }
+    const int gw = in->gw, gh = in->gh;
+    int rc = run_workers(in, gh, grid_pass, e);
     if (rc)
         return rc;
-    /* cells near a part sample are classified in full */
     for (int gy = 0; gy < gh; gy++)
         for (int gx = 0; gx < gw; gx++) {
             int near = 0;
@@ -183,28 +243,7 @@ static int classify_located(struct inspector *in, struct err *e)
                 }
             in->need[gy * gw + gx] = (uint8_t)near;
         }
-    /* pass 2 */
-    for (int y = 0; y < h && rc == ST_OK; y++) {
-        const uint8_t *need = in->need + (size_t)(y / ROI_STEP) * gw;
-        const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
-        for (int x = 0; x < w; x++) {
-            size_t i = (size_t)y * w + x;
-            if (!need[x / ROI_STEP]) {
-                in->classes->px[i] = 0;
-                in->conf[i] = cc[x / ROI_STEP];
-                continue;
-            }
-            in->chunk_idx[n++] = i;
-            if (n == CHUNK) {
-                if ((rc = flush_chunk(in, n, in->classes->px, in->conf, e)))
-                    break;
-                n = 0;
-            }
-        }
-    }
-    if (rc == ST_OK && n)
-        rc = flush_chunk(in, n, in->classes->px, in->conf, e);
-    return rc;
+    return run_workers(in, in->h, full_pass, e);
 }
 
 int inspector_classify(struct inspector *in, const struct image *img, struct inspect_times *t,

@@ -61,9 +61,11 @@ static int make_dataset_dirs(const char *dir, struct err *e)
     return rc;
 }
 
-/* A shift is not one fixed light and focus: parts sampled for training see
- * the bench's usual spread (light +-10 %, noise +-25 %, focus +-20 %),
- * drawn per part from the series seed.  jitter 0 renders every part at
+/* A recipe is trained on samples collected over a few days, not under one
+ * fixed light and focus: training parts see the bench's usual spread
+ * (light 0.85..1.1, noise x0.8..1.5, blur x0.85..1.3), drawn per part from
+ * the series seed.  The next shift's batch lies beyond it in all three
+ * (light 0.8, noise x1.6, blur x1.43).  jitter 0 renders every part at
  * exactly cond. */
 static void jittered(const struct simbench_conditions *cond, uint64_t seed, int index,
                      int jitter, struct simbench_conditions *out)
@@ -75,9 +77,9 @@ static void jittered(const struct simbench_conditions *cond, uint64_t seed, int 
     double u[3];
     for (int k = 0; k < 3; k++)
         u[k] = (double)(trainset_rng_next(&s) >> 11) / 4503599627370496.0 - 1.0;
-    out->light *= 1.0 + 0.10 * u[0];
-    out->noise *= 1.0 + 0.25 * u[1];
-    out->blur *= 1.0 + 0.20 * u[2];
+    out->light *= 0.975 + 0.125 * u[0];
+    out->noise *= 1.15 + 0.35 * u[1];
+    out->blur *= 1.075 + 0.225 * u[2];
 }
 
 static int render_set(const char *dir, uint64_t seed, int first, int n,

@@ -553,7 +553,7 @@ static void stain_draw(struct layers *L, const struct defect *d, int id)
             size_t i = (size_t)y * L->w + x;
             for (int c = 0; c < 3; c++)
                 L->mul[c][i] *= (float)(1.0 + op * (fac[c] - 1.0));
-            L->smooth[i] *= (float)(1.0 - 0.75 * op);
+            L->smooth[i] *= (float)(1.0 - 0.85 * op);
             if (op > 0.5)
                 mark(L, i, SIM_STAIN, id);
         }
