@@ -14,6 +14,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "calib/disc.h"
 #include "cli.h"
 #include "core/overlay.h"
 #include "core/pngio.h"
@@ -23,6 +24,7 @@
 #include "train.h"
 
 #define DEMO_RECIPE "ostrel-cap38.ini"
+#define CAP_DIAMETER_MM 38.0
 
 static void usage(FILE *f)
 {
@@ -217,6 +219,23 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
     return rc;
 }
 
+/* The recipe's scale against the cap's known diameter, measured on the
+ * station's own class map of one test part. */
+static int check_scale(struct inspector *in, const char *dir, int index, struct disc_scale *ds,
+                       struct err *e)
+{
+    char ip[PATH_MAX + 32];
+    snprintf(ip, sizeof ip, "%s/images/part-%04d.png", dir, index);
+    struct image *img = NULL;
+    int rc = pngio_load_rgb(ip, &img, e);
+    if (!rc)
+        rc = inspector_classify(in, img, NULL, e);
+    if (!rc)
+        rc = disc_measure_scale(inspector_classes(in), CAP_DIAMETER_MM, ds, e);
+    image_free(img);
+    return rc;
+}
+
 static json_t *batch_json(const struct recipe *r, const struct batch *b)
 {
     json_t *o = json_pack("{s:s,s:i,s:o,s:{s:i,s:i,s:i,s:i,s:i,s:i},s:i,s:i}", "batch", b->name,
@@ -312,11 +331,20 @@ static int run_demo(const struct demo_opts *o, struct err *e)
         if (!(rc = evaluate_dataset(in, dirs[k], dir, 3, &b[k].eval, e)))
             rc = inspect_batch(in, dirs[k], first[k], count[k], &b[k], e);
     }
+    struct disc_scale ds = {0};
+    int scale_rc = rc ? rc : check_scale(in, test_dir, o->ntrain, &ds, e);
     inspector_free(in);
     if (!rc) {
         for (int k = 0; k < 2; k++)
             if (count[k])
                 print_batch(&r, &b[k]);
+        if (scale_rc == ST_OK)
+            fprintf(stderr, "\nscale check from the first test part's outline (%.0f mm cap): "
+                            "%.4f x %.4f mm/px, recipe %.4f x %.4f; roundness %.3f\n",
+                    CAP_DIAMETER_MM, ds.mm_per_px_x, ds.mm_per_px_y, r.mm_per_px_x,
+                    r.mm_per_px_y, ds.aspect);
+        else
+            fprintf(stderr, "\nscale check not possible: %s\n", e->msg);
         json_t *s = json_pack("{s:s,s:I,s:f,s:o,s:o}", "recipe", r.product, "seed",
                               (json_int_t)o->seed, "seconds", (cli_now_ms() - t0) / 1e3,
                               "nominal", batch_json(&r, &b[0]), "shifted", batch_json(&r, &b[1]));
