@@ -48,7 +48,8 @@
  * value copied to every bottom leaf under it), and 16 rows walk it in the
  * lanes of one register: a level's split offsets and keys come from a
  * register permute instead of a load per row, and only the input key is
- * gathered.  It visits the same leaves as the walk above, so the sums are
+ * gathered (the top three levels, with 1, 2 and 4 nodes, need no gather at
+ * all: their inputs are plain loads blended by lane).  It visits the same leaves as the walk above, so the sums are
  * the same floats added in the same order. */
 
 #define MAX_FEATURES 4096
@@ -583,7 +584,36 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
             groups = 4;
         __m512i p[4] = {_mm512_setzero_si512(), _mm512_setzero_si512(), _mm512_setzero_si512(),
                         _mm512_setzero_si512()};
-        for (int d = 0; d < depth; d++) {
+        /* Levels 0..2 hold 1, 2 and 4 nodes: their inputs are the same row
+         * offsets for all lanes, so plain loads and blends replace the
+         * gather (16 loads each); the deeper levels gather. */
+        int d = 0;
+        for (; d < depth && d < 3; d++) {
+            const uint32_t *off = w->off + 16 * d;
+            const __m512i key = _mm512_load_si512(w->key + 16 * d);
+            for (int g = 0; g < groups; g++) {
+                const uint32_t *base = tab + r + WIDE_LANES * g;
+                __m512i x = _mm512_loadu_si512(base + off[0]);
+                if (d >= 1) {
+                    __mmask16 b0 = _mm512_test_epi32_mask(p[g], one);
+                    __m512i x1 = _mm512_loadu_si512(base + off[1]);
+                    if (d == 2) {
+                        __m512i x2 = _mm512_loadu_si512(base + off[2]);
+                        __m512i x3 = _mm512_loadu_si512(base + off[3]);
+                        __mmask16 b1 = _mm512_test_epi32_mask(p[g], _mm512_set1_epi32(2));
+                        x = _mm512_mask_blend_epi32(b0, x, x1);
+                        x = _mm512_mask_blend_epi32(b1, x, _mm512_mask_blend_epi32(b0, x2, x3));
+                    } else {
+                        x = _mm512_mask_blend_epi32(b0, x, x1);
+                    }
+                }
+                __m512i k = _mm512_permutexvar_epi32(p[g], key);
+                __mmask16 right = _mm512_cmpge_epu32_mask(x, k);
+                __m512i twice = _mm512_add_epi32(p[g], p[g]);
+                p[g] = _mm512_mask_add_epi32(twice, right, twice, one);
+            }
+        }
+        for (; d < depth; d++) {
             __m512i off, key;
             if (d < 5) {
                 off = _mm512_load_si512(w->off + 16 * d);
