@@ -14,8 +14,8 @@
  * entirely between background samples, which no real part of a recipe has.
  * Both passes split rows over the inspector's threads; the second pass
  * classifies spans of the feature stack in place, without copying. */
-#define ROI_STEP 4
-#define ROI_MARGIN 2
+#define ROI_STEP 8
+#define ROI_MARGIN 1
 #define MAX_WORKERS 64
 
 struct inspector {

@@ -23,7 +23,9 @@ static void usage(FILE *f)
                "regions, verdict and the whole inspection. With --xgboost, also times\n"
                "XGBoost's XGBoosterPredictFromDense on the same features and model, and\n"
                "reports max_abs_dp, the largest difference between its probabilities and\n"
-               "the station's evaluator on the first frame.\n");
+               "the station's evaluator on the first frame. locating_agreement is the share\n"
+               "of that frame's pixels whose class is the same with and without the\n"
+               "locating pass.\n");
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -81,7 +83,7 @@ int cmd_bench(int argc, char **argv)
     struct booster *b = NULL;
     struct image *img = NULL, *truth = NULL;
     float *prob = NULL, *ours = NULL;
-    double max_dp = 0;
+    double max_dp = 0, agreement = 0;
     double *v = calloc((size_t)repeat * 6, sizeof *v);
     int status = EXIT_ERROR;
     struct simbench_conditions cond;
@@ -122,8 +124,26 @@ int cmd_bench(int argc, char **argv)
                 }
             }
         }
-        if (k < 0)
+        if (k < 0) {
+            /* how far the locating pass changes the class map of this frame */
+            uint8_t *located = malloc(npix);
+            if (!located) {
+                err_set(&e, ST_ENOMEM, "out of memory");
+                goto done;
+            }
+            memcpy(located, inspector_classes(in)->px, npix);
+            inspector_set_locating(in, 0);
+            int rc = inspector_classify(in, img, NULL, &e);
+            inspector_set_locating(in, 1);
+            size_t same = 0;
+            for (size_t i = 0; i < npix; i++)
+                same += located[i] == inspector_classes(in)->px[i];
+            free(located);
+            if (rc)
+                goto done;
+            agreement = (double)same / (double)npix;
             continue;
+        }
         double *row = v + (size_t)k * 6;
         row[0] = t.features_ms;
         row[1] = t.classify_ms;
@@ -139,6 +159,7 @@ int cmd_bench(int argc, char **argv)
                           feat_count(&r.feat), "trees", forest_ntrees(inspector_forest(in)),
                           "depth", forest_max_depth(inspector_forest(in)), "classes",
                           r.nclasses);
+    json_object_set_new(o, "locating_agreement", json_real(agreement));
     if (xgb)
         json_object_set_new(o, "max_abs_dp", json_real(max_dp));
     double *col = malloc((size_t)repeat * sizeof *col);

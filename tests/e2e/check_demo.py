@@ -122,6 +122,10 @@ r = run("bench", recipe, "--size", "480x360", "--threads", "2", "--repeat", "1",
 b = json.loads(r.stdout)
 check(f"evaluator vs XGBoost on the demo model: max |dp| {b['max_abs_dp']:.2e} <= 1e-6",
       r.returncode == 0 and b["max_abs_dp"] <= 1e-6, b)
+# the locating pass only skips pixels that are background anyway (our own
+# bound: at most 1 pixel in 10,000 may differ)
+check(f"locating pass vs full classification: {b['locating_agreement']:.6f} of pixels agree",
+      b["locating_agreement"] >= 0.9999, b)
 
 # sparse labels: brush strokes instead of full masks train about as well
 # (tolerance: 2 points of pixel accuracy, 0.05 of mean IoU; our own rule
