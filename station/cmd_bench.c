@@ -21,7 +21,8 @@ static void usage(FILE *f)
                "Inspects K simulated-bench frames of the given size with N threads and prints\n"
                "one JSON line: median, min and max milliseconds of features, classify,\n"
                "regions, verdict and the whole inspection. With --xgboost, also times\n"
-               "XGBoost's XGBoosterPredictFromDense on the same features and model, and\n"
+               "XGBoost's XGBoosterPredictFromDense on the same features and model, and our\n"
+               "evaluator on every pixel the same way (forest_all_pixels), and\n"
                "reports max_abs_dp, the largest difference between its probabilities and\n"
                "the station's evaluator on the first frame. locating_agreement is the share\n"
                "of that frame's pixels whose class is the same with and without the\n"
@@ -82,9 +83,10 @@ int cmd_bench(int argc, char **argv)
     struct inspector *in = NULL;
     struct booster *b = NULL;
     struct image *img = NULL, *truth = NULL;
-    float *prob = NULL, *ours = NULL;
+    float *prob = NULL, *ours = NULL, *every_conf = NULL;
+    uint8_t *every_cls = NULL;
     double max_dp = 0, agreement = 0;
-    double *v = calloc((size_t)repeat * 6, sizeof *v);
+    double *v = calloc((size_t)repeat * 7, sizeof *v);
     int status = EXIT_ERROR;
     struct simbench_conditions cond;
     simbench_conditions_nominal(&cond);
@@ -92,7 +94,8 @@ int cmd_bench(int argc, char **argv)
         goto done;
     size_t npix = (size_t)w * h;
     if (xgb && (!(prob = malloc(npix * r.nclasses * sizeof *prob)) ||
-                !(ours = malloc(npix * r.nclasses * sizeof *ours)))) {
+                !(ours = malloc(npix * r.nclasses * sizeof *ours)) ||
+                !(every_cls = malloc(npix)) || !(every_conf = malloc(npix * sizeof *every_conf)))) {
         err_set(&e, ST_ENOMEM, "out of memory");
         goto done;
     }
@@ -106,7 +109,15 @@ int cmd_bench(int argc, char **argv)
         if (simbench_render(7, k + 1, &cond, w, h, &img, &truth, NULL, &e) ||
             inspector_run(in, img, &j, &t, &e))
             goto done;
-        double x = 0;
+        double x = 0, all = 0;
+        if (xgb) {
+            const struct fstack *fs = inspector_features(in);
+            double t1 = cli_now_ms();
+            if (forest_classify(inspector_forest(in), fs->v, npix, fs->n, threads, every_cls,
+                                every_conf, &e))
+                goto done;
+            all = cli_now_ms() - t1;
+        }
         if (xgb) {
             double t0 = cli_now_ms();
             if (booster_predict(b, inspector_features(in)->v, npix, inspector_features(in)->n,
@@ -144,18 +155,19 @@ int cmd_bench(int argc, char **argv)
             agreement = (double)same / (double)npix;
             continue;
         }
-        double *row = v + (size_t)k * 6;
+        double *row = v + (size_t)k * 7;
         row[0] = t.features_ms;
         row[1] = t.classify_ms;
         row[2] = t.regions_ms;
         row[3] = t.verdict_ms;
         row[4] = t.features_ms + t.classify_ms + t.regions_ms + t.verdict_ms;
         row[5] = x;
+        row[6] = all;
     }
     static const char *names[] = {"features", "classify", "regions", "verdict", "total",
-                                  "xgboost_predict"};
+                                  "xgboost_predict", "forest_all_pixels"};
     json_t *o = json_pack("{s:i,s:i,s:i,s:i,s:i,s:i,s:i,s:i}", "width", w, "height", h,
-                          "threads", threads, "repeat", repeat, "features",
+                          "threads", threads, "repeat", repeat, "feature_count",
                           feat_count(&r.feat), "trees", forest_ntrees(inspector_forest(in)),
                           "depth", forest_max_depth(inspector_forest(in)), "classes",
                           r.nclasses);
@@ -163,9 +175,9 @@ int cmd_bench(int argc, char **argv)
     if (xgb)
         json_object_set_new(o, "max_abs_dp", json_real(max_dp));
     double *col = malloc((size_t)repeat * sizeof *col);
-    for (int s = 0; s < (xgb ? 6 : 5) && col; s++) {
+    for (int s = 0; s < (xgb ? 7 : 5) && col; s++) {
         for (int k = 0; k < repeat; k++)
-            col[k] = v[(size_t)k * 6 + s];
+            col[k] = v[(size_t)k * 7 + s];
         json_object_set_new(o, names[s], stat_json(col, repeat));
     }
     free(col);
@@ -179,6 +191,8 @@ done:
     free(v);
     free(prob);
     free(ours);
+    free(every_cls);
+    free(every_conf);
     image_free(img);
     image_free(truth);
     booster_free(b);

@@ -1,11 +1,12 @@
 """The station's filter bank computed with OpenCV from Python, timed.
 
-Same families, sigmas (1, 2, 4; truncation 4 sigma), Gabor frequencies
-(0.1, 0.25) and orientations (4) as the demo recipe, with BORDER_REFLECT
+The same families, sigmas (truncation 4 sigma), Gabor frequencies and
+orientations as the recipe's [features] section, with BORDER_REFLECT
 (OpenCV's name for scipy's 'reflect'): the way a practitioner would write
 the bank in Python.  Prints one JSON line: median/min/max ms per frame.
-usage: opencv_bank.py W H THREADS REPEAT
+usage: opencv_bank.py RECIPE W H THREADS REPEAT
 """
+import configparser
 import json
 import sys
 import time
@@ -13,7 +14,14 @@ import time
 import cv2
 import numpy as np
 
-w, h, threads, repeat = map(int, sys.argv[1:5])
+ini = configparser.ConfigParser(inline_comment_prefixes=(";", "#"))
+ini.read(sys.argv[1])
+spec = ini["features"]
+families = set(spec["families"].split())
+sigmas = [float(v) for v in spec["sigmas"].split()]
+freqs = [float(v) for v in spec.get("gabor_frequencies", "").split()] if "gabor" in families else []
+orients = int(spec.get("gabor_orientations", "4"))
+w, h, threads, repeat = map(int, sys.argv[2:6])
 cv2.setNumThreads(threads)
 B = cv2.BORDER_REFLECT
 rng = np.random.default_rng(1)
@@ -41,8 +49,8 @@ def gabor(f, t):
            (env * np.sin(2 * np.pi * f * rot)).astype(np.float32)
 
 
-kernels = {s: gauss_kernels(s) for s in (1, 2, 4)}
-gabors = [gabor(f, k * np.pi / 4) for f in (0.1, 0.25) for k in range(4)]
+kernels = {s: gauss_kernels(s) for s in sigmas}
+gabors = [gabor(f, k * np.pi / orients) for f in freqs for k in range(orients)]
 
 
 def bank(img):

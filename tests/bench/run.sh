@@ -23,7 +23,7 @@ for size in 640x480 1280x960; do
     for t in 1 2; do
         echo "bench: $size, $t thread(s)" >&2
         s=$("$BUILD/station" bench "$recipe" --size "$size" --threads "$t" --repeat "$REPEAT" --xgboost)
-        o=$("$PYTHON" tests/bench/opencv_bank.py "$w" "$h" "$t" 5)
+        o=$("$PYTHON" tests/bench/opencv_bank.py "$recipe" "$w" "$h" "$t" 5)
         echo "{\"station\": $s, \"opencv\": $o}" >>"$results"
     done
 done
