@@ -80,32 +80,9 @@ fail:
     return rc;
 }
 
-void inspector_free(struct inspector *in)
+/* Everything sized for one frame size. */
+static void free_frame_buffers(struct inspector *in)
 {
-    if (!in)
-        return;
-    forest_free(in->forest);
-    feat_ctx_free(in->feat);
-    fstack_free(in->fs);
-    image_free(in->classes);
-    free(in->conf);
-    free(in->cell_cls);
-    free(in->need);
-    free(in->cell_conf);
-    free(in->grid_rows);
-    regions_clear(&in->rs);
-    free(in);
-}
-
-static int workers(const struct inspector *in)
-{
-    return in->threads < MAX_WORKERS ? in->threads : MAX_WORKERS;
-}
-
-static int ensure_size(struct inspector *in, int w, int h, struct err *e)
-{
-    if (in->feat && in->w == w && in->h == h)
-        return ST_OK;
     feat_ctx_free(in->feat);
     fstack_free(in->fs);
     image_free(in->classes);
@@ -121,6 +98,28 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->cell_cls = in->need = NULL;
     in->cell_conf = in->grid_rows = NULL;
     in->w = in->h = 0;
+}
+
+void inspector_free(struct inspector *in)
+{
+    if (!in)
+        return;
+    forest_free(in->forest);
+    free_frame_buffers(in);
+    regions_clear(&in->rs);
+    free(in);
+}
+
+static int workers(const struct inspector *in)
+{
+    return in->threads < MAX_WORKERS ? in->threads : MAX_WORKERS;
+}
+
+static int ensure_size(struct inspector *in, int w, int h, struct err *e)
+{
+    if (in->feat && in->w == w && in->h == h)
+        return ST_OK;
+    free_frame_buffers(in);
     if (!(in->feat = feat_ctx_new(&in->r.feat, w, h, e)) ||
         !(in->fs = fstack_new(w, h, feat_count(&in->r.feat), e)) ||
         !(in->classes = image_new(w, h, 1, e)))
@@ -309,7 +308,6 @@ void inspector_set_threads(struct inspector *in, int threads)
 {
     in->threads = threads < 1 ? 1 : threads;
     in->r.feat.threads = in->threads;
-    /* the feature context was made with the old thread count */
-    feat_ctx_free(in->feat);
-    in->feat = NULL;
+    /* the feature context and worker buffers were made for the old count */
+    free_frame_buffers(in);
 }
