@@ -265,8 +265,8 @@ static void print_batch(const struct recipe *r, const struct batch *b)
     fprintf(stderr, "  defective parts passed: %d    good parts failed: %d    parts with a defect "
                     "over twice its tolerance passed: %d of %d\n",
             b->table[1][0], b->table[0][1], b->severe_passed, b->severe);
-    fprintf(stderr, "  in short: pixel accuracy %.1f%%, defect classes' mean IoU %.3f\n",
-            100 * metrics_accuracy(cm), metrics_mean_iou(cm, def));
+    fprintf(stderr, "  in short: pixel accuracy %.1f%%, mean IoU %.3f (defect classes %.3f)\n",
+            100 * metrics_accuracy(cm), metrics_mean_iou(cm, NULL), metrics_mean_iou(cm, def));
 }
 
 struct demo_opts {

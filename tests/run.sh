@@ -32,9 +32,17 @@ fi
 for t in $(find "$BUILD/tests" -type f -name 'test_*' ! -name '*.o' ! -name '*.d' | sort); do
     run_one "${t#$BUILD/}" "$t"
 done
-# The sanitizer build runs the unit tests; the reference checks and the
-# end-to-end runs compare figures, which the plain build already covers.
-[ "$SAN" = 1 ] && { echo; echo "check: $pass passed, $fail failed"; [ "$fail" = 0 ]; exit $?; }
+# The sanitizer build runs the unit tests and the small end-to-end run; the
+# reference checks and the full demo compare figures, which the plain build
+# already covers.
+if [ "$SAN" = 1 ]; then
+    run_one tests/e2e/test_smoke.sh sh tests/e2e/test_smoke.sh
+    echo
+    [ -n "$failed" ] && echo "failed:$failed"
+    echo "check: $pass passed, $fail failed"
+    [ "$fail" = 0 ]
+    exit $?
+fi
 for s in tests/ref/test_*.py; do
     [ -e "$s" ] || continue
     run_one "$s" "$PYTHON" "$s"
