@@ -16,6 +16,10 @@
 #define GREY_KEY_MAX 255000
 #define FEAT_MAX_GABORS (FEAT_MAX_GABOR_FREQS * FEAT_MAX_ORIENT)
 #define NROWS 8 /* row buffers per worker, enough for the busiest phase */
+/* The last phase runs pass by pass over strips of this many rows, so one
+ * pass's source windows and the strip's planar features stay in L2; row by
+ * row, every pass's window would be live at once and spill. */
+#define STRIP 8
 /* the largest of the three plans: worker rows, planes, kernels */
 #define PLAN_MAX (FEAT_MAX_THREADS * (NROWS + 2))
 _Static_assert(PLAN_MAX >= 3 + FEAT_MAX_SIGMAS * 8 + FEAT_MAX_GABORS * 2 &&
@@ -68,7 +72,8 @@ struct feat_gabor {
 
 struct feat_worker {
     float *pad;
-    float *fb; /* n planar feature rows of the row being finished */
+    float *fb;      /* the strip being finished: per row, its n features as planar rows */
+    int strip_y0;   /* first row of that strip */
     const float **src;
     float *row[NROWS];
 };
@@ -244,22 +249,33 @@ static void plan_add(struct block_plan *p, float **dst, size_t len)
     p->n++;
 }
 
-/* Allocates the sum of the lengths and points every dst into it. */
+/* Buffers start on 64-byte boundaries: with a width that is a multiple of
+ * 16 every row of a plane is then aligned, and the column passes' vector
+ * loads never straddle two cache lines (a split load costs about twice). */
+#define PLAN_ALIGN 16 /* floats */
+
+static size_t plan_padded(size_t len)
+{
+    return len + (PLAN_ALIGN - len % PLAN_ALIGN) % PLAN_ALIGN;
+}
+
+/* Allocates the sum of the (padded) lengths and points every dst into it. */
 static float *plan_alloc(const struct block_plan *p)
 {
     size_t total = 0;
     for (int i = 0; i < p->n; i++) {
-        if (p->len[i] > SIZE_MAX / sizeof(float) - total)
+        size_t room = SIZE_MAX / sizeof(float) - PLAN_ALIGN;
+        if (total > room || p->len[i] > room - total)
             return NULL;
-        total += p->len[i];
+        total += plan_padded(p->len[i]);
     }
-    float *base = malloc((total ? total : 1) * sizeof *base);
+    float *base = aligned_alloc(PLAN_ALIGN * sizeof *base, (total ? total : PLAN_ALIGN) * sizeof *base);
     if (!base)
         return NULL;
     size_t at = 0;
     for (int i = 0; i < p->n; i++) {
         *p->dst[i] = base + at;
-        at += p->len[i];
+        at += plan_padded(p->len[i]);
     }
     return base;
 }
@@ -361,7 +377,7 @@ static int ctx_alloc_workers(struct feat_ctx *ctx, struct block_plan *p)
         struct feat_worker *wk = &ctx->wk[t];
         wk->src = ctx->srcs + (size_t)t * nsrc;
         plan_add(p, &wk->pad, (size_t)ctx->w + 2 * (size_t)ctx->rmax);
-        plan_add(p, &wk->fb, (size_t)ctx->w * (size_t)ctx->n);
+        plan_add(p, &wk->fb, (size_t)ctx->w * (size_t)ctx->n * STRIP);
         for (int b = 0; b < NROWS; b++)
             plan_add(p, &wk->row[b], (size_t)ctx->w);
     }
@@ -504,10 +520,10 @@ static void frame_level(struct feat_ctx *ctx, const struct image *img)
     ctx->mean_grey = (float)mean_key * ctx->scale_grey;
 }
 
-/* Feature row k of the worker's planar buffer for the current row. */
-static float *frow(const struct feat_ctx *ctx, struct feat_worker *wk, int k)
+/* Feature k of row y (in the current strip) in the worker's planar buffer. */
+static float *frow(const struct feat_ctx *ctx, const struct feat_worker *wk, int k, int y)
 {
-    return wk->fb + (size_t)k * (size_t)ctx->w;
+    return wk->fb + ((size_t)(y - wk->strip_y0) * (size_t)ctx->n + (size_t)k) * (size_t)ctx->w;
 }
 
 /* Writes the n planar feature rows as one pixel-major output row, so the
@@ -525,8 +541,9 @@ static void interleave_row(const struct feat_ctx *ctx, const struct feat_worker 
 {
     size_t n = (size_t)ctx->n, w = (size_t)ctx->w;
     float *o = ctx->out->v + (size_t)y * w * n;
+    const float *fb = frow(ctx, wk, 0, y);
     for (size_t x0 = 0; x0 < w; x0 += 16)
-        interleave_block(wk->fb, w, n, x0, w - x0 < 16 ? w - x0 : 16, o + x0 * n);
+        interleave_block(fb, w, n, x0, w - x0 < 16 ? w - x0 : 16, o + x0 * n);
 }
 
 FILT_HOT static void grey_row(const uint8_t *restrict px, int ch, int w, float scale, float *restrict g)
@@ -685,7 +702,7 @@ static void colour_row(const struct feat_ctx *ctx, struct feat_worker *wk, int y
     const uint8_t *px = ctx->img->px + (size_t)y * (size_t)ctx->w * (size_t)ch;
     for (int c = 0; c < 3; c++) {
         const uint8_t *p = px + (ch == 3 ? c : 0);
-        float *o = frow(ctx, wk, ctx->idx_colour + c);
+        float *o = frow(ctx, wk, ctx->idx_colour + c, y);
         for (int x = 0; x < ctx->w; x++)
             o[x] = p[x * ch] * ctx->scale_rgb;
     }
@@ -698,7 +715,7 @@ static void cols_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struc
     const float **src = wk->src;
     float *gy = wk->row[1], *lyy = wk->row[2], *tmp = wk->row[3];
     int kg = s->idx[SLOT_GAUSS];
-    float *g = kg >= 0 ? frow(ctx, wk, kg) : wk->row[0];
+    float *g = kg >= 0 ? frow(ctx, wk, kg, y) : wk->row[0];
     filt_sources_col(s->r0, w, h, y, r, src);
     if (s->gs)
         memcpy(g, s->gs + (size_t)y * (size_t)w, (size_t)w * sizeof *g);
@@ -708,17 +725,17 @@ static void cols_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struc
     if (s->r1) {
         filt_sources_col(s->r1, w, h, y, r, src);
         filt_sym(src, s->k0, r, w, tmp);
-        magnitude(tmp, gy, w, frow(ctx, wk, s->idx[SLOT_GRADIENT]));
+        magnitude(tmp, gy, w, frow(ctx, wk, s->idx[SLOT_GRADIENT], y));
     }
     if (s->r2) {
         filt_sources_col(s->r2, w, h, y, r, src);
         filt_sym(src, s->k0, r, w, tmp);
-        sum_rows(tmp, lyy, w, frow(ctx, wk, s->idx[SLOT_LAPLACE]));
+        sum_rows(tmp, lyy, w, frow(ctx, wk, s->idx[SLOT_LAPLACE], y));
     }
     if (s->q0) {
         filt_sources_col(s->q0, w, h, y, r, src);
         filt_sym(src, s->k0, r, w, tmp);
-        local_std(tmp, g, ctx->mean_grey, w, frow(ctx, wk, s->idx[SLOT_LOCALSTD]));
+        local_std(tmp, g, ctx->mean_grey, w, frow(ctx, wk, s->idx[SLOT_LOCALSTD], y));
     }
 }
 
@@ -796,16 +813,16 @@ static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const stru
     int w = ctx->w, h = ctx->h;
     if (s->gs) {
         hessian_row(ctx, wk, s->gs, y);
-        eigen_2x2(wk->row[2], wk->row[3], wk->row[4], w, frow(ctx, wk, s->idx[SLOT_HESS_HI]),
-                  frow(ctx, wk, s->idx[SLOT_HESS_LO]));
+        eigen_2x2(wk->row[2], wk->row[3], wk->row[4], w, frow(ctx, wk, s->idx[SLOT_HESS_HI], y),
+                  frow(ctx, wk, s->idx[SLOT_HESS_LO], y));
     }
     if (s->pr[0]) {
         for (int c = 0; c < 3; c++) {
             filt_sources_col(s->pr[c], w, h, y, s->r, wk->src);
             filt_sym(wk->src, s->k0, s->r, w, wk->row[5 + c]);
         }
-        eigen_2x2(wk->row[5], wk->row[6], wk->row[7], w, frow(ctx, wk, s->idx[SLOT_STRUCT_HI]),
-                  frow(ctx, wk, s->idx[SLOT_STRUCT_LO]));
+        eigen_2x2(wk->row[5], wk->row[6], wk->row[7], w, frow(ctx, wk, s->idx[SLOT_STRUCT_HI], y),
+                  frow(ctx, wk, s->idx[SLOT_STRUCT_LO], y));
     }
 }
 
@@ -830,26 +847,33 @@ static void gabor_row(struct feat_ctx *ctx, struct feat_worker *wk, const struct
             b = wk->row[1];
         sym_anti(src, gb->yre, gb->yim, r, w, c, gb->y_real ? NULL : b);
     }
-    complex_magnitude(a, b, c, d, 1.0f, w, frow(ctx, wk, gb->idx));
+    complex_magnitude(a, b, c, d, 1.0f, w, frow(ctx, wk, gb->idx, y));
     if (gb->mirror >= 0)
-        complex_magnitude(a, b, c, d, -1.0f, w, frow(ctx, wk, ctx->gab[gb->mirror].idx));
+        complex_magnitude(a, b, c, d, -1.0f, w, frow(ctx, wk, ctx->gab[gb->mirror].idx, y));
 }
 
-/* Every feature of row y into the planar buffer, then out as one row. */
+/* Every feature of a strip into the planar buffer, one pass at a time over
+ * the strip's rows, then out row by row while the buffer is hot.  Each row's
+ * values do not depend on the strip bounds, so any split into workers gives
+ * the same bits. */
 static void phase_final(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
 {
-    for (int y = y0; y < y1; y++) {
-        if (ctx->idx_colour >= 0)
+    for (int ys = y0; ys < y1; ys += STRIP) {
+        int ye = y1 - ys < STRIP ? y1 : ys + STRIP;
+        wk->strip_y0 = ys;
+        for (int y = ys; y < ye && ctx->idx_colour >= 0; y++)
             colour_row(ctx, wk, y);
         for (int i = 0; i < ctx->nsig; i++) {
-            if (ctx->sig[i].r0)
+            for (int y = ys; y < ye && ctx->sig[i].r0; y++)
                 cols_sigma(ctx, wk, &ctx->sig[i], y);
-            final_sigma(ctx, wk, &ctx->sig[i], y);
+            for (int y = ys; y < ye; y++)
+                final_sigma(ctx, wk, &ctx->sig[i], y);
         }
         for (int i = 0; i < ctx->ngab; i++)
-            if (!ctx->gab[i].shared)
+            for (int y = ys; y < ye && !ctx->gab[i].shared; y++)
                 gabor_row(ctx, wk, &ctx->gab[i], y);
-        interleave_row(ctx, wk, y);
+        for (int y = ys; y < ye; y++)
+            interleave_row(ctx, wk, y);
     }
 }
 

@@ -141,7 +141,9 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
 
 struct worker {
     struct inspector *in;
-    int index, y0, y1;   /* rows of the grid (pass 1) or of the frame (pass 2) */
+    /* rows index, index + step, ... of the grid (pass 1) or the frame (pass 2):
+     * interleaved, because the part, and so the work, sits in some rows only */
+    int index, step, nrows;
     int rc;
     struct err e;
 };
@@ -154,7 +156,7 @@ static void *grid_pass(void *arg)
     struct inspector *in = wk->in;
     const int nf = in->fs->n, gw = in->gw;
     float *rows = in->grid_rows + (size_t)wk->index * gw * nf;
-    for (int gy = wk->y0; gy < wk->y1 && wk->rc == ST_OK; gy++) {
+    for (int gy = wk->index; gy < wk->nrows && wk->rc == ST_OK; gy += wk->step) {
         for (int gx = 0; gx < gw; gx++)
             memcpy(rows + (size_t)gx * nf,
                    in->fs->v + ((size_t)gy * ROI_STEP * in->w + (size_t)gx * ROI_STEP) * nf,
@@ -173,7 +175,7 @@ static void *full_pass(void *arg)
     struct worker *wk = arg;
     struct inspector *in = wk->in;
     const int w = in->w, gw = in->gw, nf = in->fs->n;
-    for (int y = wk->y0; y < wk->y1 && wk->rc == ST_OK; y++) {
+    for (int y = wk->index; y < wk->nrows && wk->rc == ST_OK; y += wk->step) {
         const uint8_t *need = in->need + (size_t)(y / ROI_STEP) * gw;
         const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
         size_t row = (size_t)y * w;
@@ -197,7 +199,7 @@ static void *full_pass(void *arg)
     return NULL;
 }
 
-/* Runs fn over rows [0, nrows) split between the inspector's threads. */
+/* Runs fn over rows [0, nrows) shared between the inspector's threads. */
 static int run_workers(struct inspector *in, int nrows, void *(*fn)(void *), struct err *e)
 {
     int nt = workers(in) < nrows ? workers(in) : nrows;
@@ -205,7 +207,7 @@ static int run_workers(struct inspector *in, int nrows, void *(*fn)(void *), str
     pthread_t tid[MAX_WORKERS];
     int started[MAX_WORKERS] = {0};
     for (int t = 0; t < nt; t++) {
-        wk[t] = (struct worker){in, t, nrows * t / nt, nrows * (t + 1) / nt, ST_OK, {0}};
+        wk[t] = (struct worker){in, t, nt, nrows, ST_OK, {0}};
         err_clear(&wk[t].e);
     }
     /* a thread that cannot start leaves its rows to the caller */
