@@ -1,5 +1,6 @@
 #include "train.h"
 
+#include <errno.h>
 #include <stdio.h>
 #include <string.h>
 #include <time.h>
@@ -135,12 +136,19 @@ int train_recipe(const struct recipe *r, const char *data_dir, struct train_repo
                             on_round, &ps, &b, &rep->best_round, &rep->best_loss, e)))
         goto done;
     progress_done(&ps.p);
-    if ((rc = booster_save(b, r->model_path, e)))
-        goto done;
+    /* the new model replaces the old one whole: written beside it, then renamed */
+    char tmp[PATH_MAX + 8];
+    const char *ext = strrchr(r->model_path, '.');
+    snprintf(tmp, sizeof tmp, "%.*s.new%s", (int)(ext - r->model_path), r->model_path, ext);
     struct model_meta m;
-    if ((rc = model_meta_from_recipe(r, &m, e)) ||
-        (rc = sha256_hex_file(r->model_path, m.model_sha256, e)))
+    if ((rc = booster_save(b, tmp, e)) || (rc = model_meta_from_recipe(r, &m, e)) ||
+        (rc = sha256_hex_file(tmp, m.model_sha256, e)))
         goto done;
+    if (rename(tmp, r->model_path) != 0) {
+        rc = err_set(e, ST_EIO, "%s: cannot replace the model: %s", r->model_path,
+                     strerror(errno));
+        goto done;
+    }
     for (int c = 0; c < r->nclasses; c++) {
         m.samples[c] = rep->per_class[c];
         m.images[c] = rep->images_with[c];
