@@ -48,8 +48,8 @@
  * value copied to every bottom leaf under it), and 16 rows walk it in the
  * lanes of one register: a level's split offsets and keys come from a
  * register permute instead of a load per row, and only the input key is
- * gathered (the top three levels, with 1, 2 and 4 nodes, need no gather at
- * all: their inputs are plain loads blended by lane).  It visits the same leaves as the walk above, so the sums are
+ * gathered (the top four levels, with 1 to 8 nodes, need no gather at all:
+ * their inputs are plain loads blended by lane).  It visits the same leaves as the walk above, so the sums are
  * the same floats added in the same order. */
 
 #define MAX_FEATURES 4096
@@ -534,6 +534,38 @@ static void fill_table(const struct forest *f, const float *x, size_t nfeat, int
         memset(tab, 0, (size_t)padded * sizeof *tab);
 }
 
+/* fill_table for the wide walk: 16 rows of a slot gathered at once, NaN
+ * replaced and turned into keys in registers; lanes past nrows hold 0. */
+__attribute__((target("avx512f"))) static void wide_fill_table(const struct forest *f,
+                                                              const float *x, size_t nfeat,
+                                                              int nrows, uint32_t *tab)
+{
+    const __m512i stride = _mm512_mullo_epi32(
+        _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15),
+        _mm512_set1_epi32((int)nfeat));
+    const __m512i sign = _mm512_set1_epi32((int)0x80000000u);
+    for (int s = 0; s < f->nslots; s++) {
+        const float *col = x + f->slot_feat[s];
+        const __m512 nan_as = _mm512_set1_ps(f->slot_nan[s]);
+        uint32_t *dst = tab + (size_t)s * (size_t)f->block;
+        for (int r = 0; r < nrows; r += WIDE_LANES) {
+            int left = nrows - r;
+            __mmask16 live = left >= WIDE_LANES ? (__mmask16)0xffff : (__mmask16)((1u << left) - 1);
+            __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, stride,
+                                                col + (size_t)r * nfeat, 4);
+            v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v, nan_as);
+            v = _mm512_add_ps(v, _mm512_setzero_ps()); /* -0 becomes +0 */
+            __m512i b = _mm512_castps_si512(v);
+            __mmask16 neg = _mm512_test_epi32_mask(b, sign);
+            __m512i key = _mm512_mask_blend_epi32(neg, _mm512_or_si512(b, sign),
+                                                  _mm512_xor_si512(b, _mm512_set1_epi32(-1)));
+            _mm512_storeu_si512(dst + r, _mm512_maskz_mov_epi32(live, key));
+        }
+    }
+    if (f->nslots == 0)
+        memset(tab, 0, (size_t)(nrows + WIDE_LANES - 1) / WIDE_LANES * WIDE_LANES * sizeof *tab);
+}
+
 /* One group of GROUP rows through one tree.  Kept out of line so that the
  * compiler addresses row j of the group as a constant displacement from
  * one base pointer instead of keeping GROUP row indices in registers. */
@@ -584,17 +616,31 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
             groups = 4;
         __m512i p[4] = {_mm512_setzero_si512(), _mm512_setzero_si512(), _mm512_setzero_si512(),
                         _mm512_setzero_si512()};
-        /* Levels 0..2 hold 1, 2 and 4 nodes: their inputs are the same row
-         * offsets for all lanes, so plain loads and blends replace the
-         * gather (16 loads each); the deeper levels gather. */
+        /* Levels 0..3 hold 1, 2, 4 and 8 nodes: their inputs are the same row
+         * offsets for all lanes, so plain loads and blends on the bits of
+         * the position replace the gather (16 loads each); the deeper
+         * levels gather. */
         int d = 0;
-        for (; d < depth && d < 3; d++) {
+        for (; d < depth && d < 4; d++) {
             const uint32_t *off = w->off + 16 * d;
             const __m512i key = _mm512_load_si512(w->key + 16 * d);
             for (int g = 0; g < groups; g++) {
                 const uint32_t *base = tab + r + WIDE_LANES * g;
                 __m512i x = _mm512_loadu_si512(base + off[0]);
-                if (d >= 1) {
+                if (d == 3) {
+                    __mmask16 b0 = _mm512_test_epi32_mask(p[g], one);
+                    __mmask16 b1 = _mm512_test_epi32_mask(p[g], _mm512_set1_epi32(2));
+                    __mmask16 b2 = _mm512_test_epi32_mask(p[g], _mm512_set1_epi32(4));
+                    __m512i a0 = _mm512_mask_blend_epi32(b0, x, _mm512_loadu_si512(base + off[1]));
+                    __m512i a1 = _mm512_mask_blend_epi32(b0, _mm512_loadu_si512(base + off[2]),
+                                                         _mm512_loadu_si512(base + off[3]));
+                    __m512i a2 = _mm512_mask_blend_epi32(b0, _mm512_loadu_si512(base + off[4]),
+                                                         _mm512_loadu_si512(base + off[5]));
+                    __m512i a3 = _mm512_mask_blend_epi32(b0, _mm512_loadu_si512(base + off[6]),
+                                                         _mm512_loadu_si512(base + off[7]));
+                    x = _mm512_mask_blend_epi32(b2, _mm512_mask_blend_epi32(b1, a0, a1),
+                                                _mm512_mask_blend_epi32(b1, a2, a3));
+                } else if (d >= 1) {
                     __mmask16 b0 = _mm512_test_epi32_mask(p[g], one);
                     __m512i x1 = _mm512_loadu_si512(base + off[1]);
                     if (d == 2) {
@@ -657,7 +703,10 @@ static void block_probs(const struct forest *f, const float *x, size_t nfeat, in
                         struct scratch *s, float *prob)
 {
     int K = f->nclasses;
-    fill_table(f, x, nfeat, nrows, s->tab);
+    if (f->wide)
+        wide_fill_table(f, x, nfeat, nrows, s->tab);
+    else
+        fill_table(f, x, nfeat, nrows, s->tab);
     for (int k = 0; k < K; k++)
         for (int r = 0; r < MAX_BLOCK; r++)
             s->margin[k * MAX_BLOCK + r] = f->base_score;
