@@ -175,7 +175,7 @@ static int tree_arrays(const char *path, json_t *jt, int t, struct jtree *a, str
     static const char *const names[] = {"left_children", "right_children", "split_indices",
                                         "split_conditions", "default_left"};
     json_t **dst[] = {&a->lc, &a->rc, &a->si, &a->sc, &a->dl};
-    long nn;
+    long nn = 0;
     int rc = param_long(path, jt, "tree_param.num_nodes", &nn, e);
     if (rc != ST_OK)
         return rc;

@@ -18,7 +18,7 @@ int image_check_size(int w, int h, int channels, size_t *bytes, struct err *e)
 
 struct image *image_new(int w, int h, int channels, struct err *e)
 {
-    size_t bytes;
+    size_t bytes = 0;
     if (image_check_size(w, h, channels, &bytes, e))
         return NULL;
     struct image *img = malloc(sizeof *img);
