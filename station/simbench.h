@@ -70,8 +70,8 @@ struct simbench_truth {
 
 /* Renders part `index` of the series `seed` at w x h (w, h >= 64).  The cap
  * spans 0.62 x min(w, h) (+-4%); defect sizes are given for a 360-pixel
- * short side (scratches 15-120 px long, 1-3 px wide; pits of radius
- * 1.5-6 px; stains of radius 12-45 px), and scratch lengths and stain radii
+ * short side (scratches 15-120 px long, 2-5 px wide, narrower at the ends;
+ * pits of radius 1.5-9 px; stains of radius 12-45 px), and scratch lengths and stain radii
  * scale with min(w, h) / 360.  *img (RGB) and *truth (1 channel, class
  * indices) are new images the caller frees; info (may be NULL) describes
  * the part and the defects drawn.  Single-threaded, no global state. */
