@@ -13,15 +13,11 @@ import subprocess
 import sys
 import tempfile
 
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "ref"))
+from refcheck import check, status  # noqa: E402
+
 station, out = sys.argv[1], sys.argv[2]
 recipe = os.path.join(out, "ostrel-cap38.ini")
-failures = 0
-
-
-def check(name, ok, detail=""):
-    global failures
-    print(("ok   " if ok else "FAIL ") + name + ("" if ok else ": " + str(detail)))
-    failures += 0 if ok else 1
 
 
 def run(*args):
@@ -184,4 +180,4 @@ for cmd in ("demo", "train", "evaluate", "inspect", "recipe", "bench"):
     check(f"station {cmd} --help", r.returncode == 0 and "usage: station " + cmd in r.stdout, r.stdout[:100])
 r = run("--version")
 check("station --version", r.returncode == 0 and r.stdout.startswith("station "), r.stdout)
-sys.exit(1 if failures else 0)
+sys.exit(status())

@@ -19,19 +19,15 @@ from skimage.feature import (hessian_matrix, hessian_matrix_eigvals,
                              structure_tensor, structure_tensor_eigenvalues)
 from skimage.filters import gabor_kernel
 
-BUILD = os.environ.get("STATION_BUILD", "build")
-TOOL = os.path.join(BUILD, "tests", "tools", "featdump")
+import refcheck
+TOOL = refcheck.tool("featdump")
 REL_TOL = 1e-4
 ABS_TOL = 1e-6
 FAMILIES = ["colour", "gauss", "gradient", "laplace", "hessian", "structure", "localstd", "gabor"]
-failures = 0
 
 
 def check(ok, what):
-    global failures
-    print(("ok   " if ok else "FAIL ") + what)
-    if not ok:
-        failures += 1
+    refcheck.check(what, ok)
 
 
 def make_frame(seed, h, w, c):
@@ -154,8 +150,9 @@ def main():
         run_case("dim80x70", tmp, dim, FAMILIES, [0.5, 8, 16], 8, [0.25], 1, 2)
         # Gabor radius 29 at f=0.06 exceeds both sides
         run_case("subset", tmp, rgb, ["hessian", "gabor", "localstd"], [1.5, 3], 2, [0.06, 0.3], 1, 2)
-    print("test_features: %s" % ("all ok" if failures == 0 else "%d failed" % failures))
-    return 1 if failures else 0
+    print("test_features: %s" % ("all ok" if refcheck.failures() == 0
+                                 else "%d failed" % refcheck.failures()))
+    return refcheck.status()
 
 
 if __name__ == "__main__":

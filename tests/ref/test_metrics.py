@@ -16,17 +16,10 @@ import tempfile
 import numpy as np
 from sklearn.metrics import accuracy_score, confusion_matrix, jaccard_score
 
-BUILD = os.environ.get("STATION_BUILD", "build")
-TOOL = os.path.join(BUILD, "tests", "tools", "confusion")
+from refcheck import check, status, tool
+TOOL = tool("confusion")
 TOL = 1e-12
-failures = 0
 
-
-def check(name, ok, detail=""):
-    global failures
-    print(("ok    " if ok else "FAIL  ") + name + ("" if ok else ": " + detail))
-    if not ok:
-        failures += 1
 
 
 def run_tool(tmp, n, pairs, mask=None):
@@ -140,7 +133,7 @@ def main():
         random_case(tmp)
         docstring_cases(tmp)
         error_cases(tmp)
-    return 1 if failures else 0
+    return status()
 
 
 if __name__ == "__main__":

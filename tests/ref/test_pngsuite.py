@@ -26,19 +26,15 @@ import numpy as np
 from PIL import Image
 
 SUITE = "/usr/share/doc/libsixel-examples/examples/images/pngsuite"
-BUILD = os.environ.get("STATION_BUILD", "build")
-TOOL = os.path.join(BUILD, "tests", "tools", "pngdump")
+import refcheck
+TOOL = refcheck.tool("pngdump")
 
-failures = 0
 # PIL suggests RGBA for palette+tRNS files; dropping tRNS is exactly what is tested.
 warnings.filterwarnings("ignore", "Palette images with Transparency", UserWarning)
 
 
 def check(ok, what):
-    global failures
-    print(("ok   " if ok else "FAIL ") + what)
-    if not ok:
-        failures += 1
+    refcheck.check(what, ok)
 
 
 def run(*args):
@@ -212,8 +208,8 @@ def main():
         check_suite(tmp)
         check_labels(tmp)
         check_save(tmp)
-    print(f"pngsuite: {failures} failures")
-    return 1 if failures else 0
+    print(f"pngsuite: {refcheck.failures()} failures")
+    return refcheck.status()
 
 
 if __name__ == "__main__":

@@ -13,15 +13,9 @@ import numpy as np
 from scipy import ndimage
 from skimage.measure import regionprops
 
-build = os.environ.get("STATION_BUILD", "build")
-tool = os.path.join(build, "tests", "tools", "regionsdump")
-failures = 0
+from refcheck import check, status, tool as tool_path
 
-
-def check(name, ok, detail=""):
-    global failures
-    print(("ok   " if ok else "FAIL ") + name + (": " + detail if detail and not ok else ""))
-    failures += 0 if ok else 1
+tool = tool_path("regionsdump")
 
 
 def reference(cm, defects, conn):
@@ -72,4 +66,4 @@ sq = np.zeros((30, 30), np.uint8)
 sq[7:23, 5:21] = 3
 ours = run(sq, [3], 8)
 check("16x16 square has 256 pixels", len(ours) == 1 and ours[0][1] == 256, str(ours))
-sys.exit(1 if failures else 0)
+sys.exit(status())

@@ -24,17 +24,10 @@ import tempfile
 import numpy as np
 import xgboost as xgb
 
-BUILD = os.environ.get("STATION_BUILD", "build")
-TOOL = os.path.join(BUILD, "tests", "tools", "forestdump")
+from refcheck import check, status, tool
+TOOL = tool("forestdump")
 TOL = 1e-6
-failures = 0
 
-
-def check(name, ok, detail=""):
-    global failures
-    print(("ok    " if ok else "FAIL  ") + name + ("" if ok else ": " + detail))
-    if not ok:
-        failures += 1
 
 
 def tool(*args):
@@ -188,7 +181,7 @@ def main():
                 case(tmp)
             except (RuntimeError, OSError, ValueError) as err:
                 check(case.__name__, False, str(err))
-    return 1 if failures else 0
+    return status()
 
 
 if __name__ == "__main__":

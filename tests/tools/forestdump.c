@@ -20,6 +20,7 @@
 
 #include "core/booster.h"
 #include "core/forest.h"
+#include "tests/tools/toolarg.h"
 
 static int usage(void)
 {
@@ -27,16 +28,6 @@ static int usage(void)
                     "OUT CONF | booster MODEL X NFEAT NCLASSES OUT | train OUT NCLASSES NFEAT X Y "
                     "XVAL YVAL ROUNDS DEPTH ETA SEED THREADS EARLY_STOP\n");
     return 2;
-}
-
-static int parse_int(const char *s, int *v)
-{
-    char *end;
-    long x = strtol(s, &end, 10);
-    if (*s == '\0' || *end != '\0' || x < -1000000 || x > 1000000)
-        return -1;
-    *v = (int)x;
-    return 0;
 }
 
 /* Reads a whole float32 file; *count receives the number of floats. */

@@ -12,21 +12,12 @@
 #include <string.h>
 
 #include "core/pngio.h"
+#include "tests/tools/toolarg.h"
 
 static int usage(void)
 {
     fprintf(stderr, "usage: pngdump rgb FILE | label FILE [NCLASSES] | save rgb|label IN OUT LEVEL\n");
     return 2;
-}
-
-static int parse_int(const char *s, int *v)
-{
-    char *end;
-    long x = strtol(s, &end, 10);
-    if (*s == '\0' || *end != '\0' || x < -1000000 || x > 1000000)
-        return -1;
-    *v = (int)x;
-    return 0;
 }
 
 static int load(const char *kind, const char *path, int nclasses, struct image **img, struct err *e)
