@@ -72,13 +72,11 @@ void report_print(FILE *f, const char *image, const struct recipe *r, const stru
                                                            : judge_verdict_name(j->verdict));
     for (int i = 0; i < j->nreasons; i++) {
         const struct reason *x = &j->reasons[i];
-        const char *cmp = strcmp(x->rule, "too_dark") == 0 || strcmp(x->rule, "blurred") == 0 ||
-                                  strcmp(x->rule, "no_part") == 0
-                              ? "<"
-                              : ">";
-        fprintf(f, "%s %s%s%s %.3g %s %.3g %s", i ? ";" : " —", x->cls >= 0 ? class_name(r, x->cls) : "",
-                x->cls >= 0 ? " " : "", rule_words(x->rule), x->measured, cmp, x->limit,
-                strcmp(x->unit, "mm2") == 0 ? "mm²" : (strcmp(x->unit, "count") == 0 ? "" : ""));
+        /* the gates are lower limits, the tolerances upper ones */
+        int lower = x->cls < 0 && strcmp(x->rule, "saturated") != 0;
+        fprintf(f, "%s %s%s%s %.3g %s %.3g%s", i ? ";" : " —", x->cls >= 0 ? class_name(r, x->cls) : "",
+                x->cls >= 0 ? " " : "", rule_words(x->rule), x->measured, lower ? "<" : ">",
+                x->limit, strcmp(x->unit, "mm2") == 0 ? " mm²" : "");
     }
     fputc('\n', f);
 }
