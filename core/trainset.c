@@ -1,19 +1,13 @@
 #include "trainset.h"
 
+#include "rng.h"
+
 #include <stdlib.h>
 #include <string.h>
 
-uint64_t trainset_rng_next(uint64_t *state)
-{
-    uint64_t z = (*state += 0x9e3779b97f4a7c15ull);
-    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ull;
-    z = (z ^ (z >> 27)) * 0x94d049bb133111ebull;
-    return z ^ (z >> 31);
-}
-
 static size_t rng_below(uint64_t *state, size_t n)
 {
-    return (size_t)(trainset_rng_next(state) % n);
+    return (size_t)(rng_splitmix64(state) % n);
 }
 
 void trainset_init(struct trainset *ts, int nfeat, int nclasses)
@@ -124,7 +118,7 @@ int trainset_split(const struct trainset *all, double val_fraction, uint64_t see
         /* Deterministic share: every class gets its fraction in val, and a
          * class with two rows or more gets at least one. */
         int to_val = (k == 1 && val->per_class[c] == 0) ||
-                     (double)(trainset_rng_next(&rng) >> 11) / 9007199254740992.0 < val_fraction;
+                     rng_uniform(&rng) < val_fraction;
         struct trainset *dst = to_val ? val : train;
         if (dst == val && val->n == val->cap && (rc = reserve(val, 1, e)))
             goto fail;

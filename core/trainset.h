@@ -1,7 +1,7 @@
 /* trainset: the class-balanced sample of labelled pixels a model trains on.
  *
  * From each labelled image at most `cap` pixels per class are drawn
- * uniformly (reservoir sampling with our own seeded generator, so a seed
+ * uniformly (reservoir sampling with the seeded generator of core/rng.h, so a seed
  * gives the same sample everywhere); unlabelled pixels (255) are never
  * drawn, which is why a few painted strokes train as well as full masks.
  * Rows are feature vectors copied out of the image's feature stack.  The
@@ -38,8 +38,5 @@ int trainset_add_image(struct trainset *ts, const struct fstack *fs, const struc
  * the rows of each class in val (at least one row of a class with >= 2). */
 int trainset_split(const struct trainset *all, double val_fraction, uint64_t seed,
                    struct trainset *train, struct trainset *val, struct err *e);
-
-/* splitmix64: a small, well-known generator that is the same on every machine. */
-uint64_t trainset_rng_next(uint64_t *state);
 
 #endif

@@ -18,7 +18,7 @@
 #include "cli.h"
 #include "core/overlay.h"
 #include "core/pngio.h"
-#include "core/trainset.h"
+#include "core/rng.h"
 #include "evaluate.h"
 #include "simbench.h"
 #include "train.h"
@@ -78,7 +78,7 @@ static void jittered(const struct simbench_conditions *cond, uint64_t seed, int 
     uint64_t s = seed * 0x9e3779b97f4a7c15ull ^ (uint64_t)index;
     double u[3];
     for (int k = 0; k < 3; k++)
-        u[k] = (double)(trainset_rng_next(&s) >> 11) / 4503599627370496.0 - 1.0;
+        u[k] = 2.0 * rng_uniform(&s) - 1.0;
     out->light *= 0.975 + 0.125 * u[0];
     out->noise *= 1.15 + 0.35 * u[1];
     out->blur *= 1.075 + 0.225 * u[2];

@@ -1,5 +1,7 @@
 #include "station/simbench.h"
 
+#include "core/rng.h"
+
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -29,12 +31,6 @@ _Static_assert(PART_DEFECTS_MAX <= SIMBENCH_MAX_DEFECTS && PART_DEFECTS_MAX < 25
 
 enum stream { STREAM_PART = 1, STREAM_GRAIN = 2, STREAM_SENSOR = 3 };
 
-static uint64_t mix64(uint64_t z)
-{
-    z = (z ^ (z >> 30)) * 0xbf58476d1ce4e5b9ULL;
-    z = (z ^ (z >> 27)) * 0x94d049bb133111ebULL;
-    return z ^ (z >> 31);
-}
 
 /* splitmix64: one state word, and every (seed, index, stream) its own sequence. */
 struct rng {
@@ -44,24 +40,23 @@ struct rng {
 static struct rng rng_make(uint64_t seed, int index, enum stream stream)
 {
     uint64_t k = (uint64_t)(int64_t)index * 0x9e3779b97f4a7c15ULL + (uint64_t)stream;
-    struct rng r = {mix64(seed ^ mix64(k))};
+    struct rng r = {rng_mix64(seed ^ rng_mix64(k))};
     return r;
 }
 
 static uint64_t rng_next(struct rng *r)
 {
-    r->s += 0x9e3779b97f4a7c15ULL;
-    return mix64(r->s);
+    return rng_splitmix64(&r->s);
 }
 
-static double rng_uniform(struct rng *r)
+static double sim_uniform(struct rng *r)
 {
-    return (double)(rng_next(r) >> 11) * 0x1.0p-53;
+    return rng_uniform(&r->s);
 }
 
 static double rng_range(struct rng *r, double lo, double hi)
 {
-    return lo + (hi - lo) * rng_uniform(r);
+    return lo + (hi - lo) * sim_uniform(r);
 }
 
 /* ratio^u for u in [0, 1), by bisection in the log domain: the geometric
@@ -85,12 +80,12 @@ static double pow_frac(double ratio, double u)
 /* Log-uniform: small and large sizes equally likely per octave. */
 static double rng_logrange(struct rng *r, double lo, double hi)
 {
-    return lo * pow_frac(hi / lo, rng_uniform(r));
+    return lo * pow_frac(hi / lo, sim_uniform(r));
 }
 
 static int rng_int(struct rng *r, int lo, int hi)
 {
-    return lo + (int)(rng_uniform(r) * (double)(hi - lo + 1));
+    return lo + (int)(sim_uniform(r) * (double)(hi - lo + 1));
 }
 
 /* Sum of four 16-bit uniforms, scaled to unit variance: one draw per sample,
@@ -154,7 +149,7 @@ static double smoothstep(double e0, double e1, double x)
 /* Value noise in [-1, 1): hashed lattice, smoothstep interpolation. */
 static double lattice(int64_t x, int64_t y, uint64_t key)
 {
-    uint64_t h = mix64(key + (uint64_t)x * 0x9e3779b97f4a7c15ULL + (uint64_t)y * 0xd1b54a32d192ed03ULL);
+    uint64_t h = rng_mix64(key + (uint64_t)x * 0x9e3779b97f4a7c15ULL + (uint64_t)y * 0xd1b54a32d192ed03ULL);
     return (double)(h >> 11) * 0x1.0p-52 - 1.0;
 }
 
@@ -739,7 +734,7 @@ int simbench_render(uint64_t seed, int index, const struct simbench_conditions *
      * small ones stay visible on top. */
     struct defect def[PART_DEFECTS_MAX];
     int nd = 0;
-    if (rng_uniform(&prng) < cond->defect_rate) {
+    if (sim_uniform(&prng) < cond->defect_rate) {
         int want = rng_int(&prng, 1, PART_DEFECTS_MAX);
         double scale = (w < h ? w : h) / REF_SIDE;
         for (; nd < want; nd++)
