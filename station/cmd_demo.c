@@ -157,6 +157,9 @@ struct batch {
     int severe_passed;    /* parts with a defect over twice its tolerance that passed */
     int severe;
     struct eval_result eval;
+    /* the recipe's scale checked on the station's class map of the first part */
+    struct disc_scale scale;
+    struct err scale_err;
 };
 
 /* A truth region over twice its class's largest-area tolerance. */
@@ -199,6 +202,8 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         int severe = truth_is_severe(r, &truth_rs);
         if ((rc = inspector_run(in, img, &got, NULL, e)))
             goto next;
+        if (i == 0)
+            disc_measure_scale(inspector_classes(in), CAP_DIAMETER_MM, &b->scale, &b->scale_err);
         b->parts++;
         int tv = want.verdict == VERDICT_PASS ? 0 : 1;
         b->table[tv][got.verdict]++;
@@ -216,23 +221,6 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         image_free(ov);
     }
     regions_clear(&truth_rs);
-    return rc;
-}
-
-/* The recipe's scale against the cap's known diameter, measured on the
- * station's own class map of one test part. */
-static int check_scale(struct inspector *in, const char *dir, int index, struct disc_scale *ds,
-                       struct err *e)
-{
-    char ip[PATH_MAX + 32];
-    snprintf(ip, sizeof ip, "%s/images/part-%04d.png", dir, index);
-    struct image *img = NULL;
-    int rc = pngio_load_rgb(ip, &img, e);
-    if (!rc)
-        rc = inspector_classify(in, img, NULL, e);
-    if (!rc)
-        rc = disc_measure_scale(inspector_classes(in), CAP_DIAMETER_MM, ds, e);
-    image_free(img);
     return rc;
 }
 
@@ -331,20 +319,19 @@ static int run_demo(const struct demo_opts *o, struct err *e)
         if (!(rc = evaluate_dataset(in, dirs[k], dir, 3, &b[k].eval, e)))
             rc = inspect_batch(in, dirs[k], first[k], count[k], &b[k], e);
     }
-    struct disc_scale ds = {0};
-    int scale_rc = rc ? rc : check_scale(in, test_dir, o->ntrain, &ds, e);
     inspector_free(in);
     if (!rc) {
         for (int k = 0; k < 2; k++)
             if (count[k])
                 print_batch(&r, &b[k]);
-        if (scale_rc == ST_OK)
+        const struct disc_scale *ds = &b[0].scale;
+        if (count[0] && b[0].scale_err.code == ST_OK)
             fprintf(stderr, "\nscale check from the first test part's outline (%.0f mm cap): "
                             "%.4f x %.4f mm/px, recipe %.4f x %.4f; roundness %.3f\n",
-                    CAP_DIAMETER_MM, ds.mm_per_px_x, ds.mm_per_px_y, r.mm_per_px_x,
-                    r.mm_per_px_y, ds.aspect);
-        else
-            fprintf(stderr, "\nscale check not possible: %s\n", e->msg);
+                    CAP_DIAMETER_MM, ds->mm_per_px_x, ds->mm_per_px_y, r.mm_per_px_x,
+                    r.mm_per_px_y, ds->aspect);
+        else if (count[0])
+            fprintf(stderr, "\nscale check not possible: %s\n", b[0].scale_err.msg);
         json_t *s = json_pack("{s:s,s:I,s:f,s:o,s:o}", "recipe", r.product, "seed",
                               (json_int_t)o->seed, "seconds", (cli_now_ms() - t0) / 1e3,
                               "nominal", batch_json(&r, &b[0]), "shifted", batch_json(&r, &b[1]));

@@ -18,15 +18,11 @@
 #define THIN_PIXELS 300
 #define THIN_IMAGES 3
 
-struct progress_state {
-    struct progress p;
-};
-
 static void on_round(void *user, int round, int rounds, double elapsed_s, double val_loss)
 {
-    struct progress_state *s = user;
+    struct progress *p = user;
     double left = round > 0 ? elapsed_s / round * (rounds - round) : 0;
-    progress_update(&s->p, round == rounds, "training: round %d/%d  %.1f s elapsed  ~%.0f s left"
+    progress_update(p, round == rounds, "training: round %d/%d  %.1f s elapsed  ~%.0f s left"
                                             "  validation mlogloss %.4f",
                     round, rounds, elapsed_s, left, val_loss);
 }
@@ -130,12 +126,12 @@ int train_recipe(const struct recipe *r, const char *data_dir, struct train_repo
     rep->rows_val = va.n;
     fprintf(stderr, "training: %zu pixels for training, %zu held out for early stopping\n", tr.n,
             va.n);
-    struct progress_state ps;
-    progress_init(&ps.p);
+    struct progress ps;
+    progress_init(&ps);
     if ((rc = booster_train(&r->train, r->nclasses, tr.x, tr.y, tr.n, va.x, va.y, va.n, tr.nfeat,
                             on_round, &ps, &b, &rep->best_round, &rep->best_loss, e)))
         goto done;
-    progress_done(&ps.p);
+    progress_done(&ps);
     /* the new model replaces the old one whole: written beside it, then renamed */
     char tmp[PATH_MAX + 8];
     const char *ext = strrchr(r->model_path, '.');
