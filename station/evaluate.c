@@ -65,6 +65,8 @@ static double image_defect_iou(const struct recipe *r, const struct confusion *c
     return metrics_mean_iou(cm, def);
 }
 
+/* The worst images are known only once all are scored; they are read and
+ * classified again rather than keeping every class map of the dataset. */
 static int write_worst(struct inspector *in, const struct dataset *ds, struct eval_result *res,
                        const char *sheet_dir, int nworst, struct err *e)
 {
@@ -78,9 +80,7 @@ static int write_worst(struct inspector *in, const struct dataset *ds, struct ev
     qsort(order, (size_t)res->n, sizeof *order, cmp_rows);
     int rc = ST_OK;
     for (int k = 0; k < nworst && k < res->n && rc == ST_OK; k++) {
-        int i = 0;
-        while (i < ds->n && strcmp(ds->stems[i], order[k]->stem) != 0)
-            i++;
+        int i = order[k]->index;
         struct image *img, *lab;
         if ((rc = load_pair(ds, i, inspector_recipe(in)->nclasses, &img, &lab, e)))
             break;
@@ -123,6 +123,7 @@ int evaluate_dataset(struct inspector *in, const char *data_dir, const char *she
             (rc = metrics_add(&one, lab->px, inspector_classes(in)->px, npix, e)) == ST_OK) {
             struct eval_row *row = &res->rows[res->n++];
             snprintf(row->stem, sizeof row->stem, "%s", ds.stems[i]);
+            row->index = i;
             for (int a = 0; a < one.n; a++)
                 for (int b = 0; b < one.n; b++) {
                     res->cm.c[a][b] += one.c[a][b];

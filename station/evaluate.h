@@ -16,6 +16,7 @@
 
 struct eval_row {
     char stem[128];
+    int index;           /* in the dataset's list of stems */
     size_t labelled;
     double accuracy;
     double defect_iou;   /* mean IoU over defect classes present in this image, -1 if none */
