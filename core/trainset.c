@@ -110,7 +110,7 @@ int trainset_split(const struct trainset *all, double val_fraction, uint64_t see
     uint64_t rng = seed;
     size_t seen[TRAINSET_MAX_CLASSES] = {0};
     int rc = ST_OK;
-    if ((rc = reserve(train, all->n, e)) || (rc = reserve(val, all->n / 2 + 16, e)))
+    if ((rc = reserve(train, all->n, e)))
         goto fail;
     for (size_t i = 0; i < all->n; i++) {
         int c = (int)all->y[i];
@@ -120,7 +120,7 @@ int trainset_split(const struct trainset *all, double val_fraction, uint64_t see
         int to_val = (k == 1 && val->per_class[c] == 0) ||
                      rng_uniform(&rng) < val_fraction;
         struct trainset *dst = to_val ? val : train;
-        if (dst == val && val->n == val->cap && (rc = reserve(val, 1, e)))
+        if ((rc = reserve(dst, 1, e)))
             goto fail;
         push_row(dst, all->x + i * (size_t)all->nfeat, c);
     }
