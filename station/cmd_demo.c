@@ -16,10 +16,10 @@
 
 #include "calib/disc.h"
 #include "cli.h"
-#include "core/overlay.h"
 #include "core/pngio.h"
 #include "core/rng.h"
 #include "evaluate.h"
+#include "report.h"
 #include "simbench.h"
 #include "train.h"
 
@@ -210,7 +210,7 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         b->severe += severe;
         b->severe_passed += severe && got.verdict == VERDICT_PASS;
         if (got.verdict != VERDICT_PASS || want.verdict != VERDICT_PASS) {
-            ov = overlay_blend(img, inspector_classes(in), r, 0.6, e);
+            ov = report_overlay(in, img, &got, e);
             snprintf(op, sizeof op, "%s/part-%04d-%s.png", odir, first + i,
                      judge_verdict_name(got.verdict));
             rc = ov ? pngio_save(op, ov, 3, e) : e->code;

@@ -7,7 +7,6 @@
 #include <sys/stat.h>
 
 #include "cli.h"
-#include "core/overlay.h"
 #include "core/pngio.h"
 #include "report.h"
 
@@ -15,7 +14,7 @@ static void usage(FILE *f)
 {
     fprintf(f, "usage: station inspect RECIPE IMAGE... [--overlay DIR]\n\n"
                "Judges each image against the recipe's tolerances. One JSON line per image on\n"
-               "stdout (image, verdict, reasons, defects with area_mm2, quality), a line per\n"
+               "stdout (image, verdict, reasons, regions with area_mm2, quality), a line per\n"
                "image for a person on stderr. An image that cannot be read or trusted is\n"
                "NO_VERDICT, never PASS.\n\n"
                "  --overlay DIR   write IMAGE-overlay.png with the defects marked\n\n"
@@ -25,7 +24,7 @@ static void usage(FILE *f)
 }
 
 static int write_overlay(const char *dir, const char *image, const struct image *img,
-                         const struct inspector *in, struct err *e)
+                         const struct inspector *in, const struct judgement *j, struct err *e)
 {
     char copy[PATH_MAX], path[PATH_MAX];
     snprintf(copy, sizeof copy, "%s", image);
@@ -34,7 +33,7 @@ static int write_overlay(const char *dir, const char *image, const struct image 
     if (dot)
         *dot = '\0';
     snprintf(path, sizeof path, "%s/%s-overlay.png", dir, base);
-    struct image *o = overlay_blend(img, inspector_classes(in), inspector_recipe(in), 0.6, e);
+    struct image *o = report_overlay(in, img, j, e);
     int rc = o ? pngio_save(path, o, 3, e) : e->code;
     image_free(o);
     return rc;
@@ -102,7 +101,7 @@ int cmd_inspect(int argc, char **argv)
         emit(report_json(path, in, &j, &t));
         report_print(stderr, path, &r, &j);
         counts[j.verdict]++;
-        if (overlay && write_overlay(overlay, path, img, in, &e))
+        if (overlay && write_overlay(overlay, path, img, in, &j, &e))
             fprintf(stderr, "station: %s\n", e.msg);
         image_free(img);
     }

@@ -2,6 +2,8 @@
 
 #include <string.h>
 
+#include "core/overlay.h"
+
 static const char *class_name(const struct recipe *r, int c)
 {
     return c >= 0 && c < r->nclasses ? r->cls[c].name : "image";
@@ -25,20 +27,20 @@ json_t *report_json(const char *image, const struct inspector *in, const struct 
     const struct recipe *r = inspector_recipe(in);
     const struct region_set *rs = inspector_regions(in);
     const struct quality *q = inspector_quality(in);
-    json_t *defects = json_array();
+    json_t *regions = json_array();
     for (int i = 0; i < rs->n; i++) {
         const struct region *g = &rs->r[i];
         json_array_append_new(
-            defects,
+            regions,
             json_pack("{s:s,s:i,s:f,s:[i,i,i,i],s:[f,f],s:f,s:f,s:b}", "class",
                       class_name(r, g->cls), "pixels", g->pixels, "area_mm2", g->area_mm2,
                       "bbox", g->x0, g->y0, g->x1, g->y1, "centroid", g->cx, g->cy,
                       "confidence", (double)g->mean_conf, "min_confidence",
                       (double)g->min_conf, "counted", judge_region_counts(r, g)));
     }
-    return json_pack("{s:s,s:s,s:o,s:o,s:{s:f,s:f,s:f,s:f},s:{s:f,s:f,s:f,s:f},s:s,s:i}",
-                     "image", image, "verdict", judge_verdict_name(j->verdict), "reasons",
-                     reasons_json(r, j), "defects", defects, "quality", "level", q->level,
+    return json_pack("{s:i,s:s,s:s,s:o,s:o,s:{s:f,s:f,s:f,s:f},s:{s:f,s:f,s:f,s:f},s:s,s:i}",
+                     "schema", REPORT_SCHEMA, "image", image, "verdict", judge_verdict_name(j->verdict), "reasons",
+                     reasons_json(r, j), "regions", regions, "quality", "level", q->level,
                      "saturated", q->saturated, "part_fraction", q->part_fraction, "sharpness",
                      q->sharpness, "ms", "features", t->features_ms, "classify", t->classify_ms,
                      "regions", t->regions_ms, "verdict", t->verdict_ms, "recipe", r->product,
@@ -47,9 +49,17 @@ json_t *report_json(const char *image, const struct inspector *in, const struct 
 
 json_t *report_json_error(const char *image, const struct err *e)
 {
-    return json_pack("{s:s,s:s,s:[{s:s,s:s,s:s}],s:[]}", "image", image, "verdict",
+    return json_pack("{s:i,s:s,s:s,s:[{s:s,s:s,s:s}],s:[]}", "schema", REPORT_SCHEMA, "image",
+                     image, "verdict",
                      "NO_VERDICT", "reasons", "rule", "unreadable", "class", "image", "message",
-                     e->msg, "defects");
+                     e->msg, "regions");
+}
+
+struct image *report_overlay(const struct inspector *in, const struct image *frame,
+                             const struct judgement *j, struct err *e)
+{
+    (void)j;
+    return overlay_blend(frame, inspector_classes(in), inspector_recipe(in), 0.6, e);
 }
 
 static const char *rule_words(const char *rule)

@@ -68,7 +68,7 @@ with tempfile.TemporaryDirectory() as d:
     for l in lines[:-1]:
         ok = l["verdict"] in ("PASS", "FAIL", "NO_VERDICT") and all(
             {"rule", "class", "measured", "limit", "unit"} <= set(x) for x in l["reasons"]) and all(
-            "area_mm2" in x for x in l["defects"])
+            "area_mm2" in x for x in l["regions"])
         check(f"inspect JSON fields for {os.path.basename(l['image'])} ({l['verdict']})", ok, l)
     verdicts = {l["verdict"] for l in lines[:-1]}
     r2 = run("inspect", recipe, *images)
