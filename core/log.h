@@ -23,8 +23,9 @@
  * database is upgraded step by step when opened for writing, a newer one is
  * refused ("DB: log schema N is newer than this program's M").  Triggers
  * refuse UPDATE and DELETE on records, evidence and dispositions.  The
- * tables, the canonical forms the hashes cover and the verify rules are
- * documented in DEVELOPERS.md ("The inspection log").
+ * tables are documented in DEVELOPERS.md ("The inspection log"), the
+ * canonical forms the hashes cover in core/logcanon.h, the checks of
+ * `audit verify` in core/logverify.h.
  *
  * Owns: the SQLite handle and its statements.  Never prints; no global state;
  * file writes and fsyncs of evidence go through struct log_io so tests can
@@ -193,7 +194,8 @@ void log_iter_free(struct log_iter *it);
 /* One record by sequence number; no such record is ST_ERANGE. */
 int log_get(struct log_db *db, int64_t seq, struct log_record *rec, struct err *e);
 
-/* Every disposition of a record, oldest first; free with log_dispositions_free. */
+/* Every disposition of a record (seq <= 0: of every record), oldest first;
+ * free with log_dispositions_free. */
 int log_dispositions_get(struct log_db *db, int64_t seq, struct log_disposition **out, int *n,
                          struct err *e);
 void log_dispositions_free(struct log_disposition *d, int n);
@@ -207,25 +209,14 @@ int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
 int log_evidence_path(const struct log_db *db, const char *name, char *buf, size_t len,
                       struct err *e);
 
-/* What log_verify found.  ok = 1 only when both chains and every evidence
- * file verify.  Otherwise first_bad names the first broken link: which chain
- * ("record", "disposition", "evidence", "database"), its sequence number and
- * what differs (one line); torn = 1 when the only damage is at the very last
- * record of a chain (an interrupted last transaction), 0 for damage with
- * intact links after it (tampering or corruption in the middle). */
-struct log_verify_result {
-    int ok;
-    int64_t records, dispositions, evidence_files;
-    int torn;
-    char chain[16];
-    int64_t seq;
-    char what[400];
-};
-int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e);
+/* PRAGMA integrity_check: ST_OK when SQLite answers "ok", else ST_EFORMAT
+ * with its first complaint. */
+int log_check_integrity(struct log_db *db, struct err *e);
 
-/* The canonical text a record's hash covers (documented in DEVELOPERS.md);
- * exposed for tests.  Heap string, caller frees. */
-char *log_record_canonical(const struct log_record *r);
-char *log_disposition_canonical(const struct log_disposition *d, const char *record_hash);
+/* The folder evidence names resolve against. */
+const char *log_evidence_dir(const struct log_db *db);
+
+/* The database path the handle was opened with. */
+const char *log_path(const struct log_db *db);
 
 #endif

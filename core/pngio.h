@@ -40,4 +40,10 @@ int pngio_load_label(const char *path, int nclasses, struct image **out, struct 
  * need atomicity write to a temporary name and rename. */
 int pngio_save(const char *path, const struct image *img, int level, struct err *e);
 
+/* The same PNG encoded into a heap buffer (*buf, *len; caller frees *buf), so
+ * a caller can hash it and write it through its own I/O; what names the
+ * image in messages. */
+int pngio_encode_mem(const char *what, const struct image *img, int level, unsigned char **buf,
+                     size_t *len, struct err *e);
+
 #endif
