@@ -15,6 +15,7 @@
 #include "judge.h"
 #include "logcanon.h"
 #include "pngio.h"
+#include "recipe.h"
 
 /* 'STLG': tells a station log from any other SQLite file. */
 #define LOG_APPLICATION_ID 0x53544c47
@@ -363,9 +364,9 @@ static int copy_id(char *dst, const char *src, const char *what, struct err *e)
 int log_pass_wants_evidence(struct log_db *db, int pass_evidence, int every)
 {
     db->pass_count++;
-    if (pass_evidence == LOG_PASS_ALL)
+    if (pass_evidence == RECIPE_PASS_ALL)
         return 1;
-    return pass_evidence == LOG_PASS_EVERY && every > 0 && db->pass_count % every == 0;
+    return pass_evidence == RECIPE_PASS_EVERY && every > 0 && db->pass_count % every == 0;
 }
 
 /* What one append has done so far, so failure can undo what is undoable. */

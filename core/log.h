@@ -75,9 +75,6 @@ struct log_io {
 };
 const struct log_io *log_io_default(void);
 
-/* When PASS inspections keep evidence (a recipe's [evidence] pass). */
-enum log_pass_evidence { LOG_PASS_NONE = 0, LOG_PASS_ALL, LOG_PASS_EVERY };
-
 struct log_options {
     const char *evidence_dir;      /* NULL: "evidence" beside the database */
     uint64_t evidence_budget;      /* bytes; 0 = no limit */
@@ -119,8 +116,9 @@ struct log_entry {
  * On ST_OK *seq is the committed record's sequence number. */
 int log_append(struct log_db *db, const struct log_entry *entry, int64_t *seq, struct err *e);
 
-/* Whether a PASS with this recipe setting keeps evidence, counting PASS
- * records in this handle's life (every is N for LOG_PASS_EVERY). */
+/* Whether a PASS keeps evidence under a recipe's [evidence] pass setting
+ * (pass_evidence: enum recipe_pass_evidence, every: its N), counting the
+ * PASS inspections asked about in this handle's life. */
 int log_pass_wants_evidence(struct log_db *db, int pass_evidence, int every);
 
 struct log_evidence {

@@ -11,7 +11,7 @@
 #include <ini.h>
 
 enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
-                SEC_GATES, SEC_KINDS };
+                SEC_GATES, SEC_EVIDENCE, SEC_KINDS };
 
 enum val_type {
     V_FORMAT,   /* int >= 1, refused when newer than RECIPE_FORMAT */
@@ -23,7 +23,8 @@ enum val_type {
     V_COLOUR,   /* uint8_t[3] from #rrggbb */
     V_REALS,    /* double[maxn] increasing, count at count_off */
     V_FAMILIES, /* unsigned OR of enum feat_family */
-    V_MODEL     /* char[PATH_MAX], resolved against the recipe's folder */
+    V_MODEL,    /* char[PATH_MAX], resolved against the recipe's folder */
+    V_PASS      /* enum recipe_pass_evidence at off, N of "every N" at count_off */
 };
 
 enum {
@@ -33,7 +34,7 @@ enum {
 };
 
 #define MAX_KEYS 10
-#define MAX_SECTIONS (5 + 2 * RECIPE_MAX_CLASSES)
+#define MAX_SECTIONS (6 + 2 * RECIPE_MAX_CLASSES)
 #define NAME_MAX_LEN ((int)sizeof(((struct recipe_class *)0)->name) - 1)
 
 struct key_def {
@@ -108,6 +109,10 @@ static const struct key_def gates_keys[] = {
     {"min_sharpness", V_REAL, GATE(min_sharpness), 0, 0, INFINITY, 0, K_OPTIONAL},
     {NULL, 0, 0, 0, 0, 0, 0, 0}};
 
+static const struct key_def evidence_keys[] = {
+    {"pass", V_PASS, R(evidence_pass), R(evidence_every), 1, INT_MAX, 0, K_OPTIONAL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+
 static const struct sec_def {
     const char *word;
     int named;       /* [class NAME], [tolerance NAME] */
@@ -121,6 +126,7 @@ static const struct sec_def {
     [SEC_SCALE] = {"scale", 0, 1, scale_keys},
     [SEC_TOLERANCE] = {"tolerance", 1, 0, tolerance_keys},
     [SEC_GATES] = {"gates", 0, 0, gates_keys},
+    [SEC_EVIDENCE] = {"evidence", 0, 0, evidence_keys},
 };
 
 /* Same order as the bits of enum feat_family. */
@@ -365,6 +371,25 @@ static int store_model(struct parse *p, const struct key_def *k, char *base, con
     return ST_OK;
 }
 
+/* "none", "all" or "every N". */
+static int store_pass(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    long n;
+    int *mode = (int *)(base + k->off), *every = (int *)(base + k->count_off);
+    if (!strcmp(value, "none") || !strcmp(value, "all")) {
+        *mode = !strcmp(value, "all") ? RECIPE_PASS_ALL : RECIPE_PASS_NONE;
+        return ST_OK;
+    }
+    if (strncmp(value, "every", 5) || !is_blank(value[5]) || parse_long(value + 6, &n))
+        return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not none, all or every N", k->name,
+                       value);
+    if (!in_range(k, (double)n))
+        return out_of_range(p, k, value + 6);
+    *mode = RECIPE_PASS_EVERY;
+    *every = (int)n;
+    return ST_OK;
+}
+
 static int store_value(struct parse *p, const struct key_def *k, char *base, const char *value)
 {
     long iv;
@@ -421,6 +446,8 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
         return store_reals(p, k, base, value);
     case V_FAMILIES:
         return store_families(p, k, base, value);
+    case V_PASS:
+        return store_pass(p, k, base, value);
     case V_MODEL:
         break;
     }

@@ -46,6 +46,9 @@ struct recipe_gates {
     double min_sharpness;      /* mean |Laplacian| over the part below = blurred */
 };
 
+/* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
+enum recipe_pass_evidence { RECIPE_PASS_NONE = 0, RECIPE_PASS_ALL, RECIPE_PASS_EVERY };
+
 struct recipe {
     char path[PATH_MAX];
     char dir[PATH_MAX];
@@ -63,6 +66,8 @@ struct recipe {
     double mm_per_px_x, mm_per_px_y;
     struct recipe_tolerance tol[RECIPE_MAX_CLASSES];
     struct recipe_gates gates;
+    int evidence_pass;         /* enum recipe_pass_evidence, default none */
+    int evidence_every;        /* N of "every N" */
 };
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);
