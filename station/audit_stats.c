@@ -210,8 +210,9 @@ static json_t *audit_json(const struct audit_stats *s)
                      disp, "false_reject", fr, "kappa", kappa);
 }
 
-json_t *audit_stats_json(const struct audit_stats *s, int by_shift)
+json_t *audit_stats_json(struct audit_stats *s, int by_shift)
 {
+    qstats_pareto_sort(&s->pareto);
     json_t *shifts = json_array();
     for (int i = 0; i < s->counts.shifts.n; i++)
         json_array_append_new(shifts, json_integer(s->counts.shifts.start[i]));

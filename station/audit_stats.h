@@ -46,8 +46,8 @@ int audit_stats_add(struct audit_stats *s, const struct log_record *r, struct er
 /* Every figure as one JSON object: period, verdicts, days, shifts, pchart
  * (subgroups by day, or by shift when by_shift), pareto, audit
  * (dispositions, false_reject with ci95, kappa with its table); undefined
- * figures are null.  NULL when memory runs out. */
-json_t *audit_stats_json(const struct audit_stats *s, int by_shift);
+ * figures are null.  Sorts the Pareto rows.  NULL when memory runs out. */
+json_t *audit_stats_json(struct audit_stats *s, int by_shift);
 
 /* The same figures as text for a person. */
 void audit_stats_print(FILE *f, const json_t *stats);
