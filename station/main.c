@@ -15,6 +15,7 @@ static const struct {
     {"inspect", cmd_inspect, "judge image files against a recipe (PASS / FAIL / NO_VERDICT)"},
     {"recipe", cmd_recipe, "check a recipe file"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
+    {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify"},
 };
 
 static void usage(FILE *f)
