@@ -5,13 +5,13 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "audit.h"
 #include "audit_csv.h"
 #include "audit_report.h"
 #include "audit_stats.h"
 #include "cli.h"
 #include "core/judge.h"
 #include "core/pngio.h"
-#include "logbook.h"
 
 #define DEFAULT_SHIFTS "6,14,22"
 #define DEFAULT_THUMBS 48
@@ -19,8 +19,9 @@
 enum { V_STATS = 1, V_REPORT = 2, V_EXPORT = 4 };
 
 struct verb_opts {
-    const char *log, *from, *to, *station, *recipe, *out, *shifts;
-    int offset_min, by_shift, json, thumbs;
+    const char *log, *from, *to, *station, *recipe, *out;
+    struct qstats_shifts shifts;
+    int by_shift, json, thumbs;
 };
 
 static const char FILTER_HELP[] =
@@ -80,9 +81,9 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
         {"by", required_argument, NULL, 'b'},      {"json", no_argument, NULL, 'j'},
         {"thumbs", required_argument, NULL, 'n'},  {0, 0, 0, 0}};
     memset(o, 0, sizeof *o);
-    o->shifts = DEFAULT_SHIFTS;
     o->thumbs = DEFAULT_THUMBS;
-    int c, counting = verb & (V_STATS | V_REPORT);
+    const char *shifts = DEFAULT_SHIFTS;
+    int c, offset_min = 0, counting = verb & (V_STATS | V_REPORT);
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         int ok = 1;
@@ -93,8 +94,8 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
         case 's': o->station = optarg; break;
         case 'r': o->recipe = optarg; break;
         case 'o': o->out = optarg; ok = verb != V_STATS; break;
-        case 'S': o->shifts = optarg; ok = counting; break;
-        case 'u': ok = counting && !parse_int_arg(optarg, -1440, 1440, &o->offset_min); break;
+        case 'S': shifts = optarg; ok = counting; break;
+        case 'u': ok = counting && !parse_int_arg(optarg, -1440, 1440, &offset_min); break;
         case 'b':
             ok = counting && (!strcmp(optarg, "day") || !strcmp(optarg, "shift"));
             o->by_shift = !strcmp(optarg, "shift");
@@ -112,47 +113,34 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
         usage(stderr, verb);
         return EXIT_USAGE;
     }
+    struct err e;
+    if (qstats_shifts_parse(shifts, &o->shifts, &e)) {
+        cli_say("--shifts: %s", e.msg);
+        return EXIT_USAGE;
+    }
+    o->shifts.offset_min = offset_min;
     return 0;
 }
 
-/* Opens the log for reading and starts the filtered walk. */
-static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_iter **it,
-                     struct err *e)
+/* Opens the log for reading (audit_open_log prints why it cannot) and
+ * starts the filtered walk; 0 or an exit status. */
+static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_iter **it)
 {
-    char path[4096];
-    const char *db_path = o->log;
-    if (!db_path) {
-        int rc = logbook_default_path(o->station ? o->station : LOGBOOK_DEFAULT_STATION, path,
-                                      sizeof path, e);
-        if (rc)
-            return rc;
-        db_path = path;
-    }
-    int rc = log_open(db_path, LOG_OPEN_READ, NULL, db, e);
-    if (rc)
-        return rc;
+    if (audit_open_log(o->log, o->station, LOG_OPEN_READ, db))
+        return EXIT_ERROR;
     struct log_filter f;
     log_filter_init(&f);
     f.from_utc = o->from;
     f.to_utc = o->to;
     f.station = o->station;
     f.recipe_id = o->recipe;
-    rc = log_iter_new(*db, &f, it, e);
-    if (rc) {
-        log_close(*db);
-        *db = NULL;
+    struct err e;
+    err_clear(&e);
+    if (log_iter_new(*db, &f, it, &e)) {
+        cli_say("%s", e.msg);
+        return EXIT_ERROR;
     }
-    return rc;
-}
-
-static int init_stats(const struct verb_opts *o, struct audit_stats *st, struct err *e)
-{
-    struct qstats_shifts sh;
-    int rc = qstats_shifts_parse(o->shifts, &sh, e);
-    if (rc)
-        return rc;
-    sh.offset_min = o->offset_min;
-    return audit_stats_init(st, &sh, e);
+    return 0;
 }
 
 /* The newest rejects seen so far, kept in a ring of records whose contents
@@ -194,9 +182,30 @@ static int walk(struct log_iter *it, struct audit_stats *st, struct ring *g, str
 
 static void print_json(const json_t *o)
 {
-    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(10));
+    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(17));
     fputc('\n', stdout);
     fflush(stdout);
+}
+
+/* Walks the selected records into the figures; 0 or an exit status.  g,
+ * when not NULL, keeps the newest rejects. */
+static int gather(const struct verb_opts *o, struct log_db **db, struct ring *g, json_t **js)
+{
+    struct log_iter *it = NULL;
+    struct audit_stats st;
+    struct err e;
+    err_clear(&e);
+    int rc = open_walk(o, db, &it);
+    if (rc)
+        return rc;
+    if (audit_stats_init(&st, &o->shifts, &e) || walk(it, &st, g, &e) ||
+        !(*js = audit_stats_json(&st, o->by_shift))) {
+        cli_say("%s", e.msg[0] ? e.msg : "audit: out of memory");
+        rc = EXIT_ERROR;
+    }
+    audit_stats_clear(&st);
+    log_iter_free(it);
+    return rc;
 }
 
 int audit_cmd_stats(int argc, char **argv)
@@ -209,25 +218,12 @@ int audit_cmd_stats(int argc, char **argv)
     int rc = parse_opts(argc, argv, V_STATS, &o);
     if (rc)
         return rc;
-    struct err e;
-    err_clear(&e);
-    struct audit_stats st;
     struct log_db *db = NULL;
-    struct log_iter *it = NULL;
     json_t *js = NULL;
-    if ((rc = init_stats(&o, &st, &e)) == ST_OK) {
-        if ((rc = open_walk(&o, &db, &it, &e)) == ST_OK)
-            rc = walk(it, &st, NULL, &e);
-        if (rc == ST_OK && !(js = audit_stats_json(&st, o.by_shift)))
-            rc = err_set(&e, ST_ENOMEM, "audit stats: out of memory");
-        audit_stats_clear(&st);
-    }
-    log_iter_free(it);
+    rc = gather(&o, &db, NULL, &js);
     log_close(db);
-    if (rc) {
-        cli_say("%s", e.msg);
-        return EXIT_ERROR;
-    }
+    if (rc)
+        return rc;
     if (o.json)
         print_json(js);
     else
@@ -290,19 +286,18 @@ int audit_cmd_export(int argc, char **argv)
     int rc = parse_opts(argc, argv, V_EXPORT, &o);
     if (rc)
         return rc;
-    struct err e;
-    err_clear(&e);
     struct log_db *db = NULL;
     struct log_iter *it = NULL;
-    if ((rc = open_walk(&o, &db, &it, &e)) == ST_OK)
-        rc = write_atomic(o.out, write_csv, it, &e);
+    rc = open_walk(&o, &db, &it);
+    struct err e;
+    err_clear(&e);
+    if (!rc && write_atomic(o.out, write_csv, it, &e)) {
+        cli_say("%s", e.msg);
+        rc = EXIT_ERROR;
+    }
     log_iter_free(it);
     log_close(db);
-    if (rc) {
-        cli_say("%s", e.msg);
-        return EXIT_ERROR;
-    }
-    return 0;
+    return rc;
 }
 
 struct report_ctx {
@@ -363,49 +358,39 @@ int audit_cmd_report(int argc, char **argv)
         return rc;
     struct err e;
     err_clear(&e);
-    struct audit_stats st;
     struct log_db *db = NULL;
-    struct log_iter *it = NULL;
     json_t *js = NULL;
-    struct ring g = {calloc(o.thumbs ? (size_t)o.thumbs : 1, sizeof(struct log_record)),
-                     (size_t)o.thumbs, 0, 0};
-    struct audit_thumb *thumbs = calloc(g.cap + 1, sizeof *thumbs);
-    struct image **imgs = calloc(g.cap + 1, sizeof *imgs);
+    size_t cap = (size_t)o.thumbs;
+    struct ring g = {calloc(cap + 1, sizeof(struct log_record)), cap, 0, 0};
+    struct audit_thumb *thumbs = calloc(cap + 1, sizeof *thumbs);
+    struct image **imgs = calloc(cap + 1, sizeof *imgs);
     if (!g.rec || !thumbs || !imgs) {
-        rc = err_set(&e, ST_ENOMEM, "audit report: out of memory");
+        cli_say("audit report: out of memory");
+        rc = EXIT_ERROR;
         goto done;
     }
-    for (size_t i = 0; i < g.cap; i++)
+    for (size_t i = 0; i < cap; i++)
         log_record_init(&g.rec[i]);
-    if ((rc = init_stats(&o, &st, &e)) != ST_OK)
+    if ((rc = gather(&o, &db, &g, &js)) != 0)
         goto done;
-    if ((rc = open_walk(&o, &db, &it, &e)) == ST_OK)
-        rc = walk(it, &st, &g, &e);
-    if (rc == ST_OK && !(js = audit_stats_json(&st, o.by_shift)))
-        rc = err_set(&e, ST_ENOMEM, "audit report: out of memory");
-    audit_stats_clear(&st);
-    if (rc == ST_OK) {
-        for (size_t i = 0; i < g.n; i++)
-            load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
-        struct report_ctx c = {log_path(db), js, thumbs, g.n};
-        rc = write_atomic(o.out, write_html, &c, &e);
+    for (size_t i = 0; i < g.n; i++)
+        load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
+    struct report_ctx c = {log_path(db), js, thumbs, g.n};
+    if (write_atomic(o.out, write_html, &c, &e)) {
+        cli_say("%s", e.msg);
+        rc = EXIT_ERROR;
+        goto done;
     }
+    cli_say("wrote %s (%zu reject thumbnails)", o.out, g.n);
 done:
-    for (size_t i = 0; g.rec && i < g.cap; i++) {
+    for (size_t i = 0; g.rec && imgs && i < cap; i++) {
         log_record_clear(&g.rec[i]);
-        if (imgs)
-            image_free(imgs[i]);
+        image_free(imgs[i]);
     }
     free(g.rec);
     free(thumbs);
     free(imgs);
     json_decref(js);
-    log_iter_free(it);
     log_close(db);
-    if (rc) {
-        cli_say("%s", e.msg);
-        return EXIT_ERROR;
-    }
-    cli_say("wrote %s (%zu reject thumbnails)", o.out, g.n);
-    return 0;
+    return rc;
 }

@@ -3,6 +3,7 @@
 #include <string.h>
 
 #include "audit.h"
+#include "audit_verbs.h"
 #include "cli.h"
 
 static const struct {
@@ -14,6 +15,9 @@ static const struct {
     {"show", audit_show, "one record: reasons, measurements, evidence, dispositions"},
     {"dispose", audit_dispose, "record an auditor's disposition of a record"},
     {"verify", audit_verify, "check both hash chains and every evidence file"},
+    {"stats", audit_cmd_stats, "counts, reject-rate p-chart, Pareto, false rejects, kappa"},
+    {"report", audit_cmd_report, "the figures and the rejects as one self-contained HTML page"},
+    {"export", audit_cmd_export, "the records as CSV (RFC 4180)"},
 };
 
 static void usage(FILE *f)

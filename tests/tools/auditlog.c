@@ -7,7 +7,7 @@
  * NO_VERDICT) and reasons drawn from a small set of (rule, class, zone),
  * then disposes about two thirds of the rejects and a few passes, with
  * comments that hold commas, quotes and line breaks.  With --evidence every
- * reject gets a 67x45 frame and an overlay (a gradient with the record's
+ * reject gets a 401x267 frame and an overlay (a gradient with the record's
  * number in its top row), so the report has thumbnails to show.  Writes one
  * JSON line per record to stdout: seq, verdict, reasons, disp (a name from
  * log_disp_name, "none" when not disposed), comment.  Errors exit 3. */
@@ -95,7 +95,7 @@ int main(int argc, char **argv)
     struct log_db *db;
     if (log_open(argv[1], LOG_OPEN_WRITE, NULL, &db, &e))
         return fail(&e);
-    struct image *frame = image_new(67, 45, 3, &e), *overlay = image_new(67, 45, 3, &e);
+    struct image *frame = image_new(401, 267, 3, &e), *overlay = image_new(401, 267, 3, &e);
     if (!frame || !overlay)
         return fail(&e);
     uint64_t rng = (uint64_t)seed;
