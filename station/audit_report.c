@@ -98,7 +98,7 @@ static double tick_step(double top)
     return base * 10;
 }
 
-enum { SVG_W = 760, SVG_L = 60, SVG_R = 20, SVG_T = 16 };
+enum { SVG_W = 760, SVG_L = 60, SVG_R = 48, SVG_T = 24 };
 
 static void y_axis(FILE *f, double top, int h)
 {
@@ -174,7 +174,9 @@ static void svg_pchart(FILE *f, const json_t *pc)
         fprintf(f, ": %lld of %lld</title></circle>\n", num(p, "rejects"), num(p, "n"));
     }
     x_labels(f, pts, "label", dx, SVG_T + h + 16, m > 6);
-    fputs("</svg>\n", f);
+    fprintf(f, "<text x=\"%d\" y=\"%d\">reject rate (points), centre line (solid), "
+               "control limits (dashed), outside the limits (red)</text>\n</svg>\n",
+            SVG_L, SVG_T - 10);
 }
 
 #define PARETO_BARS 10
@@ -189,11 +191,6 @@ static void svg_pareto(FILE *f, const json_t *rows)
                "aria-label=\"reasons of rejects, most frequent first\">\n",
             SVG_W, h + SVG_T + 110);
     y_axis(f, top, h);
-    fputs("<polyline class=\"series\" points=\"", f);
-    for (size_t i = 0; i < shown; i++)
-        fprintf(f, "%.1f,%.1f ", SVG_L + (i + 0.5) * dx,
-                SVG_T + h * (1 - real(json_array_get(rows, i), "cumulative")));
-    fputs("\"/>\n", f);
     json_t *labels = json_array();
     for (size_t i = 0; i < shown; i++) {
         const json_t *r = json_array_get(rows, i);
@@ -208,9 +205,23 @@ static void svg_pareto(FILE *f, const json_t *rows)
     }
     x_labels(f, labels, "label", dx, SVG_T + h + 16, 1);
     json_decref(labels);
-    fprintf(f, "<text x=\"%d\" y=\"%d\" text-anchor=\"end\">line: cumulative share, "
-               "0 to 100%% of the chart height</text>\n</svg>\n",
-            SVG_W - SVG_R, SVG_T + 12);
+    /* the cumulative share on its own axis, 0 to 100% on the right */
+    fputs("<polyline class=\"series\" points=\"", f);
+    for (size_t i = 0; i < shown; i++)
+        fprintf(f, "%.1f,%.1f ", SVG_L + (i + 0.5) * dx,
+                SVG_T + h * (1 - real(json_array_get(rows, i), "cumulative")));
+    fputs("\"/>\n", f);
+    for (size_t i = 0; i < shown; i++)
+        fprintf(f, "<circle class=\"in\" cx=\"%.1f\" cy=\"%.1f\" r=\"3\"/>\n",
+                SVG_L + (i + 0.5) * dx,
+                SVG_T + h * (1 - real(json_array_get(rows, i), "cumulative")));
+    for (int q = 0; q <= 4; q++)
+        fprintf(f, "<text x=\"%d\" y=\"%.1f\">%d%%</text>\n", SVG_W - SVG_R + 6,
+                SVG_T + h * (1 - q / 4.0) + 4, 25 * q);
+    fprintf(f, "<text x=\"%d\" y=\"%d\">rejects per reason (bars)</text>"
+               "<text x=\"%d\" y=\"%d\" text-anchor=\"end\">cumulative share (line)</text>\n"
+               "</svg>\n",
+            SVG_L, SVG_T - 10, SVG_W - 4, SVG_T - 10);
 }
 
 static void verdict_row(FILE *f, const char *label, const json_t *v)
@@ -382,7 +393,7 @@ static int thumb_figure(FILE *f, const struct audit_thumb *t, struct err *e)
 static const char STYLE[] =
     "body{font-family:sans-serif;max-width:60em;margin:1em auto;padding:0 1em;color:#222}"
     "table{border-collapse:collapse;margin:.5em 0}td,th{border:1px solid #bbb;padding:.2em .6em;"
-    "text-align:right}th{background:#eee}.caution{border:2px solid #b60;padding:.5em;"
+    "text-align:right}td:first-child{text-align:left}th{background:#eee}.caution{border:2px solid #b60;padding:.5em;"
     "background:#fff4e0}.warn{color:#a00;font-weight:bold}svg.chart{width:100%;height:auto}"
     "svg text{font-size:11px;fill:#333}.grid{stroke:#ddd}.limit{fill:none;stroke:#a00;"
     "stroke-dasharray:5 3}.centre{stroke:#444}.series{fill:none;stroke:#269}.in{fill:#269}"

@@ -28,3 +28,4 @@ for size in 640x480 1280x960; do
     done
 done
 "$PYTHON" tests/bench/report.py "$results"
+"$PYTHON" tests/bench/audit.py
