@@ -28,3 +28,6 @@ for size in 640x480 1280x960; do
     done
 done
 "$PYTHON" tests/bench/report.py "$results"
+# The inspection log: records per second with reject evidence, verify time.
+echo "bench: inspection log" >&2
+"$BUILD/tests/bench/log_bench" "$BUILD/bench-log" "${LOG_RECORDS:-40}" "${LOG_VERIFY_RECORDS:-100000}"

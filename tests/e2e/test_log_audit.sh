@@ -43,6 +43,22 @@ expect_rc 0 "$S" audit list --log "$db" --json --rejects --disposition none
 expect_rc 0 "$S" audit verify --log "$db"
 "$PYTHON" -c 'import sys; sys.path.insert(0, "tests/e2e"); import logcheck; b = logcheck.problems(sys.argv[1]); assert not b, b' "$db"
 
+# the frame evidence is the inspected file's pixels exactly (read back by PIL)
+"$PYTHON" - "$db" "$images" <<'PY'
+import glob, os, sqlite3, sys
+import numpy as np
+from PIL import Image
+db, images = sys.argv[1:]
+files = sorted(glob.glob(os.path.join(images, "*.png")))
+con = sqlite3.connect(db)
+rows = con.execute("SELECT record_seq, name FROM evidence WHERE kind = 'frame'").fetchall()
+assert rows, "no frame evidence"
+for seq, name in rows:
+    got = np.asarray(Image.open(os.path.join(os.path.dirname(db), "evidence", name)).convert("RGB"))
+    want = np.asarray(Image.open(files[(seq - 1) % len(files)]).convert("RGB"))
+    assert got.shape == want.shape and (got == want).all(), "record %d: frame evidence differs" % seq
+PY
+
 # append-only: the triggers refuse
 for stmt in "UPDATE records SET verdict = 'PASS'" "DELETE FROM records" \
     "UPDATE dispositions SET comment = ''" "DELETE FROM dispositions"; do
