@@ -35,7 +35,8 @@ int pngio_load_rgb(const char *path, struct image **out, struct err *e);
 int pngio_load_label(const char *path, int nclasses, struct image **out, struct err *e);
 
 /* Writes a 1- or 3-channel image, 8-bit, not interlaced. level is the zlib
- * level (0..9); evidence writing uses a low level for speed.  The file is
+ * level (0..9); evidence writing uses level 1 for speed, which also takes
+ * the SUB filter and zlib's run-length strategy.  The file is
  * written in place: on failure a partial file may remain, so callers that
  * need atomicity write to a temporary name and rename. */
 int pngio_save(const char *path, const struct image *img, int level, struct err *e);
