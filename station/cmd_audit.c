@@ -18,6 +18,7 @@ static const struct {
     {"stats", audit_cmd_stats, "counts, reject-rate p-chart, Pareto, false rejects, kappa"},
     {"report", audit_cmd_report, "the figures and the rejects as one self-contained HTML page"},
     {"export", audit_cmd_export, "the records as CSV (RFC 4180)"},
+    {"view", audit_cmd_view, "one record's frame and overlay in a window (SDL2)"},
 };
 
 static void usage(FILE *f)

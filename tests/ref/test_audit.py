@@ -16,7 +16,9 @@ what the tool says it wrote; the CSV read back with Python's csv module
 (RFC 4180 quoting of commas, quotes and line breaks in comments); the HTML
 parsed with html.parser and each SVG with xml.etree (well-formed, nothing
 fetched from outside), each thumbnail decoded from its data URI with PIL and
-compared with PIL's own box downscale of the overlay evidence file."""
+compared with PIL's own box downscale of the overlay evidence file; and
+`audit view` rendered headless (SDL_VIDEODRIVER=dummy), its screenshot
+compared pixel for pixel with the evidence files."""
 import base64
 import collections
 import csv
@@ -335,6 +337,8 @@ def part2(tmp):
         check(f"report: thumbnails match PIL's BOX downscale of the overlay file "
               f"(mean |diff| {worst:.2f} <= 2 levels)", worst <= 2.0)
 
+    view(tmp, db, lines, rows, col)
+
     r = run("audit", "stats", "--log", os.path.join(tmp, "missing.db"))
     check("stats: a missing log is one line naming it, exit 3",
           r.returncode == 3 and "missing.db" in r.stderr and r.stderr.count("\n") == 1, r.stderr)
@@ -353,6 +357,50 @@ def part2(tmp):
         r = run("audit", verb, "--help")
         check(f"{verb} --help: usage on stdout, exit 0", r.returncode == 0 and
               r.stdout.startswith(f"usage: station audit {verb}"))
+
+
+def view(tmp, db, lines, rows, col):
+    """`audit view` rendered once without a display (SDL's dummy driver):
+    the screenshot must hold the evidence files pixel for pixel, read by PIL."""
+    seq = next(x["seq"] for x in lines if x["verdict"] != "PASS")
+    row = next(r for r in rows[1:] if int(r[col["seq"]]) == seq)
+    frame = np.asarray(Image.open(os.path.join(tmp, "evidence", row[col["frame"]])).convert("RGB"))
+    overlay = np.asarray(Image.open(os.path.join(tmp, "evidence", row[col["overlay"]])).convert("RGB"))
+    env = dict(os.environ, SDL_VIDEODRIVER="dummy")
+    shot = os.path.join(tmp, "view.png")
+    for mode, want in (("side", None), ("overlay", overlay), ("frame", frame)):
+        if os.path.exists(shot):
+            os.remove(shot)
+        r = subprocess.run([STATION, "audit", "view", str(seq), "--log", db, "--mode", mode,
+                            "--screenshot", shot], capture_output=True, text=True, env=env,
+                           timeout=60)
+        if r.returncode or not os.path.exists(shot):
+            check(f"view {mode}: renders a screenshot headless", False, r.stderr)
+            continue
+        got = np.asarray(Image.open(shot).convert("RGB"))
+        if want is None:
+            w = frame.shape[1]
+            ok = (got.shape == (frame.shape[0], 2 * w + 8, 3) and np.array_equal(got[:, :w], frame)
+                  and np.array_equal(got[:, w + 8:], overlay) and (got[:, w:w + 8] == 96).all())
+            check(f"view side: screenshot {got.shape[1]}x{got.shape[0]} is frame | gap | overlay, "
+                  f"pixel for pixel", ok)
+        else:
+            check(f"view {mode}: screenshot equals the {mode} file", np.array_equal(got, want))
+    passed = next(x["seq"] for x in lines if x["verdict"] == "PASS")
+    r = subprocess.run([STATION, "audit", "view", str(passed), "--log", db, "--screenshot", shot],
+                       capture_output=True, text=True, env=env, timeout=60)
+    check("view: a PASS without evidence is exit 3 with one line naming the record",
+          r.returncode == 3 and f"record {passed} has no evidence" in r.stderr, r.stderr)
+    r = subprocess.run([STATION, "audit", "view", "99999", "--log", db, "--screenshot", shot],
+                       capture_output=True, text=True, env=env, timeout=60)
+    check("view: an unknown record is exit 3", r.returncode == 3, r.stderr)
+    r = subprocess.run([STATION, "audit", "view", str(seq), "--log", db, "--mode", "tiles"],
+                       capture_output=True, text=True, env=env, timeout=60)
+    check("view: --mode tiles is a usage error (4)", r.returncode == 4, r.stderr)
+    r = subprocess.run([STATION, "audit", "view", str(seq), "--log", db], capture_output=True,
+                       text=True, env=env, timeout=60)
+    check("view: without a display and without --screenshot, exit 3 saying so",
+          r.returncode == 3 and "no display" in r.stderr, r.stderr)
 
 
 def main():
