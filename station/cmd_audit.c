@@ -4,6 +4,7 @@
 
 #include "audit.h"
 #include "audit_verbs.h"
+#include "audit_view.h"
 #include "cli.h"
 
 static const struct {
