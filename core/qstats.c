@@ -40,6 +40,8 @@ int qstats_pchart(const uint64_t *d, const uint64_t *n, size_t m, double *pbar,
 #define CF_EPS 1e-16
 #define CF_TINY 1e-300
 
+/* lgamma is C99; glibc's also writes the signgam global, which no caller
+ * reads and which is harmless for positive arguments. */
 static double log_beta(double a, double b)
 {
     return lgamma(a) + lgamma(b) - lgamma(a + b);
