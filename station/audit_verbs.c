@@ -375,7 +375,13 @@ int audit_cmd_report(int argc, char **argv)
         goto done;
     for (size_t i = 0; i < g.n; i++)
         load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
-    struct report_ctx c = {log_path(db), js, thumbs, g.n};
+    /* the page names its selection, so a printed copy says what it covers */
+    char source[1024];
+    snprintf(source, sizeof source, "%s%s%s%s%s%s%s%s%s", log_path(db), o.from ? ", from " : "",
+             o.from ? o.from : "", o.to ? ", before " : "", o.to ? o.to : "",
+             o.station ? ", station " : "", o.station ? o.station : "",
+             o.recipe ? ", recipe " : "", o.recipe ? o.recipe : "");
+    struct report_ctx c = {source, js, thumbs, g.n};
     if (write_atomic(o.out, write_html, &c, &e)) {
         cli_say("%s", e.msg);
         rc = EXIT_ERROR;

@@ -313,12 +313,13 @@ def part2(tmp):
           empty.get("records") == 0 and empty.get("pchart", 1) is None, r.stdout + r.stderr)
 
     page = os.path.join(tmp, "report.html")
-    r = run("audit", "report", "--log", db, "--out", page, "--thumbs", "20")
+    r = run("audit", "report", "--log", db, "--out", page, "--thumbs", "20", "--from", "2000-01-01")
     check("report: exits 0", r.returncode == 0, r.stderr)
     if r.returncode == 0:
         html = open(page, encoding="utf-8").read()
         p = check_page("report", html, min(20, got["audit"]["rejects"]),
                        len(got["pchart"]["points"]))
+        check("report: names its log and selection", f"Log: {db}, from 2000-01-01<br>" in html)
         overlay = {int(row[col["seq"]]): row[col["overlay"]] for row in rows[1:]}
         seqs = [int(re.search(r"record (\d+)", a["alt"]).group(1)) for a in p.imgs]
         newest = sorted((x["seq"] for x in lines if x["verdict"] != "PASS"), reverse=True)[:20]
