@@ -132,7 +132,7 @@ int log_disp_parse(const char *name)
     return -1;
 }
 
-static int verdict_parse(const char *s)
+int log_verdict_parse(const char *s)
 {
     for (int v = VERDICT_PASS; v <= VERDICT_NONE; v++)
         if (s && strcmp(s, judge_verdict_name(v)) == 0)
@@ -723,7 +723,7 @@ static int read_record(struct log_db *db, sqlite3_stmt *s, struct log_record *r,
     col_copy(s, 7, r->recipe_sha256, sizeof r->recipe_sha256);
     col_copy(s, 8, r->model_sha256, sizeof r->model_sha256);
     col_copy(s, 9, r->scale_id, sizeof r->scale_id);
-    r->verdict = verdict_parse((const char *)sqlite3_column_text(s, 10));
+    r->verdict = log_verdict_parse((const char *)sqlite3_column_text(s, 10));
     r->reasons_json = col_dup(s, 11, &oom);
     r->regions_json = col_dup(s, 12, &oom);
     r->camera_json = col_dup(s, 13, &oom);
