@@ -22,7 +22,6 @@ struct inspector {
     struct recipe r;
     struct model_meta meta;
     struct forest *forest;
-    int is_defect[RECIPE_MAX_CLASSES];
     int threads;
     /* per-frame buffers for w x h */
     int w, h;
@@ -56,8 +55,6 @@ int inspector_new(const struct recipe *r, struct inspector **out, struct err *e)
     in->threads = r->train.threads;
     in->roi = 1;
     regions_init(&in->rs);
-    for (int c = 0; c < r->nclasses; c++)
-        in->is_defect[c] = r->cls[c].is_defect;
     int rc = model_check(r, &in->meta, e);
     if (rc)
         goto fail;
@@ -275,8 +272,9 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
     if (rc)
         return rc;
     double t0 = now_ms();
-    rc = regions_find(&in->rs, in->classes, in->conf, in->is_defect, in->r.nclasses, 8,
-                      in->r.mm_per_px_x, in->r.mm_per_px_y, e);
+    struct regions_opts ro;
+    judge_regions_opts(&in->r, NULL, &ro);
+    rc = regions_find(&in->rs, in->classes, in->conf, &ro, e);
     if (rc)
         return rc;
     double t1 = now_ms();

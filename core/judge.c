@@ -14,6 +14,29 @@ const char *judge_verdict_name(int verdict)
     }
 }
 
+static const char *rule_words(const char *rule)
+{
+    static const struct {
+        const char *rule, *words;
+    } w[] = {{"max_area", "largest region"}, {"max_total", "total area"},
+             {"max_count", "regions"},       {"too_dark", "too dark: part level"},
+             {"saturated", "saturated share"}, {"blurred", "blurred: sharpness"},
+             {"no_part", "no part in view: part share"}};
+    for (size_t i = 0; i < sizeof w / sizeof w[0]; i++)
+        if (strcmp(w[i].rule, rule) == 0)
+            return w[i].words;
+    return rule;
+}
+
+void judge_describe_reason(const struct recipe *r, const struct reason *x, char *buf, size_t len)
+{
+    /* the gates are lower limits, the tolerances upper ones */
+    int lower = x->cls < 0 && strcmp(x->rule, "saturated") != 0;
+    const char *cls = x->cls >= 0 && x->cls < r->nclasses ? r->cls[x->cls].name : "";
+    snprintf(buf, len, "%s%s%s %.3g %s %.3g%s", cls, *cls ? " " : "", rule_words(x->rule),
+             x->measured, lower ? "<" : ">", x->limit, strcmp(x->unit, "mm2") == 0 ? " mm²" : "");
+}
+
 static int grey_at(const struct image *img, size_t i)
 {
     if (img->channels == 1)
@@ -69,6 +92,18 @@ int judge_measure_quality(const struct image *img, const struct image *classes,
     return ST_OK;
 }
 
+void judge_regions_opts(const struct recipe *r, const struct image *zones, struct regions_opts *o)
+{
+    memset(o, 0, sizeof *o);
+    o->connectivity = 8;
+    o->mm_per_px_x = r->mm_per_px_x;
+    o->mm_per_px_y = r->mm_per_px_y;
+    o->nclasses = r->nclasses;
+    for (int c = 0; c < r->nclasses; c++)
+        o->is_defect[c] = r->cls[c].is_defect;
+    o->zones = zones;
+}
+
 int judge_region_counts(const struct recipe *r, const struct region *g)
 {
     double min = r->tol[g->cls].min_area_mm2;
@@ -83,6 +118,8 @@ static void add_reason(struct judgement *j, const char *rule, int cls, double me
     struct reason *x = &j->reasons[j->nreasons++];
     snprintf(x->rule, sizeof x->rule, "%s", rule);
     x->cls = cls;
+    x->zone = -1;
+    x->region = 0;
     x->measured = measured;
     x->limit = limit;
     snprintf(x->unit, sizeof x->unit, "%s", unit);

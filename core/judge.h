@@ -19,11 +19,15 @@
 
 enum verdict { VERDICT_PASS = 0, VERDICT_FAIL = 1, VERDICT_NONE = 2 };
 
+_Static_assert(RECIPE_MAX_CLASSES <= REGIONS_MAX_CLASSES, "regions must hold every class");
+
 #define JUDGE_MAX_REASONS 32
 
 struct reason {
     char rule[24];       /* "max_area", "max_total", "max_count", "too_dark", ... */
     int cls;             /* class index, or -1 for image gates */
+    int zone;            /* zone index, or -1: outside every zone / not about a zone */
+    int region;          /* region id (struct region.id), or 0: not about one region */
     double measured;
     double limit;
     char unit[12];       /* "mm2", "count", "level", "fraction", "sharpness" */
@@ -47,9 +51,19 @@ struct judgement {
 
 const char *judge_verdict_name(int verdict);  /* "PASS", "FAIL", "NO_VERDICT" */
 
+/* One reason in words for a person, e.g. "scratch in seal-face: region 3
+ * length 4.1 mm > 3 mm" or "too dark: part level 31 < 40". */
+void judge_describe_reason(const struct recipe *r, const struct reason *x, char *buf,
+                           size_t len);
+
 /* img is the RGB (or grey) frame, classes the class map of the same size. */
 int judge_measure_quality(const struct image *img, const struct image *classes,
                           struct quality *q, struct err *e);
+
+/* The regions options a recipe implies (connectivity, scale, defect
+ * classes, merge gaps); zones may be NULL. */
+void judge_regions_opts(const struct recipe *r, const struct image *zones,
+                        struct regions_opts *o);
 
 /* Whether a region counts under its class's tolerance. */
 int judge_region_counts(const struct recipe *r, const struct region *g);

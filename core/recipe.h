@@ -20,6 +20,7 @@
 #include "booster.h"
 #include "err.h"
 #include "features.h"
+#include "zones.h"
 
 #define RECIPE_MAX_CLASSES 16
 #define RECIPE_FORMAT 1        /* the `format` key in [product]; newer is refused */
@@ -63,6 +64,8 @@ struct recipe {
     double mm_per_px_x, mm_per_px_y;
     struct recipe_tolerance tol[RECIPE_MAX_CLASSES];
     struct recipe_gates gates;
+    int nzones;                /* [zone NAME] sections, in priority order */
+    struct zone zones[ZONE_MAX];
 };
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);

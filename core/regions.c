@@ -117,9 +117,12 @@ static int sort_by_class(struct region_set *rs, int nclasses, struct err *e)
 }
 
 int regions_find(struct region_set *rs, const struct image *classes, const float *conf,
-                 const int *is_defect, int nclasses, int connectivity, double mm_per_px_x,
-                 double mm_per_px_y, struct err *e)
+                 const struct regions_opts *o, struct err *e)
 {
+    const int *is_defect = o->is_defect, nclasses = o->nclasses, connectivity = o->connectivity;
+    if (nclasses < 1 || nclasses > REGIONS_MAX_CLASSES)
+        return err_set(e, ST_EINVAL, "%d classes (1..%d expected)", nclasses, REGIONS_MAX_CLASSES);
+    const double mm_per_px_x = o->mm_per_px_x, mm_per_px_y = o->mm_per_px_y;
     if (classes->channels != 1)
         return err_set(e, ST_EINVAL, "class map must have one channel");
     if (connectivity != 4 && connectivity != 8)
@@ -130,6 +133,7 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
         grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent))
         return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
 
+    int rc;
     int32_t nlab = label_pass(rs, classes, is_defect, nclasses, connectivity);
 
     /* Resolve roots to dense region numbers in raster order of first pixel.
@@ -190,6 +194,11 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
     }
     free(sum);
     rs->n = nreg;
-    return sort_by_class(rs, nclasses, e);
-    return ST_OK;
+    rc = sort_by_class(rs, nclasses, e);
+    for (int i = 0; i < nreg; i++) {
+        rs->r[i].id = i + 1;
+        rs->r[i].zone = -1;
+        rs->r[i].fragments = 1;
+    }
+    return rc;
 }

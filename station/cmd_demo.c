@@ -177,9 +177,8 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
                          struct batch *b, struct err *e)
 {
     const struct recipe *r = inspector_recipe(in);
-    int is_defect[RECIPE_MAX_CLASSES];
-    for (int c = 0; c < r->nclasses; c++)
-        is_defect[c] = r->cls[c].is_defect;
+    struct regions_opts ro;
+    judge_regions_opts(r, NULL, &ro);
     char odir[PATH_MAX];
     snprintf(odir, sizeof odir, "%s/overlays", dir);
     int rc = make_dir(odir, e);
@@ -194,8 +193,7 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         struct quality q;
         if ((rc = pngio_load_rgb(ip, &img, e)) || (rc = pngio_load_label(lp, r->nclasses, &lab, e)))
             goto next;
-        if ((rc = regions_find(&truth_rs, lab, NULL, is_defect, r->nclasses, 8, r->mm_per_px_x,
-                               r->mm_per_px_y, e)) ||
+        if ((rc = regions_find(&truth_rs, lab, NULL, &ro, e)) ||
             (rc = judge_measure_quality(img, lab, &q, e)))
             goto next;
         judge_part(r, &q, &truth_rs, &want);

@@ -62,31 +62,14 @@ struct image *report_overlay(const struct inspector *in, const struct image *fra
     return overlay_blend(frame, inspector_classes(in), inspector_recipe(in), 0.6, e);
 }
 
-static const char *rule_words(const char *rule)
-{
-    static const struct {
-        const char *rule, *words;
-    } w[] = {{"max_area", "largest region"}, {"max_total", "total area"},
-             {"max_count", "regions"},       {"too_dark", "too dark: part level"},
-             {"saturated", "saturated share"}, {"blurred", "blurred: sharpness"},
-             {"no_part", "no part in view: part share"}};
-    for (size_t i = 0; i < sizeof w / sizeof w[0]; i++)
-        if (strcmp(w[i].rule, rule) == 0)
-            return w[i].words;
-    return rule;
-}
-
 void report_print(FILE *f, const char *image, const struct recipe *r, const struct judgement *j)
 {
     fprintf(f, "%s: %s", image, j->verdict == VERDICT_NONE ? "NO VERDICT"
                                                            : judge_verdict_name(j->verdict));
     for (int i = 0; i < j->nreasons; i++) {
-        const struct reason *x = &j->reasons[i];
-        /* the gates are lower limits, the tolerances upper ones */
-        int lower = x->cls < 0 && strcmp(x->rule, "saturated") != 0;
-        fprintf(f, "%s %s%s%s %.3g %s %.3g%s", i ? ";" : " —", x->cls >= 0 ? class_name(r, x->cls) : "",
-                x->cls >= 0 ? " " : "", rule_words(x->rule), x->measured, lower ? "<" : ">",
-                x->limit, strcmp(x->unit, "mm2") == 0 ? " mm²" : "");
+        char words[200];
+        judge_describe_reason(r, &j->reasons[i], words, sizeof words);
+        fprintf(f, "%s %s", i ? ";" : " —", words);
     }
     fputc('\n', f);
 }

@@ -15,10 +15,11 @@ int main(int argc, char **argv)
         return 2;
     }
     int w = atoi(argv[1]), h = atoi(argv[2]), n = atoi(argv[3]), conn = atoi(argv[5]);
-    int def[16] = {0};
+    struct regions_opts o = {.connectivity = conn, .mm_per_px_x = 0.1, .mm_per_px_y = 0.2,
+                             .nclasses = n};
     for (char *t = strtok(argv[4], ","); t; t = strtok(NULL, ","))
-        if (atoi(t) >= 0 && atoi(t) < 16)
-            def[atoi(t)] = 1;
+        if (atoi(t) >= 0 && atoi(t) < REGIONS_MAX_CLASSES)
+            o.is_defect[atoi(t)] = 1;
     struct err e;
     err_clear(&e);
     struct image *cm = image_new(w, h, 1, &e);
@@ -30,7 +31,7 @@ int main(int argc, char **argv)
     fclose(f);
     struct region_set rs;
     regions_init(&rs);
-    if (regions_find(&rs, cm, NULL, def, n, conn, 0.1, 0.2, &e)) {
+    if (regions_find(&rs, cm, NULL, &o, &e)) {
         fprintf(stderr, "regionsdump: %s\n", e.msg);
         return 3;
     }
