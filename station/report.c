@@ -58,8 +58,9 @@ json_t *report_json_error(const char *image, const struct err *e)
 struct image *report_overlay(const struct inspector *in, const struct image *frame,
                              const struct judgement *j, struct err *e)
 {
-    (void)j;
-    return overlay_blend(frame, inspector_classes(in), inspector_recipe(in), 0.6, e);
+    /* NULL zone map until the inspector holds one */
+    return overlay_inspection(frame, inspector_classes(in), inspector_regions(in), NULL,
+                              inspector_recipe(in), j, e);
 }
 
 void report_print(FILE *f, const char *image, const struct recipe *r, const struct judgement *j)
