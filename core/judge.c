@@ -217,6 +217,12 @@ static void check_gates(const struct recipe *r, const struct judge_refs *refs,
         gate(j, "no_part", q->part_fraction, g->min_part_fraction, 1, "fraction");
         return; /* the other gates are measured over the part */
     }
+    /* a "part" that fills the view is the classifier seeing part in an
+     * empty scene (the bench mat under normalised light), not a part */
+    if (q->part_fraction > g->max_part_fraction) {
+        gate(j, "no_part", q->part_fraction, g->max_part_fraction, 0, "fraction");
+        return;
+    }
     if (g->min_frame_change >= 0 && q->frame_change >= 0 && q->frame_change <= g->min_frame_change)
         gate(j, "frozen", q->frame_change, g->min_frame_change, 1, "level");
     if (q->level < g->min_level)

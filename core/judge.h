@@ -2,7 +2,8 @@
  *
  * Fail closed: the image-quality gates run first, and any gate that fails
  * gives NO VERDICT with its reason, whatever the regions say — an image that
- * cannot be trusted never passes.  The gates: no part in view; the same
+ * cannot be trusted never passes.  The gates: no part in view (too little
+ * of the frame is part, or nearly all of it); the same
  * frame as the last one (frozen camera); the part's mean grey outside the
  * recipe's bounds; too many saturated or black part pixels; sharpness below
  * a share of the reference; part area off the expected one; part at the

@@ -133,6 +133,7 @@ static const struct key_def gates_keys[] = {
     {"black_level", V_REAL, GATE(black_level), 0, 0, 255, 0, K_OPTIONAL, NULL},
     {"max_black", V_REAL, GATE(max_black), 0, 0, 1, 0, K_OPTIONAL, NULL},
     {"min_part_fraction", V_REAL, GATE(min_part_fraction), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"max_part_fraction", V_REAL, GATE(max_part_fraction), 0, 0, 1, 0, K_OPTIONAL, NULL},
     {"sharpness_reference", V_REAL, GATE(sharpness_reference), 0, 0, INFINITY, 0,
      K_OPTIONAL | K_LO_OPEN, NULL},
     {"min_sharpness_ratio", V_REAL, GATE(min_sharpness_ratio), 0, 0, 1, 0, K_OPTIONAL, NULL},
@@ -977,11 +978,14 @@ static int check_zones(struct parse *p)
 static int check_gates(struct parse *p)
 {
     const struct recipe_gates *g = &p->r.gates;
-    if (g->min_level >= g->max_level) {
-        const struct section *s = find_section(p, SEC_GATES, "", "");
+    const struct section *s = find_section(p, SEC_GATES, "", "");
+    if (g->min_level >= g->max_level)
         return fail_at(p, s ? s->line : 0, ST_ERANGE, "min_level %g must be below max_level %g",
                        g->min_level, g->max_level);
-    }
+    if (g->min_part_fraction >= g->max_part_fraction)
+        return fail_at(p, s ? s->line : 0, ST_ERANGE,
+                       "min_part_fraction %g must be below max_part_fraction %g",
+                       g->min_part_fraction, g->max_part_fraction);
     return ST_OK;
 }
 
@@ -997,6 +1001,7 @@ static void set_defaults(struct recipe *r)
     r->gates.black_level = 8;
     r->gates.max_black = 0.05;
     r->gates.min_part_fraction = 0.05;
+    r->gates.max_part_fraction = 0.9;
     r->gates.sharpness_reference = -1;
     r->gates.min_sharpness_ratio = 0.5;
     r->gates.low_confidence = 0.5;

@@ -60,6 +60,7 @@ struct recipe_gates {
     double black_level;        /* grey at or below which a part pixel is black */
     double max_black;          /* fraction of black part pixels */
     double min_part_fraction;  /* fraction of the frame the part covers below = no part */
+    double max_part_fraction;  /* ... above = no part either: nothing to find it against */
     double sharpness_reference;/* sharpness of a good frame; -1: the model's reference */
     double min_sharpness_ratio;/* sharpness below this share of the reference = blurred */
     double low_confidence;     /* classifier confidence below which a pixel is unsure */

@@ -274,6 +274,7 @@ static void test_untrusted_images_never_pass(void **state)
     WITH(saturated, 0.10, "saturated");
     WITH(black, 0.2, "black");
     WITH(part_fraction, 0.01, "no_part");
+    WITH(part_fraction, 0.95, "no_part"); /* "part" everywhere: an empty scene */
     WITH(sharpness, 40, "blurred");
     WITH(unsure, 0.3, "unsure");
     WITH(frame_change, 0, "frozen");

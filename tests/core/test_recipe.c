@@ -205,6 +205,7 @@ static void test_demo_recipe(void **state)
     const struct recipe_gates *g = &r.gates;
     assert_true(g->min_level == 40 && g->max_level == 235 && g->max_saturated == 0.02);
     assert_true(g->black_level == 8 && g->max_black == 0.05 && g->min_part_fraction == 0.05);
+    assert_true(g->max_part_fraction == 0.9);
     assert_true(g->sharpness_reference == -1 && g->min_sharpness_ratio == 0.5);
     assert_true(g->low_confidence == 0.5 && g->max_low_confidence == 0.1);
     assert_true(g->min_frame_change == 0);
@@ -296,6 +297,9 @@ static void test_grade_and_gates_errors(void **state)
     text = GOOD "[gates]\nmin_level = 200\nmax_level = 100\n";
     load_bad(text, ST_ERANGE, line_of(text, "[gates]", 1),
              "min_level 200 must be below max_level 100");
+    text = GOOD "[gates]\nmin_part_fraction = 0.5\nmax_part_fraction = 0.4\n";
+    load_bad(text, ST_ERANGE, line_of(text, "[gates]", 1),
+             "min_part_fraction 0.5 must be below max_part_fraction 0.4");
     text = GOOD "[gates]\nmin_sharpness = 1\n";
     load_bad(text, ST_EFORMAT, line_of(text, "min_sharpness", 1),
              "unknown key 'min_sharpness' in [gates]");
