@@ -54,6 +54,7 @@ struct region_set {
     int32_t *labels;
     int32_t *parent;
     size_t label_cap, parent_cap;
+    struct regions_work *work;   /* the rest of the scratch, private to regions.c */
 };
 
 void regions_init(struct region_set *rs);
