@@ -28,16 +28,22 @@ struct image *overlay_colourise(const struct image *classes, const struct recipe
 static void blend_into(const struct image *frame, const struct image *classes,
                        const struct recipe *r, double alpha, struct image *out, int y0)
 {
-    size_t n = (size_t)frame->w * frame->h;
-    int a = (int)(alpha * 256 + 0.5);
+    uint8_t tinted[256] = {0};
+    for (int c = 0; c < r->nclasses; c++)
+        tinted[c] = (uint8_t)r->cls[c].is_defect;
+    const size_t n = (size_t)frame->w * frame->h;
+    uint8_t *o = out->px + (size_t)y0 * out->w * 3;
+    if (frame->channels == 3)
+        memcpy(o, frame->px, n * 3);
+    else
+        for (size_t i = 0; i < n; i++)
+            o[3 * i] = o[3 * i + 1] = o[3 * i + 2] = frame->px[i];
+    const int a = (int)(alpha * 256 + 0.5);
     for (size_t i = 0; i < n; i++) {
-        uint8_t *o = out->px + ((size_t)y0 * out->w + i) * 3;
-        for (int k = 0; k < 3; k++)
-            o[k] = frame->px[i * frame->channels + (frame->channels == 3 ? k : 0)];
         int c = classes->px[i];
-        if (c < r->nclasses && r->cls[c].is_defect)
+        if (tinted[c])
             for (int k = 0; k < 3; k++)
-                o[k] = (uint8_t)((o[k] * (256 - a) + r->cls[c].rgb[k] * a) >> 8);
+                o[3 * i + k] = (uint8_t)((o[3 * i + k] * (256 - a) + r->cls[c].rgb[k] * a) >> 8);
     }
 }
 
@@ -127,19 +133,26 @@ static int region_at(const struct region_set *rs, size_t i)
     return l >= 0 && l < rs->n ? l : -1;
 }
 
+/* Each region's bounding box is all it can touch. */
 static void draw_region_outlines(struct image *out, int y0, const struct region_set *rs,
                                  const struct recipe *r, int w, int h)
 {
-    for (int y = 0; y < h; y++)
-        for (int x = 0; x < w; x++) {
-            size_t i = (size_t)y * w + x;
-            int l = region_at(rs, i);
-            if (l < 0)
-                continue;
-            if ((x > 0 && region_at(rs, i - 1) != l) || (x + 1 < w && region_at(rs, i + 1) != l) ||
-                (y > 0 && region_at(rs, i - w) != l) || (y + 1 < h && region_at(rs, i + w) != l))
-                put(out, x, y0 + y, class_rgb(r, rs->r[l].cls));
-        }
+    for (int k = 0; k < rs->n; k++) {
+        const struct region *g = &rs->r[k];
+        int x0 = g->x0 < 0 ? 0 : g->x0, x1 = g->x1 >= w ? w - 1 : g->x1;
+        int ya = g->y0 < 0 ? 0 : g->y0, yb = g->y1 >= h ? h - 1 : g->y1;
+        for (int y = ya; y <= yb; y++)
+            for (int x = x0; x <= x1; x++) {
+                size_t i = (size_t)y * w + x;
+                if (region_at(rs, i) != k)
+                    continue;
+                if ((x > 0 && region_at(rs, i - 1) != k) ||
+                    (x + 1 < w && region_at(rs, i + 1) != k) ||
+                    (y > 0 && region_at(rs, i - w) != k) ||
+                    (y + 1 < h && region_at(rs, i + w) != k))
+                    put(out, x, y0 + y, class_rgb(r, g->cls));
+            }
+    }
 }
 
 static void fill_rect(struct image *img, int x0, int y0, int x1, int y1, const uint8_t rgb[3])
