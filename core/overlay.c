@@ -28,16 +28,22 @@ struct image *overlay_colourise(const struct image *classes, const struct recipe
 static void blend_into(const struct image *frame, const struct image *classes,
                        const struct recipe *r, double alpha, struct image *out, int y0)
 {
-    size_t n = (size_t)frame->w * frame->h;
-    int a = (int)(alpha * 256 + 0.5);
+    uint8_t tinted[256] = {0};
+    for (int c = 0; c < r->nclasses; c++)
+        tinted[c] = (uint8_t)r->cls[c].is_defect;
+    const size_t n = (size_t)frame->w * frame->h;
+    uint8_t *o = out->px + (size_t)y0 * out->w * 3;
+    if (frame->channels == 3)
+        memcpy(o, frame->px, n * 3);
+    else
+        for (size_t i = 0; i < n; i++)
+            o[3 * i] = o[3 * i + 1] = o[3 * i + 2] = frame->px[i];
+    const int a = (int)(alpha * 256 + 0.5);
     for (size_t i = 0; i < n; i++) {
-        uint8_t *o = out->px + ((size_t)y0 * out->w + i) * 3;
-        for (int k = 0; k < 3; k++)
-            o[k] = frame->px[i * frame->channels + (frame->channels == 3 ? k : 0)];
         int c = classes->px[i];
-        if (c < r->nclasses && r->cls[c].is_defect)
+        if (tinted[c])
             for (int k = 0; k < 3; k++)
-                o[k] = (uint8_t)((o[k] * (256 - a) + r->cls[c].rgb[k] * a) >> 8);
+                o[3 * i + k] = (uint8_t)((o[3 * i + k] * (256 - a) + r->cls[c].rgb[k] * a) >> 8);
     }
 }
 
@@ -127,19 +133,26 @@ static int region_at(const struct region_set *rs, size_t i)
     return l >= 0 && l < rs->n ? l : -1;
 }
 
+/* Each region's bounding box is all it can touch. */
 static void draw_region_outlines(struct image *out, int y0, const struct region_set *rs,
                                  const struct recipe *r, int w, int h)
 {
-    for (int y = 0; y < h; y++)
-        for (int x = 0; x < w; x++) {
-            size_t i = (size_t)y * w + x;
-            int l = region_at(rs, i);
-            if (l < 0)
-                continue;
-            if ((x > 0 && region_at(rs, i - 1) != l) || (x + 1 < w && region_at(rs, i + 1) != l) ||
-                (y > 0 && region_at(rs, i - w) != l) || (y + 1 < h && region_at(rs, i + w) != l))
-                put(out, x, y0 + y, class_rgb(r, rs->r[l].cls));
-        }
+    for (int k = 0; k < rs->n; k++) {
+        const struct region *g = &rs->r[k];
+        int x0 = g->x0 < 0 ? 0 : g->x0, x1 = g->x1 >= w ? w - 1 : g->x1;
+        int ya = g->y0 < 0 ? 0 : g->y0, yb = g->y1 >= h ? h - 1 : g->y1;
+        for (int y = ya; y <= yb; y++)
+            for (int x = x0; x <= x1; x++) {
+                size_t i = (size_t)y * w + x;
+                if (region_at(rs, i) != k)
+                    continue;
+                if ((x > 0 && region_at(rs, i - 1) != k) ||
+                    (x + 1 < w && region_at(rs, i + 1) != k) ||
+                    (y > 0 && region_at(rs, i - w) != k) ||
+                    (y + 1 < h && region_at(rs, i + w) != k))
+                    put(out, x, y0 + y, class_rgb(r, g->cls));
+            }
+    }
 }
 
 static void fill_rect(struct image *img, int x0, int y0, int x1, int y1, const uint8_t rgb[3])
@@ -170,28 +183,44 @@ static void draw_region_ids(struct image *out, int y0, const struct region_set *
     }
 }
 
-/* One banner line: the largest scale up to `scale` at which s fits. */
-static void banner_line(struct image *out, int x, int y, const char *s, int scale,
-                        const uint8_t rgb[3])
+/* Banner layout, in units of the text scale s: padding, the verdict at
+ * scale 2s, a gap, then lines of text BAN_LINE apart, padding. */
+enum { BAN_PAD = 4, BAN_GAP = 4, BAN_LINE = FONT_CELL_H + 3 };
+
+/* The words of s in lines no wider than width pixels at scale, drawn from
+ * (x, y) when img is not NULL; returns the number of lines.  A word wider
+ * than a line gets a line of its own and is clipped. */
+static int text_block(struct image *img, int x, int y, int width, const char *s, int scale,
+                      const uint8_t rgb[3])
 {
-    while (scale > 1 && x + font_text_width(s, scale) > out->w - x)
-        scale--;
-    font_draw_text(out, x, y, s, scale, rgb);
+    char line[256] = "", next[256];
+    int n = 0;
+    for (;;) {
+        s += strspn(s, " ");
+        int wl = (int)strcspn(s, " ");
+        if (*line && (!wl || snprintf(next, sizeof next, "%s %.*s", line, wl, s) < 0 ||
+                      font_text_width(next, scale) > width)) {
+            if (img)
+                font_draw_text(img, x, y + n * BAN_LINE * scale, line, scale, rgb);
+            n++;
+            *line = '\0';
+        }
+        if (!wl)
+            return n;
+        if (*line)
+            memcpy(line, next, sizeof line);
+        else
+            snprintf(line, sizeof line, "%.*s", wl, s);
+        s += wl;
+    }
 }
 
-static int banner_height(int s)
-{
-    /* padding, verdict at 2s, padding, reason, gap, caution, padding */
-    return 2 * s + 2 * FONT_CELL_H * s + 2 * s + FONT_CELL_H * s + 2 * s + FONT_CELL_H * s + 2 * s;
-}
-
-static void draw_banner(struct image *out, int s, const struct recipe *r,
-                        const struct judgement *j)
+/* Draws the banner into out when it is not NULL; returns its height. */
+static int banner(struct image *out, int w, int s, const struct recipe *r,
+                  const struct judgement *j)
 {
     static const uint8_t pass[3] = OVERLAY_PASS_RGB, fail[3] = OVERLAY_FAIL_RGB,
                          none[3] = OVERLAY_NONE_RGB, text[3] = OVERLAY_TEXT_RGB;
-    const uint8_t *bg = j->verdict == VERDICT_PASS ? pass : j->verdict == VERDICT_FAIL ? fail : none;
-    fill_rect(out, 0, 0, out->w, banner_height(s), bg);
     char reason[240] = "no rule broken";
     if (j->nreasons > 0) {
         char words[200];
@@ -203,13 +232,22 @@ static void draw_banner(struct image *out, int s, const struct recipe *r,
     } else if (j->verdict != VERDICT_PASS) {
         snprintf(reason, sizeof reason, "no reason recorded");
     }
-    int x = 3 * s, y = 2 * s;
-    banner_line(out, x, y, j->verdict == VERDICT_NONE ? "NO VERDICT" : judge_verdict_name(j->verdict),
-                2 * s, text);
-    y += 2 * FONT_CELL_H * s + 2 * s;
-    banner_line(out, x, y, reason, s, text);
-    y += FONT_CELL_H * s + 2 * s;
-    banner_line(out, x, y, OVERLAY_CAUTION, s, text);
+    const int x = BAN_PAD * s, width = w - 2 * x;
+    if (out) {
+        const uint8_t *bg = j->verdict == VERDICT_PASS   ? pass
+                            : j->verdict == VERDICT_FAIL ? fail
+                                                         : none;
+        fill_rect(out, 0, 0, w, banner(NULL, w, s, r, j), bg);
+        const char *word = j->verdict == VERDICT_NONE ? "NO VERDICT" : judge_verdict_name(j->verdict);
+        int big = 2 * s;
+        while (big > 1 && font_text_width(word, big) > width)
+            big--;
+        font_draw_text(out, x, BAN_PAD * s, word, big, text);
+    }
+    int y = (BAN_PAD + 2 * FONT_CELL_H + BAN_GAP) * s;
+    y += text_block(out, x, y, width, reason, s, text) * BAN_LINE * s;
+    y += text_block(out, x, y, width, OVERLAY_CAUTION, s, text) * BAN_LINE * s;
+    return y + (BAN_PAD - (BAN_LINE - FONT_CELL_H)) * s;
 }
 
 struct image *overlay_inspection(const struct image *frame, const struct image *classes,
@@ -220,7 +258,7 @@ struct image *overlay_inspection(const struct image *frame, const struct image *
     if (same_size(frame, classes, "class map", e) || (zones && same_size(frame, zones, "zone map", e)))
         return NULL;
     const int w = frame->w, h = frame->h, s = overlay_text_scale(w);
-    const int top = j ? banner_height(s) : 0;
+    const int top = j ? banner(NULL, w, s, r, j) : 0;
     struct image *out = image_new(w, h + top, 3, e);
     if (!out)
         return NULL;
@@ -232,6 +270,6 @@ struct image *overlay_inspection(const struct image *frame, const struct image *
         draw_region_ids(out, top, rs, r, w, h, s);
     }
     if (j)
-        draw_banner(out, s, r, j);
+        banner(out, w, s, r, j);
     return out;
 }

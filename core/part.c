@@ -16,25 +16,56 @@ struct moments {
     double m20, m02, m11, m30, m21, m12, m03;
 };
 
+/* The next run [*a, *b) of part pixels at or after x in row[0..end); 0 when
+ * none.  Background is skipped a word at a time: most of a frame is bench. */
+static int next_run(const uint8_t *row, int x, int end, int *a, int *b)
+{
+    while (x + 8 <= end) {
+        uint64_t word;
+        memcpy(&word, row + x, sizeof word);
+        if (word)
+            break;
+        x += 8;
+    }
+    while (x < end && !row[x])
+        x++;
+    if (x >= end)
+        return 0;
+    *a = x;
+    while (x < end && row[x])
+        x++;
+    *b = x;
+    return 1;
+}
+
+/* Per row, sums of a, a^2, a^3 over its part pixels; the row's b is
+ * constant, so the cross terms follow from them. */
 static void central_moments(const struct image *c, const struct part_pose *p, double sx,
                             double sy, struct moments *m)
 {
     memset(m, 0, sizeof *m);
     for (int y = p->y0; y <= p->y1; y++) {
         const uint8_t *row = c->px + (size_t)y * c->w;
-        double b = (y - p->cy) * sy;
-        for (int x = p->x0; x <= p->x1; x++) {
-            if (!row[x])
-                continue;
-            double a = (x - p->cx) * sx;
-            m->m20 += a * a;
-            m->m02 += b * b;
-            m->m11 += a * b;
-            m->m30 += a * a * a;
-            m->m21 += a * a * b;
-            m->m12 += a * b * b;
-            m->m03 += b * b * b;
+        const double b = (y - p->cy) * sy;
+        double n = 0, s1 = 0, s2 = 0, s3 = 0;
+        int x = p->x0, ra, rb;
+        while (next_run(row, x, p->x1 + 1, &ra, &rb)) {
+            for (int k = ra; k < rb; k++) {
+                double a = (k - p->cx) * sx;
+                s1 += a;
+                s2 += a * a;
+                s3 += a * a * a;
+            }
+            n += rb - ra;
+            x = rb;
         }
+        m->m20 += s2;
+        m->m11 += b * s1;
+        m->m02 += n * b * b;
+        m->m30 += s3;
+        m->m21 += b * s2;
+        m->m12 += b * b * s1;
+        m->m03 += n * b * b * b;
     }
     double n = (double)p->pixels;
     m->m20 /= n;
@@ -58,22 +89,23 @@ int part_locate(const struct image *classes, double mm_per_px_x, double mm_per_p
     p->x1 = p->y1 = -1;
     for (int y = 0; y < h; y++) {
         const uint8_t *row = classes->px + (size_t)y * w;
-        long n = 0;
-        double rx = 0;
-        for (int x = 0; x < w; x++) {
-            if (!row[x])
-                continue;
-            if (x < p->x0) p->x0 = x;
-            if (x > p->x1) p->x1 = x;
-            n++;
-            rx += x;
+        long n = 0, rx = 0;
+        int x = 0, a, b;
+        while (next_run(row, x, w, &a, &b)) {
+            if (!n && a < p->x0)
+                p->x0 = a;
+            n += b - a;
+            rx += ((long)a + b - 1) * (b - a) / 2;
+            x = b;
         }
         if (!n)
             continue;
+        if (x - 1 > p->x1)
+            p->x1 = x - 1;
         if (y < p->y0) p->y0 = y;
         p->y1 = y;
         p->pixels += n;
-        sum_x += rx;
+        sum_x += (double)rx;
         sum_y += (double)n * y;
     }
     if (!p->pixels) {

@@ -1,6 +1,7 @@
 #!/bin/sh
 # make bench: per-stage figures of the station beside XGBoost's own predictor
-# (same model, same features) and the same filter bank in OpenCV from Python.
+# (same model, same features) and the same filter bank in OpenCV from Python,
+# then locating the part, painting its zones and drawing the overlay.
 # Figures, not a test: nothing here passes or fails on speed.
 set -eu
 BUILD=${BUILD:-build}
@@ -28,3 +29,5 @@ for size in 640x480 1280x960; do
     done
 done
 "$PYTHON" tests/bench/report.py "$results"
+echo
+"$BUILD/tests/bench/bench_overlay"
