@@ -46,7 +46,7 @@ static void demo_recipe(struct recipe *r, double mm)
         snprintf(r->cls[c].name, sizeof r->cls[c].name, "%s", names[c]);
         r->cls[c].is_defect = c >= 2;
         memcpy(r->cls[c].rgb, rgb[c], 3);
-        r->tol[c] = (struct recipe_tolerance){0.05, 0.5, 1.0, 2};
+        r->tol[c] = (struct recipe_tolerance){0.05, 0.5, 1.0, 2, -1, -1, -1};
     }
     r->mm_per_px_x = r->mm_per_px_y = mm;
 }
@@ -77,7 +77,7 @@ static int bench(int w, int h, int repeat, struct err *e)
     if (!rc)
         rc = regions_find(&rs, cls, NULL, &o, e);
     struct judgement j = {.verdict = VERDICT_FAIL, .nreasons = 1,
-                          .reasons = {{"max_area", 4, -1, 1, 1.27, 0.8, "mm2"}}};
+                          .reasons = {{"max_area", 4, -1, 1, 1.27, 0.8, 0, "mm2"}}};
     double t_locate[MAX_REPEAT], t_paint[MAX_REPEAT], t_overlay[MAX_REPEAT];
     for (int i = 0; i < repeat && !rc; i++) {
         struct part_pose p;
