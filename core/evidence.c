@@ -55,9 +55,16 @@ int evidence_write(const struct log_io *io, const char *root, const char *name,
     if ((size_t)snprintf(path, sizeof path, "%s/%s", root, name) >= sizeof path ||
         (size_t)snprintf(tmp, sizeof tmp, "%s.tmp", path) >= sizeof tmp)
         return err_set(e, ST_ERANGE, "%s/%s: path too long", root, name);
+    char parent[PATH_MAX];
     snprintf(dir, sizeof dir, "%s", path);
     *strrchr(dir, '/') = '\0';
-    int rc = make_dir(io, root, NULL, e);
+    snprintf(parent, sizeof parent, "%s", root);
+    char *slash = strrchr(parent, '/');
+    if (slash && slash != parent)
+        *slash = '\0';
+    else
+        snprintf(parent, sizeof parent, "%s", slash ? "/" : ".");
+    int rc = make_dir(io, root, parent, e);
     if (!rc && strcmp(dir, root) != 0)
         rc = make_dir(io, dir, root, e);
     if (rc)

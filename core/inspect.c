@@ -22,7 +22,6 @@ struct inspector {
     struct recipe r;
     struct model_meta meta;
     struct forest *forest;
-    int is_defect[RECIPE_MAX_CLASSES];
     int threads;
     /* per-frame buffers for w x h */
     int w, h;
@@ -37,6 +36,11 @@ struct inspector {
     float *grid_rows;       /* per worker: one grid row of samples' features */
     struct region_set rs;
     struct quality q;
+    struct part_pose pose;
+    struct zone_map *zones;  /* NULL when the recipe has no zones */
+    struct judge_refs refs;
+    uint8_t *grey, *last;   /* this frame's grey and the one before */
+    int has_last;
 };
 
 static double now_ms(void)
@@ -56,10 +60,13 @@ int inspector_new(const struct recipe *r, struct inspector **out, struct err *e)
     in->threads = r->train.threads;
     in->roi = 1;
     regions_init(&in->rs);
-    for (int c = 0; c < r->nclasses; c++)
-        in->is_defect[c] = r->cls[c].is_defect;
     int rc = model_check(r, &in->meta, e);
     if (rc)
+        goto fail;
+    in->refs.sharpness =
+        r->gates.sharpness_reference > 0 ? r->gates.sharpness_reference : in->meta.ref_sharpness;
+    in->refs.part_area_mm2 = r->part.area_mm2 > 0 ? r->part.area_mm2 : in->meta.ref_part_area_mm2;
+    if (r->nzones && (rc = zone_map_new(r->zones, r->nzones, &in->zones, e)))
         goto fail;
     if ((rc = forest_load(r->model_path, &in->forest, e)))
         goto fail;
@@ -91,6 +98,10 @@ static void free_frame_buffers(struct inspector *in)
     free(in->need);
     free(in->cell_conf);
     free(in->grid_rows);
+    free(in->grey);
+    free(in->last);
+    in->grey = in->last = NULL;
+    in->has_last = 0;
     in->feat = NULL;
     in->fs = NULL;
     in->classes = NULL;
@@ -105,6 +116,7 @@ void inspector_free(struct inspector *in)
     if (!in)
         return;
     forest_free(in->forest);
+    zone_map_free(in->zones);
     free_frame_buffers(in);
     regions_clear(&in->rs);
     free(in);
@@ -271,18 +283,43 @@ int inspector_classify(struct inspector *in, const struct image *img, struct ins
 int inspector_run(struct inspector *in, const struct image *img, struct judgement *j,
                   struct inspect_times *t, struct err *e)
 {
+    const struct recipe *r = &in->r;
+    /* without references the gates cannot tell a good frame from a bad one */
+    if (!(in->refs.sharpness > 0))
+        return err_set(e, ST_EINVAL,
+                       "%s: no sharpness reference: set [gates] sharpness_reference, or train "
+                       "again (%s predates references)",
+                       r->path, r->model_path);
+    if (r->part.area_tolerance >= 0 && !(in->refs.part_area_mm2 > 0))
+        return err_set(e, ST_EINVAL,
+                       "%s: no expected part area: set [part] area_mm2, or train again (%s "
+                       "predates references)",
+                       r->path, r->model_path);
     int rc = inspector_classify(in, img, t, e);
     if (rc)
         return rc;
     double t0 = now_ms();
-    rc = regions_find(&in->rs, in->classes, in->conf, in->is_defect, in->r.nclasses, 8,
-                      in->r.mm_per_px_x, in->r.mm_per_px_y, e);
-    if (rc)
+    const double sx = r->mm_per_px_x, sy = r->mm_per_px_y;
+    if ((rc = part_locate(in->classes, sx, sy, (enum part_orient)r->part.orient, &in->pose, e)))
+        return rc;
+    if (in->zones && (rc = zone_map_paint(in->zones, &in->pose, img->w, img->h, sx, sy, e)))
+        return rc;
+    struct regions_opts ro;
+    judge_regions_opts(r, inspector_zone_map(in), &ro);
+    if ((rc = regions_find(&in->rs, in->classes, in->conf, &ro, e)))
         return rc;
     double t1 = now_ms();
-    if ((rc = judge_measure_quality(img, in->classes, &in->q, e)))
+    if (!in->grey && (!(in->grey = malloc((size_t)img->w * img->h)) ||
+                      !(in->last = malloc((size_t)img->w * img->h))))
+        return err_set(e, ST_ENOMEM, "out of memory for %dx%d grey frames", img->w, img->h);
+    if ((rc = judge_measure_quality(r, img, in->classes, in->conf, in->grey,
+                                    in->has_last ? in->last : NULL, &in->q, e)))
         return rc;
-    judge_part(&in->r, &in->q, &in->rs, j);
+    uint8_t *swap = in->last;
+    in->last = in->grey;
+    in->grey = swap;
+    in->has_last = 1;
+    judge_part(r, &in->refs, &in->q, &in->pose, &in->rs, j);
     double t2 = now_ms();
     if (t) {
         t->regions_ms = t1 - t0;
@@ -298,6 +335,12 @@ const float *inspector_confidence(const struct inspector *in) { return in->conf;
 const struct region_set *inspector_regions(const struct inspector *in) { return &in->rs; }
 const struct quality *inspector_quality(const struct inspector *in) { return &in->q; }
 const struct recipe *inspector_recipe(const struct inspector *in) { return &in->r; }
+const struct part_pose *inspector_pose(const struct inspector *in) { return &in->pose; }
+const struct judge_refs *inspector_refs(const struct inspector *in) { return &in->refs; }
+const struct image *inspector_zone_map(const struct inspector *in)
+{
+    return in->zones ? zone_map_image(in->zones) : NULL;
+}
 const struct model_meta *inspector_model(const struct inspector *in) { return &in->meta; }
 int inspector_threads(const struct inspector *in) { return in->threads; }
 

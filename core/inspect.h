@@ -6,7 +6,9 @@
  * fresh memory costs more than the work on small frames).  inspector_new
  * refuses a model that does not belong to the recipe (model_check).
  * inspector_run computes features, classifies every pixel (class and
- * confidence), finds the defect regions, measures image quality and judges;
+ * confidence), locates the part and paints its zones, finds the defect
+ * regions, measures image quality (against the last frame too, for a frozen
+ * camera) and judges;
  * any failure inside leaves the caller with an error and no verdict, and
  * the caller reports NO_VERDICT — never PASS.  One inspector serves one
  * thread at a time; the stages themselves use recipe.feat.threads and
@@ -21,6 +23,7 @@
 #include "model.h"
 #include "recipe.h"
 #include "regions.h"
+#include "zones.h"
 
 struct inspect_times {
     double features_ms, classify_ms, regions_ms, verdict_ms;
@@ -46,6 +49,11 @@ const float *inspector_confidence(const struct inspector *in);
 const struct region_set *inspector_regions(const struct inspector *in);
 const struct quality *inspector_quality(const struct inspector *in);
 const struct recipe *inspector_recipe(const struct inspector *in);
+const struct part_pose *inspector_pose(const struct inspector *in);
+/* The references the gates compare with (recipe, else model metadata). */
+const struct judge_refs *inspector_refs(const struct inspector *in);
+/* Zone index per pixel for the last frame's pose; NULL without zones. */
+const struct image *inspector_zone_map(const struct inspector *in);
 const struct model_meta *inspector_model(const struct inspector *in);
 int inspector_threads(const struct inspector *in);
 /* The locating pass (on by default; see inspect.c): off classifies every

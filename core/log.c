@@ -4,6 +4,7 @@
 #include <fcntl.h>
 #include <inttypes.h>
 #include <limits.h>
+#include <pthread.h>
 #include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -131,7 +132,7 @@ int log_disp_parse(const char *name)
     return -1;
 }
 
-static int verdict_parse(const char *s)
+int log_verdict_parse(const char *s)
 {
     for (int v = VERDICT_PASS; v <= VERDICT_NONE; v++)
         if (s && strcmp(s, judge_verdict_name(v)) == 0)
@@ -371,8 +372,10 @@ int log_pass_wants_evidence(struct log_db *db, int pass_evidence, int every)
 
 /* What one append has done so far, so failure can undo what is undoable. */
 struct append_work {
+    int npng;
     unsigned char *png[LOG_MAX_EVIDENCE];
     size_t png_len[LOG_MAX_EVIDENCE];
+    char sha256[LOG_MAX_EVIDENCE][SHA256_HEX_LEN];
     int written;                         /* evidence files in place */
     char (*purged)[LOG_NAME_MAX];        /* names to unlink after the commit */
     int npurged, cap_purged;
@@ -430,23 +433,65 @@ static int make_room(struct log_db *db, int64_t need, const char *utc, struct ap
     return ST_OK;
 }
 
-static int write_evidence(struct log_db *db, const struct log_entry *en, struct log_record *r,
-                          struct append_work *w, struct err *e)
+static const char *const ev_kinds[LOG_MAX_EVIDENCE] = {"frame", "overlay"};
+
+/* One evidence PNG encoded and hashed, on its own thread. */
+struct encode_job {
+    const struct image *img;
+    int level, k;
+    struct append_work *w;
+    struct err e;
+    int rc;
+};
+
+static void *encode_run(void *arg)
 {
+    struct encode_job *j = arg;
+    struct append_work *w = j->w;
+    j->rc = pngio_encode_mem(ev_kinds[j->k], j->img, j->level, &w->png[j->k], &w->png_len[j->k],
+                             &j->e);
+    if (!j->rc)
+        sha256_hex_buffer(w->png[j->k], w->png_len[j->k], w->sha256[j->k]);
+    return NULL;
+}
+
+/* Encodes the frame and the overlay at once (two cores: half the time),
+ * before the write lock is taken. */
+static int encode_evidence(struct log_db *db, const struct log_entry *en, struct append_work *w,
+                           struct err *e)
+{
+    struct encode_job jobs[LOG_MAX_EVIDENCE];
     const struct image *img[LOG_MAX_EVIDENCE] = {en->frame, en->overlay};
-    static const char *const kinds[LOG_MAX_EVIDENCE] = {"frame", "overlay"};
+    pthread_t tid;
+    int n = en->overlay ? 2 : 1, threaded = 0;
+    for (int k = 0; k < n; k++)
+        jobs[k] = (struct encode_job){.img = img[k], .level = db->opt.png_level, .k = k, .w = w};
+    if (n == 2)
+        threaded = pthread_create(&tid, NULL, encode_run, &jobs[1]) == 0;
+    encode_run(&jobs[0]);
+    if (threaded)
+        pthread_join(tid, NULL);
+    else if (n == 2)
+        encode_run(&jobs[1]);
+    w->npng = n;
+    for (int k = 0; k < n; k++)
+        if (jobs[k].rc)
+            return err_set(e, jobs[k].rc, "%s", jobs[k].e.msg);
+    return ST_OK;
+}
+
+static int write_evidence(struct log_db *db, struct log_record *r, struct append_work *w,
+                          struct err *e)
+{
     int64_t need = 0;
-    for (int i = 0; i < LOG_MAX_EVIDENCE && img[i]; i++) {
-        int rc = pngio_encode_mem(kinds[i], img[i], db->opt.png_level, &w->png[i],
-                                  &w->png_len[i], e);
-        if (rc)
-            return rc;
-        need += (int64_t)w->png_len[i];
+    for (int i = 0; i < w->npng; i++) {
         struct log_evidence *v = &r->ev[r->nevidence++];
-        snprintf(v->kind, sizeof v->kind, "%s", kinds[i]);
-        snprintf(v->name, sizeof v->name, "%.10s/%08" PRId64 "-%s.png", r->utc, r->seq, kinds[i]);
-        sha256_hex_buffer(w->png[i], w->png_len[i], v->sha256);
+        snprintf(v->kind, sizeof v->kind, "%s", ev_kinds[i]);
+        snprintf(v->name, sizeof v->name, "%.10s/%08" PRId64 "-%s.png", r->utc, r->seq,
+                 ev_kinds[i]);
+        memcpy(v->sha256, w->sha256[i], SHA256_HEX_LEN);
         v->bytes = (int64_t)w->png_len[i];
+        need += v->bytes;
     }
     int rc = make_room(db, need, r->utc, w, e);
     for (int i = 0; !rc && i < r->nevidence; i++) {
@@ -538,17 +583,21 @@ int log_append(struct log_db *db, const struct log_entry *en, int64_t *seq, stru
     memset(&r, 0, sizeof r);
     struct append_work w = {0};
     int rc = fill_entry(en, &r, e);
-    if (rc)
+    if (!rc && en->frame)
+        rc = encode_evidence(db, en, &w, e);
+    if (!rc)
+        rc = step_done(db, db->st[S_BEGIN], e, "cannot lock the log");
+    if (rc) {
+        for (int i = 0; i < LOG_MAX_EVIDENCE; i++)
+            free(w.png[i]);
         return rc;
-    rc = step_done(db, db->st[S_BEGIN], e, "cannot lock the log");
-    if (rc)
-        return rc;
+    }
     int64_t last = 0;
     rc = chain_tail(db, S_LAST, &last, r.prev_hash, e);
     r.seq = last + 1;
     utc_now(r.utc);
     if (!rc && en->frame)
-        rc = write_evidence(db, en, &r, &w, e);
+        rc = write_evidence(db, &r, &w, e);
     if (!rc)
         rc = logcanon_record_hash(&r, r.hash, e);
     if (!rc)
@@ -674,7 +723,7 @@ static int read_record(struct log_db *db, sqlite3_stmt *s, struct log_record *r,
     col_copy(s, 7, r->recipe_sha256, sizeof r->recipe_sha256);
     col_copy(s, 8, r->model_sha256, sizeof r->model_sha256);
     col_copy(s, 9, r->scale_id, sizeof r->scale_id);
-    r->verdict = verdict_parse((const char *)sqlite3_column_text(s, 10));
+    r->verdict = log_verdict_parse((const char *)sqlite3_column_text(s, 10));
     r->reasons_json = col_dup(s, 11, &oom);
     r->regions_json = col_dup(s, 12, &oom);
     r->camera_json = col_dup(s, 13, &oom);

@@ -64,6 +64,9 @@ const char *log_disp_name(int disp);
 /* The enum for a name above, or -1. */
 int log_disp_parse(const char *name);
 
+/* "PASS", "FAIL", "NO_VERDICT" (judge_verdict_name) back to enum verdict, or -1. */
+int log_verdict_parse(const char *name);
+
 /* The system calls evidence writing uses; log_io_default() is the real one.
  * A fault shim replaces single entries (same contracts as POSIX). */
 struct log_io {

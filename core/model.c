@@ -33,6 +33,7 @@ int model_meta_from_recipe(const struct recipe *r, struct model_meta *m, struct 
 {
     memset(m, 0, sizeof *m);
     m->format = MODEL_META_FORMAT;
+    m->ref_sharpness = m->ref_part_area_mm2 = -1;
     snprintf(m->product, sizeof m->product, "%s", r->product);
     m->recipe_version = r->version;
     m->nclasses = r->nclasses;
@@ -56,13 +57,15 @@ int model_meta_save(const char *model_path, const struct model_meta *m, struct e
                             json_pack("{s:I,s:i}", "pixels", (json_int_t)m->samples[c], "images",
                                       m->images[c]));
     }
-    json_t *o = json_pack("{s:i,s:s,s:i,s:s,s:s,s:i,s:o,s:o,s:i,s:i,s:f,s:s}", "format",
+    json_t *o = json_pack("{s:i,s:s,s:i,s:s,s:s,s:i,s:o,s:o,s:i,s:i,s:f,s:s,s:{s:f,s:f,s:i}}",
+                          "format",
                           m->format, "product", m->product, "recipe_version", m->recipe_version,
                           "model_sha256", m->model_sha256, "features_sha256",
                           m->features_sha256, "features", m->nfeatures, "classes", classes,
                           "training_samples", samples, "best_round", m->best_round, "depth",
                           m->depth, "validation_mlogloss", m->val_mlogloss, "trained_utc",
-                          m->trained_utc);
+                          m->trained_utc, "references", "sharpness", m->ref_sharpness,
+                          "part_area_mm2", m->ref_part_area_mm2, "frames", m->ref_frames);
     if (!o)
         return err_set(e, ST_ENOMEM, "%s: cannot build metadata", path);
     if (json_dump_file(o, path, JSON_INDENT(2) | JSON_SORT_KEYS) != 0)
@@ -134,6 +137,15 @@ int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
     m->best_round = (int)json_integer_value(json_object_get(o, "best_round"));
     m->depth = (int)json_integer_value(json_object_get(o, "depth"));
     m->val_mlogloss = json_number_value(json_object_get(o, "validation_mlogloss"));
+    json_t *refs = json_object_get(o, "references");
+    m->ref_sharpness = refs ? json_number_value(json_object_get(refs, "sharpness")) : -1;
+    m->ref_part_area_mm2 = refs ? json_number_value(json_object_get(refs, "part_area_mm2")) : -1;
+    m->ref_frames = refs ? (int)json_integer_value(json_object_get(refs, "frames")) : 0;
+    if (m->format >= 2 && (!json_is_number(json_object_get(refs, "sharpness")) ||
+                           !json_is_number(json_object_get(refs, "part_area_mm2")))) {
+        rc = err_set(e, ST_EFORMAT, "%s: 'references' missing or not numbers", path);
+        goto done;
+    }
 done:
     json_decref(o);
     return rc;

@@ -4,7 +4,8 @@
  * XGBoost's own file holds only trees; MODEL.meta.json (format 1, JSON)
  * records what the trees mean: the product, the class names in order, the
  * feature names in order, the model file's SHA-256, the training sample
- * counts and the validation result.  model_check refuses a model whose file
+ * counts, the validation result and the image references the gates use
+ * (sharpness and part area over the training frames).  model_check refuses a model whose file
  * changed since training (hash), whose classes or features differ from the
  * recipe's, or that was trained for another product — each with a one-line
  * reason naming the file. */
@@ -16,7 +17,7 @@
 #include "recipe.h"
 #include "sha256.h"
 
-#define MODEL_META_FORMAT 1
+#define MODEL_META_FORMAT 2  /* 2 added the references; 1 still loads, without them */
 
 struct model_meta {
     int format;
@@ -33,6 +34,11 @@ struct model_meta {
     int depth;
     double val_mlogloss;
     char trained_utc[32];
+    /* medians over training frames (what a good frame of the product looks
+     * like, for the gates); -1 when unknown */
+    double ref_sharpness;
+    double ref_part_area_mm2;
+    int ref_frames;
 };
 
 /* MODEL_PATH.meta.json into buf. */

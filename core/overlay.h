@@ -2,12 +2,15 @@
  * evaluation sheets and (later) evidence images.
  *
  * Class colours come from the recipe; unlabelled truth (255) shows as mid
- * grey.  Every function returns a new image the caller frees. */
+ * grey.  Every function returns a new image the caller frees; none keeps
+ * state or touches its inputs. */
 #ifndef ST_OVERLAY_H
 #define ST_OVERLAY_H
 
 #include "image.h"
+#include "judge.h"
 #include "recipe.h"
+#include "regions.h"
 
 /* Each pixel painted in its class colour. */
 struct image *overlay_colourise(const struct image *classes, const struct recipe *r,
@@ -20,5 +23,36 @@ struct image *overlay_blend(const struct image *frame, const struct image *class
 
 /* Images of equal height side by side, with a 4-pixel white gap. */
 struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e);
+
+/* The inspection picture: a verdict banner above the frame, so the banner
+ * never hides the part.  The banner's colour tells the verdict (PASS green
+ * OVERLAY_PASS_RGB, FAIL red, NO VERDICT amber); its lines are the verdict,
+ * the first reason in words (judge_describe_reason, "+N more" when there
+ * are more) and a short caution; text is white (OVERLAY_TEXT_RGB), at a
+ * scale that grows with the frame width (overlay_text_scale).  Below it
+ * the frame: defect classes tinted at OVERLAY_TINT, then the outline of
+ * every zone in zones (1 px, OVERLAY_ZONE_RGB: zone pixels with a
+ * 4-neighbour in another zone or none), then every region's outline in its
+ * class colour (region pixels with a 4-neighbour outside the region, from
+ * rs->labels — find_boundaries(mode="inner") in scikit-image's terms), and
+ * the id of every region that counts under its tolerance, in its class
+ * colour on a dark box beside its bounding box.  zones may be NULL (no
+ * zone outlines); j NULL draws no banner.  Labels outside 0..rs->n-1 are
+ * taken as no region. */
+#define OVERLAY_TINT 0.35
+#define OVERLAY_PASS_RGB {30, 110, 50}
+#define OVERLAY_FAIL_RGB {170, 30, 30}
+#define OVERLAY_NONE_RGB {160, 110, 0}
+#define OVERLAY_TEXT_RGB {255, 255, 255}
+#define OVERLAY_ZONE_RGB {0, 220, 220}
+#define OVERLAY_CAUTION "aid only – not a substitute for qualified inspection"
+
+struct image *overlay_inspection(const struct image *frame, const struct image *classes,
+                                 const struct region_set *rs, const struct image *zones,
+                                 const struct recipe *r, const struct judgement *j,
+                                 struct err *e);
+
+/* Font scale of the inspection picture's text for a frame w pixels wide. */
+int overlay_text_scale(int w);
 
 #endif

@@ -11,7 +11,7 @@
 #include <ini.h>
 
 enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
-                SEC_GATES, SEC_EVIDENCE, SEC_KINDS };
+                SEC_GATES, SEC_PART, SEC_ZONE, SEC_EVIDENCE, SEC_KINDS };
 
 enum val_type {
     V_FORMAT,   /* int >= 1, refused when newer than RECIPE_FORMAT */
@@ -23,7 +23,13 @@ enum val_type {
     V_COLOUR,   /* uint8_t[3] from #rrggbb */
     V_REALS,    /* double[maxn] increasing, count at count_off */
     V_FAMILIES, /* unsigned OR of enum feat_family */
-    V_MODEL,    /* char[PATH_MAX], resolved against the recipe's folder */
+    V_MODEL,    /* char[PATH_MAX] ending in .json or .ubj, resolved against the recipe's folder */
+    V_MASK,     /* char[PATH_MAX] ending in .png, resolved likewise */
+    V_PAIR,     /* double[2], each in [lo, hi] (or (lo, hi]) */
+    V_POINTS,   /* double[maxn][2] polygon vertices, count at count_off */
+    V_GRADE,    /* "N x A": int N >= 1 at off, double A > 0 at count_off */
+    V_FIELD,    /* int[4] x0 y0 x1 y1, x0 < x1, y0 < y1 */
+    V_WORD,     /* int index into the section's word list (see word_lists) */
     V_PASS      /* enum recipe_pass_evidence at off, N of "every N" at count_off */
 };
 
@@ -33,8 +39,8 @@ enum {
     K_NONE = 1u << 2      /* accepts "none", stored as -1 */
 };
 
-#define MAX_KEYS 10
-#define MAX_SECTIONS (6 + 2 * RECIPE_MAX_CLASSES)
+#define MAX_KEYS 12
+#define MAX_SECTIONS (8 + (2 + ZONE_MAX) * RECIPE_MAX_CLASSES + ZONE_MAX)
 #define NAME_MAX_LEN ((int)sizeof(((struct recipe_class *)0)->name) - 1)
 
 struct key_def {
@@ -45,73 +51,135 @@ struct key_def {
     double lo, hi;
     int maxn;         /* V_REALS: most values; V_ID, V_TEXT: buffer size */
     unsigned flags;
+    const char *const *words; /* V_WORD: the accepted words, NULL-terminated */
 };
+
+static const char *const orient_words[] = {"fixed", "moments", NULL};
+static const char *const shape_words[] = {"rect", "circle", "ring", "polygon", "mask", NULL};
 
 #define R(f) offsetof(struct recipe, f)
 #define CLS(f) offsetof(struct recipe_class, f)
 #define FEAT(f) offsetof(struct feat_spec, f)
 #define TOL(f) offsetof(struct recipe_tolerance, f)
 #define GATE(f) offsetof(struct recipe_gates, f)
+#define PART(f) offsetof(struct recipe_part, f)
+#define ZONE(f) offsetof(struct zone, f)
 
 static const struct key_def product_keys[] = {
-    {"format", V_FORMAT, R(format), 0, 1, INT_MAX, 0, 0},
-    {"id", V_ID, R(product), 0, 0, 0, sizeof(((struct recipe *)0)->product), 0},
-    {"version", V_INT, R(version), 0, 1, INT_MAX, 0, 0},
+    {"format", V_FORMAT, R(format), 0, 1, INT_MAX, 0, 0, NULL},
+    {"id", V_ID, R(product), 0, 0, 0, sizeof(((struct recipe *)0)->product), 0, NULL},
+    {"version", V_INT, R(version), 0, 1, INT_MAX, 0, 0, NULL},
     {"description", V_TEXT, R(description), 0, 0, 0, sizeof(((struct recipe *)0)->description),
-     K_OPTIONAL},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+     K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def class_keys[] = {
-    {"defect", V_YESNO, CLS(is_defect), 0, 0, 0, 0, 0},
-    {"colour", V_COLOUR, CLS(rgb), 0, 0, 0, 0, 0},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+    {"defect", V_YESNO, CLS(is_defect), 0, 0, 0, 0, 0, NULL},
+    {"colour", V_COLOUR, CLS(rgb), 0, 0, 0, 0, 0, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def features_keys[] = {
-    {"families", V_FAMILIES, FEAT(families), 0, 0, 0, 0, 0},
-    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, 0},
+    {"families", V_FAMILIES, FEAT(families), 0, 0, 0, 0, 0, NULL},
+    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, 0, NULL},
     {"gabor_orientations", V_INT, FEAT(gabor_orientations), 0, 1, FEAT_MAX_ORIENT, 0,
-     K_OPTIONAL},
+     K_OPTIONAL, NULL},
     /* required only with family gabor: checked after parsing */
     {"gabor_frequencies", V_REALS, FEAT(gabor_freqs), FEAT(ngabor_freqs), 0, 0.5,
-     FEAT_MAX_GABOR_FREQS, K_OPTIONAL | K_LO_OPEN},
-    {"normalise", V_YESNO, FEAT(normalise), 0, 0, 0, 0, K_OPTIONAL},
-    {"threads", V_INT, FEAT(threads), 0, 1, 64, 0, K_OPTIONAL},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+     FEAT_MAX_GABOR_FREQS, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"normalise", V_YESNO, FEAT(normalise), 0, 0, 0, 0, K_OPTIONAL, NULL},
+    {"threads", V_INT, FEAT(threads), 0, 1, 64, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def classifier_keys[] = {
-    {"model", V_MODEL, R(model_path), 0, 0, 0, 0, 0},
-    {"rounds", V_INT, R(train.rounds), 0, 1, 5000, 0, 0},
-    {"depth", V_INT, R(train.depth), 0, 1, 16, 0, 0},
-    {"learning_rate", V_REAL, R(train.eta), 0, 0, 1, 0, K_LO_OPEN},
-    {"seed", V_INT, R(train.seed), 0, 0, INT_MAX, 0, 0},
-    {"threads", V_INT, R(train.threads), 0, 1, 64, 0, 0},
-    {"early_stop", V_INT, R(train.early_stop), 0, 0, 1000, 0, 0},
-    {"samples_per_class", V_INT, R(samples_per_class), 0, 1, 1000000, 0, 0},
-    {"validation_fraction", V_REAL, R(validation_fraction), 0, 0, 0.5, 0, K_LO_OPEN},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+    {"model", V_MODEL, R(model_path), 0, 0, 0, 0, 0, NULL},
+    {"rounds", V_INT, R(train.rounds), 0, 1, 5000, 0, 0, NULL},
+    {"depth", V_INT, R(train.depth), 0, 1, 16, 0, 0, NULL},
+    {"learning_rate", V_REAL, R(train.eta), 0, 0, 1, 0, K_LO_OPEN, NULL},
+    {"seed", V_INT, R(train.seed), 0, 0, INT_MAX, 0, 0, NULL},
+    {"threads", V_INT, R(train.threads), 0, 1, 64, 0, 0, NULL},
+    {"early_stop", V_INT, R(train.early_stop), 0, 0, 1000, 0, 0, NULL},
+    {"samples_per_class", V_INT, R(samples_per_class), 0, 1, 1000000, 0, 0, NULL},
+    {"validation_fraction", V_REAL, R(validation_fraction), 0, 0, 0.5, 0, K_LO_OPEN, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def scale_keys[] = {
-    {"mm_per_px_x", V_REAL, R(mm_per_px_x), 0, 0, 100, 0, K_LO_OPEN},
-    {"mm_per_px_y", V_REAL, R(mm_per_px_y), 0, 0, 100, 0, K_LO_OPEN},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+    {"mm_per_px_x", V_REAL, R(mm_per_px_x), 0, 0, 100, 0, K_LO_OPEN, NULL},
+    {"mm_per_px_y", V_REAL, R(mm_per_px_y), 0, 0, 100, 0, K_LO_OPEN, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+/* A tolerance section parses into a struct tol_slot: the limits, and the
+ * class-level merge gap (refused in a zone's section). */
+struct tol_slot {
+    struct recipe_tolerance t;
+    double merge_gap_mm;
+};
+#define SLOT(f) offsetof(struct tol_slot, f)
 
 static const struct key_def tolerance_keys[] = {
-    {"min_area_mm2", V_REAL, TOL(min_area_mm2), 0, 0, INFINITY, 0, K_NONE},
-    {"max_area_mm2", V_REAL, TOL(max_area_mm2), 0, 0, INFINITY, 0, K_NONE | K_LO_OPEN},
-    {"max_total_mm2", V_REAL, TOL(max_total_mm2), 0, 0, INFINITY, 0, K_NONE | K_LO_OPEN},
-    {"max_count", V_INT, TOL(max_count), 0, 0, INT_MAX, 0, K_NONE},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+    {"min_area_mm2", V_REAL, TOL(min_area_mm2), 0, 0, INFINITY, 0, K_NONE, NULL},
+    {"max_area_mm2", V_REAL, TOL(max_area_mm2), 0, 0, INFINITY, 0, K_NONE | K_LO_OPEN, NULL},
+    {"max_total_mm2", V_REAL, TOL(max_total_mm2), 0, 0, INFINITY, 0, K_NONE | K_LO_OPEN, NULL},
+    {"max_count", V_INT, TOL(max_count), 0, 0, INT_MAX, 0, K_NONE, NULL},
+    {"max_length_mm", V_REAL, TOL(max_length_mm), 0, 0, INFINITY, 0,
+     K_OPTIONAL | K_NONE | K_LO_OPEN, NULL},
+    {"grade", V_GRADE, TOL(grade_n), TOL(grade_a_mm), 0, 0, 0, K_OPTIONAL | K_NONE, NULL},
+    {"merge_gap_mm", V_REAL, SLOT(merge_gap_mm), 0, 0, 100, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+#define TOL_MERGE_KEY 6
 
 static const struct key_def gates_keys[] = {
-    {"min_level", V_REAL, GATE(min_level), 0, 0, 255, 0, K_OPTIONAL},
-    {"max_saturated", V_REAL, GATE(max_saturated), 0, 0, 1, 0, K_OPTIONAL},
-    {"min_part_fraction", V_REAL, GATE(min_part_fraction), 0, 0, 1, 0, K_OPTIONAL},
-    {"min_sharpness", V_REAL, GATE(min_sharpness), 0, 0, INFINITY, 0, K_OPTIONAL},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+    {"min_level", V_REAL, GATE(min_level), 0, 0, 255, 0, K_OPTIONAL, NULL},
+    {"max_level", V_REAL, GATE(max_level), 0, 0, 255, 0, K_OPTIONAL, NULL},
+    {"max_saturated", V_REAL, GATE(max_saturated), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"black_level", V_REAL, GATE(black_level), 0, 0, 255, 0, K_OPTIONAL, NULL},
+    {"max_black", V_REAL, GATE(max_black), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"min_part_fraction", V_REAL, GATE(min_part_fraction), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"max_part_fraction", V_REAL, GATE(max_part_fraction), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"sharpness_reference", V_REAL, GATE(sharpness_reference), 0, 0, INFINITY, 0,
+     K_OPTIONAL | K_LO_OPEN, NULL},
+    {"min_sharpness_ratio", V_REAL, GATE(min_sharpness_ratio), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"low_confidence", V_REAL, GATE(low_confidence), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"max_low_confidence", V_REAL, GATE(max_low_confidence), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"min_frame_change", V_REAL, GATE(min_frame_change), 0, 0, 255, 0, K_OPTIONAL | K_NONE, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+static const struct key_def part_keys[] = {
+    {"orientation", V_WORD, PART(orient), 0, 0, 0, 0, K_OPTIONAL, orient_words},
+    {"area_mm2", V_REAL, PART(area_mm2), 0, 0, INFINITY, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"area_tolerance", V_REAL, PART(area_tolerance), 0, 0, 1, 0, K_OPTIONAL | K_NONE | K_LO_OPEN, NULL},
+    {"border_margin_px", V_INT, PART(border_margin_px), 0, 0, 1000, 0, K_OPTIONAL, NULL},
+    {"field", V_FIELD, PART(field), 0, 0, 100000, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+/* Keys of [zone NAME]; which apply depends on the shape (zone_shape_keys). */
+static const struct key_def zone_keys[] = {
+    {"shape", V_WORD, ZONE(shape), 0, 0, 0, 0, 0, shape_words},
+    {"centre", V_PAIR, ZONE(cx), 0, -10000, 10000, 0, K_OPTIONAL, NULL},
+    {"size", V_PAIR, ZONE(w), 0, 0, 10000, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"angle", V_REAL, ZONE(angle_deg), 0, -360, 360, 0, K_OPTIONAL, NULL},
+    {"radius", V_REAL, ZONE(r_out), 0, 0, 10000, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"radii", V_PAIR, ZONE(r_in), 0, 0, 10000, 0, K_OPTIONAL, NULL},
+    {"points", V_POINTS, ZONE(pts), ZONE(npoints), -10000, 10000, ZONE_MAX_POINTS, K_OPTIONAL, NULL},
+    {"mask", V_MASK, ZONE(mask_path), 0, 0, 0, 0, K_OPTIONAL, NULL},
+    {"mask_mm_per_px", V_REAL, ZONE(mask_mm_per_px), 0, 0, 100, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+/* Per shape (enum zone_shape order), the zone keys it needs besides shape
+ * (and may take: centre always, angle for rect and mask). */
+static const struct {
+    const char *word;
+    const char *needs[3];
+    int angled;
+} zone_shape_keys[] = {
+    {"rect", {"size"}, 1},          {"circle", {"radius"}, 0},
+    {"ring", {"radii"}, 0},         {"polygon", {"points"}, 0},
+    {"mask", {"mask", "mask_mm_per_px"}, 1},
+};
+#define NSHAPES ((int)(sizeof zone_shape_keys / sizeof zone_shape_keys[0]))
 
 static const struct key_def evidence_keys[] = {
-    {"pass", V_PASS, R(evidence_pass), R(evidence_every), 1, INT_MAX, 0, K_OPTIONAL},
-    {NULL, 0, 0, 0, 0, 0, 0, 0}};
+    {"pass", V_PASS, R(evidence_pass), R(evidence_every), 1, INT_MAX, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct sec_def {
     const char *word;
@@ -126,6 +194,8 @@ static const struct sec_def {
     [SEC_SCALE] = {"scale", 0, 1, scale_keys},
     [SEC_TOLERANCE] = {"tolerance", 1, 0, tolerance_keys},
     [SEC_GATES] = {"gates", 0, 0, gates_keys},
+    [SEC_PART] = {"part", 0, 0, part_keys},
+    [SEC_ZONE] = {"zone", 1, 0, zone_keys},
     [SEC_EVIDENCE] = {"evidence", 0, 0, evidence_keys},
 };
 
@@ -137,7 +207,8 @@ static const char *const family_names[] = {"colour",    "gauss",    "gradient", 
 struct section {
     enum sec_kind kind;
     char name[32];
-    char title[48];         /* "class scratch", for messages */
+    char zone[32];          /* [tolerance CLASS in ZONE]: ZONE, else empty */
+    char title[80];         /* "class scratch", for messages */
     int line;               /* of the header */
     int key_line[MAX_KEYS]; /* where each key was set, 0 = not set */
     int index;              /* class index, or slot in tolv */
@@ -153,7 +224,7 @@ struct parse {
     int fail_code;
     struct err *e;
     struct recipe r;
-    struct recipe_tolerance tolv[RECIPE_MAX_CLASSES];
+    struct tol_slot tolv[(1 + ZONE_MAX) * RECIPE_MAX_CLASSES];
     int ntol;
     struct section sec[MAX_SECTIONS];
     int nsec;
@@ -271,36 +342,6 @@ static int out_of_range(struct parse *p, const struct key_def *k, const char *va
                    range, (k->flags & K_NONE) ? " or none" : "");
 }
 
-static int store_reals(struct parse *p, const struct key_def *k, char *base, const char *value)
-{
-    double *dst = (double *)(base + k->off);
-    int n = 0;
-    char word[64];
-    int got;
-    while ((got = next_word(&value, word, sizeof word)) != 0) {
-        double v;
-        if (got < 0 || parse_double(word, &v))
-            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not a number", k->name,
-                           got < 0 ? "(overlong word)" : word);
-        if (n == k->maxn)
-            return fail_at(p, p->line, ST_ERANGE, "%s: more than %d values", k->name, k->maxn);
-        if (!in_range(k, v)) {
-            char range[48];
-            range_text(k, range, sizeof range);
-            return fail_at(p, p->line, ST_ERANGE, "%s: %s is out of range; allowed: %s", k->name,
-                           word, range);
-        }
-        /* equal values would give features with the same name */
-        if (n > 0 && v <= dst[n - 1])
-            return fail_at(p, p->line, ST_EFORMAT, "%s: values must increase", k->name);
-        dst[n++] = v;
-    }
-    if (n == 0)
-        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one value", k->name);
-    *(int *)(base + k->count_off) = n;
-    return ST_OK;
-}
-
 static int store_families(struct parse *p, const struct key_def *k, char *base, const char *value)
 {
     unsigned fam = 0;
@@ -358,17 +399,137 @@ static int ends_with(const char *s, const char *suffix)
     return n > m && !strcmp(s + n - m, suffix);
 }
 
-static int store_model(struct parse *p, const struct key_def *k, char *base, const char *value)
+static int store_path(struct parse *p, const struct key_def *k, char *base, const char *value)
 {
     char *dst = base + k->off;
-    if (!ends_with(value, ".json") && !ends_with(value, ".ubj"))
+    if (k->type == V_MODEL && !ends_with(value, ".json") && !ends_with(value, ".ubj"))
         return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .json or .ubj", k->name,
                        value);
+    if (k->type == V_MASK && !ends_with(value, ".png"))
+        return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .png", k->name, value);
     int n = value[0] == '/' ? snprintf(dst, PATH_MAX, "%s", value)
                             : snprintf(dst, PATH_MAX, "%s/%s", p->r.dir, value);
     if (n < 0 || n >= PATH_MAX)
         return fail_at(p, p->line, ST_ERANGE, "%s: path too long", k->name);
     return ST_OK;
+}
+
+/* Up to max numbers of value into out, each in k's range; *n gets the count. */
+static int parse_numbers(struct parse *p, const struct key_def *k, const char *value, double *out,
+                         int max, int *n)
+{
+    char word[64];
+    int got;
+    *n = 0;
+    while ((got = next_word(&value, word, sizeof word)) != 0) {
+        double v;
+        if (got < 0 || parse_double(word, &v))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not a number", k->name,
+                           got < 0 ? "(overlong word)" : word);
+        if (*n == max)
+            return fail_at(p, p->line, ST_ERANGE, "%s: more than %d values", k->name, max);
+        if (!in_range(k, v)) {
+            char range[48];
+            range_text(k, range, sizeof range);
+            return fail_at(p, p->line, ST_ERANGE, "%s: %s is out of range; allowed: %s", k->name,
+                           word, range);
+        }
+        out[(*n)++] = v;
+    }
+    return ST_OK;
+}
+
+static int store_reals(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    double *dst = (double *)(base + k->off);
+    int n, rc = parse_numbers(p, k, value, dst, k->maxn, &n);
+    if (rc)
+        return rc;
+    if (n == 0)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one value", k->name);
+    /* equal values would give features with the same name */
+    for (int i = 1; i < n; i++)
+        if (dst[i] <= dst[i - 1])
+            return fail_at(p, p->line, ST_EFORMAT, "%s: values must increase", k->name);
+    *(int *)(base + k->count_off) = n;
+    return ST_OK;
+}
+
+static int store_pair(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    double v[2];
+    int n, rc = parse_numbers(p, k, value, v, 2, &n);
+    if (rc)
+        return rc;
+    if (n != 2)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs two numbers", k->name);
+    memcpy(base + k->off, v, sizeof v);
+    return ST_OK;
+}
+
+static int store_points(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    double v[2 * ZONE_MAX_POINTS];
+    int n, rc = parse_numbers(p, k, value, v, 2 * k->maxn, &n);
+    if (rc)
+        return rc;
+    if (n % 2 || n < 6)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs 3..%d points as x y pairs (mm)",
+                       k->name, k->maxn);
+    memcpy(base + k->off, v, (size_t)n * sizeof v[0]);
+    *(int *)(base + k->count_off) = n / 2;
+    return ST_OK;
+}
+
+/* ISO 10110-7 writes a limit for localised imperfections as N x A. */
+static int store_grade(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    char nw[32], xw[8], aw[32], extra[8];
+    const char *cur = value;
+    long n;
+    double a;
+    if (next_word(&cur, nw, sizeof nw) <= 0 || next_word(&cur, xw, sizeof xw) <= 0 ||
+        next_word(&cur, aw, sizeof aw) <= 0 || next_word(&cur, extra, sizeof extra) != 0 ||
+        strcmp(xw, "x") || parse_long(nw, &n) || parse_double(aw, &a))
+        return fail_at(p, p->line, ST_EFORMAT,
+                       "%s: '%s' is not N x A (ISO 10110-7, e.g. 3 x 0.4)", k->name, value);
+    if (n < 1 || n > 10000 || a <= 0 || a > 100)
+        return fail_at(p, p->line, ST_ERANGE, "%s: '%s' needs N in 1..10000 and A in (0, 100] mm",
+                       k->name, value);
+    *(int *)(base + k->off) = (int)n;
+    *(double *)(base + k->count_off) = a;
+    return ST_OK;
+}
+
+static int store_field(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    double v[4];
+    int n, rc = parse_numbers(p, k, value, v, 4, &n);
+    if (rc)
+        return rc;
+    int *f = (int *)(base + k->off);
+    for (int i = 0; i < n; i++)
+        f[i] = (int)v[i];
+    if (n != 4 || v[0] != f[0] || v[1] != f[1] || v[2] != f[2] || v[3] != f[3] || f[0] >= f[2] ||
+        f[1] >= f[3])
+        return fail_at(p, p->line, ST_EFORMAT,
+                       "%s: needs four whole pixel numbers x0 y0 x1 y1 with x0 < x1, y0 < y1",
+                       k->name);
+    return ST_OK;
+}
+
+static int store_word(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    char list[80] = "";
+    for (int i = 0; k->words[i]; i++) {
+        if (!strcmp(value, k->words[i])) {
+            *(int *)(base + k->off) = i;
+            return ST_OK;
+        }
+        snprintf(list + strlen(list), sizeof list - strlen(list), "%s%s", i ? " " : "",
+                 k->words[i]);
+    }
+    return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not one of: %s", k->name, value, list);
 }
 
 /* "none", "all" or "every N". */
@@ -446,18 +607,35 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
         return store_reals(p, k, base, value);
     case V_FAMILIES:
         return store_families(p, k, base, value);
+    case V_GRADE:
+        if (is_none) {
+            *(int *)(base + k->off) = -1;
+            return ST_OK;
+        }
+        return store_grade(p, k, base, value);
+    case V_PAIR:
+        return store_pair(p, k, base, value);
+    case V_POINTS:
+        return store_points(p, k, base, value);
+    case V_FIELD:
+        return store_field(p, k, base, value);
+    case V_WORD:
+        return store_word(p, k, base, value);
     case V_PASS:
         return store_pass(p, k, base, value);
     case V_MODEL:
+    case V_MASK:
         break;
     }
-    return store_model(p, k, base, value);
+    return store_path(p, k, base, value);
 }
 
-static struct section *find_section(struct parse *p, enum sec_kind kind, const char *name)
+static struct section *find_section(struct parse *p, enum sec_kind kind, const char *name,
+                                     const char *zone)
 {
     for (int i = 0; i < p->nsec; i++)
-        if (p->sec[i].kind == kind && !strcmp(p->sec[i].name, name))
+        if (p->sec[i].kind == kind && !strcmp(p->sec[i].name, name) &&
+            !strcmp(p->sec[i].zone, zone))
             return &p->sec[i];
     return NULL;
 }
@@ -473,6 +651,10 @@ static void *section_base(struct parse *p, struct section *s)
         return &p->tolv[s->index];
     case SEC_GATES:
         return &p->r.gates;
+    case SEC_PART:
+        return &p->r.part;
+    case SEC_ZONE:
+        return &p->r.zones[s->index];
     default:
         return &p->r;
     }
@@ -500,7 +682,7 @@ static int begin_section(struct parse *p, char *line)
     memcpy(inner, in, len);
     inner[len] = '\0';
 
-    char word[16], name[32], extra[8];
+    char word[16], name[32], extra[8], zone[32] = "";
     const char *cur = inner;
     int gw = next_word(&cur, word, sizeof word);
     int gn = next_word(&cur, name, sizeof name);
@@ -508,6 +690,15 @@ static int begin_section(struct parse *p, char *line)
     int kind = 0;
     while (gw > 0 && kind < SEC_KINDS && strcmp(word, sections[kind].word))
         kind++;
+    if (kind == SEC_TOLERANCE && gx > 0 && !strcmp(extra, "in")) {
+        int gz = next_word(&cur, zone, sizeof zone);
+        if (gz <= 0 || !valid_name(zone, (size_t)NAME_MAX_LEN, 0) || next_word(&cur, extra, 2))
+            return fail_at(p, p->line, ST_EFORMAT,
+                           "expected [tolerance CLASS in ZONE] with a zone name of 1..%d of "
+                           "a-z 0-9 _ -",
+                           NAME_MAX_LEN);
+        gx = 0;
+    }
     if (gw <= 0 || kind == SEC_KINDS || gx != 0)
         return fail_at(p, p->line, ST_EFORMAT, "unknown section [%s]", inner);
     const struct sec_def *d = &sections[kind];
@@ -522,7 +713,7 @@ static int begin_section(struct parse *p, char *line)
     if (!d->named)
         name[0] = '\0';
 
-    const struct section *dup = find_section(p, (enum sec_kind)kind, name);
+    const struct section *dup = find_section(p, (enum sec_kind)kind, name, zone);
     if (dup && kind == SEC_CLASS)
         return fail_at(p, p->line, ST_EFORMAT, "duplicate class '%s' (first on line %d)", name,
                        dup->line);
@@ -535,17 +726,27 @@ static int begin_section(struct parse *p, char *line)
     s->kind = (enum sec_kind)kind;
     s->line = p->line;
     snprintf(s->name, sizeof s->name, "%s", name);
-    snprintf(s->title, sizeof s->title, "%s%s%s", word, d->named ? " " : "", name);
+    snprintf(s->zone, sizeof s->zone, "%s", zone);
+    snprintf(s->title, sizeof s->title, "%s%s%s%s%s", word, d->named ? " " : "", name,
+             *zone ? " in " : "", zone);
     if (kind == SEC_CLASS) {
         if (p->r.nclasses == RECIPE_MAX_CLASSES)
             return fail_at(p, p->line, ST_ERANGE, "more than %d classes", RECIPE_MAX_CLASSES);
         s->index = p->r.nclasses++;
         snprintf(p->r.cls[s->index].name, sizeof p->r.cls[s->index].name, "%s", name);
     } else if (kind == SEC_TOLERANCE) {
-        if (p->ntol == RECIPE_MAX_CLASSES)
-            return fail_at(p, p->line, ST_ERANGE, "more than %d tolerance sections",
-                           RECIPE_MAX_CLASSES);
+        int most = (int)(sizeof p->tolv / sizeof p->tolv[0]);
+        if (p->ntol == most)
+            return fail_at(p, p->line, ST_ERANGE, "more than %d tolerance sections", most);
         s->index = p->ntol++;
+        /* a zone's section starts from "no limit"; check_tolerances fills
+         * the keys it leaves out from the class's section */
+        p->tolv[s->index].t = (struct recipe_tolerance){-1, -1, -1, -1, -1, -1, -1};
+    } else if (kind == SEC_ZONE) {
+        if (p->r.nzones == ZONE_MAX)
+            return fail_at(p, p->line, ST_ERANGE, "more than %d zones", ZONE_MAX);
+        s->index = p->r.nzones++;
+        snprintf(p->r.zones[s->index].name, sizeof p->r.zones[s->index].name, "%s", name);
     }
     s->base = section_base(p, s);
     p->nsec++;
@@ -643,7 +844,9 @@ static int check_sections(struct parse *p)
     for (int i = 0; i < p->nsec; i++) {
         const struct section *s = &p->sec[i];
         const struct key_def *keys = sections[s->kind].keys;
-        for (int k = 0; keys[k].name; k++)
+        /* a zone's tolerance inherits what it leaves out */
+        int inherits = s->kind == SEC_TOLERANCE && *s->zone;
+        for (int k = 0; keys[k].name && !inherits; k++)
             if (!(keys[k].flags & K_OPTIONAL) && !s->key_line[k])
                 return fail_at(p, s->line, ST_EFORMAT, "[%s] lacks key '%s'", s->title,
                                keys[k].name);
@@ -659,7 +862,7 @@ static int check_sections(struct parse *p)
 static int check_classes(struct parse *p)
 {
     const struct recipe *r = &p->r;
-    const struct section *first = find_section(p, SEC_CLASS, r->cls[0].name);
+    const struct section *first = find_section(p, SEC_CLASS, r->cls[0].name, "");
     if (r->cls[0].is_defect)
         return fail_at(p, first->key_line[key_index(SEC_CLASS, "defect")], ST_EFORMAT,
                        "class '%s' comes first, so it is the background and must have "
@@ -679,36 +882,137 @@ static int check_classes(struct parse *p)
     return ST_OK;
 }
 
+static int check_limits(struct parse *p, const struct section *s, const struct recipe_tolerance *t)
+{
+    if (t->min_area_mm2 >= 0 && t->max_area_mm2 >= 0 && t->min_area_mm2 > t->max_area_mm2) {
+        int line = s->key_line[key_index(SEC_TOLERANCE, "min_area_mm2")];
+        return fail_at(p, line ? line : s->line, ST_ERANGE,
+                       "[%s]: min_area_mm2 = %g exceeds max_area_mm2 = %g", s->title,
+                       t->min_area_mm2, t->max_area_mm2);
+    }
+    return ST_OK;
+}
+
+/* A zone's section: the keys it sets over the class's tolerance. */
+static void inherit_tolerance(const struct section *s, const struct recipe_tolerance *own,
+                              struct recipe_tolerance *out)
+{
+    for (int k = 0; tolerance_keys[k].name; k++) {
+        const struct key_def *kd = &tolerance_keys[k];
+        if (!s->key_line[k] || k == TOL_MERGE_KEY)
+            continue;
+        size_t n = kd->type == V_INT ? sizeof(int) : sizeof(double);
+        memcpy((char *)out + kd->off, (const char *)own + kd->off, n);
+        if (kd->type == V_GRADE)
+            memcpy((char *)out + kd->count_off, (const char *)own + kd->count_off,
+                   sizeof(double));
+    }
+}
+
+static int find_zone(const struct recipe *r, const char *name)
+{
+    for (int z = 0; z < r->nzones; z++)
+        if (!strcmp(r->zones[z].name, name))
+            return z;
+    return -1;
+}
+
 static int check_tolerances(struct parse *p)
 {
     struct recipe *r = &p->r;
     int have[RECIPE_MAX_CLASSES] = {0};
     for (int c = 0; c < r->nclasses; c++)
-        r->tol[c] = (struct recipe_tolerance){-1, -1, -1, -1};
+        r->tol[c] = (struct recipe_tolerance){-1, -1, -1, -1, -1, -1, -1};
+    /* the classes' own sections first: the zones' inherit from them */
+    for (int pass = 0; pass < 2; pass++) {
+        for (int i = 0; i < p->nsec; i++) {
+            const struct section *s = &p->sec[i];
+            if (s->kind != SEC_TOLERANCE || (pass == 0) != !*s->zone)
+                continue;
+            int c = recipe_find_class(r, s->name);
+            if (c < 0)
+                return fail_at(p, s->line, ST_EFORMAT, "[%s] names no class", s->title);
+            if (!r->cls[c].is_defect)
+                return fail_at(p, s->line, ST_EFORMAT,
+                               "class '%s' is not a defect (defect = no) and takes no tolerance",
+                               s->name);
+            const struct tol_slot *slot = &p->tolv[s->index];
+            if (pass == 0) {
+                if (check_limits(p, s, &slot->t))
+                    return p->fail_code;
+                r->tol[c] = slot->t;
+                r->merge_gap_mm[c] = slot->merge_gap_mm;
+                have[c] = 1;
+                continue;
+            }
+            int z = find_zone(r, s->zone);
+            if (z < 0)
+                return fail_at(p, s->line, ST_EFORMAT, "[%s] names no zone (no [zone %s])",
+                               s->title, s->zone);
+            if (s->key_line[TOL_MERGE_KEY])
+                return fail_at(p, s->key_line[TOL_MERGE_KEY], ST_EFORMAT,
+                               "merge_gap_mm belongs in [tolerance %s]: fragments merge the "
+                               "same way in every zone",
+                               s->name);
+            struct recipe_tolerance t = r->tol[c];
+            inherit_tolerance(s, &slot->t, &t);
+            if (check_limits(p, s, &t))
+                return p->fail_code;
+            r->ztol[z][c] = t;
+            r->ztol_set[z][c] = 1;
+        }
+        if (pass == 0)
+            for (int c = 0; c < r->nclasses; c++)
+                if (r->cls[c].is_defect && !have[c])
+                    return fail_at(p, find_section(p, SEC_CLASS, r->cls[c].name, "")->line,
+                                   ST_EFORMAT, "defect class '%s' has no [tolerance %s]",
+                                   r->cls[c].name, r->cls[c].name);
+    }
+    return ST_OK;
+}
+
+/* Each shape takes its own keys and no others. */
+static int check_zones(struct parse *p)
+{
     for (int i = 0; i < p->nsec; i++) {
         const struct section *s = &p->sec[i];
-        if (s->kind != SEC_TOLERANCE)
+        if (s->kind != SEC_ZONE)
             continue;
-        int c = recipe_find_class(r, s->name);
-        if (c < 0)
-            return fail_at(p, s->line, ST_EFORMAT, "[%s] names no class", s->title);
-        if (!r->cls[c].is_defect)
-            return fail_at(p, s->line, ST_EFORMAT,
-                           "class '%s' is not a defect (defect = no) and takes no tolerance",
-                           s->name);
-        const struct recipe_tolerance *t = &p->tolv[s->index];
-        if (t->min_area_mm2 >= 0 && t->max_area_mm2 >= 0 && t->min_area_mm2 > t->max_area_mm2)
-            return fail_at(p, s->key_line[key_index(SEC_TOLERANCE, "min_area_mm2")], ST_ERANGE,
-                           "min_area_mm2 = %g exceeds max_area_mm2 = %g", t->min_area_mm2,
-                           t->max_area_mm2);
-        r->tol[c] = *t;
-        have[c] = 1;
+        struct zone *z = &p->r.zones[s->index];
+        int sh = (int)z->shape;
+        for (int k = 0; zone_keys[k].name; k++) {
+            const char *name = zone_keys[k].name;
+            int needed = 0;
+            for (int n = 0; n < 3 && zone_shape_keys[sh].needs[n]; n++)
+                needed |= !strcmp(name, zone_shape_keys[sh].needs[n]);
+            int allowed = needed || !strcmp(name, "shape") || !strcmp(name, "centre") ||
+                          (!strcmp(name, "angle") && zone_shape_keys[sh].angled);
+            if (needed && !s->key_line[k])
+                return fail_at(p, s->line, ST_EFORMAT, "[%s] lacks key '%s' (shape %s)",
+                               s->title, name, zone_shape_keys[sh].word);
+            if (!allowed && s->key_line[k])
+                return fail_at(p, s->key_line[k], ST_EFORMAT,
+                               "key '%s' does not apply to shape %s", name,
+                               zone_shape_keys[sh].word);
+        }
+        if (z->shape == ZONE_RING && z->r_in >= z->r_out)
+            return fail_at(p, s->key_line[key_index(SEC_ZONE, "radii")], ST_ERANGE,
+                           "radii: inner %g must be below outer %g", z->r_in, z->r_out);
     }
-    for (int c = 0; c < r->nclasses; c++)
-        if (r->cls[c].is_defect && !have[c])
-            return fail_at(p, find_section(p, SEC_CLASS, r->cls[c].name)->line, ST_EFORMAT,
-                           "defect class '%s' has no [tolerance %s]", r->cls[c].name,
-                           r->cls[c].name);
+    return ST_OK;
+}
+
+static int check_gates(struct parse *p)
+{
+    const struct recipe_gates *g = &p->r.gates;
+    const struct section *s = find_section(p, SEC_GATES, "", "");
+    if (g->min_level >= g->max_level)
+        return fail_at(p, s ? s->line : 0, ST_ERANGE, "min_level %g must be below max_level %g",
+                       g->min_level, g->max_level);
+    if (g->min_part_fraction >= g->max_part_fraction)
+        return fail_at(p, s ? s->line : 0, ST_ERANGE,
+                       "min_part_fraction %g must be below max_part_fraction %g",
+                       g->min_part_fraction, g->max_part_fraction);
     return ST_OK;
 }
 
@@ -717,10 +1021,24 @@ static void set_defaults(struct recipe *r)
     r->feat.gabor_orientations = 4;
     r->feat.normalise = 1;
     r->feat.threads = 2;
+    /* defaults: common practice for an 8-bit camera, no source */
     r->gates.min_level = 40;
+    r->gates.max_level = 235;
     r->gates.max_saturated = 0.02;
+    r->gates.black_level = 8;
+    r->gates.max_black = 0.05;
     r->gates.min_part_fraction = 0.05;
-    r->gates.min_sharpness = 1.0;
+    r->gates.max_part_fraction = 0.9;
+    r->gates.sharpness_reference = -1;
+    r->gates.min_sharpness_ratio = 0.5;
+    r->gates.low_confidence = 0.5;
+    r->gates.max_low_confidence = 0.1;
+    r->gates.min_frame_change = 0;
+    r->part.orient = 0;
+    r->part.area_mm2 = -1;
+    r->part.area_tolerance = 0.25;
+    r->part.border_margin_px = 2;
+    r->part.field[0] = -1;
 }
 
 static int set_paths(struct parse *p, const char *path)
@@ -770,7 +1088,8 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
         goto fail;
     }
     if ((rc = check_sections(p)) != ST_OK || (rc = check_classes(p)) != ST_OK ||
-        (rc = check_tolerances(p)) != ST_OK)
+        (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
+        (rc = check_gates(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:
@@ -786,4 +1105,11 @@ int recipe_find_class(const struct recipe *r, const char *name)
         if (!strcmp(r->cls[c].name, name))
             return c;
     return -1;
+}
+
+const struct recipe_tolerance *recipe_tolerance_for(const struct recipe *r, int cls, int zone)
+{
+    if (zone >= 0 && zone < r->nzones && r->ztol_set[zone][cls])
+        return &r->ztol[zone][cls];
+    return &r->tol[cls];
 }

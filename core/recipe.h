@@ -20,6 +20,7 @@
 #include "booster.h"
 #include "err.h"
 #include "features.h"
+#include "zones.h"
 
 #define RECIPE_MAX_CLASSES 16
 #define RECIPE_FORMAT 1        /* the `format` key in [product]; newer is refused */
@@ -30,20 +31,41 @@ struct recipe_class {
     uint8_t rgb[3];            /* display colour, "#rrggbb" in the file */
 };
 
-/* Per defect class; a negative value means "no limit". */
+/* Per defect class, and per class inside a zone; a negative value means
+ * "no limit". */
 struct recipe_tolerance {
     double min_area_mm2;       /* regions smaller than this are not counted */
     double max_area_mm2;       /* largest single region allowed */
     double max_total_mm2;      /* sum over counted regions */
     int max_count;             /* number of counted regions */
+    double max_length_mm;      /* longest single region (maximum Feret diameter) */
+    int grade_n;               /* ISO 10110-7 "N x A": N imperfections ... */
+    double grade_a_mm;         /* ... of grade A (square root of the area, mm) */
+};
+
+/* Where and how big the part must be. */
+struct recipe_part {
+    int orient;                /* enum part_orient */
+    double area_mm2;           /* expected area; -1: the trained model's reference */
+    double area_tolerance;     /* allowed relative deviation from it */
+    int border_margin_px;      /* part closer to the frame edge than this = at border */
+    int field[4];              /* x0 y0 x1 y1 the part must lie within; x0 = -1: whole frame */
 };
 
 /* When an image cannot be trusted it gets NO VERDICT; these bound that. */
 struct recipe_gates {
-    double min_level;          /* part brightness level (0..255) below = too dark */
-    double max_saturated;      /* fraction of part pixels at 255 above = saturated */
+    double min_level;          /* mean grey of the part (0..255) below = too dark */
+    double max_level;          /* ... above = too bright */
+    double max_saturated;      /* fraction of part pixels with a channel at 255 */
+    double black_level;        /* grey at or below which a part pixel is black */
+    double max_black;          /* fraction of black part pixels */
     double min_part_fraction;  /* fraction of the frame the part covers below = no part */
-    double min_sharpness;      /* mean |Laplacian| over the part below = blurred */
+    double max_part_fraction;  /* ... above = no part either: nothing to find it against */
+    double sharpness_reference;/* sharpness of a good frame; -1: the model's reference */
+    double min_sharpness_ratio;/* sharpness below this share of the reference = blurred */
+    double low_confidence;     /* classifier confidence below which a pixel is unsure */
+    double max_low_confidence; /* fraction of unsure part pixels */
+    double min_frame_change;   /* mean |grey change| from the last frame at or below = frozen; -1 off */
 };
 
 /* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
@@ -66,6 +88,14 @@ struct recipe {
     double mm_per_px_x, mm_per_px_y;
     struct recipe_tolerance tol[RECIPE_MAX_CLASSES];
     struct recipe_gates gates;
+    double merge_gap_mm[RECIPE_MAX_CLASSES]; /* [tolerance NAME] merge_gap_mm */
+    struct recipe_part part;
+    int nzones;                /* [zone NAME] sections, in priority order */
+    struct zone zones[ZONE_MAX];
+    /* [tolerance CLASS in ZONE]: ztol_set[z][c] says whether zone z has its
+     * own tolerance for class c (keys it leaves out keep the class's) */
+    int ztol_set[ZONE_MAX][RECIPE_MAX_CLASSES];
+    struct recipe_tolerance ztol[ZONE_MAX][RECIPE_MAX_CLASSES];
     int evidence_pass;         /* enum recipe_pass_evidence, default none */
     int evidence_every;        /* N of "every N" */
 };
@@ -74,5 +104,9 @@ int recipe_load(const char *path, struct recipe *r, struct err *e);
 
 /* Index of the class with this name, or -1. */
 int recipe_find_class(const struct recipe *r, const char *name);
+
+/* The tolerance judging class cls in zone (-1: outside every zone): the
+ * zone's own where it has one, else the class's. */
+const struct recipe_tolerance *recipe_tolerance_for(const struct recipe *r, int cls, int zone);
 
 #endif

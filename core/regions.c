@@ -1,7 +1,35 @@
 #include "regions.h"
 
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
+
+#include "hull.h"
+
+#define NO_ZONE 255
+
+/* Raw sums of one region (exact integers, so merging fragments adds them
+ * without rounding); the centroid and second moments come from them. */
+struct moments {
+    int64_t x, y, xx, yy, xy;
+    double conf;
+};
+
+/* Scratch owned by a region_set: sized to the largest frame and region count
+ * seen, reused frame after frame. */
+struct regions_work {
+    uint8_t *lcls;                /* class of each provisional label */
+    struct moments *mom;          /* per region */
+    int32_t *row_off;             /* per region: first entry in rows */
+    struct hull_row *rows;        /* per region, per row y0..y1: extreme pixels */
+    int32_t *bnd_off, *bnd;       /* per region: its boundary pixels (merging only) */
+    int32_t *mparent, *mnext;     /* merging: union-find and member lists */
+    int32_t *remap;               /* merging: region to its defect's final index */
+    struct hull_row *urows;       /* rows of one merged defect */
+    struct hull_scratch hs;
+    size_t lcls_cap, mom_cap, off_cap, rows_cap, bnd_off_cap, bnd_cap, mp_cap, mn_cap, remap_cap,
+        urows_cap;
+};
 
 static int32_t find_root(int32_t *parent, int32_t i)
 {
@@ -27,13 +55,17 @@ static int grow(void **buf, size_t *cap, size_t need, size_t elem)
 {
     if (need <= *cap)
         return ST_OK;
-    void *p = realloc(*buf, need * elem);
+    /* a little headroom so slowly growing counts do not realloc every frame */
+    size_t n = need + need / 4 + 16;
+    void *p = realloc(*buf, n * elem);
     if (!p)
         return ST_ENOMEM;
     *buf = p;
-    *cap = need;
+    *cap = n;
     return ST_OK;
 }
+
+#define GROW(buf, cap, need) grow((void **)&(buf), &(cap), (need), sizeof *(buf))
 
 void regions_init(struct region_set *rs)
 {
@@ -42,18 +74,34 @@ void regions_init(struct region_set *rs)
 
 void regions_clear(struct region_set *rs)
 {
+    struct regions_work *wk = rs->work;
+    if (wk) {
+        free(wk->lcls);
+        free(wk->mom);
+        free(wk->row_off);
+        free(wk->rows);
+        free(wk->bnd_off);
+        free(wk->bnd);
+        free(wk->mparent);
+        free(wk->mnext);
+        free(wk->remap);
+        free(wk->urows);
+        hull_scratch_clear(&wk->hs);
+        free(wk);
+    }
     free(rs->r);
     free(rs->labels);
     free(rs->parent);
     regions_init(rs);
 }
 
-/* First pass: provisional labels and their equivalences.  Returns the
- * number of provisional labels. */
+/* First pass: provisional labels, their equivalences and each label's class.
+ * Returns the number of provisional labels. */
 static int32_t label_pass(struct region_set *rs, const struct image *cm, const int *is_defect,
                           int nclasses, int connectivity)
 {
     const int w = cm->w, h = cm->h;
+    uint8_t *lcls = rs->work->lcls;
     int32_t next = 0;
     for (int y = 0; y < h; y++) {
         const uint8_t *row = cm->px + (size_t)y * w;
@@ -90,6 +138,7 @@ static int32_t label_pass(struct region_set *rs, const struct image *cm, const i
             if (l < 0) {
                 l = next++;
                 rs->parent[l] = l;
+                lcls[l] = (uint8_t)c;
             }
             lab[x] = l;
         }
@@ -97,50 +146,401 @@ static int32_t label_pass(struct region_set *rs, const struct image *cm, const i
     return next;
 }
 
-/* Stable bucket sort by class: inside a class, raster order of first pixel
- * (the region numbering) is kept. */
-static int sort_by_class(struct region_set *rs, int nclasses, struct err *e)
+/* Dense region numbers ordered by class, then raster order of first pixel:
+ * afterwards parent[l] = -(number + 1) for every provisional label.  A root
+ * is never larger than its members (unite keeps the smaller), so one
+ * ascending pass numbers each root before its members.  Returns the count. */
+static int number_regions(struct region_set *rs, int32_t nlab, int nclasses)
 {
-    if (rs->n < 2)
-        return ST_OK;
-    struct region *tmp = malloc((size_t)rs->n * sizeof *tmp);
-    if (!tmp)
-        return err_set(e, ST_ENOMEM, "out of memory sorting %d regions", rs->n);
-    int k = 0;
-    for (int c = 0; c < nclasses; c++)
-        for (int i = 0; i < rs->n; i++)
-            if (rs->r[i].cls == c)
-                tmp[k++] = rs->r[i];
-    memcpy(rs->r, tmp, (size_t)rs->n * sizeof *tmp);
-    free(tmp);
+    int32_t *parent = rs->parent;
+    const uint8_t *lcls = rs->work->lcls;
+    int next[REGIONS_MAX_CLASSES] = {0};
+    for (int32_t l = 0; l < nlab; l++) {
+        parent[l] = find_root(parent, l);
+        if (parent[l] == l)
+            next[lcls[l]]++;
+    }
+    int nreg = 0;
+    for (int c = 0; c < nclasses; c++) {
+        int k = next[c];
+        next[c] = nreg;
+        nreg += k;
+    }
+    for (int32_t l = 0; l < nlab; l++)
+        parent[l] = parent[l] == l ? -(++next[lcls[l]]) : parent[parent[l]];
+    return nreg;
+}
+
+/* Second pass: final labels, and each region's counts, box, sums, zone. */
+static void stats_pass(struct region_set *rs, const struct image *cm, const float *conf,
+                       const struct image *zones)
+{
+    const int w = cm->w, h = cm->h;
+    struct moments *mom = rs->work->mom;
+    for (int y = 0; y < h; y++) {
+        int32_t *lab = rs->labels + (size_t)y * w;
+        const uint8_t *zrow = zones ? zones->px + (size_t)y * w : NULL;
+        for (int x = 0; x < w; x++) {
+            if (lab[x] < 0)
+                continue;
+            int k = -rs->parent[lab[x]] - 1;
+            lab[x] = k;
+            size_t i = (size_t)y * w + x;
+            struct region *g = &rs->r[k];
+            struct moments *m = &mom[k];
+            float c = conf ? conf[i] : 1.0f;
+            if (!g->pixels) {
+                g->cls = cm->px[i];
+                g->y0 = y;
+            }
+            g->pixels++;
+            if (x < g->x0) g->x0 = x;
+            if (x > g->x1) g->x1 = x;
+            g->y1 = y;
+            if (c < g->min_conf) g->min_conf = c;
+            if (zrow && zrow[x] < g->zone) g->zone = zrow[x];
+            m->x += x;
+            m->y += y;
+            m->xx += (int64_t)x * x;
+            m->yy += (int64_t)y * y;
+            m->xy += (int64_t)x * y;
+            m->conf += c;
+        }
+    }
+}
+
+/* Third pass: each region's leftmost and rightmost pixel in every row it
+ * spans (a connected region has pixels in every row from y0 to y1). */
+static int rows_pass(struct region_set *rs, int w, int h, int nreg)
+{
+    struct regions_work *wk = rs->work;
+    if (GROW(wk->row_off, wk->off_cap, (size_t)nreg + 1))
+        return ST_ENOMEM;
+    size_t total = 0;
+    for (int k = 0; k < nreg; k++) {
+        wk->row_off[k] = (int32_t)total;
+        total += (size_t)(rs->r[k].y1 - rs->r[k].y0 + 1);
+    }
+    if (GROW(wk->rows, wk->rows_cap, total ? total : 1))
+        return ST_ENOMEM;
+    for (size_t t = 0; t < total; t++)
+        wk->rows[t].xl = -1;
+    for (int y = 0; y < h; y++) {
+        const int32_t *lab = rs->labels + (size_t)y * w;
+        for (int x = 0; x < w; x++) {
+            int32_t k = lab[x];
+            if (k < 0)
+                continue;
+            struct hull_row *r = &wk->rows[wk->row_off[k] + y - rs->r[k].y0];
+            /* raster order: the first pixel met in a row is its leftmost */
+            if (r->xl < 0)
+                r->xl = x;
+            r->xr = x;
+        }
+    }
+    return ST_OK;
+}
+
+/* Pixels with a 4-neighbour inside the frame outside their region: the only
+ * ones that can be closest to another region (from any pixel, a step towards
+ * the other region never increases the gap, and the walk leaves the region
+ * through a boundary pixel). */
+static int boundary_pass(struct region_set *rs, int w, int h, int nreg)
+{
+    struct regions_work *wk = rs->work;
+    if (GROW(wk->bnd_off, wk->bnd_off_cap, (size_t)nreg + 1))
+        return ST_ENOMEM;
+    memset(wk->bnd_off, 0, ((size_t)nreg + 1) * sizeof *wk->bnd_off);
+    /* count, then fill with bnd_off[k] as the cursor of region k */
+    for (int pass = 0; pass < 2; pass++) {
+        for (int y = 0; y < h; y++) {
+            const int32_t *lab = rs->labels + (size_t)y * w;
+            for (int x = 0; x < w; x++) {
+                int32_t k = lab[x];
+                if (k < 0)
+                    continue;
+                if ((!x || lab[x - 1] == k) && (x + 1 == w || lab[x + 1] == k) &&
+                    (!y || lab[x - w] == k) && (y + 1 == h || lab[x + w] == k))
+                    continue;
+                if (pass == 0)
+                    wk->bnd_off[k + 1]++;
+                else
+                    wk->bnd[wk->bnd_off[k]++] = (int32_t)((size_t)y * w + x);
+            }
+        }
+        if (pass == 0) {
+            for (int k = 0; k < nreg; k++)
+                wk->bnd_off[k + 1] += wk->bnd_off[k];
+            if (GROW(wk->bnd, wk->bnd_cap, (size_t)wk->bnd_off[nreg] + 1))
+                return ST_ENOMEM;
+        }
+    }
+    /* each cursor ended at the start of the next region */
+    memmove(wk->bnd_off + 1, wk->bnd_off, (size_t)nreg * sizeof *wk->bnd_off);
+    wk->bnd_off[0] = 0;
+    return ST_OK;
+}
+
+/* The gap between pixel squares dx, dy pixels apart (centre to centre),
+ * compared with the limit squared.  The small relative slack makes a gap
+ * equal to the limit merge despite rounding of sx, sy. */
+static int within_gap(int dx, int dy, double sx, double sy, double gap2)
+{
+    dx = abs(dx) - 1;
+    dy = abs(dy) - 1;
+    double gx = dx > 0 ? dx * sx : 0, gy = dy > 0 ? dy * sy : 0;
+    return gx * gx + gy * gy <= gap2 * (1 + 1e-9);
+}
+
+/* Whether two regions of one class lie within the gap, edge to edge.  The
+ * boxes are checked first (their gap is never larger than the regions').
+ * Cost: at worst boundary(a) x boundary(b) pixel pairs, only for pairs whose
+ * boxes are within the gap; pixels outside the other box grown by the gap
+ * are skipped, and the search stops at the first close pair. */
+static int regions_close(const struct region_set *rs, int a, int b, int w, double sx, double sy,
+                         double gap2, int gx, int gy)
+{
+    const struct region *A = &rs->r[a], *B = &rs->r[b];
+    int dx = A->x0 > B->x1 ? A->x0 - B->x1 : B->x0 > A->x1 ? B->x0 - A->x1 : 0;
+    int dy = A->y0 > B->y1 ? A->y0 - B->y1 : B->y0 > A->y1 ? B->y0 - A->y1 : 0;
+    if (!within_gap(dx, dy, sx, sy, gap2))
+        return 0;
+    const struct regions_work *wk = rs->work;
+    for (int32_t i = wk->bnd_off[a]; i < wk->bnd_off[a + 1]; i++) {
+        int ax = wk->bnd[i] % w, ay = wk->bnd[i] / w;
+        if (ax < B->x0 - gx || ax > B->x1 + gx || ay < B->y0 - gy || ay > B->y1 + gy)
+            continue;
+        for (int32_t j = wk->bnd_off[b]; j < wk->bnd_off[b + 1]; j++) {
+            int bx = wk->bnd[j] % w, by = wk->bnd[j] / w;
+            if (within_gap(bx - ax, by - ay, sx, sy, gap2))
+                return 1;
+        }
+    }
+    return 0;
+}
+
+/* Unites fragments of a class within the class's gap.  Regions of a class
+ * are sorted by first pixel, so by y0: the sweep stops at the first region
+ * starting further below than the gap reaches.  *merged tells whether any
+ * two were united. */
+static int merge_pass(struct region_set *rs, const struct regions_opts *o, int w, int h,
+                      int nreg, int *merged)
+{
+    struct regions_work *wk = rs->work;
+    *merged = 0;
+    if (GROW(wk->mparent, wk->mp_cap, (size_t)nreg))
+        return ST_ENOMEM;
+    for (int i = 0; i < nreg; i++)
+        wk->mparent[i] = i;
+    int have_bnd = 0;
+    for (int i = 0; i < nreg; i++) {
+        const struct region *A = &rs->r[i];
+        double gap = o->merge_gap_mm[A->cls];
+        if (!(gap > 0))
+            continue;
+        double gap2 = gap * gap;
+        /* reach of the gap in pixels, generous by one against rounding */
+        int gx = (int)fmin(gap / o->mm_per_px_x + 2, w), gy = (int)fmin(gap / o->mm_per_px_y + 2, h);
+        for (int j = i + 1; j < nreg && rs->r[j].cls == A->cls && rs->r[j].y0 <= A->y1 + gy; j++) {
+            if (find_root(wk->mparent, i) == find_root(wk->mparent, j))
+                continue;
+            if (!have_bnd) {
+                if (boundary_pass(rs, w, h, nreg))
+                    return ST_ENOMEM;
+                have_bnd = 1;
+            }
+            if (regions_close(rs, i, j, w, o->mm_per_px_x, o->mm_per_px_y, gap2, gx, gy)) {
+                unite(wk->mparent, i, j);
+                *merged = 1;
+            }
+        }
+    }
+    return ST_OK;
+}
+
+/* Adds fragment j's counts into its root r. */
+static void absorb(struct region_set *rs, int r, int j)
+{
+    struct region *R = &rs->r[r];
+    const struct region *J = &rs->r[j];
+    struct moments *mr = &rs->work->mom[r];
+    const struct moments *mj = &rs->work->mom[j];
+    R->pixels += J->pixels;
+    R->fragments += J->fragments;
+    if (J->x0 < R->x0) R->x0 = J->x0;
+    if (J->x1 > R->x1) R->x1 = J->x1;
+    if (J->y0 < R->y0) R->y0 = J->y0;
+    if (J->y1 > R->y1) R->y1 = J->y1;
+    if (J->min_conf < R->min_conf) R->min_conf = J->min_conf;
+    if (J->zone < R->zone) R->zone = J->zone;
+    mr->x += mj->x;
+    mr->y += mj->y;
+    mr->xx += mj->xx;
+    mr->yy += mj->yy;
+    mr->xy += mj->xy;
+    mr->conf += mj->conf;
+}
+
+/* The rows of a merged defect, before its fragments are folded in: per
+ * row, the extremes over its fragments (rows between them stay empty). */
+static int union_rows(struct region_set *rs, int root)
+{
+    struct regions_work *wk = rs->work;
+    int y0 = rs->r[root].y0, y1 = rs->r[root].y1;
+    for (int j = wk->mnext[root]; j >= 0; j = wk->mnext[j]) {
+        if (rs->r[j].y0 < y0)
+            y0 = rs->r[j].y0;
+        if (rs->r[j].y1 > y1)
+            y1 = rs->r[j].y1;
+    }
+    size_t n = (size_t)(y1 - y0 + 1);
+    if (GROW(wk->urows, wk->urows_cap, n))
+        return ST_ENOMEM;
+    for (size_t t = 0; t < n; t++)
+        wk->urows[t].xl = -1;
+    for (int j = root; j >= 0; j = wk->mnext[j]) {
+        const struct region *J = &rs->r[j];
+        const struct hull_row *src = wk->rows + wk->row_off[j];
+        struct hull_row *dst = wk->urows + (J->y0 - y0);
+        for (int t = 0; t <= J->y1 - J->y0; t++) {
+            if (dst[t].xl < 0) {
+                dst[t] = src[t];
+                continue;
+            }
+            if (src[t].xl < dst[t].xl)
+                dst[t].xl = src[t].xl;
+            if (src[t].xr > dst[t].xr)
+                dst[t].xr = src[t].xr;
+        }
+    }
+    return ST_OK;
+}
+
+/* Orientation of the major axis of the region's pixels as points in mm,
+ * from the second central moments. */
+static double orientation(const struct moments *m, int n, double sx, double sy)
+{
+    double cx = (double)m->x / n, cy = (double)m->y / n;
+    double mxx = ((double)m->xx - cx * (double)m->x) * sx * sx;
+    double myy = ((double)m->yy - cy * (double)m->y) * sy * sy;
+    double mxy = ((double)m->xy - cx * (double)m->y) * sx * sy;
+    return 0.5 * atan2(2 * mxy, mxx - myy);
+}
+
+/* Everything measured from the (summed) counts and the rows. */
+static int measure(struct region_set *rs, int k, const struct hull_row *rows,
+                   const struct regions_opts *o)
+{
+    struct region *g = &rs->r[k];
+    const struct moments *m = &rs->work->mom[k];
+    double sx = o->mm_per_px_x, sy = o->mm_per_px_y;
+    g->cx = (double)m->x / g->pixels;
+    g->cy = (double)m->y / g->pixels;
+    g->mean_conf = (float)(m->conf / g->pixels);
+    g->area_mm2 = g->pixels * sx * sy;
+    g->orientation = orientation(m, g->pixels, sx, sy);
+    g->zone = g->zone == NO_ZONE ? -1 : g->zone;
+    return hull_measure_feret(&rs->work->hs, rows, g->y0, g->y1 - g->y0 + 1, sx, sy, &g->length_mm,
+                      &g->width_mm);
+}
+
+/* Measures every defect, folding merged fragments into the first, and
+ * compacts the list; labels are rewritten when anything merged. */
+static int finish(struct region_set *rs, const struct regions_opts *o, int w, int h, int nreg,
+                  int merged)
+{
+    struct regions_work *wk = rs->work;
+    int rc;
+    if (merged) {
+        if (GROW(wk->mnext, wk->mn_cap, (size_t)nreg) || GROW(wk->remap, wk->remap_cap, (size_t)nreg))
+            return ST_ENOMEM;
+        for (int i = 0; i < nreg; i++) {
+            wk->mparent[i] = find_root(wk->mparent, i);
+            wk->mnext[i] = -1;
+        }
+        /* each root lists its members in index order */
+        for (int i = nreg - 1; i >= 0; i--) {
+            int r = wk->mparent[i];
+            if (r != i) {
+                wk->mnext[i] = wk->mnext[r];
+                wk->mnext[r] = i;
+            }
+        }
+    }
+    int m = 0;
+    for (int i = 0; i < nreg; i++) {
+        const struct hull_row *rows = wk->rows + wk->row_off[i];
+        if (merged) {
+            if (wk->mparent[i] != i)
+                continue;
+            if (wk->mnext[i] >= 0) {
+                if ((rc = union_rows(rs, i)))
+                    return rc;
+                for (int j = wk->mnext[i]; j >= 0; j = wk->mnext[j])
+                    absorb(rs, i, j);
+                rows = wk->urows;
+            }
+            wk->remap[i] = m;
+        }
+        if ((rc = measure(rs, i, rows, o)))
+            return rc;
+        /* the measured defect moves down to its final place: every slot
+         * below i is already measured or folded into its root */
+        if (m != i)
+            rs->r[m] = rs->r[i];
+        rs->r[m].id = m + 1;
+        m++;
+    }
+    if (merged) {
+        size_t npix = (size_t)w * h;
+        for (size_t p = 0; p < npix; p++)
+            if (rs->labels[p] >= 0)
+                rs->labels[p] = wk->remap[wk->mparent[rs->labels[p]]];
+    }
+    rs->n = m;
+    return ST_OK;
+}
+
+static int check_opts(const struct image *cm, const struct regions_opts *o, struct err *e)
+{
+    if (o->nclasses < 1 || o->nclasses > REGIONS_MAX_CLASSES)
+        return err_set(e, ST_EINVAL, "%d classes (1..%d expected)", o->nclasses,
+                       REGIONS_MAX_CLASSES);
+    if (cm->channels != 1)
+        return err_set(e, ST_EINVAL, "class map must have one channel");
+    if (o->connectivity != 4 && o->connectivity != 8)
+        return err_set(e, ST_EINVAL, "connectivity %d (4 or 8 expected)", o->connectivity);
+    if (!(o->mm_per_px_x > 0 && o->mm_per_px_y > 0 && isfinite(o->mm_per_px_x) &&
+          isfinite(o->mm_per_px_y)))
+        return err_set(e, ST_EINVAL, "pixel size %g x %g mm (positive expected)", o->mm_per_px_x,
+                       o->mm_per_px_y);
+    const struct image *z = o->zones;
+    if (z && (z->w != cm->w || z->h != cm->h || z->channels != 1))
+        return err_set(e, ST_EINVAL, "zone map is %dx%dx%d, class map %dx%dx1", z->w, z->h,
+                       z->channels, cm->w, cm->h);
     return ST_OK;
 }
 
 int regions_find(struct region_set *rs, const struct image *classes, const float *conf,
-                 const int *is_defect, int nclasses, int connectivity, double mm_per_px_x,
-                 double mm_per_px_y, struct err *e)
+                 const struct regions_opts *o, struct err *e)
 {
-    if (classes->channels != 1)
-        return err_set(e, ST_EINVAL, "class map must have one channel");
-    if (connectivity != 4 && connectivity != 8)
-        return err_set(e, ST_EINVAL, "connectivity %d (4 or 8 expected)", connectivity);
-    const size_t npix = (size_t)classes->w * classes->h;
+    int rc = check_opts(classes, o, e);
+    if (rc)
+        return rc;
+    const int w = classes->w, h = classes->h;
+    const size_t npix = (size_t)w * h;
+    if (!rs->work && !(rs->work = calloc(1, sizeof *rs->work)))
+        return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
+    struct regions_work *wk = rs->work;
     /* at most one provisional label per pixel */
     if (grow((void **)&rs->labels, &rs->label_cap, npix, sizeof *rs->labels) ||
-        grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent))
+        grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent) ||
+        GROW(wk->lcls, wk->lcls_cap, npix))
         return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
+    rs->n = 0;
 
-    int32_t nlab = label_pass(rs, classes, is_defect, nclasses, connectivity);
-
-    /* Resolve roots to dense region numbers in raster order of first pixel.
-     * A root is never larger than its members (unite keeps the smaller), so
-     * after flattening, one ascending pass numbers roots before members. */
-    for (int32_t l = 0; l < nlab; l++)
-        rs->parent[l] = find_root(rs->parent, l);
-    int nreg = 0;
-    for (int32_t l = 0; l < nlab; l++)
-        rs->parent[l] = rs->parent[l] == l ? -(++nreg) : rs->parent[rs->parent[l]];
-
+    int32_t nlab = label_pass(rs, classes, o->is_defect, o->nclasses, o->connectivity);
+    int nreg = number_regions(rs, nlab, o->nclasses);
     if (nreg > rs->cap) {
         struct region *p = realloc(rs->r, (size_t)nreg * sizeof *p);
         if (!p)
@@ -148,48 +548,22 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
         rs->r = p;
         rs->cap = nreg;
     }
+    if (GROW(wk->mom, wk->mom_cap, (size_t)nreg))
+        return err_set(e, ST_ENOMEM, "out of memory for %d regions", nreg);
     for (int i = 0; i < nreg; i++) {
         struct region *g = &rs->r[i];
         memset(g, 0, sizeof *g);
-        g->x0 = classes->w;
-        g->y0 = classes->h;
-        g->x1 = g->y1 = -1;
-        g->min_conf = 1.0f;
+        g->x0 = w;
+        g->x1 = -1;
+        g->min_conf = INFINITY;
+        g->zone = NO_ZONE;
+        g->fragments = 1;
     }
-    double *sum = calloc((size_t)(nreg ? nreg : 1) * 3, sizeof *sum);
-    if (!sum)
-        return err_set(e, ST_ENOMEM, "out of memory for %d regions", nreg);
-    for (int y = 0; y < classes->h; y++) {
-        for (int x = 0; x < classes->w; x++) {
-            size_t i = (size_t)y * classes->w + x;
-            int32_t l = rs->labels[i];
-            if (l < 0)
-                continue;
-            int k = -rs->parent[l] - 1;
-            struct region *g = &rs->r[k];
-            float c = conf ? conf[i] : 1.0f;
-            g->cls = classes->px[i];
-            g->pixels++;
-            if (x < g->x0) g->x0 = x;
-            if (x > g->x1) g->x1 = x;
-            if (y < g->y0) g->y0 = y;
-            if (y > g->y1) g->y1 = y;
-            if (c < g->min_conf) g->min_conf = c;
-            sum[3 * k] += x;
-            sum[3 * k + 1] += y;
-            sum[3 * k + 2] += c;
-        }
-    }
-    const double px_area = mm_per_px_x * mm_per_px_y;
-    for (int i = 0; i < nreg; i++) {
-        struct region *g = &rs->r[i];
-        g->cx = sum[3 * i] / g->pixels;
-        g->cy = sum[3 * i + 1] / g->pixels;
-        g->mean_conf = (float)(sum[3 * i + 2] / g->pixels);
-        g->area_mm2 = g->pixels * px_area;
-    }
-    free(sum);
-    rs->n = nreg;
-    return sort_by_class(rs, nclasses, e);
+    memset(wk->mom, 0, (size_t)nreg * sizeof *wk->mom);
+    stats_pass(rs, classes, conf, o->zones);
+    int merged = 0;
+    if ((rc = rows_pass(rs, w, h, nreg)) || (rc = merge_pass(rs, o, w, h, nreg, &merged)) ||
+        (rc = finish(rs, o, w, h, nreg, merged)))
+        return err_set(e, rc, "out of memory measuring %d regions", nreg);
     return ST_OK;
 }

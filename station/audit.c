@@ -28,7 +28,7 @@ static json_t *parsed(const char *text)
     return v ? v : json_null();
 }
 
-static json_t *disposition_json(const struct log_disposition *d)
+json_t *audit_disposition_json(const struct log_disposition *d)
 {
     return json_pack("{s:I,s:s,s:s,s:s,s:s}", "dseq", (json_int_t)d->dseq, "utc", d->utc,
                      "auditor", d->auditor, "disposition", log_disp_name(d->disp), "comment",
@@ -55,7 +55,7 @@ json_t *audit_record_json(const struct log_db *db, const struct log_record *r)
                      judge_verdict_name(r->verdict), "reasons", parsed(r->reasons_json),
                      "regions", parsed(r->regions_json), "camera", parsed(r->camera_json),
                      "evidence", ev, "disposition",
-                     r->has_disposition ? disposition_json(&r->disp) : json_null(), "prev_hash",
+                     r->has_disposition ? audit_disposition_json(&r->disp) : json_null(), "prev_hash",
                      r->prev_hash, "hash", r->hash);
 }
 
@@ -64,12 +64,4 @@ long long audit_parse_seq(const char *s)
     char *end;
     long long v = s ? strtoll(s, &end, 10) : 0;
     return s && *s && !*end && v >= 1 ? v : -1;
-}
-
-void audit_emit(json_t *o)
-{
-    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(6));
-    fputc('\n', stdout);
-    fflush(stdout);
-    json_decref(o);
 }

@@ -33,7 +33,7 @@ json_t *audit_record_json(const struct log_db *db, const struct log_record *r);
 /* A whole number >= 1 for a record sequence number, or -1. */
 long long audit_parse_seq(const char *s);
 
-/* Prints one JSON value as a compact line on stdout and frees it. */
-void audit_emit(json_t *o);
+/* A disposition as a JSON object. */
+json_t *audit_disposition_json(const struct log_disposition *d);
 
 #endif

@@ -67,7 +67,7 @@ int audit_dispose(int argc, char **argv)
     if (rc) {
         cli_say("%s", e.msg);
     } else {
-        audit_emit(json_pack("{s:I,s:I,s:s}", "dseq", (json_int_t)dseq, "seq", (json_int_t)seq,
+        cli_emit(json_pack("{s:I,s:I,s:s}", "dseq", (json_int_t)dseq, "seq", (json_int_t)seq,
                              "disposition", log_disp_name(disp)));
         fprintf(stderr, "record %lld: %s by %s (disposition %lld).\n", seq, log_disp_name(disp),
                 auditor, (long long)dseq);

@@ -31,14 +31,6 @@ static void usage(FILE *f)
             CLI_CAUTION);
 }
 
-static int parse_verdict(const char *s)
-{
-    for (int v = VERDICT_PASS; v <= VERDICT_NONE; v++)
-        if (!strcmp(s, judge_verdict_name(v)))
-            return v;
-    return -1;
-}
-
 /* "scratch max_area, pit max_count" from the reasons array. */
 static void reasons_text(const char *json, char *buf, size_t len)
 {
@@ -99,7 +91,7 @@ int audit_list(int argc, char **argv)
         case 'R': f.recipe_id = optarg; break;
         case 'j': json = 1; break;
         case 'v':
-            if ((f.verdict = parse_verdict(optarg)) < 0) {
+            if ((f.verdict = log_verdict_parse(optarg)) < 0) {
                 cli_say("--verdict: '%s' is not PASS, FAIL or NO_VERDICT", optarg);
                 return EXIT_USAGE;
             }
@@ -134,7 +126,7 @@ int audit_list(int argc, char **argv)
     while (!rc && !(rc = log_iter_next(it, &r, &have, &e)) && have) {
         n++;
         if (json)
-            audit_emit(audit_record_json(db, &r));
+            cli_emit(audit_record_json(db, &r));
         else
             print_row(&r);
     }

@@ -104,13 +104,9 @@ int audit_show(int argc, char **argv)
     } else if (json) {
         json_t *o = audit_record_json(db, &r), *all = json_array();
         for (int i = 0; i < nd; i++)
-            json_array_append_new(all, json_pack("{s:I,s:s,s:s,s:s,s:s}", "dseq",
-                                                 (json_int_t)d[i].dseq, "utc", d[i].utc,
-                                                 "auditor", d[i].auditor, "disposition",
-                                                 log_disp_name(d[i].disp), "comment",
-                                                 d[i].comment));
+            json_array_append_new(all, audit_disposition_json(&d[i]));
         json_object_set_new(o, "dispositions", all);
-        audit_emit(o);
+        cli_emit(o);
     } else {
         print_record(db, &r, d, nd);
     }

@@ -56,7 +56,7 @@ int audit_verify(int argc, char **argv)
         log_close(db);
         return EXIT_ERROR;
     }
-    audit_emit(json_pack("{s:b,s:I,s:I,s:I,s:f,s:s?,s:I,s:b,s:s?}", "ok", v.ok, "records",
+    cli_emit(json_pack("{s:b,s:I,s:I,s:I,s:f,s:s?,s:I,s:b,s:s?}", "ok", v.ok, "records",
                          (json_int_t)v.records, "dispositions", (json_int_t)v.dispositions,
                          "evidence_files", (json_int_t)v.evidence_files, "ms", ms, "chain",
                          v.ok ? NULL : v.chain, "seq", (json_int_t)v.seq, "torn", v.torn, "what",

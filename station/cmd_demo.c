@@ -182,9 +182,8 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
                          struct batch *b, struct err *e)
 {
     const struct recipe *r = inspector_recipe(in);
-    int is_defect[RECIPE_MAX_CLASSES];
-    for (int c = 0; c < r->nclasses; c++)
-        is_defect[c] = r->cls[c].is_defect;
+    struct regions_opts ro;
+    judge_regions_opts(r, NULL, &ro);
     char odir[PATH_MAX];
     snprintf(odir, sizeof odir, "%s/overlays", dir);
     int rc = make_dir(odir, e);
@@ -196,15 +195,8 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         snprintf(lp, sizeof lp, "%s/labels/part-%04d.png", dir, first + i);
         struct image *img = NULL, *lab = NULL, *ov = NULL;
         struct judgement got, want;
-        struct quality q;
         if ((rc = pngio_load_rgb(ip, &img, e)) || (rc = pngio_load_label(lp, r->nclasses, &lab, e)))
             goto next;
-        if ((rc = regions_find(&truth_rs, lab, NULL, is_defect, r->nclasses, 8, r->mm_per_px_x,
-                               r->mm_per_px_y, e)) ||
-            (rc = judge_measure_quality(img, lab, &q, e)))
-            goto next;
-        judge_part(r, &q, &truth_rs, &want);
-        int severe = truth_is_severe(r, &truth_rs);
         struct inspect_times t = {0};
         if ((rc = inspector_run(in, img, &got, &t, e)))
             goto next;
@@ -214,6 +206,13 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         json_decref(rep);
         if (rc)
             goto next;
+        /* the truth is judged by the same tolerances in the zones the
+         * station placed: its pose error is far below a zone's width */
+        ro.zones = inspector_zone_map(in);
+        if ((rc = regions_find(&truth_rs, lab, NULL, &ro, e)))
+            goto next;
+        judge_tolerances(r, &truth_rs, &want);
+        int severe = truth_is_severe(r, &truth_rs);
         if (i == 0)
             disc_measure_scale(inspector_classes(in), CAP_DIAMETER_MM, &b->scale, &b->scale_err);
         b->parts++;

@@ -50,14 +50,6 @@ static int write_overlay(const char *dir, const char *image, const struct image 
     return rc;
 }
 
-static void emit(json_t *o)
-{
-    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(6));
-    fputc('\n', stdout);
-    fflush(stdout);
-    json_decref(o);
-}
-
 int cmd_inspect(int argc, char **argv)
 {
     if (cli_wants_help(argc, argv)) {
@@ -125,7 +117,7 @@ int cmd_inspect(int argc, char **argv)
             json_t *o = report_json_error(path, &e);
             fprintf(stderr, "%s: NO VERDICT — %s\n", path, e.msg);
             stopped = logbook_record(&lb, o, in, NULL, NULL, operator_id, serial, &seq, &e);
-            emit(o);
+            cli_emit(o);
             counts[VERDICT_NONE]++;
             image_free(img);
             if (stopped)
@@ -135,7 +127,7 @@ int cmd_inspect(int argc, char **argv)
         /* shown only once recorded: a verdict the log lost is no verdict */
         json_t *o = report_json(path, in, &j, &t);
         stopped = logbook_record(&lb, o, in, img, &j, operator_id, serial, &seq, &e);
-        emit(o);
+        cli_emit(o);
         if (stopped) {
             fprintf(stderr, "%s: NO VERDICT — not recorded: %s\n", path, e.msg);
             cli_say("inspection stopped: %s", e.msg);

@@ -30,9 +30,9 @@ int cmd_recipe(int argc, char **argv)
     int defects = 0;
     for (int c = 0; c < r.nclasses; c++)
         defects += r.cls[c].is_defect;
-    fprintf(stderr, "%s: ok — product %s version %d, %d classes (%d defect), %d features, "
+    fprintf(stderr, "%s: ok — product %s version %d, %d classes (%d defect), %d zones, %d features, "
                     "model %s\n",
-            argv[2], r.product, r.version, r.nclasses, defects, feat_count(&r.feat),
+            argv[2], r.product, r.version, r.nclasses, defects, r.nzones, feat_count(&r.feat),
             r.model_path);
     return 0;
 }

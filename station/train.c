@@ -2,6 +2,7 @@
 
 #include <errno.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 #include <time.h>
 
@@ -9,6 +10,7 @@
 #include "core/booster.h"
 #include "core/dataset.h"
 #include "core/features.h"
+#include "core/inspect.h"
 #include "core/model.h"
 #include "core/pngio.h"
 #include "core/trainset.h"
@@ -90,6 +92,69 @@ fail:
     return rc;
 }
 
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* The gates compare each frame with a good frame of the product: the
+ * median sharpness and part area the new model sees on the training
+ * frames (medians, so the few frames with a large defect do not move them).
+ * Runs the freshly saved model through an inspector, so the references are
+ * measured exactly as inspection will measure. */
+static int measure_references(const struct recipe *r, const struct dataset *ds,
+                              struct model_meta *m, struct err *e)
+{
+    enum { MOST = 24 };
+    double sharp[MOST], area[MOST];
+    int n = 0, rc;
+    struct inspector *in = NULL;
+    if ((rc = inspector_new(r, &in, e)))
+        return rc;
+    uint8_t *grey = NULL;
+    for (int i = 0; i < ds->n && n < MOST && !rc; i++) {
+        char ip[PATH_MAX];
+        struct image *img = NULL;
+        struct quality q;
+        struct part_pose pose;
+        if (!ds->labelled[i])
+            continue;
+        if ((rc = dataset_image_path(ds, i, ip, sizeof ip, e)) ||
+            (rc = pngio_load_rgb(ip, &img, e)) || (rc = inspector_classify(in, img, NULL, e))) {
+            image_free(img);
+            break;
+        }
+        free(grey);
+        if (!(grey = malloc((size_t)img->w * img->h)))
+            rc = err_set(e, ST_ENOMEM, "out of memory measuring %s", ip);
+        if (!rc)
+            rc = judge_measure_quality(r, img, inspector_classes(in), inspector_confidence(in),
+                                       grey, NULL, &q, e);
+        if (!rc)
+            rc = part_locate(inspector_classes(in), r->mm_per_px_x, r->mm_per_px_y,
+                             (enum part_orient)r->part.orient, &pose, e);
+        if (!rc && pose.found) {
+            sharp[n] = q.sharpness;
+            area[n++] = pose.area_mm2;
+        }
+        image_free(img);
+    }
+    free(grey);
+    inspector_free(in);
+    if (rc)
+        return rc;
+    if (n == 0)
+        return err_set(e, ST_EFORMAT, "%s: no training frame shows a part; cannot set the "
+                                      "image references", ds->dir);
+    qsort(sharp, (size_t)n, sizeof sharp[0], cmp_double);
+    qsort(area, (size_t)n, sizeof area[0], cmp_double);
+    m->ref_sharpness = n % 2 ? sharp[n / 2] : 0.5 * (sharp[n / 2 - 1] + sharp[n / 2]);
+    m->ref_part_area_mm2 = n % 2 ? area[n / 2] : 0.5 * (area[n / 2 - 1] + area[n / 2]);
+    m->ref_frames = n;
+    return ST_OK;
+}
+
 int train_recipe(const struct recipe *r, const char *data_dir, struct train_report *rep,
                  struct err *e)
 {
@@ -155,6 +220,12 @@ int train_recipe(const struct recipe *r, const char *data_dir, struct train_repo
     struct tm tm;
     gmtime_r(&now, &tm);
     strftime(m.trained_utc, sizeof m.trained_utc, "%Y-%m-%dT%H:%M:%SZ", &tm);
+    if ((rc = model_meta_save(r->model_path, &m, e)) ||
+        (rc = measure_references(r, &ds, &m, e)))
+        goto done;
+    rep->ref_sharpness = m.ref_sharpness;
+    rep->ref_part_area_mm2 = m.ref_part_area_mm2;
+    rep->ref_frames = m.ref_frames;
     rc = model_meta_save(r->model_path, &m, e);
 done:
     rep->seconds = (cli_now_ms() - t0) / 1e3;
@@ -183,4 +254,7 @@ void train_print_report(const struct recipe *r, const struct train_report *rep)
                     "%.1f s\n",
             r->model_path, rep->best_round, r->train.rounds, r->train.depth, rep->best_loss,
             rep->seconds);
+    fprintf(stderr, "image references over %d training frames (used by the gates unless the "
+                    "recipe sets them): sharpness %.1f, part area %.1f mm²\n",
+            rep->ref_frames, rep->ref_sharpness, rep->ref_part_area_mm2);
 }

@@ -3,8 +3,9 @@
  * Shared by `station train` and `station demo`.  Computes the recipe's
  * features for every labelled image, draws the class-balanced sample,
  * trains with early stopping on the held-out share, saves the model where
- * the recipe says and its metadata (hash, classes, features, sample counts)
- * beside it. */
+ * the recipe says and its metadata (hash, classes, features, sample counts,
+ * and the image references the gates use, measured by the new model on up
+ * to 24 training frames) beside it. */
 #ifndef ST_TRAIN_H
 #define ST_TRAIN_H
 
@@ -20,6 +21,8 @@ struct train_report {
     int best_round;
     double best_loss;
     double seconds;
+    double ref_sharpness, ref_part_area_mm2;  /* image references (model_meta) */
+    int ref_frames;
 };
 
 int train_recipe(const struct recipe *r, const char *data_dir, struct train_report *rep,

@@ -1,6 +1,7 @@
 #!/bin/sh
 # make bench: per-stage figures of the station beside XGBoost's own predictor
-# (same model, same features) and the same filter bank in OpenCV from Python.
+# (same model, same features) and the same filter bank in OpenCV from Python,
+# then locating the part, painting its zones and drawing the overlay.
 # Figures, not a test: nothing here passes or fails on speed.
 set -eu
 BUILD=${BUILD:-build}
@@ -28,6 +29,8 @@ for size in 640x480 1280x960; do
     done
 done
 "$PYTHON" tests/bench/report.py "$results"
+echo
+"$BUILD/tests/bench/bench_overlay"
 # The inspection log: records per second with reject evidence, verify time.
 echo "bench: inspection log" >&2
 "$BUILD/tests/bench/log_bench" "$BUILD/bench-log" "${LOG_RECORDS:-40}" "${LOG_VERIFY_RECORDS:-100000}"

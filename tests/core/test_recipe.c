@@ -178,26 +178,143 @@ static void test_demo_recipe(void **state)
     assert_true(r.validation_fraction == 0.2);
     assert_true(r.mm_per_px_x == 0.17 && r.mm_per_px_y == 0.17);
 
-    static const struct recipe_tolerance tol[] = {{-1, -1, -1, -1},
-                                                  {-1, -1, -1, -1},
-                                                  {0.15, 2.5, 4.0, 2},
-                                                  {0.1, 0.8, 1.5, 3},
-                                                  {1.5, 30, 45, 1}};
-    for (int c = 0; c < 5; c++) {
-        assert_true(r.tol[c].min_area_mm2 == tol[c].min_area_mm2);
-        assert_true(r.tol[c].max_area_mm2 == tol[c].max_area_mm2);
-        assert_true(r.tol[c].max_total_mm2 == tol[c].max_total_mm2);
-        assert_int_equal(r.tol[c].max_count, tol[c].max_count);
+    static const struct recipe_tolerance tol[] = {{-1, -1, -1, -1, -1, -1, -1},
+                                                  {-1, -1, -1, -1, -1, -1, -1},
+                                                  {0.15, 2.5, 4.0, 2, 12, -1, -1},
+                                                  {0.1, 0.8, 1.5, 3, -1, -1, -1},
+                                                  {1.5, 30, 45, 1, -1, -1, -1}};
+    for (int c = 0; c < 5; c++)
+        assert_memory_equal(&r.tol[c], &tol[c], sizeof tol[c]);
+    assert_true(r.merge_gap_mm[2] == 0.35 && r.merge_gap_mm[3] == 0);
+    assert_int_equal(r.part.orient, 0);
+    assert_true(r.part.area_mm2 == -1 && r.part.area_tolerance == 0.15);
+    assert_int_equal(r.nzones, 2);
+    assert_string_equal(r.zones[0].name, "rim");
+    assert_int_equal(r.zones[0].shape, ZONE_RING);
+    assert_true(r.zones[0].r_in == 16.5 && r.zones[0].r_out == 19.5);
+    assert_string_equal(r.zones[1].name, "bore-edge");
+    /* zones restate some limits and keep the class's others */
+    static const struct recipe_tolerance rim_scratch = {0.15, 1.2, 4.0, 1, 4, -1, -1};
+    static const struct recipe_tolerance rim_pit = {0.1, -1, -1, -1, -1, 2, 0.6};
+    assert_memory_equal(recipe_tolerance_for(&r, 2, 0), &rim_scratch, sizeof rim_scratch);
+    assert_memory_equal(recipe_tolerance_for(&r, 3, 0), &rim_pit, sizeof rim_pit);
+    assert_int_equal(recipe_tolerance_for(&r, 3, 1)->max_count, 1);
+    assert_ptr_equal(recipe_tolerance_for(&r, 4, 1), &r.tol[4]);
+    assert_ptr_equal(recipe_tolerance_for(&r, 2, -1), &r.tol[2]);
+    /* gates at their documented defaults */
+    const struct recipe_gates *g = &r.gates;
+    assert_true(g->min_level == 40 && g->max_level == 235 && g->max_saturated == 0.02);
+    assert_true(g->black_level == 8 && g->max_black == 0.05 && g->min_part_fraction == 0.05);
+    assert_true(g->max_part_fraction == 0.9);
+    assert_true(g->sharpness_reference == -1 && g->min_sharpness_ratio == 0.5);
+    assert_true(g->low_confidence == 0.5 && g->max_low_confidence == 0.1);
+    assert_true(g->min_frame_change == 0);
+}
+
+static void test_zones_and_part(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(GOOD "[part]\norientation = moments\narea_mm2 = 120\narea_tolerance = none\n"
+                 "border_margin_px = 0\nfield = 10 20 300 200\n"
+                 "[zone seal]\nshape = rect\ncentre = 1.5 -2\nsize = 4 3\nangle = 30\n"
+                 "[zone face]\nshape = polygon\npoints = 0 0 5 0 5 5 0 5.5\n"
+                 "[zone hole]\nshape = circle\nradius = 2\n"
+                 "[zone logo]\nshape = mask\nmask = logo.png\nmask_mm_per_px = 0.05\n"
+                 "[tolerance scratch in face]\nmax_count = 3\n"
+                 "[gates]\nmin_frame_change = none\nsharpness_reference = 55\n",
+            &r);
+    assert_int_equal(r.part.orient, 1);
+    assert_true(r.part.area_mm2 == 120 && r.part.area_tolerance == -1);
+    assert_int_equal(r.part.border_margin_px, 0);
+    assert_memory_equal(r.part.field, ((int[]){10, 20, 300, 200}), 4 * sizeof(int));
+    assert_int_equal(r.nzones, 4);
+    const struct zone *z = r.zones;
+    assert_int_equal(z[0].shape, ZONE_RECT);
+    assert_true(z[0].cx == 1.5 && z[0].cy == -2 && z[0].w == 4 && z[0].h == 3);
+    assert_true(z[0].angle_deg == 30);
+    assert_int_equal(z[1].shape, ZONE_POLYGON);
+    assert_int_equal(z[1].npoints, 4);
+    assert_true(z[1].pts[3][0] == 0 && z[1].pts[3][1] == 5.5);
+    assert_int_equal(z[2].shape, ZONE_CIRCLE);
+    assert_true(z[2].r_out == 2 && z[2].cx == 0);
+    assert_int_equal(z[3].shape, ZONE_MASK);
+    char want[PATH_MAX];
+    snprintf(want, sizeof want, "%s/logo.png", dir);
+    assert_string_equal(z[3].mask_path, want);
+    assert_true(z[3].mask_mm_per_px == 0.05);
+    assert_int_equal(recipe_tolerance_for(&r, 2, 1)->max_count, 3);
+    assert_true(recipe_tolerance_for(&r, 2, 1)->max_area_mm2 == 1); /* the class's */
+    assert_true(r.gates.min_frame_change == -1 && r.gates.sharpness_reference == 55);
+}
+
+static void test_zone_errors(void **state)
+{
+    (void)state;
+    const char *text = GOOD "[zone a]\nshape = rect\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "[zone a]", 1),
+             "[zone a] lacks key 'size' (shape rect)");
+    text = GOOD "[zone a]\nshape = circle\nradius = 2\nsize = 1 1\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "size", 1),
+             "key 'size' does not apply to shape circle");
+    text = GOOD "[zone a]\nshape = ring\nradii = 3 2\n";
+    load_bad(text, ST_ERANGE, line_of(text, "radii", 1), "radii: inner 3 must be below outer 2");
+    text = GOOD "[zone a]\nshape = hexagon\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "hexagon", 1),
+             "shape: 'hexagon' is not one of: rect circle ring polygon mask");
+    text = GOOD "[zone a]\nshape = polygon\npoints = 0 0 1 1\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "points", 1), "points: needs 3..16 points");
+    text = GOOD "[zone a]\nshape = mask\nmask = a.pgm\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "a.pgm", 1), "mask: 'a.pgm' must end in .png");
+    text = GOOD "[tolerance scratch in rim]\nmax_count = 1\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "[tolerance scratch in rim]", 1),
+             "[tolerance scratch in rim] names no zone (no [zone rim])");
+    text = GOOD "[zone rim]\nshape = circle\nradius = 1\n[tolerance scratch in rim]\n"
+                "merge_gap_mm = 1\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "merge_gap_mm", 1),
+             "merge_gap_mm belongs in [tolerance scratch]");
+    text = GOOD "[tolerance scratch of rim]\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "of rim", 1),
+             "unknown section [tolerance scratch of rim]");
+    text = GOOD "[zone rim]\nshape = circle\nradius = 1\n[tolerance scratch in rim]\n"
+                "min_area_mm2 = 5\n";
+    load_bad(text, ST_ERANGE, line_of(text, "min_area_mm2 = 5", 1),
+             "[tolerance scratch in rim]: min_area_mm2 = 5 exceeds max_area_mm2 = 1");
+}
+
+static void test_grade_and_gates_errors(void **state)
+{
+    (void)state;
+    static const char *const bad[] = {"3x0.4", "3 x", "x 0.4", "3 * 0.4", "3 x 0.4 x"};
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        char text[2048], what[96];
+        snprintf(text, sizeof text, "%sgrade = %s\n", GOOD, bad[i]);
+        snprintf(what, sizeof what, "grade: '%s' is not N x A (ISO 10110-7", bad[i]);
+        load_bad(text, ST_EFORMAT, line_of(text, "grade", 1), what);
     }
-    assert_true(r.gates.min_level == 40 && r.gates.max_saturated == 0.02);
-    assert_true(r.gates.min_part_fraction == 0.05 && r.gates.min_sharpness == 1.0);
+    const char *text = GOOD "grade = 0 x 0.4\n";
+    load_bad(text, ST_ERANGE, line_of(text, "grade", 1), "needs N in 1..10000");
+    text = GOOD "[gates]\nmin_level = 200\nmax_level = 100\n";
+    load_bad(text, ST_ERANGE, line_of(text, "[gates]", 1),
+             "min_level 200 must be below max_level 100");
+    text = GOOD "[gates]\nmin_part_fraction = 0.5\nmax_part_fraction = 0.4\n";
+    load_bad(text, ST_ERANGE, line_of(text, "[gates]", 1),
+             "min_part_fraction 0.5 must be below max_part_fraction 0.4");
+    text = GOOD "[gates]\nmin_sharpness = 1\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "min_sharpness", 1),
+             "unknown key 'min_sharpness' in [gates]");
+    text = GOOD "[part]\norientation = free\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "free", 1),
+             "orientation: 'free' is not one of: fixed moments");
+    text = GOOD "[part]\nfield = 10 20 5 40\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "field", 1), "field: needs four whole pixel numbers");
 }
 
 static void test_minimal_defaults(void **state)
 {
     (void)state;
     static struct recipe r;
-    load_ok(GOOD "[gates]\nmin_sharpness = 0\n", &r);
+    load_ok(GOOD "[gates]\nmin_sharpness_ratio = 0\n", &r);
     assert_string_equal(r.product, "t-1");
     assert_int_equal(r.version, 3);
     assert_string_equal(r.description, "");
@@ -211,7 +328,11 @@ static void test_minimal_defaults(void **state)
     assert_string_equal(r.model_path, want);
     assert_true(r.tol[2].min_area_mm2 == -1 && r.tol[2].max_area_mm2 == 1);
     assert_true(r.tol[2].max_total_mm2 == -1 && r.tol[2].max_count == 0);
-    assert_true(r.gates.min_level == 40 && r.gates.min_sharpness == 0);
+    assert_true(r.gates.min_level == 40 && r.gates.min_sharpness_ratio == 0);
+    assert_true(r.tol[2].max_length_mm == -1 && r.tol[2].grade_n == -1);
+    assert_int_equal(r.nzones, 0);
+    assert_int_equal(r.part.field[0], -1);
+    assert_int_equal(r.part.border_margin_px, 2);
 }
 
 static void test_absolute_model_and_no_gabor(void **state)
@@ -455,6 +576,9 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_demo_recipe),
+        cmocka_unit_test(test_zones_and_part),
+        cmocka_unit_test(test_zone_errors),
+        cmocka_unit_test(test_grade_and_gates_errors),
         cmocka_unit_test(test_evidence_section),
         cmocka_unit_test(test_minimal_defaults),
         cmocka_unit_test(test_absolute_model_and_no_gabor),

@@ -7,4 +7,5 @@ PYTHON=${STATION_PYTHON:-/usr/bin/python3}
 out="$BUILD/e2e-demo"
 rm -rf "$out"
 "$BUILD/station" demo --out "$out" --seed 11
-exec "$PYTHON" tests/e2e/check_demo.py "$BUILD/station" "$out"
+"$PYTHON" tests/e2e/check_demo.py "$BUILD/station" "$out"
+exec "$PYTHON" tests/e2e/check_degraded.py "$BUILD/station" "$out"

@@ -110,4 +110,10 @@ grep -q "older" "$out/last.err" || fail "older, read-only: $(cat "$out/last.err"
 expect_rc 0 "$S" audit dispose 3 --log "$db" --auditor aud-1 --as rework
 expect_rc 0 "$S" audit verify --log "$db"
 "$PYTHON" -c 'import sqlite3,sys; c=sqlite3.connect(sys.argv[1]); v=c.execute("PRAGMA user_version").fetchone()[0]; assert v == 2, v; c.execute("SELECT count(*) FROM evidence_purged")' "$db"
-echo "ok   audit: list/show/dispose, append-only, tamper of a record, a disposition and an evidence file caught, schema newer refused and older upgraded"
+# an evidence budget with only unaudited rejects left: inspection stops
+expect_rc 2 "$S" inspect "$recipe" "$images"/*.png "$images"/*.png --log "$out/budget/log.db" \
+    --evidence-budget 1.5
+grep -q "evidence budget full" "$out/last.err" || fail "budget: $(tail -2 "$out/last.err")"
+grep -q "inspection stopped" "$out/last.err" || fail "budget: no stop"
+tail -1 "$out/last.out" | grep -q '"verdict":"NO_VERDICT"' || fail "budget: last verdict not NO_VERDICT"
+echo "ok   audit: list/show/dispose, append-only, tamper of a record, a disposition and an evidence file caught, schema newer refused and older upgraded, evidence budget full stops inspection"

@@ -1,0 +1,50 @@
+/* hull: Feret diameters of a pixel set given by its rows, in mm.
+ *
+ * A pixel set is described row by row by its leftmost and rightmost pixel
+ * (struct hull_row); only those can be on its convex hull.  The measure
+ * follows the convention of scikit-image's regionprops feret_diameter_max
+ * (0.19) so the two agree to rounding:
+ *   1. each pixel (x, y) stands for the midpoints of its four edges,
+ *      (x +- 1/2, y) and (x, y +- 1/2); K is the convex hull of these points;
+ *   2. the "hull image" is every pixel whose centre lies in K, boundary
+ *      included (scikit-image's convex_hull_image);
+ *   3. the Feret diameters are those of the convex hull of the hull image's
+ *      edge midpoints (the level-1/2 contour scikit-image measures).
+ * A 16 x 16 square thus has length sqrt(16^2 + 15^2) (its corners are cut)
+ * and width 16.  Points are scaled to mm (x by sx, y by sy) before measuring,
+ * so anisotropic pixels are handled; steps 1-2 are exact integer arithmetic
+ * on doubled coordinates.  The scratch holds point buffers reused across
+ * calls; nothing else is kept. */
+#ifndef ST_HULL_H
+#define ST_HULL_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+struct hull_row {
+    int32_t xl, xr;   /* leftmost and rightmost pixel; xl < 0: empty row */
+};
+
+struct hull_pt {
+    int32_t x, y;     /* doubled coordinates: pixel centres are even */
+};
+
+struct hull_scratch {
+    struct hull_pt *pts, *left, *right;
+    struct hull_row *rows;
+    size_t pts_cap, left_cap, right_cap, rows_cap;
+};
+
+void hull_scratch_init(struct hull_scratch *hs);
+void hull_scratch_clear(struct hull_scratch *hs);
+
+/* Maximum Feret diameter (length) and minimum Feret diameter (width, the
+ * narrowest caliper) in mm of the pixels in rows[0..nrows-1], row t being
+ * image row y0 + t; at least one row must be non-empty.  Cost O(nrows + h^2)
+ * for a hull of h vertices (h grows as the 2/3 power of the size: tens of
+ * vertices for a defect hundreds of pixels across).  Returns ST_OK or
+ * ST_ENOMEM. */
+int hull_measure_feret(struct hull_scratch *hs, const struct hull_row *rows, int y0, int nrows,
+                       double sx, double sy, double *length, double *width);
+
+#endif
