@@ -180,13 +180,6 @@ static int walk(struct log_iter *it, struct audit_stats *st, struct ring *g, str
     return rc;
 }
 
-static void print_json(const json_t *o)
-{
-    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(17));
-    fputc('\n', stdout);
-    fflush(stdout);
-}
-
 /* Walks the selected records into the figures; 0 or an exit status.  g,
  * when not NULL, keeps the newest rejects. */
 static int gather(const struct verb_opts *o, struct log_db **db, struct ring *g, json_t **js)
@@ -224,11 +217,12 @@ int audit_cmd_stats(int argc, char **argv)
     log_close(db);
     if (rc)
         return rc;
-    if (o.json)
-        print_json(js);
-    else
+    if (o.json) {
+        cli_emit(js);
+    } else {
         audit_stats_print(stderr, js);
-    json_decref(js);
+        json_decref(js);
+    }
     return 0;
 }
 

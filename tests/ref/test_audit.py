@@ -106,7 +106,8 @@ def expected(recs, starts, offset_min, by_shift):
             "k": k, "audited": audited, "pairs": pairs}
 
 
-def compare(name, got, want, recs):
+def compare(name, got, want, recs, tol=TOL):
+    """tol: the CLI prints 6 significant digits, the tool 17."""
     v = got["verdicts"]
     c = collections.Counter(r["verdict"] for r in recs)
     check(f"{name}: verdict counts", (v["PASS"], v["FAIL"], v["NO_VERDICT"]) ==
@@ -118,12 +119,12 @@ def compare(name, got, want, recs):
           for s in got["shifts"]}
     check(f"{name}: {len(gs)} shifts, counts per shift (datetime)", gs == dict(want["shifts"]))
     pc = got["pchart"]
-    check(f"{name}: p-chart centre line", close(pc["pbar"], want["pbar"]),
+    check(f"{name}: p-chart centre line", close(pc["pbar"], want["pbar"], tol),
           f"{pc['pbar']} vs {want['pbar']}")
     ok = len(pc["points"]) == len(want["points"])
     for g, w in zip(pc["points"], want["points"]):
         ok = ok and g["n"] == w["n"] and g["rejects"] == w["rejects"] and g["outside"] == w["outside"]
-        ok = ok and all(close(g[k], w[k]) for k in ("p", "lcl", "ucl"))
+        ok = ok and all(close(g[k], w[k], tol) for k in ("p", "lcl", "ucl"))
     check(f"{name}: {len(pc['points'])} p-chart points, limits and outside flags", ok)
     outside = [p["label"] for p in pc["points"] if p["outside"]]
     check(f"{name}: outside list {outside}", pc["outside"] == outside)
@@ -133,7 +134,7 @@ def compare(name, got, want, recs):
     total = sum(want["pareto"].values())
     cum = np.cumsum([c for _, c in wp]) / total if total else []
     check(f"{name}: Pareto cumulative shares",
-          all(close(r["cumulative"], c) for r, c in zip(got["pareto"], cum)))
+          all(close(r["cumulative"], c, tol) for r, c in zip(got["pareto"], cum)))
     au = got["audit"]
     check(f"{name}: rejects and dispositions", au["rejects"] == want["rejects"] and
           all(au["dispositions"][d] == want["disp"][d] for d in DISPS))
@@ -142,13 +143,13 @@ def compare(name, got, want, recs):
     check(f"{name}: false rejects {fr['false_rejects']}/{fr['audited']} interval "
           f"== scipy binomtest exact [{ci.low:.5f}, {ci.high:.5f}]",
           fr["false_rejects"] == want["k"] and fr["audited"] == want["audited"] and
-          close(fr["ci95"][0], ci.low, 1e-11) and close(fr["ci95"][1], ci.high, 1e-11),
+          close(fr["ci95"][0], ci.low, max(tol, 1e-11)) and close(fr["ci95"][1], ci.high, max(tol, 1e-11)),
           str(fr))
     a = [s for s, _ in want["pairs"]]
     b = [x for _, x in want["pairs"]]
     kappa = cohen_kappa_score(a, b)
     check(f"{name}: kappa {au['kappa']['value']} == sklearn cohen_kappa_score {kappa:.6f}",
-          close(au["kappa"]["value"], kappa))
+          close(au["kappa"]["value"], kappa, tol))
     t = np.zeros((2, 2), dtype=int)
     for s, x in want["pairs"]:
         t[s][x] += 1
@@ -302,7 +303,7 @@ def part2(tmp):
     check(f"export: rows read back equal what was written ({tricky} comments with commas, "
           f"quotes or line breaks)", ok and tricky > 0)
     recs = [dict(line, utc=row[col["utc"]]) for line, row in zip(lines, rows[1:])]
-    compare("stats on the log", got, expected(recs, [6, 14, 22], 0, False), recs)
+    compare("stats on the log", got, expected(recs, [6, 14, 22], 0, False), recs, 1e-6)
 
     r = run("audit", "stats", "--log", db)
     check("stats: text on stderr with the caution", r.returncode == 0 and r.stdout == "" and

@@ -26,11 +26,6 @@ static int fail(const char *msg)
     return 3;
 }
 
-static int verdict_of(const char *s)
-{
-    return !strcmp(s, "PASS") ? VERDICT_PASS : !strcmp(s, "FAIL") ? VERDICT_FAIL : VERDICT_NONE;
-}
-
 int main(int argc, char **argv)
 {
     const char *shifts = "6,14,22", *html = NULL, *thumb = NULL;
@@ -70,7 +65,9 @@ int main(int argc, char **argv)
         struct log_record *r = &recs[n++];
         r->seq = json_integer_value(json_object_get(o, "seq"));
         snprintf(r->utc, sizeof r->utc, "%s", json_string_value(json_object_get(o, "utc")));
-        r->verdict = verdict_of(json_string_value(json_object_get(o, "verdict")));
+        r->verdict = log_verdict_parse(json_string_value(json_object_get(o, "verdict")));
+        if (r->verdict < 0)
+            return fail("a record's verdict is not PASS, FAIL or NO_VERDICT");
         r->reasons_json = json_dumps(json_object_get(o, "reasons"), JSON_COMPACT);
         const char *d = json_string_value(json_object_get(o, "disp"));
         r->disp.disp = d ? log_disp_parse(d) : LOG_DISP_NONE;
