@@ -16,11 +16,6 @@
 struct image *overlay_colourise(const struct image *classes, const struct recipe *r,
                                 struct err *e);
 
-/* The frame with defect classes blended in their colour (alpha in 0..1) and
- * non-defect classes left as they are, so the part stays recognisable. */
-struct image *overlay_blend(const struct image *frame, const struct image *classes,
-                            const struct recipe *r, double alpha, struct err *e);
-
 /* Images of equal height side by side, with a 4-pixel white gap. */
 struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e);
 
