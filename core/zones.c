@@ -233,10 +233,12 @@ static int zone_box(const struct zone_map *m, int k, const struct part_pose *p, 
         hi_x = fmax(hi_x, x);
         hi_y = fmax(hi_y, y);
     }
-    box[0] = (int)fmax(0, floor(lo_x) - 1);
-    box[1] = (int)fmax(0, floor(lo_y) - 1);
-    box[2] = (int)fmin(w - 1, ceil(hi_x) + 1);
-    box[3] = (int)fmin(h - 1, ceil(hi_y) + 1);
+    /* clamped while still double: a zone far off the frame must not
+     * overflow the conversion to int */
+    box[0] = (int)fmin(fmax(0, floor(lo_x) - 1), w);
+    box[1] = (int)fmin(fmax(0, floor(lo_y) - 1), h);
+    box[2] = (int)fmax(fmin(w - 1, ceil(hi_x) + 1), -1);
+    box[3] = (int)fmax(fmin(h - 1, ceil(hi_y) + 1), -1);
     return box[0] <= box[2] && box[1] <= box[3];
 }
 
