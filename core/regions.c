@@ -15,10 +15,27 @@ struct moments {
     double conf;
 };
 
+/* What the labelling pass gathers per provisional label; folded into the
+ * label's region afterwards, so one pass over the pixels measures all but
+ * the final labels. */
+struct acc {
+    int32_t pixels, x0, x1, y0, y1;
+    int32_t head, tail;           /* its row entries, in row order */
+    float min_conf;
+    uint8_t cls, zone;
+    struct moments m;
+};
+
+/* A provisional label's leftmost and rightmost pixel in row y. */
+struct rowent {
+    int32_t y, xl, xr, next;
+};
+
 /* Scratch owned by a region_set: sized to the largest frame and region count
  * seen, reused frame after frame. */
 struct regions_work {
-    uint8_t *lcls;                /* class of each provisional label */
+    struct acc *acc;              /* per provisional label */
+    struct rowent *ent;
     struct moments *mom;          /* per region */
     int32_t *row_off;             /* per region: first entry in rows */
     struct hull_row *rows;        /* per region, per row y0..y1: extreme pixels */
@@ -27,8 +44,8 @@ struct regions_work {
     int32_t *remap;               /* merging: region to its defect's final index */
     struct hull_row *urows;       /* rows of one merged defect */
     struct hull_scratch hs;
-    size_t lcls_cap, mom_cap, off_cap, rows_cap, bnd_off_cap, bnd_cap, mp_cap, mn_cap, remap_cap,
-        urows_cap;
+    size_t acc_cap, ent_cap, mom_cap, off_cap, rows_cap, bnd_off_cap, bnd_cap, mp_cap, mn_cap,
+        remap_cap, urows_cap;
 };
 
 static int32_t find_root(int32_t *parent, int32_t i)
@@ -76,7 +93,8 @@ void regions_clear(struct region_set *rs)
 {
     struct regions_work *wk = rs->work;
     if (wk) {
-        free(wk->lcls);
+        free(wk->acc);
+        free(wk->ent);
         free(wk->mom);
         free(wk->row_off);
         free(wk->rows);
@@ -95,23 +113,60 @@ void regions_clear(struct region_set *rs)
     regions_init(rs);
 }
 
-/* First pass: provisional labels, their equivalences and each label's class.
- * Returns the number of provisional labels. */
-static int32_t label_pass(struct region_set *rs, const struct image *cm, const int *is_defect,
-                          int nclasses, int connectivity)
+/* Adds pixel (x, y) to provisional label l. */
+static int add_pixel(struct regions_work *wk, int32_t l, int x, int y, float cf, int zone,
+                     size_t *nent)
+{
+    struct acc *a = &wk->acc[l];
+    struct moments *m = &a->m;
+    a->pixels++;
+    if (x < a->x0) a->x0 = x;
+    if (x > a->x1) a->x1 = x;
+    a->y1 = y;
+    if (cf < a->min_conf) a->min_conf = cf;
+    if (zone < a->zone) a->zone = (uint8_t)zone;
+    m->x += x;
+    m->y += y;
+    m->xx += (int64_t)x * x;
+    m->yy += (int64_t)y * y;
+    m->xy += (int64_t)x * y;
+    m->conf += cf;
+    /* raster order: the first pixel met in a row is the leftmost */
+    if (a->tail >= 0 && wk->ent[a->tail].y == y) {
+        wk->ent[a->tail].xr = x;
+        return ST_OK;
+    }
+    if (GROW(wk->ent, wk->ent_cap, *nent + 1))
+        return ST_ENOMEM;
+    wk->ent[*nent] = (struct rowent){y, x, x, -1};
+    if (a->tail >= 0)
+        wk->ent[a->tail].next = (int32_t)*nent;
+    else
+        a->head = (int32_t)*nent;
+    a->tail = (int32_t)(*nent)++;
+    return ST_OK;
+}
+
+/* First pass: provisional labels, their equivalences, and what each label
+ * covers.  *nlab receives the number of provisional labels. */
+static int label_pass(struct region_set *rs, const struct image *cm, const float *conf,
+                      const struct regions_opts *o, int32_t *nlab)
 {
     const int w = cm->w, h = cm->h;
-    uint8_t *lcls = rs->work->lcls;
+    struct regions_work *wk = rs->work;
     int32_t next = 0;
+    size_t nent = 0;
     for (int y = 0; y < h; y++) {
         const uint8_t *row = cm->px + (size_t)y * w;
         const uint8_t *up = y ? row - w : NULL;
+        const uint8_t *zrow = o->zones ? o->zones->px + (size_t)y * w : NULL;
+        const float *crow = conf ? conf + (size_t)y * w : NULL;
         int32_t *lab = rs->labels + (size_t)y * w;
         int32_t *labup = y ? lab - w : NULL;
         for (int x = 0; x < w; x++) {
             int c = row[x];
             lab[x] = -1;
-            if (c >= nclasses || !is_defect[c])
+            if (c >= o->nclasses || !o->is_defect[c])
                 continue;
             int32_t l = -1;
             /* neighbours already visited: W, NW, N, NE (8) or W, N (4) */
@@ -122,7 +177,7 @@ static int32_t label_pass(struct region_set *rs, const struct image *cm, const i
             if (up) {
                 if (up[x] == c)
                     nb[nn++] = labup[x];
-                if (connectivity == 8) {
+                if (o->connectivity == 8) {
                     if (x && up[x - 1] == c)
                         nb[nn++] = labup[x - 1];
                     if (x + 1 < w && up[x + 1] == c)
@@ -136,14 +191,21 @@ static int32_t label_pass(struct region_set *rs, const struct image *cm, const i
                     unite(rs->parent, l, nb[i]);
             }
             if (l < 0) {
+                if (GROW(wk->acc, wk->acc_cap, (size_t)next + 1))
+                    return ST_ENOMEM;
                 l = next++;
                 rs->parent[l] = l;
-                lcls[l] = (uint8_t)c;
+                wk->acc[l] = (struct acc){.x0 = x, .x1 = x, .y0 = y, .head = -1, .tail = -1,
+                                          .min_conf = INFINITY, .cls = (uint8_t)c,
+                                          .zone = NO_ZONE};
             }
             lab[x] = l;
+            if (add_pixel(wk, l, x, y, crow ? crow[x] : 1.0f, zrow ? zrow[x] : NO_ZONE, &nent))
+                return ST_ENOMEM;
         }
     }
-    return next;
+    *nlab = next;
+    return ST_OK;
 }
 
 /* Dense region numbers ordered by class, then raster order of first pixel:
@@ -153,12 +215,12 @@ static int32_t label_pass(struct region_set *rs, const struct image *cm, const i
 static int number_regions(struct region_set *rs, int32_t nlab, int nclasses)
 {
     int32_t *parent = rs->parent;
-    const uint8_t *lcls = rs->work->lcls;
+    const struct acc *acc = rs->work->acc;
     int next[REGIONS_MAX_CLASSES] = {0};
     for (int32_t l = 0; l < nlab; l++) {
         parent[l] = find_root(parent, l);
         if (parent[l] == l)
-            next[lcls[l]]++;
+            next[acc[l].cls]++;
     }
     int nreg = 0;
     for (int c = 0; c < nclasses; c++) {
@@ -167,53 +229,50 @@ static int number_regions(struct region_set *rs, int32_t nlab, int nclasses)
         nreg += k;
     }
     for (int32_t l = 0; l < nlab; l++)
-        parent[l] = parent[l] == l ? -(++next[lcls[l]]) : parent[parent[l]];
+        parent[l] = parent[l] == l ? -(++next[acc[l].cls]) : parent[parent[l]];
     return nreg;
 }
 
-/* Second pass: final labels, and each region's counts, box, sums, zone. */
-static void stats_pass(struct region_set *rs, const struct image *cm, const float *conf,
-                       const struct image *zones)
+/* Widens a row (xl < 0: empty) to cover xl..xr. */
+static void row_add(struct hull_row *r, int32_t xl, int32_t xr)
 {
-    const int w = cm->w, h = cm->h;
-    struct moments *mom = rs->work->mom;
-    for (int y = 0; y < h; y++) {
-        int32_t *lab = rs->labels + (size_t)y * w;
-        const uint8_t *zrow = zones ? zones->px + (size_t)y * w : NULL;
-        for (int x = 0; x < w; x++) {
-            if (lab[x] < 0)
-                continue;
-            int k = -rs->parent[lab[x]] - 1;
-            lab[x] = k;
-            size_t i = (size_t)y * w + x;
-            struct region *g = &rs->r[k];
-            struct moments *m = &mom[k];
-            float c = conf ? conf[i] : 1.0f;
-            if (!g->pixels) {
-                g->cls = cm->px[i];
-                g->y0 = y;
-            }
-            g->pixels++;
-            if (x < g->x0) g->x0 = x;
-            if (x > g->x1) g->x1 = x;
-            g->y1 = y;
-            if (c < g->min_conf) g->min_conf = c;
-            if (zrow && zrow[x] < g->zone) g->zone = zrow[x];
-            m->x += x;
-            m->y += y;
-            m->xx += (int64_t)x * x;
-            m->yy += (int64_t)y * y;
-            m->xy += (int64_t)x * y;
-            m->conf += c;
-        }
+    if (r->xl < 0) {
+        r->xl = xl;
+        r->xr = xr;
+        return;
     }
+    if (xl < r->xl)
+        r->xl = xl;
+    if (xr > r->xr)
+        r->xr = xr;
 }
 
-/* Third pass: each region's leftmost and rightmost pixel in every row it
- * spans (a connected region has pixels in every row from y0 to y1). */
-static int rows_pass(struct region_set *rs, int w, int h, int nreg)
+/* Each label's counts into its region; then each region's rows (a
+ * connected region has pixels in every row from y0 to y1) from the labels'
+ * row entries. */
+static int fold_labels(struct region_set *rs, int32_t nlab, int nreg)
 {
     struct regions_work *wk = rs->work;
+    for (int32_t l = 0; l < nlab; l++) {
+        const struct acc *a = &wk->acc[l];
+        int k = -rs->parent[l] - 1;
+        struct region *g = &rs->r[k];
+        struct moments *m = &wk->mom[k];
+        g->cls = a->cls;
+        g->pixels += a->pixels;
+        if (a->x0 < g->x0) g->x0 = a->x0;
+        if (a->x1 > g->x1) g->x1 = a->x1;
+        if (a->y0 < g->y0) g->y0 = a->y0;
+        if (a->y1 > g->y1) g->y1 = a->y1;
+        if (a->min_conf < g->min_conf) g->min_conf = a->min_conf;
+        if (a->zone < g->zone) g->zone = a->zone;
+        m->x += a->m.x;
+        m->y += a->m.y;
+        m->xx += a->m.xx;
+        m->yy += a->m.yy;
+        m->xy += a->m.xy;
+        m->conf += a->m.conf;
+    }
     if (GROW(wk->row_off, wk->off_cap, (size_t)nreg + 1))
         return ST_ENOMEM;
     size_t total = 0;
@@ -225,20 +284,23 @@ static int rows_pass(struct region_set *rs, int w, int h, int nreg)
         return ST_ENOMEM;
     for (size_t t = 0; t < total; t++)
         wk->rows[t].xl = -1;
-    for (int y = 0; y < h; y++) {
-        const int32_t *lab = rs->labels + (size_t)y * w;
-        for (int x = 0; x < w; x++) {
-            int32_t k = lab[x];
-            if (k < 0)
-                continue;
-            struct hull_row *r = &wk->rows[wk->row_off[k] + y - rs->r[k].y0];
-            /* raster order: the first pixel met in a row is its leftmost */
-            if (r->xl < 0)
-                r->xl = x;
-            r->xr = x;
+    for (int32_t l = 0; l < nlab; l++) {
+        int k = -rs->parent[l] - 1;
+        struct hull_row *rows = wk->rows + wk->row_off[k] - rs->r[k].y0;
+        for (int32_t i = wk->acc[l].head; i >= 0; i = wk->ent[i].next) {
+            const struct rowent *t = &wk->ent[i];
+            row_add(&rows[t->y], t->xl, t->xr);
         }
     }
     return ST_OK;
+}
+
+/* Final labels: each pixel's region number. */
+static void relabel(struct region_set *rs, size_t npix)
+{
+    for (size_t p = 0; p < npix; p++)
+        if (rs->labels[p] >= 0)
+            rs->labels[p] = -rs->parent[rs->labels[p]] - 1;
 }
 
 /* Pixels with a 4-neighbour inside the frame outside their region: the only
@@ -402,16 +464,8 @@ static int union_rows(struct region_set *rs, int root)
         const struct region *J = &rs->r[j];
         const struct hull_row *src = wk->rows + wk->row_off[j];
         struct hull_row *dst = wk->urows + (J->y0 - y0);
-        for (int t = 0; t <= J->y1 - J->y0; t++) {
-            if (dst[t].xl < 0) {
-                dst[t] = src[t];
-                continue;
-            }
-            if (src[t].xl < dst[t].xl)
-                dst[t].xl = src[t].xl;
-            if (src[t].xr > dst[t].xr)
-                dst[t].xr = src[t].xr;
-        }
+        for (int t = 0; t <= J->y1 - J->y0; t++)
+            row_add(&dst[t], src[t].xl, src[t].xr);
     }
     return ST_OK;
 }
@@ -534,12 +588,13 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
     struct regions_work *wk = rs->work;
     /* at most one provisional label per pixel */
     if (grow((void **)&rs->labels, &rs->label_cap, npix, sizeof *rs->labels) ||
-        grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent) ||
-        GROW(wk->lcls, wk->lcls_cap, npix))
+        grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent))
         return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
     rs->n = 0;
 
-    int32_t nlab = label_pass(rs, classes, o->is_defect, o->nclasses, o->connectivity);
+    int32_t nlab;
+    if (label_pass(rs, classes, conf, o, &nlab))
+        return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
     int nreg = number_regions(rs, nlab, o->nclasses);
     if (nreg > rs->cap) {
         struct region *p = realloc(rs->r, (size_t)nreg * sizeof *p);
@@ -555,14 +610,16 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
         memset(g, 0, sizeof *g);
         g->x0 = w;
         g->x1 = -1;
+        g->y0 = h;
+        g->y1 = -1;
         g->min_conf = INFINITY;
         g->zone = NO_ZONE;
         g->fragments = 1;
     }
     memset(wk->mom, 0, (size_t)nreg * sizeof *wk->mom);
-    stats_pass(rs, classes, conf, o->zones);
+    relabel(rs, npix);
     int merged = 0;
-    if ((rc = rows_pass(rs, w, h, nreg)) || (rc = merge_pass(rs, o, w, h, nreg, &merged)) ||
+    if ((rc = fold_labels(rs, nlab, nreg)) || (rc = merge_pass(rs, o, w, h, nreg, &merged)) ||
         (rc = finish(rs, o, w, h, nreg, merged)))
         return err_set(e, rc, "out of memory measuring %d regions", nreg);
     return ST_OK;
