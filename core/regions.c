@@ -31,6 +31,10 @@ struct rowent {
     int32_t y, xl, xr, next;
 };
 
+struct bpix {
+    int32_t x, y;
+};
+
 /* Scratch owned by a region_set: sized to the largest frame and region count
  * seen, reused frame after frame. */
 struct regions_work {
@@ -39,12 +43,14 @@ struct regions_work {
     struct moments *mom;          /* per region */
     int32_t *row_off;             /* per region: first entry in rows */
     struct hull_row *rows;        /* per region, per row y0..y1: extreme pixels */
-    int32_t *bnd_off, *bnd;       /* per region: its boundary pixels (merging only) */
+    struct bpix *bnd;             /* merging: boundary pixels, region after region */
+    int32_t *bnd_start, *bnd_len; /* per region: its list in bnd (-1: not listed yet) */
+    size_t bnd_used;
     int32_t *mparent, *mnext;     /* merging: union-find and member lists */
     int32_t *remap;               /* merging: region to its defect's final index */
     struct hull_row *urows;       /* rows of one merged defect */
     struct hull_scratch hs;
-    size_t acc_cap, ent_cap, mom_cap, off_cap, rows_cap, bnd_off_cap, bnd_cap, mp_cap, mn_cap,
+    size_t acc_cap, ent_cap, mom_cap, off_cap, rows_cap, bnd_cap, bs_cap, bl_cap, mp_cap, mn_cap,
         remap_cap, urows_cap;
 };
 
@@ -98,7 +104,8 @@ void regions_clear(struct region_set *rs)
         free(wk->mom);
         free(wk->row_off);
         free(wk->rows);
-        free(wk->bnd_off);
+        free(wk->bnd_start);
+        free(wk->bnd_len);
         free(wk->bnd);
         free(wk->mparent);
         free(wk->mnext);
@@ -303,43 +310,37 @@ static void relabel(struct region_set *rs, size_t npix)
             rs->labels[p] = -rs->parent[rs->labels[p]] - 1;
 }
 
-/* Pixels with a 4-neighbour inside the frame outside their region: the only
- * ones that can be closest to another region (from any pixel, a step towards
- * the other region never increases the gap, and the walk leaves the region
- * through a boundary pixel). */
-static int boundary_pass(struct region_set *rs, int w, int h, int nreg)
+/* Region k's pixels with a 4-neighbour inside the frame outside the region,
+ * listed on first use (only regions with a neighbour within the gap need
+ * them): the only pixels that can be closest to another region (from any
+ * pixel a step towards the other region never increases the gap, and the
+ * walk leaves the region through a boundary pixel).  Cost: the pixels
+ * between its leftmost and rightmost in each row. */
+static int region_boundary(struct region_set *rs, int k, int w, int h)
 {
     struct regions_work *wk = rs->work;
-    if (GROW(wk->bnd_off, wk->bnd_off_cap, (size_t)nreg + 1))
-        return ST_ENOMEM;
-    memset(wk->bnd_off, 0, ((size_t)nreg + 1) * sizeof *wk->bnd_off);
-    /* count, then fill with bnd_off[k] as the cursor of region k */
-    for (int pass = 0; pass < 2; pass++) {
-        for (int y = 0; y < h; y++) {
-            const int32_t *lab = rs->labels + (size_t)y * w;
-            for (int x = 0; x < w; x++) {
-                int32_t k = lab[x];
-                if (k < 0)
-                    continue;
-                if ((!x || lab[x - 1] == k) && (x + 1 == w || lab[x + 1] == k) &&
-                    (!y || lab[x - w] == k) && (y + 1 == h || lab[x + w] == k))
-                    continue;
-                if (pass == 0)
-                    wk->bnd_off[k + 1]++;
-                else
-                    wk->bnd[wk->bnd_off[k]++] = (int32_t)((size_t)y * w + x);
-            }
-        }
-        if (pass == 0) {
-            for (int k = 0; k < nreg; k++)
-                wk->bnd_off[k + 1] += wk->bnd_off[k];
-            if (GROW(wk->bnd, wk->bnd_cap, (size_t)wk->bnd_off[nreg] + 1))
-                return ST_ENOMEM;
+    if (wk->bnd_start[k] >= 0)
+        return ST_OK;
+    const struct region *g = &rs->r[k];
+    const struct hull_row *rows = wk->rows + wk->row_off[k];
+    size_t n = wk->bnd_used;
+    for (int y = g->y0; y <= g->y1; y++) {
+        const struct hull_row *r = &rows[y - g->y0];
+        const int32_t *lab = rs->labels + (size_t)y * w;
+        if (GROW(wk->bnd, wk->bnd_cap, n + (size_t)(r->xr - r->xl + 1)))
+            return ST_ENOMEM;
+        for (int x = r->xl; x <= r->xr; x++) {
+            if (lab[x] != k)
+                continue;
+            if ((!x || lab[x - 1] == k) && (x + 1 == w || lab[x + 1] == k) &&
+                (!y || lab[x - w] == k) && (y + 1 == h || lab[x + w] == k))
+                continue;
+            wk->bnd[n++] = (struct bpix){x, y};
         }
     }
-    /* each cursor ended at the start of the next region */
-    memmove(wk->bnd_off + 1, wk->bnd_off, (size_t)nreg * sizeof *wk->bnd_off);
-    wk->bnd_off[0] = 0;
+    wk->bnd_start[k] = (int32_t)wk->bnd_used;
+    wk->bnd_len[k] = (int32_t)(n - wk->bnd_used);
+    wk->bnd_used = n;
     return ST_OK;
 }
 
@@ -354,12 +355,13 @@ static int within_gap(int dx, int dy, double sx, double sy, double gap2)
     return gx * gx + gy * gy <= gap2 * (1 + 1e-9);
 }
 
-/* Whether two regions of one class lie within the gap, edge to edge.  The
- * boxes are checked first (their gap is never larger than the regions').
- * Cost: at worst boundary(a) x boundary(b) pixel pairs, only for pairs whose
- * boxes are within the gap; pixels outside the other box grown by the gap
- * are skipped, and the search stops at the first close pair. */
-static int regions_close(const struct region_set *rs, int a, int b, int w, double sx, double sy,
+/* Whether two regions of one class lie within the gap, edge to edge (-1:
+ * out of memory).  The boxes are checked first (their gap is never larger
+ * than the regions').  Cost: at worst boundary(a) x boundary(b) pixel pairs,
+ * only for pairs whose boxes are within the gap; pixels of a outside b's box
+ * grown by the gap are skipped, and the search stops at the first close
+ * pair. */
+static int regions_close(struct region_set *rs, int a, int b, int w, int h, double sx, double sy,
                          double gap2, int gx, int gy)
 {
     const struct region *A = &rs->r[a], *B = &rs->r[b];
@@ -367,16 +369,17 @@ static int regions_close(const struct region_set *rs, int a, int b, int w, doubl
     int dy = A->y0 > B->y1 ? A->y0 - B->y1 : B->y0 > A->y1 ? B->y0 - A->y1 : 0;
     if (!within_gap(dx, dy, sx, sy, gap2))
         return 0;
+    if (region_boundary(rs, a, w, h) || region_boundary(rs, b, w, h))
+        return -1;
     const struct regions_work *wk = rs->work;
-    for (int32_t i = wk->bnd_off[a]; i < wk->bnd_off[a + 1]; i++) {
-        int ax = wk->bnd[i] % w, ay = wk->bnd[i] / w;
+    const struct bpix *pa = wk->bnd + wk->bnd_start[a], *pb = wk->bnd + wk->bnd_start[b];
+    for (int32_t i = 0; i < wk->bnd_len[a]; i++) {
+        int ax = pa[i].x, ay = pa[i].y;
         if (ax < B->x0 - gx || ax > B->x1 + gx || ay < B->y0 - gy || ay > B->y1 + gy)
             continue;
-        for (int32_t j = wk->bnd_off[b]; j < wk->bnd_off[b + 1]; j++) {
-            int bx = wk->bnd[j] % w, by = wk->bnd[j] / w;
-            if (within_gap(bx - ax, by - ay, sx, sy, gap2))
+        for (int32_t j = 0; j < wk->bnd_len[b]; j++)
+            if (within_gap(pb[j].x - ax, pb[j].y - ay, sx, sy, gap2))
                 return 1;
-        }
     }
     return 0;
 }
@@ -392,9 +395,13 @@ static int merge_pass(struct region_set *rs, const struct regions_opts *o, int w
     *merged = 0;
     if (GROW(wk->mparent, wk->mp_cap, (size_t)nreg))
         return ST_ENOMEM;
-    for (int i = 0; i < nreg; i++)
+    if (GROW(wk->bnd_start, wk->bs_cap, (size_t)nreg) || GROW(wk->bnd_len, wk->bl_cap, (size_t)nreg))
+        return ST_ENOMEM;
+    for (int i = 0; i < nreg; i++) {
         wk->mparent[i] = i;
-    int have_bnd = 0;
+        wk->bnd_start[i] = -1;
+    }
+    wk->bnd_used = 0;
     for (int i = 0; i < nreg; i++) {
         const struct region *A = &rs->r[i];
         double gap = o->merge_gap_mm[A->cls];
@@ -406,12 +413,10 @@ static int merge_pass(struct region_set *rs, const struct regions_opts *o, int w
         for (int j = i + 1; j < nreg && rs->r[j].cls == A->cls && rs->r[j].y0 <= A->y1 + gy; j++) {
             if (find_root(wk->mparent, i) == find_root(wk->mparent, j))
                 continue;
-            if (!have_bnd) {
-                if (boundary_pass(rs, w, h, nreg))
-                    return ST_ENOMEM;
-                have_bnd = 1;
-            }
-            if (regions_close(rs, i, j, w, o->mm_per_px_x, o->mm_per_px_y, gap2, gx, gy)) {
+            int close = regions_close(rs, i, j, w, h, o->mm_per_px_x, o->mm_per_px_y, gap2, gx, gy);
+            if (close < 0)
+                return ST_ENOMEM;
+            if (close) {
                 unite(wk->mparent, i, j);
                 *merged = 1;
             }
