@@ -7,6 +7,7 @@
 #include "hull.h"
 
 #define NO_ZONE 255
+#define PI 3.14159265358979323846
 
 /* Raw sums of one region (exact integers, so merging fragments adds them
  * without rounding); the centroid and second moments come from them. */
@@ -476,14 +477,17 @@ static int union_rows(struct region_set *rs, int root)
 }
 
 /* Orientation of the major axis of the region's pixels as points in mm,
- * from the second central moments. */
+ * from the second central moments: radians from +x turning towards +y, in
+ * (-pi/2, pi/2]; 0 when the moments have no major axis. */
 static double orientation(const struct moments *m, int n, double sx, double sy)
 {
     double cx = (double)m->x / n, cy = (double)m->y / n;
     double mxx = ((double)m->xx - cx * (double)m->x) * sx * sx;
     double myy = ((double)m->yy - cy * (double)m->y) * sy * sy;
     double mxy = ((double)m->xy - cx * (double)m->y) * sx * sy;
-    return 0.5 * atan2(2 * mxy, mxx - myy);
+    double a = 0.5 * atan2(2 * mxy, mxx - myy);
+    /* atan2(-0, x < 0) is -pi: the same axis as +pi/2 */
+    return a <= -PI / 2 ? a + PI : a;
 }
 
 /* Everything measured from the (summed) counts and the rows. */
