@@ -50,7 +50,8 @@ struct regions_work {
     int32_t *mparent, *mnext;     /* merging: union-find and member lists */
     int32_t *remap;               /* merging: region to its defect's final index */
     struct hull_row *urows;       /* rows of one merged defect */
-    struct hull_scratch hs;
+    struct hull_buf hb;           /* for hull_measure_feret */
+    size_t hb_caps[4];
     size_t acc_cap, ent_cap, mom_cap, off_cap, rows_cap, bnd_cap, bs_cap, bl_cap, mp_cap, mn_cap,
         remap_cap, urows_cap;
 };
@@ -77,7 +78,8 @@ static void unite(int32_t *parent, int32_t a, int32_t b)
 
 static int grow(void **buf, size_t *cap, size_t need, size_t elem)
 {
-    if (need <= *cap)
+    /* never NULL afterwards, even for nothing (memset and memcpy want it) */
+    if (need <= *cap && *buf)
         return ST_OK;
     /* a little headroom so slowly growing counts do not realloc every frame */
     size_t n = need + need / 4 + 16;
@@ -112,7 +114,10 @@ void regions_clear(struct region_set *rs)
         free(wk->mnext);
         free(wk->remap);
         free(wk->urows);
-        hull_scratch_clear(&wk->hs);
+        free(wk->hb.pts);
+        free(wk->hb.left);
+        free(wk->hb.right);
+        free(wk->hb.rows);
         free(wk);
     }
     free(rs->r);
@@ -288,7 +293,7 @@ static int fold_labels(struct region_set *rs, int32_t nlab, int nreg)
         wk->row_off[k] = (int32_t)total;
         total += (size_t)(rs->r[k].y1 - rs->r[k].y0 + 1);
     }
-    if (GROW(wk->rows, wk->rows_cap, total ? total : 1))
+    if (GROW(wk->rows, wk->rows_cap, total))
         return ST_ENOMEM;
     for (size_t t = 0; t < total; t++)
         wk->rows[t].xl = -1;
@@ -503,8 +508,13 @@ static int measure(struct region_set *rs, int k, const struct hull_row *rows,
     g->area_mm2 = g->pixels * sx * sy;
     g->orientation = orientation(m, g->pixels, sx, sy);
     g->zone = g->zone == NO_ZONE ? -1 : g->zone;
-    return hull_measure_feret(&rs->work->hs, rows, g->y0, g->y1 - g->y0 + 1, sx, sy, &g->length_mm,
-                      &g->width_mm);
+    struct regions_work *wk = rs->work;
+    size_t nrows = (size_t)(g->y1 - g->y0 + 1), np = HULL_POINTS(nrows);
+    if (GROW(wk->hb.pts, wk->hb_caps[0], np) || GROW(wk->hb.left, wk->hb_caps[1], np) ||
+        GROW(wk->hb.right, wk->hb_caps[2], np) || GROW(wk->hb.rows, wk->hb_caps[3], nrows))
+        return ST_ENOMEM;
+    hull_measure_feret(rows, g->y0, (int)nrows, sx, sy, &wk->hb, &g->length_mm, &g->width_mm);
+    return ST_OK;
 }
 
 /* Measures every defect, folding merged fragments into the first, and
