@@ -11,7 +11,9 @@
  *   3. the Feret diameters are those of the convex hull of the hull image's
  *      edge midpoints (the level-1/2 contour scikit-image measures).
  * A 16 x 16 square thus has length sqrt(16^2 + 15^2) (its corners are cut)
- * and width 16.  Points are scaled to mm (x by sx, y by sy) before measuring,
+ * and width 16; a single pixel is a diamond, 1 long and 1/sqrt(2) wide, and
+ * a line one pixel thick is 1 wide when straight, about 1/sqrt(2) when
+ * diagonal.  Points are scaled to mm (x by sx, y by sy) before measuring,
  * so anisotropic pixels are handled; steps 1-2 are exact integer arithmetic
  * on doubled coordinates.  Works in the caller's buffers: never allocates,
  * keeps nothing between calls. */

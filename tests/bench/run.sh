@@ -28,3 +28,5 @@ for size in 640x480 1280x960; do
     done
 done
 "$PYTHON" tests/bench/report.py "$results"
+echo "bench: regions alone on simulated class maps" >&2
+"$BUILD/tests/bench/regions_bench" "$REPEAT"
