@@ -181,27 +181,30 @@ static int label_pass(struct region_set *rs, const struct image *cm, const float
             lab[x] = -1;
             if (c >= o->nclasses || !o->is_defect[c])
                 continue;
+            /* Of the neighbours already visited (W, NW, N, NE), those
+             * adjacent to each other were united when the later of them
+             * was labelled, so only non-adjacent pairs need a union: in 8,
+             * N touches all others, and W, NW never touch NE; in 4, W and
+             * N do not touch. */
+            int w_ = x && row[x - 1] == c, n_ = up && up[x] == c;
             int32_t l = -1;
-            /* neighbours already visited: W, NW, N, NE (8) or W, N (4) */
-            int32_t nb[4];
-            int nn = 0;
-            if (x && row[x - 1] == c)
-                nb[nn++] = lab[x - 1];
-            if (up) {
-                if (up[x] == c)
-                    nb[nn++] = labup[x];
-                if (o->connectivity == 8) {
-                    if (x && up[x - 1] == c)
-                        nb[nn++] = labup[x - 1];
-                    if (x + 1 < w && up[x + 1] == c)
-                        nb[nn++] = labup[x + 1];
+            if (o->connectivity == 8) {
+                int nw = up && x && up[x - 1] == c, ne = up && x + 1 < w && up[x + 1] == c;
+                if (n_) {
+                    l = labup[x];
+                } else if (ne) {
+                    l = labup[x + 1];
+                    if (w_ || nw)
+                        unite(rs->parent, l, w_ ? lab[x - 1] : labup[x - 1]);
+                } else if (w_ || nw) {
+                    l = w_ ? lab[x - 1] : labup[x - 1];
                 }
-            }
-            for (int i = 0; i < nn; i++) {
-                if (l < 0)
-                    l = nb[i];
-                else
-                    unite(rs->parent, l, nb[i]);
+            } else if (w_) {
+                l = lab[x - 1];
+                if (n_ && labup[x] != l)
+                    unite(rs->parent, l, labup[x]);
+            } else if (n_) {
+                l = labup[x];
             }
             if (l < 0) {
                 if (GROW(wk->acc, wk->acc_cap, (size_t)next + 1))
