@@ -302,10 +302,10 @@ static int fold_labels(struct region_set *rs, int32_t nlab, int nreg)
         wk->rows[t].xl = -1;
     for (int32_t l = 0; l < nlab; l++) {
         int k = -rs->parent[l] - 1;
-        struct hull_row *rows = wk->rows + wk->row_off[k] - rs->r[k].y0;
+        size_t first = (size_t)wk->row_off[k];
         for (int32_t i = wk->acc[l].head; i >= 0; i = wk->ent[i].next) {
             const struct rowent *t = &wk->ent[i];
-            row_add(&rows[t->y], t->xl, t->xr);
+            row_add(&wk->rows[first + (size_t)(t->y - rs->r[k].y0)], t->xl, t->xr);
         }
     }
     return ST_OK;

@@ -29,9 +29,10 @@
  * merges despite rounding) are one defect, transitively: counts, sums and
  * boxes added, centroid, confidence, orientation and Feret diameters
  * measured on the union of the pixels, fragments = how many merged.  Cost:
- * pairs are swept by class and first row, boxes compared first; only pairs
- * whose boxes are within the gap compare boundary pixels, at worst
- * boundary(a) x boundary(b) pairs each.
+ * pairs are swept by class and first row (at worst every pair of a class's
+ * regions, when all start within the gap's reach of each other's last
+ * row), boxes compared first; only pairs whose boxes are within the gap
+ * compare boundary pixels, at worst boundary(a) x boundary(b) pairs each.
  * A region_set owns its label buffer, region array and all scratch, and
  * reuses them frame after frame: no allocation once the largest frame and
  * region count have been seen.  Never prints, keeps no global state. */
