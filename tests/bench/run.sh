@@ -31,3 +31,5 @@ done
 "$PYTHON" tests/bench/report.py "$results"
 echo
 "$BUILD/tests/bench/bench_overlay"
+echo "bench: regions alone on simulated class maps" >&2
+"$BUILD/tests/bench/regions_bench" "$REPEAT"
