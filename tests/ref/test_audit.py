@@ -341,6 +341,16 @@ def part2(tmp):
 
     view(tmp, db, lines, rows, col)
 
+    # A missing overlay file costs its thumbnail, not the page.
+    newest = max(x["seq"] for x in lines if x["verdict"] != "PASS")
+    gone = next(r[col["overlay"]] for r in rows[1:] if int(r[col["seq"]]) == newest)
+    os.remove(os.path.join(tmp, "evidence", gone))
+    r = run("audit", "report", "--log", db, "--out", page, "--thumbs", "5")
+    html = open(page, encoding="utf-8").read() if r.returncode == 0 else ""
+    check("report: a missing overlay file is noted in its place, the others still shown",
+          "overlay file missing or unreadable" in html and html.count("data:image/png") == 4,
+          r.stderr)
+
     r = run("audit", "stats", "--log", os.path.join(tmp, "missing.db"))
     check("stats: a missing log is one line naming it, exit 3",
           r.returncode == 3 and "missing.db" in r.stderr and r.stderr.count("\n") == 1, r.stderr)
