@@ -1,37 +1,6 @@
 #include "hull.h"
 
 #include <math.h>
-#include <stdlib.h>
-#include <string.h>
-
-#include "err.h"
-
-static int grow(void **buf, size_t *cap, size_t need, size_t elem)
-{
-    if (need <= *cap)
-        return ST_OK;
-    size_t n = need + need / 4 + 16;
-    void *p = realloc(*buf, n * elem);
-    if (!p)
-        return ST_ENOMEM;
-    *buf = p;
-    *cap = n;
-    return ST_OK;
-}
-
-void hull_scratch_init(struct hull_scratch *hs)
-{
-    memset(hs, 0, sizeof *hs);
-}
-
-void hull_scratch_clear(struct hull_scratch *hs)
-{
-    free(hs->pts);
-    free(hs->left);
-    free(hs->right);
-    free(hs->rows);
-    hull_scratch_init(hs);
-}
 
 static void emit(struct hull_pt *p, size_t *n, int32_t l, int32_t r, int32_t y)
 {
@@ -112,46 +81,37 @@ static void chain_x(const struct hull_pt *c, size_t *i, int32_t y, int64_t *num,
     *num = (int64_t)p.x * *den + (int64_t)(y - p.y) * (q.x - p.x);
 }
 
-static int hull_of_rows(struct hull_scratch *hs, const struct hull_row *rows, int y0, int nrows,
-                        size_t *nl, size_t *nr)
+static void hull_of_rows(const struct hull_buf *b, const struct hull_row *rows, int y0,
+                         int nrows, size_t *nl, size_t *nr)
 {
-    size_t cap = 6 * (size_t)nrows + 6;
-    if (grow((void **)&hs->pts, &hs->pts_cap, cap, sizeof *hs->pts) ||
-        grow((void **)&hs->left, &hs->left_cap, cap, sizeof *hs->left) ||
-        grow((void **)&hs->right, &hs->right_cap, cap, sizeof *hs->right))
-        return ST_ENOMEM;
-    size_t n = level_points(hs->pts, rows, y0, nrows);
-    chains(hs->pts, n, hs->left, nl, hs->right, nr);
-    return ST_OK;
+    size_t n = level_points(b->pts, rows, y0, nrows);
+    chains(b->pts, n, b->left, nl, b->right, nr);
 }
 
-int hull_measure_feret(struct hull_scratch *hs, const struct hull_row *rows, int y0, int nrows,
-                       double sx, double sy, double *length, double *width)
+void hull_measure_feret(const struct hull_row *rows, int y0, int nrows, double sx, double sy,
+                        const struct hull_buf *b, double *length, double *width)
 {
     size_t nl, nr;
-    int rc = hull_of_rows(hs, rows, y0, nrows, &nl, &nr);
-    if (rc || grow((void **)&hs->rows, &hs->rows_cap, (size_t)nrows, sizeof *hs->rows))
-        return rc ? rc : ST_ENOMEM;
+    hull_of_rows(b, rows, y0, nrows, &nl, &nr);
     /* step 2: the hull image, row by row (its rows are those of the set:
      * K spans levels 2 y0 - 1 to 2 y1 + 1, pixel centres lie on even levels) */
     size_t il = 0, ir = 0;
     for (int t = 0; t < nrows; t++) {
         int64_t num, den;
         int32_t y = 2 * (y0 + t);
-        chain_x(hs->left, &il, y, &num, &den);
-        hs->rows[t].xl = (int32_t)ceil_div(num, 2 * den);
-        chain_x(hs->right, &ir, y, &num, &den);
-        hs->rows[t].xr = (int32_t)floor_div(num, 2 * den);
+        chain_x(b->left, &il, y, &num, &den);
+        b->rows[t].xl = (int32_t)ceil_div(num, 2 * den);
+        chain_x(b->right, &ir, y, &num, &den);
+        b->rows[t].xr = (int32_t)floor_div(num, 2 * den);
     }
     /* step 3: the hull image's own hull, as one polygon in mm */
-    if ((rc = hull_of_rows(hs, hs->rows, y0, nrows, &nl, &nr)))
-        return rc;
-    struct hull_pt *poly = hs->pts;
+    hull_of_rows(b, b->rows, y0, nrows, &nl, &nr);
+    struct hull_pt *poly = b->pts;
     size_t h = 0;
     for (size_t i = 0; i < nl; i++)
-        poly[h++] = hs->left[i];
+        poly[h++] = b->left[i];
     for (size_t i = nr - 1; i-- > 1;)
-        poly[h++] = hs->right[i];
+        poly[h++] = b->right[i];
     double best = 0, narrow = INFINITY;
     for (size_t i = 0; i < h; i++) {
         double px = poly[i].x * 0.5 * sx, py = poly[i].y * 0.5 * sy;
@@ -172,5 +132,4 @@ int hull_measure_feret(struct hull_scratch *hs, const struct hull_row *rows, int
     }
     *length = sqrt(best);
     *width = h >= 3 ? narrow : 0;
-    return ST_OK;
 }

@@ -11,10 +11,12 @@
  *   3. the Feret diameters are those of the convex hull of the hull image's
  *      edge midpoints (the level-1/2 contour scikit-image measures).
  * A 16 x 16 square thus has length sqrt(16^2 + 15^2) (its corners are cut)
- * and width 16.  Points are scaled to mm (x by sx, y by sy) before measuring,
+ * and width 16; a single pixel is a diamond, 1 long and 1/sqrt(2) wide, and
+ * a line one pixel thick is 1 wide when straight, about 1/sqrt(2) when
+ * diagonal.  Points are scaled to mm (x by sx, y by sy) before measuring,
  * so anisotropic pixels are handled; steps 1-2 are exact integer arithmetic
- * on doubled coordinates.  The scratch holds point buffers reused across
- * calls; nothing else is kept. */
+ * on doubled coordinates.  Works in the caller's buffers: never allocates,
+ * keeps nothing between calls. */
 #ifndef ST_HULL_H
 #define ST_HULL_H
 
@@ -29,22 +31,21 @@ struct hull_pt {
     int32_t x, y;     /* doubled coordinates: pixel centres are even */
 };
 
-struct hull_scratch {
+/* Work space of one measure, owned by the caller: pts, left and right hold
+ * HULL_POINTS(nrows) points each, rows holds nrows rows. */
+struct hull_buf {
     struct hull_pt *pts, *left, *right;
     struct hull_row *rows;
-    size_t pts_cap, left_cap, right_cap, rows_cap;
 };
 
-void hull_scratch_init(struct hull_scratch *hs);
-void hull_scratch_clear(struct hull_scratch *hs);
+#define HULL_POINTS(nrows) (4 * (size_t)(nrows) + 2)
 
 /* Maximum Feret diameter (length) and minimum Feret diameter (width, the
  * narrowest caliper) in mm of the pixels in rows[0..nrows-1], row t being
- * image row y0 + t; at least one row must be non-empty.  Cost O(nrows + h^2)
- * for a hull of h vertices (h grows as the 2/3 power of the size: tens of
- * vertices for a defect hundreds of pixels across).  Returns ST_OK or
- * ST_ENOMEM. */
-int hull_measure_feret(struct hull_scratch *hs, const struct hull_row *rows, int y0, int nrows,
-                       double sx, double sy, double *length, double *width);
+ * image row y0 + t; the first and last rows must be non-empty.  Cost
+ * O(nrows + h^2) for a hull of h vertices (h grows as the 2/3 power of the
+ * size: tens of vertices for a defect hundreds of pixels across). */
+void hull_measure_feret(const struct hull_row *rows, int y0, int nrows, double sx, double sy,
+                        const struct hull_buf *buf, double *length, double *width);
 
 #endif

@@ -56,17 +56,6 @@ static int same_size(const struct image *frame, const struct image *m, const cha
                    frame->w, frame->h);
 }
 
-struct image *overlay_blend(const struct image *frame, const struct image *classes,
-                            const struct recipe *r, double alpha, struct err *e)
-{
-    if (same_size(frame, classes, "class map", e))
-        return NULL;
-    struct image *out = image_new(frame->w, frame->h, 3, e);
-    if (out)
-        blend_into(frame, classes, r, alpha, out, 0);
-    return out;
-}
-
 struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e)
 {
     const int gap = 4;

@@ -16,11 +16,6 @@
 struct image *overlay_colourise(const struct image *classes, const struct recipe *r,
                                 struct err *e);
 
-/* The frame with defect classes blended in their colour (alpha in 0..1) and
- * non-defect classes left as they are, so the part stays recognisable. */
-struct image *overlay_blend(const struct image *frame, const struct image *classes,
-                            const struct recipe *r, double alpha, struct err *e);
-
 /* Images of equal height side by side, with a 4-pixel white gap. */
 struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e);
 
@@ -37,8 +32,10 @@ struct image *overlay_side_by_side(const struct image *const *imgs, int n, struc
  * rs->labels — find_boundaries(mode="inner") in scikit-image's terms), and
  * the id of every region that counts under its tolerance, in its class
  * colour on a dark box beside its bounding box.  zones may be NULL (no
- * zone outlines); j NULL draws no banner.  Labels outside 0..rs->n-1 are
- * taken as no region. */
+ * zone outlines); j NULL draws no banner.  A region's outline is looked
+ * for inside its bounding box; labels outside 0..rs->n-1 are taken as no
+ * region.  The reason and the caution wrap at spaces onto more lines
+ * rather than shrink below the scale. */
 #define OVERLAY_TINT 0.35
 #define OVERLAY_PASS_RGB {30, 110, 50}
 #define OVERLAY_FAIL_RGB {170, 30, 30}
@@ -52,7 +49,9 @@ struct image *overlay_inspection(const struct image *frame, const struct image *
                                  const struct recipe *r, const struct judgement *j,
                                  struct err *e);
 
-/* Font scale of the inspection picture's text for a frame w pixels wide. */
+/* Font scale of the inspection picture's text for a frame w pixels wide:
+ * 1 below 240 px, else w / 400 but at least 2 (12 px glyph advance at
+ * 480 px wide, 18 px at 1280). */
 int overlay_text_scale(int w);
 
 #endif

@@ -208,7 +208,7 @@ struct section {
     enum sec_kind kind;
     char name[32];
     char zone[32];          /* [tolerance CLASS in ZONE]: ZONE, else empty */
-    char title[80];         /* "class scratch", for messages */
+    char title[96];         /* "class scratch", for messages */
     int line;               /* of the header */
     int key_line[MAX_KEYS]; /* where each key was set, 0 = not set */
     int index;              /* class index, or slot in tolv */

@@ -7,6 +7,7 @@
 #include "hull.h"
 
 #define NO_ZONE 255
+#define PI 3.14159265358979323846
 
 /* Raw sums of one region (exact integers, so merging fragments adds them
  * without rounding); the centroid and second moments come from them. */
@@ -15,20 +16,44 @@ struct moments {
     double conf;
 };
 
+/* What the labelling pass gathers per provisional label; folded into the
+ * label's region afterwards, so one pass over the pixels measures all but
+ * the final labels. */
+struct acc {
+    int32_t pixels, x0, x1, y0, y1;
+    int32_t head, tail;           /* its row entries, in row order */
+    float min_conf;
+    uint8_t cls, zone;
+    struct moments m;
+};
+
+/* A provisional label's leftmost and rightmost pixel in row y. */
+struct rowent {
+    int32_t y, xl, xr, next;
+};
+
+struct bpix {
+    int32_t x, y;
+};
+
 /* Scratch owned by a region_set: sized to the largest frame and region count
  * seen, reused frame after frame. */
 struct regions_work {
-    uint8_t *lcls;                /* class of each provisional label */
+    struct acc *acc;              /* per provisional label */
+    struct rowent *ent;
     struct moments *mom;          /* per region */
     int32_t *row_off;             /* per region: first entry in rows */
     struct hull_row *rows;        /* per region, per row y0..y1: extreme pixels */
-    int32_t *bnd_off, *bnd;       /* per region: its boundary pixels (merging only) */
+    struct bpix *bnd;             /* merging: boundary pixels, region after region */
+    int32_t *bnd_start, *bnd_len; /* per region: its list in bnd (-1: not listed yet) */
+    size_t bnd_used;
     int32_t *mparent, *mnext;     /* merging: union-find and member lists */
     int32_t *remap;               /* merging: region to its defect's final index */
     struct hull_row *urows;       /* rows of one merged defect */
-    struct hull_scratch hs;
-    size_t lcls_cap, mom_cap, off_cap, rows_cap, bnd_off_cap, bnd_cap, mp_cap, mn_cap, remap_cap,
-        urows_cap;
+    struct hull_buf hb;           /* for hull_measure_feret */
+    size_t hb_caps[4];
+    size_t acc_cap, ent_cap, mom_cap, off_cap, rows_cap, bnd_cap, bs_cap, bl_cap, mp_cap, mn_cap,
+        remap_cap, urows_cap;
 };
 
 static int32_t find_root(int32_t *parent, int32_t i)
@@ -53,7 +78,8 @@ static void unite(int32_t *parent, int32_t a, int32_t b)
 
 static int grow(void **buf, size_t *cap, size_t need, size_t elem)
 {
-    if (need <= *cap)
+    /* never NULL afterwards, even for nothing (memset and memcpy want it) */
+    if (need <= *cap && *buf)
         return ST_OK;
     /* a little headroom so slowly growing counts do not realloc every frame */
     size_t n = need + need / 4 + 16;
@@ -76,17 +102,22 @@ void regions_clear(struct region_set *rs)
 {
     struct regions_work *wk = rs->work;
     if (wk) {
-        free(wk->lcls);
+        free(wk->acc);
+        free(wk->ent);
         free(wk->mom);
         free(wk->row_off);
         free(wk->rows);
-        free(wk->bnd_off);
+        free(wk->bnd_start);
+        free(wk->bnd_len);
         free(wk->bnd);
         free(wk->mparent);
         free(wk->mnext);
         free(wk->remap);
         free(wk->urows);
-        hull_scratch_clear(&wk->hs);
+        free(wk->hb.pts);
+        free(wk->hb.left);
+        free(wk->hb.right);
+        free(wk->hb.rows);
         free(wk);
     }
     free(rs->r);
@@ -95,55 +126,102 @@ void regions_clear(struct region_set *rs)
     regions_init(rs);
 }
 
-/* First pass: provisional labels, their equivalences and each label's class.
- * Returns the number of provisional labels. */
-static int32_t label_pass(struct region_set *rs, const struct image *cm, const int *is_defect,
-                          int nclasses, int connectivity)
+/* Adds pixel (x, y) to provisional label l. */
+static int add_pixel(struct regions_work *wk, int32_t l, int x, int y, float cf, int zone,
+                     size_t *nent)
+{
+    struct acc *a = &wk->acc[l];
+    struct moments *m = &a->m;
+    a->pixels++;
+    if (x < a->x0) a->x0 = x;
+    if (x > a->x1) a->x1 = x;
+    a->y1 = y;
+    if (cf < a->min_conf) a->min_conf = cf;
+    if (zone < a->zone) a->zone = (uint8_t)zone;
+    m->x += x;
+    m->y += y;
+    m->xx += (int64_t)x * x;
+    m->yy += (int64_t)y * y;
+    m->xy += (int64_t)x * y;
+    m->conf += cf;
+    /* raster order: the first pixel met in a row is the leftmost */
+    if (a->tail >= 0 && wk->ent[a->tail].y == y) {
+        wk->ent[a->tail].xr = x;
+        return ST_OK;
+    }
+    if (GROW(wk->ent, wk->ent_cap, *nent + 1))
+        return ST_ENOMEM;
+    wk->ent[*nent] = (struct rowent){y, x, x, -1};
+    if (a->tail >= 0)
+        wk->ent[a->tail].next = (int32_t)*nent;
+    else
+        a->head = (int32_t)*nent;
+    a->tail = (int32_t)(*nent)++;
+    return ST_OK;
+}
+
+/* First pass: provisional labels, their equivalences, and what each label
+ * covers.  *nlab receives the number of provisional labels. */
+static int label_pass(struct region_set *rs, const struct image *cm, const float *conf,
+                      const struct regions_opts *o, int32_t *nlab)
 {
     const int w = cm->w, h = cm->h;
-    uint8_t *lcls = rs->work->lcls;
+    struct regions_work *wk = rs->work;
     int32_t next = 0;
+    size_t nent = 0;
     for (int y = 0; y < h; y++) {
         const uint8_t *row = cm->px + (size_t)y * w;
         const uint8_t *up = y ? row - w : NULL;
+        const uint8_t *zrow = o->zones ? o->zones->px + (size_t)y * w : NULL;
+        const float *crow = conf ? conf + (size_t)y * w : NULL;
         int32_t *lab = rs->labels + (size_t)y * w;
         int32_t *labup = y ? lab - w : NULL;
         for (int x = 0; x < w; x++) {
             int c = row[x];
             lab[x] = -1;
-            if (c >= nclasses || !is_defect[c])
+            if (c >= o->nclasses || !o->is_defect[c])
                 continue;
+            /* Of the neighbours already visited (W, NW, N, NE), those
+             * adjacent to each other were united when the later of them
+             * was labelled, so only non-adjacent pairs need a union: in 8,
+             * N touches all others, and W, NW never touch NE; in 4, W and
+             * N do not touch. */
+            int w_ = x && row[x - 1] == c, n_ = up && up[x] == c;
             int32_t l = -1;
-            /* neighbours already visited: W, NW, N, NE (8) or W, N (4) */
-            int32_t nb[4];
-            int nn = 0;
-            if (x && row[x - 1] == c)
-                nb[nn++] = lab[x - 1];
-            if (up) {
-                if (up[x] == c)
-                    nb[nn++] = labup[x];
-                if (connectivity == 8) {
-                    if (x && up[x - 1] == c)
-                        nb[nn++] = labup[x - 1];
-                    if (x + 1 < w && up[x + 1] == c)
-                        nb[nn++] = labup[x + 1];
+            if (o->connectivity == 8) {
+                int nw = up && x && up[x - 1] == c, ne = up && x + 1 < w && up[x + 1] == c;
+                if (n_) {
+                    l = labup[x];
+                } else if (ne) {
+                    l = labup[x + 1];
+                    if (w_ || nw)
+                        unite(rs->parent, l, w_ ? lab[x - 1] : labup[x - 1]);
+                } else if (w_ || nw) {
+                    l = w_ ? lab[x - 1] : labup[x - 1];
                 }
-            }
-            for (int i = 0; i < nn; i++) {
-                if (l < 0)
-                    l = nb[i];
-                else
-                    unite(rs->parent, l, nb[i]);
+            } else if (w_) {
+                l = lab[x - 1];
+                if (n_ && labup[x] != l)
+                    unite(rs->parent, l, labup[x]);
+            } else if (n_) {
+                l = labup[x];
             }
             if (l < 0) {
+                if (GROW(wk->acc, wk->acc_cap, (size_t)next + 1))
+                    return ST_ENOMEM;
                 l = next++;
                 rs->parent[l] = l;
-                lcls[l] = (uint8_t)c;
+                wk->acc[l] = (struct acc){.x0 = x, .x1 = x, .y0 = y, .head = -1, .tail = -1,
+                                          .min_conf = INFINITY, .cls = (uint8_t)c,
+                                          .zone = NO_ZONE};
             }
             lab[x] = l;
+            if (add_pixel(wk, l, x, y, crow ? crow[x] : 1.0f, zrow ? zrow[x] : NO_ZONE, &nent))
+                return ST_ENOMEM;
         }
     }
-    return next;
+    *nlab = next;
+    return ST_OK;
 }
 
 /* Dense region numbers ordered by class, then raster order of first pixel:
@@ -153,12 +231,12 @@ static int32_t label_pass(struct region_set *rs, const struct image *cm, const i
 static int number_regions(struct region_set *rs, int32_t nlab, int nclasses)
 {
     int32_t *parent = rs->parent;
-    const uint8_t *lcls = rs->work->lcls;
+    const struct acc *acc = rs->work->acc;
     int next[REGIONS_MAX_CLASSES] = {0};
     for (int32_t l = 0; l < nlab; l++) {
         parent[l] = find_root(parent, l);
         if (parent[l] == l)
-            next[lcls[l]]++;
+            next[acc[l].cls]++;
     }
     int nreg = 0;
     for (int c = 0; c < nclasses; c++) {
@@ -167,53 +245,50 @@ static int number_regions(struct region_set *rs, int32_t nlab, int nclasses)
         nreg += k;
     }
     for (int32_t l = 0; l < nlab; l++)
-        parent[l] = parent[l] == l ? -(++next[lcls[l]]) : parent[parent[l]];
+        parent[l] = parent[l] == l ? -(++next[acc[l].cls]) : parent[parent[l]];
     return nreg;
 }
 
-/* Second pass: final labels, and each region's counts, box, sums, zone. */
-static void stats_pass(struct region_set *rs, const struct image *cm, const float *conf,
-                       const struct image *zones)
+/* Widens a row (xl < 0: empty) to cover xl..xr. */
+static void row_add(struct hull_row *r, int32_t xl, int32_t xr)
 {
-    const int w = cm->w, h = cm->h;
-    struct moments *mom = rs->work->mom;
-    for (int y = 0; y < h; y++) {
-        int32_t *lab = rs->labels + (size_t)y * w;
-        const uint8_t *zrow = zones ? zones->px + (size_t)y * w : NULL;
-        for (int x = 0; x < w; x++) {
-            if (lab[x] < 0)
-                continue;
-            int k = -rs->parent[lab[x]] - 1;
-            lab[x] = k;
-            size_t i = (size_t)y * w + x;
-            struct region *g = &rs->r[k];
-            struct moments *m = &mom[k];
-            float c = conf ? conf[i] : 1.0f;
-            if (!g->pixels) {
-                g->cls = cm->px[i];
-                g->y0 = y;
-            }
-            g->pixels++;
-            if (x < g->x0) g->x0 = x;
-            if (x > g->x1) g->x1 = x;
-            g->y1 = y;
-            if (c < g->min_conf) g->min_conf = c;
-            if (zrow && zrow[x] < g->zone) g->zone = zrow[x];
-            m->x += x;
-            m->y += y;
-            m->xx += (int64_t)x * x;
-            m->yy += (int64_t)y * y;
-            m->xy += (int64_t)x * y;
-            m->conf += c;
-        }
+    if (r->xl < 0) {
+        r->xl = xl;
+        r->xr = xr;
+        return;
     }
+    if (xl < r->xl)
+        r->xl = xl;
+    if (xr > r->xr)
+        r->xr = xr;
 }
 
-/* Third pass: each region's leftmost and rightmost pixel in every row it
- * spans (a connected region has pixels in every row from y0 to y1). */
-static int rows_pass(struct region_set *rs, int w, int h, int nreg)
+/* Each label's counts into its region; then each region's rows (a
+ * connected region has pixels in every row from y0 to y1) from the labels'
+ * row entries. */
+static int fold_labels(struct region_set *rs, int32_t nlab, int nreg)
 {
     struct regions_work *wk = rs->work;
+    for (int32_t l = 0; l < nlab; l++) {
+        const struct acc *a = &wk->acc[l];
+        int k = -rs->parent[l] - 1;
+        struct region *g = &rs->r[k];
+        struct moments *m = &wk->mom[k];
+        g->cls = a->cls;
+        g->pixels += a->pixels;
+        if (a->x0 < g->x0) g->x0 = a->x0;
+        if (a->x1 > g->x1) g->x1 = a->x1;
+        if (a->y0 < g->y0) g->y0 = a->y0;
+        if (a->y1 > g->y1) g->y1 = a->y1;
+        if (a->min_conf < g->min_conf) g->min_conf = a->min_conf;
+        if (a->zone < g->zone) g->zone = a->zone;
+        m->x += a->m.x;
+        m->y += a->m.y;
+        m->xx += a->m.xx;
+        m->yy += a->m.yy;
+        m->xy += a->m.xy;
+        m->conf += a->m.conf;
+    }
     if (GROW(wk->row_off, wk->off_cap, (size_t)nreg + 1))
         return ST_ENOMEM;
     size_t total = 0;
@@ -221,63 +296,60 @@ static int rows_pass(struct region_set *rs, int w, int h, int nreg)
         wk->row_off[k] = (int32_t)total;
         total += (size_t)(rs->r[k].y1 - rs->r[k].y0 + 1);
     }
-    if (GROW(wk->rows, wk->rows_cap, total ? total : 1))
+    if (GROW(wk->rows, wk->rows_cap, total))
         return ST_ENOMEM;
     for (size_t t = 0; t < total; t++)
         wk->rows[t].xl = -1;
-    for (int y = 0; y < h; y++) {
-        const int32_t *lab = rs->labels + (size_t)y * w;
-        for (int x = 0; x < w; x++) {
-            int32_t k = lab[x];
-            if (k < 0)
-                continue;
-            struct hull_row *r = &wk->rows[wk->row_off[k] + y - rs->r[k].y0];
-            /* raster order: the first pixel met in a row is its leftmost */
-            if (r->xl < 0)
-                r->xl = x;
-            r->xr = x;
+    for (int32_t l = 0; l < nlab; l++) {
+        int k = -rs->parent[l] - 1;
+        size_t first = (size_t)wk->row_off[k];
+        for (int32_t i = wk->acc[l].head; i >= 0; i = wk->ent[i].next) {
+            const struct rowent *t = &wk->ent[i];
+            row_add(&wk->rows[first + (size_t)(t->y - rs->r[k].y0)], t->xl, t->xr);
         }
     }
     return ST_OK;
 }
 
-/* Pixels with a 4-neighbour inside the frame outside their region: the only
- * ones that can be closest to another region (from any pixel, a step towards
- * the other region never increases the gap, and the walk leaves the region
- * through a boundary pixel). */
-static int boundary_pass(struct region_set *rs, int w, int h, int nreg)
+/* Final labels: each pixel's region number. */
+static void relabel(struct region_set *rs, size_t npix)
+{
+    for (size_t p = 0; p < npix; p++)
+        if (rs->labels[p] >= 0)
+            rs->labels[p] = -rs->parent[rs->labels[p]] - 1;
+}
+
+/* Region k's pixels with a 4-neighbour inside the frame outside the region,
+ * listed on first use (only regions with a neighbour within the gap need
+ * them): the only pixels that can be closest to another region (from any
+ * pixel a step towards the other region never increases the gap, and the
+ * walk leaves the region through a boundary pixel).  Cost: the pixels
+ * between its leftmost and rightmost in each row. */
+static int region_boundary(struct region_set *rs, int k, int w, int h)
 {
     struct regions_work *wk = rs->work;
-    if (GROW(wk->bnd_off, wk->bnd_off_cap, (size_t)nreg + 1))
-        return ST_ENOMEM;
-    memset(wk->bnd_off, 0, ((size_t)nreg + 1) * sizeof *wk->bnd_off);
-    /* count, then fill with bnd_off[k] as the cursor of region k */
-    for (int pass = 0; pass < 2; pass++) {
-        for (int y = 0; y < h; y++) {
-            const int32_t *lab = rs->labels + (size_t)y * w;
-            for (int x = 0; x < w; x++) {
-                int32_t k = lab[x];
-                if (k < 0)
-                    continue;
-                if ((!x || lab[x - 1] == k) && (x + 1 == w || lab[x + 1] == k) &&
-                    (!y || lab[x - w] == k) && (y + 1 == h || lab[x + w] == k))
-                    continue;
-                if (pass == 0)
-                    wk->bnd_off[k + 1]++;
-                else
-                    wk->bnd[wk->bnd_off[k]++] = (int32_t)((size_t)y * w + x);
-            }
-        }
-        if (pass == 0) {
-            for (int k = 0; k < nreg; k++)
-                wk->bnd_off[k + 1] += wk->bnd_off[k];
-            if (GROW(wk->bnd, wk->bnd_cap, (size_t)wk->bnd_off[nreg] + 1))
-                return ST_ENOMEM;
+    if (wk->bnd_start[k] >= 0)
+        return ST_OK;
+    const struct region *g = &rs->r[k];
+    const struct hull_row *rows = wk->rows + wk->row_off[k];
+    size_t n = wk->bnd_used;
+    for (int y = g->y0; y <= g->y1; y++) {
+        const struct hull_row *r = &rows[y - g->y0];
+        const int32_t *lab = rs->labels + (size_t)y * w;
+        if (GROW(wk->bnd, wk->bnd_cap, n + (size_t)(r->xr - r->xl + 1)))
+            return ST_ENOMEM;
+        for (int x = r->xl; x <= r->xr; x++) {
+            if (lab[x] != k)
+                continue;
+            if ((!x || lab[x - 1] == k) && (x + 1 == w || lab[x + 1] == k) &&
+                (!y || lab[x - w] == k) && (y + 1 == h || lab[x + w] == k))
+                continue;
+            wk->bnd[n++] = (struct bpix){x, y};
         }
     }
-    /* each cursor ended at the start of the next region */
-    memmove(wk->bnd_off + 1, wk->bnd_off, (size_t)nreg * sizeof *wk->bnd_off);
-    wk->bnd_off[0] = 0;
+    wk->bnd_start[k] = (int32_t)wk->bnd_used;
+    wk->bnd_len[k] = (int32_t)(n - wk->bnd_used);
+    wk->bnd_used = n;
     return ST_OK;
 }
 
@@ -292,12 +364,13 @@ static int within_gap(int dx, int dy, double sx, double sy, double gap2)
     return gx * gx + gy * gy <= gap2 * (1 + 1e-9);
 }
 
-/* Whether two regions of one class lie within the gap, edge to edge.  The
- * boxes are checked first (their gap is never larger than the regions').
- * Cost: at worst boundary(a) x boundary(b) pixel pairs, only for pairs whose
- * boxes are within the gap; pixels outside the other box grown by the gap
- * are skipped, and the search stops at the first close pair. */
-static int regions_close(const struct region_set *rs, int a, int b, int w, double sx, double sy,
+/* Whether two regions of one class lie within the gap, edge to edge (-1:
+ * out of memory).  The boxes are checked first (their gap is never larger
+ * than the regions').  Cost: at worst boundary(a) x boundary(b) pixel pairs,
+ * only for pairs whose boxes are within the gap; pixels of a outside b's box
+ * grown by the gap are skipped, and the search stops at the first close
+ * pair. */
+static int regions_close(struct region_set *rs, int a, int b, int w, int h, double sx, double sy,
                          double gap2, int gx, int gy)
 {
     const struct region *A = &rs->r[a], *B = &rs->r[b];
@@ -305,16 +378,17 @@ static int regions_close(const struct region_set *rs, int a, int b, int w, doubl
     int dy = A->y0 > B->y1 ? A->y0 - B->y1 : B->y0 > A->y1 ? B->y0 - A->y1 : 0;
     if (!within_gap(dx, dy, sx, sy, gap2))
         return 0;
+    if (region_boundary(rs, a, w, h) || region_boundary(rs, b, w, h))
+        return -1;
     const struct regions_work *wk = rs->work;
-    for (int32_t i = wk->bnd_off[a]; i < wk->bnd_off[a + 1]; i++) {
-        int ax = wk->bnd[i] % w, ay = wk->bnd[i] / w;
+    const struct bpix *pa = wk->bnd + wk->bnd_start[a], *pb = wk->bnd + wk->bnd_start[b];
+    for (int32_t i = 0; i < wk->bnd_len[a]; i++) {
+        int ax = pa[i].x, ay = pa[i].y;
         if (ax < B->x0 - gx || ax > B->x1 + gx || ay < B->y0 - gy || ay > B->y1 + gy)
             continue;
-        for (int32_t j = wk->bnd_off[b]; j < wk->bnd_off[b + 1]; j++) {
-            int bx = wk->bnd[j] % w, by = wk->bnd[j] / w;
-            if (within_gap(bx - ax, by - ay, sx, sy, gap2))
+        for (int32_t j = 0; j < wk->bnd_len[b]; j++)
+            if (within_gap(pb[j].x - ax, pb[j].y - ay, sx, sy, gap2))
                 return 1;
-        }
     }
     return 0;
 }
@@ -330,9 +404,13 @@ static int merge_pass(struct region_set *rs, const struct regions_opts *o, int w
     *merged = 0;
     if (GROW(wk->mparent, wk->mp_cap, (size_t)nreg))
         return ST_ENOMEM;
-    for (int i = 0; i < nreg; i++)
+    if (GROW(wk->bnd_start, wk->bs_cap, (size_t)nreg) || GROW(wk->bnd_len, wk->bl_cap, (size_t)nreg))
+        return ST_ENOMEM;
+    for (int i = 0; i < nreg; i++) {
         wk->mparent[i] = i;
-    int have_bnd = 0;
+        wk->bnd_start[i] = -1;
+    }
+    wk->bnd_used = 0;
     for (int i = 0; i < nreg; i++) {
         const struct region *A = &rs->r[i];
         double gap = o->merge_gap_mm[A->cls];
@@ -344,12 +422,10 @@ static int merge_pass(struct region_set *rs, const struct regions_opts *o, int w
         for (int j = i + 1; j < nreg && rs->r[j].cls == A->cls && rs->r[j].y0 <= A->y1 + gy; j++) {
             if (find_root(wk->mparent, i) == find_root(wk->mparent, j))
                 continue;
-            if (!have_bnd) {
-                if (boundary_pass(rs, w, h, nreg))
-                    return ST_ENOMEM;
-                have_bnd = 1;
-            }
-            if (regions_close(rs, i, j, w, o->mm_per_px_x, o->mm_per_px_y, gap2, gx, gy)) {
+            int close = regions_close(rs, i, j, w, h, o->mm_per_px_x, o->mm_per_px_y, gap2, gx, gy);
+            if (close < 0)
+                return ST_ENOMEM;
+            if (close) {
                 unite(wk->mparent, i, j);
                 *merged = 1;
             }
@@ -402,29 +478,24 @@ static int union_rows(struct region_set *rs, int root)
         const struct region *J = &rs->r[j];
         const struct hull_row *src = wk->rows + wk->row_off[j];
         struct hull_row *dst = wk->urows + (J->y0 - y0);
-        for (int t = 0; t <= J->y1 - J->y0; t++) {
-            if (dst[t].xl < 0) {
-                dst[t] = src[t];
-                continue;
-            }
-            if (src[t].xl < dst[t].xl)
-                dst[t].xl = src[t].xl;
-            if (src[t].xr > dst[t].xr)
-                dst[t].xr = src[t].xr;
-        }
+        for (int t = 0; t <= J->y1 - J->y0; t++)
+            row_add(&dst[t], src[t].xl, src[t].xr);
     }
     return ST_OK;
 }
 
 /* Orientation of the major axis of the region's pixels as points in mm,
- * from the second central moments. */
+ * from the second central moments: radians from +x turning towards +y, in
+ * (-pi/2, pi/2]; 0 when the moments have no major axis. */
 static double orientation(const struct moments *m, int n, double sx, double sy)
 {
     double cx = (double)m->x / n, cy = (double)m->y / n;
     double mxx = ((double)m->xx - cx * (double)m->x) * sx * sx;
     double myy = ((double)m->yy - cy * (double)m->y) * sy * sy;
     double mxy = ((double)m->xy - cx * (double)m->y) * sx * sy;
-    return 0.5 * atan2(2 * mxy, mxx - myy);
+    double a = 0.5 * atan2(2 * mxy, mxx - myy);
+    /* atan2(-0, x < 0) is -pi: the same axis as +pi/2 */
+    return a <= -PI / 2 ? a + PI : a;
 }
 
 /* Everything measured from the (summed) counts and the rows. */
@@ -440,8 +511,13 @@ static int measure(struct region_set *rs, int k, const struct hull_row *rows,
     g->area_mm2 = g->pixels * sx * sy;
     g->orientation = orientation(m, g->pixels, sx, sy);
     g->zone = g->zone == NO_ZONE ? -1 : g->zone;
-    return hull_measure_feret(&rs->work->hs, rows, g->y0, g->y1 - g->y0 + 1, sx, sy, &g->length_mm,
-                      &g->width_mm);
+    struct regions_work *wk = rs->work;
+    size_t nrows = (size_t)(g->y1 - g->y0 + 1), np = HULL_POINTS(nrows);
+    if (GROW(wk->hb.pts, wk->hb_caps[0], np) || GROW(wk->hb.left, wk->hb_caps[1], np) ||
+        GROW(wk->hb.right, wk->hb_caps[2], np) || GROW(wk->hb.rows, wk->hb_caps[3], nrows))
+        return ST_ENOMEM;
+    hull_measure_feret(rows, g->y0, (int)nrows, sx, sy, &wk->hb, &g->length_mm, &g->width_mm);
+    return ST_OK;
 }
 
 /* Measures every defect, folding merged fragments into the first, and
@@ -534,12 +610,13 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
     struct regions_work *wk = rs->work;
     /* at most one provisional label per pixel */
     if (grow((void **)&rs->labels, &rs->label_cap, npix, sizeof *rs->labels) ||
-        grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent) ||
-        GROW(wk->lcls, wk->lcls_cap, npix))
+        grow((void **)&rs->parent, &rs->parent_cap, npix, sizeof *rs->parent))
         return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
     rs->n = 0;
 
-    int32_t nlab = label_pass(rs, classes, o->is_defect, o->nclasses, o->connectivity);
+    int32_t nlab;
+    if (label_pass(rs, classes, conf, o, &nlab))
+        return err_set(e, ST_ENOMEM, "out of memory labelling %zu pixels", npix);
     int nreg = number_regions(rs, nlab, o->nclasses);
     if (nreg > rs->cap) {
         struct region *p = realloc(rs->r, (size_t)nreg * sizeof *p);
@@ -555,14 +632,17 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
         memset(g, 0, sizeof *g);
         g->x0 = w;
         g->x1 = -1;
+        g->y0 = h;
+        g->y1 = -1;
         g->min_conf = INFINITY;
         g->zone = NO_ZONE;
         g->fragments = 1;
     }
-    memset(wk->mom, 0, (size_t)nreg * sizeof *wk->mom);
-    stats_pass(rs, classes, conf, o->zones);
+    if (nreg) /* wk->mom may still be NULL on a frame without defects */
+        memset(wk->mom, 0, (size_t)nreg * sizeof *wk->mom);
+    relabel(rs, npix);
     int merged = 0;
-    if ((rc = rows_pass(rs, w, h, nreg)) || (rc = merge_pass(rs, o, w, h, nreg, &merged)) ||
+    if ((rc = fold_labels(rs, nlab, nreg)) || (rc = merge_pass(rs, o, w, h, nreg, &merged)) ||
         (rc = finish(rs, o, w, h, nreg, merged)))
         return err_set(e, rc, "out of memory measuring %d regions", nreg);
     return ST_OK;

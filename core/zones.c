@@ -59,7 +59,7 @@ static int in_mask(const struct image *mk, double s, double p, double q)
     return mk->px[(size_t)fy * mk->w + (size_t)fx] != 0;
 }
 
-static int inside_local(const struct zone_map *m, int k, double p, double q)
+static inline int inside_local(const struct zone_map *m, int k, double p, double q)
 {
     const struct zone *z = &m->z[k];
     double d2 = p * p + q * q;
@@ -233,10 +233,12 @@ static int zone_box(const struct zone_map *m, int k, const struct part_pose *p, 
         hi_x = fmax(hi_x, x);
         hi_y = fmax(hi_y, y);
     }
-    box[0] = (int)fmax(0, floor(lo_x) - 1);
-    box[1] = (int)fmax(0, floor(lo_y) - 1);
-    box[2] = (int)fmin(w - 1, ceil(hi_x) + 1);
-    box[3] = (int)fmin(h - 1, ceil(hi_y) + 1);
+    /* clamped while still double: a zone far off the frame must not
+     * overflow the conversion to int */
+    box[0] = (int)fmin(fmax(0, floor(lo_x) - 1), w);
+    box[1] = (int)fmin(fmax(0, floor(lo_y) - 1), h);
+    box[2] = (int)fmax(fmin(w - 1, ceil(hi_x) + 1), -1);
+    box[3] = (int)fmax(fmin(h - 1, ceil(hi_y) + 1), -1);
     return box[0] <= box[2] && box[1] <= box[3];
 }
 
@@ -255,26 +257,12 @@ static void paint_zone(struct zone_map *m, int k, const struct part_pose *p, dou
     to_local(z, u, v, &p2, &q2);
     const double px = p1 - p0, qx = q1 - q0, py = p2 - p0, qy = q2 - q0;
     struct image *map = m->map;
-    const double hw = 0.5 * z->w, hh = 0.5 * z->h, ri2 = z->r_in * z->r_in,
-                 ro2 = z->r_out * z->r_out;
     for (int y = box[1]; y <= box[3]; y++) {
         uint8_t *row = map->px + (size_t)y * map->w;
         const double pr = p0 + py * y, qr = q0 + qy * y;
-        /* the common shapes inline; the same tests as inside_local */
-        for (int x = box[0]; x <= box[2]; x++) {
-            if (row[x] != ZONE_NONE)
-                continue;
-            double a = pr + px * x, b = qr + qx * x, d2 = a * a + b * b;
-            int in;
-            switch (z->shape) {
-            case ZONE_RECT: in = fabs(a) <= hw && fabs(b) <= hh; break;
-            case ZONE_CIRCLE: in = d2 <= ro2; break;
-            case ZONE_RING: in = d2 >= ri2 && d2 <= ro2; break;
-            default: in = inside_local(m, k, a, b); break;
-            }
-            if (in)
+        for (int x = box[0]; x <= box[2]; x++)
+            if (row[x] == ZONE_NONE && inside_local(m, k, pr + px * x, qr + qx * x))
                 row[x] = (uint8_t)k;
-        }
     }
 }
 

@@ -200,6 +200,18 @@ static void test_square_and_orientation(void **state)
     assert_int_equal(rs.r[0].pixels, 256);
     assert_float_equal(rs.r[0].length_mm, sqrt(16 * 16 + 15 * 15), 1e-12);
     assert_float_equal(rs.r[0].width_mm, 16, 1e-12);
+    /* a single pixel is the diamond of its edge midpoints: 1 long, 1/sqrt(2)
+     * wide (the distance between its parallel sides); with pixels 0.1 x 0.2
+     * mm, max(0.1, 0.2) long and 0.1 x 0.2 / hypot(0.1, 0.2) wide */
+    memset(m->px, 0, W * H);
+    m->px[5 * W + 7] = 2;
+    assert_int_equal(count(m, &o, &rs), 1);
+    assert_float_equal(rs.r[0].length_mm, 1, 1e-12);
+    assert_float_equal(rs.r[0].width_mm, sqrt(0.5), 1e-12);
+    struct regions_opts o2 = opts(0);
+    assert_int_equal(count(m, &o2, &rs), 1);
+    assert_float_equal(rs.r[0].length_mm, 0.2, 1e-12);
+    assert_float_equal(rs.r[0].width_mm, 0.1 * 0.2 / hypot(0.1, 0.2), 1e-12);
     /* orientation: from the x axis turning towards +y (down the image) */
     memset(m->px, 0, W * H);
     for (int i = 0; i < 9; i++)

@@ -214,6 +214,21 @@ static void test_paint_priority_and_sizes(void **state)
      * 13 less the 5 also within 2 of (0, 0): (0,0), (1,0), (2,0), (1,+-1) */
     assert_int_equal(count[0], 13);
     assert_int_equal(count[1], 8);
+    zone_map_free(m);
+
+    /* a zone far off the frame paints nothing; one over the edge is cut */
+    struct zone off[2] = {circle("far", 1e12, -1e12, 5), circle("edge", -10, 0, 2)};
+    assert_int_equal(zone_map_new(off, 2, &m, &e), ST_OK);
+    assert_int_equal(zone_map_paint(m, &p, 21, 11, 1, 1, &e), ST_OK);
+    map = zone_map_image(m);
+    count[0] = count[1] = 0;
+    for (int i = 0; i < 21 * 11; i++)
+        if (map->px[i] != ZONE_NONE)
+            count[map->px[i]]++;
+    /* the circle about pixel (0, 5): its 13 points less those at x < 0,
+     * so 5 at x = 0, 3 at x = 1, 1 at x = 2 */
+    assert_int_equal(count[0], 0);
+    assert_int_equal(count[1], 9);
     p.found = 0;
     assert_int_equal(zone_map_paint(m, &p, 7, 30, 1, 1, &e), ST_OK);
     map = zone_map_image(m);

@@ -204,9 +204,11 @@ shapes[90, 5:40] = 2
 shapes[10:60, 128] = 3
 
 for sx, sy in ((1.0, 1.0), (0.05, 0.05), (0.04, 0.07)):
-    ours, labels = run(shapes, [2, 3, 4], 8, sx, sy)
+    # the ellipses and lines, and the irregular blobs of the noise map
+    found = [run(m, [2, 3, 4], 8, sx, sy) for m in (shapes, cm)]
+    ours = [(g, labels) for rows, labels in found for g in rows]
     feret_bad, width_bad, orient_bad, n_orient = [], [], [], 0
-    for g in ours:
+    for g, labels in ours:
         mask = labels == g["id"] - 1
         p = regionprops(mask.astype(np.uint8))[0]
         sub = mask[p.bbox[0]:p.bbox[2], p.bbox[1]:p.bbox[3]]
@@ -227,7 +229,7 @@ for sx, sy in ((1.0, 1.0), (0.05, 0.05), (0.04, 0.07)):
         # to mm (rows by sy, columns by sx).
         mu = p.moments_central
         mrr, mcc, mrc = mu[2, 0] * sy * sy, mu[0, 2] * sx * sx, mu[1, 1] * sx * sy
-        if abs(mcc - mrr) < 1e-6 * (mcc + mrr):
+        if abs(mcc - mrr) <= 1e-6 * (mcc + mrr):
             # isotropic (no major axis), or the case regionprops 0.19
             # answers with +-pi/4 whatever the cross moment
             continue
