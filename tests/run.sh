@@ -24,6 +24,14 @@ run_one() {
     fi
 }
 export STATION_BUILD="$BUILD" STATION_PYTHON="$PYTHON"
+# Tests never touch the user's own default inspection log: every default
+# path ($XDG_DATA_HOME/station/...) lands in a folder of this run.
+case "$BUILD" in
+/*) XDG_DATA_HOME="$BUILD/test-xdg" ;;
+*) XDG_DATA_HOME="$(pwd)/$BUILD/test-xdg" ;;
+esac
+export XDG_DATA_HOME
+rm -rf "$XDG_DATA_HOME"
 if [ "$SAN" = 1 ]; then
     export ASAN_OPTIONS="detect_leaks=1:abort_on_error=0:halt_on_error=1"
     export LSAN_OPTIONS="suppressions=$(pwd)/tests/lsan.supp:print_suppressions=0"
