@@ -395,24 +395,23 @@ int corners_find(const struct image *img, int cols, int rows, double *xy, struct
     for (int i = 0; i < nc; i++)
         refine(g, w, h, &c[i].x, &c[i].y);
     nc = drop_duplicates(c, nc);
-    /* seeds in order of strength; the best grid names what was found */
-    int best = 0, tries = 0;
-    for (int pass = 0; pass < nc && tries < 40; pass++) {
+    /* seeds in order of strength; the largest grid says what was seen */
+    int best = 0;
+    for (int tries = 0; tries < nc && tries < 40; tries++) {
         int s0 = -1;
         for (int i = 0; i < nc; i++)
             if (c[i].resp >= 0 && (s0 < 0 || c[i].resp > c[s0].resp))
                 s0 = i;
-        double keep = c[s0].resp;
-        c[s0].resp = -1 - keep; /* tried */
-        tries++;
+        c[s0].resp = -1 - c[s0].resp; /* tried */
         int got = grow(c, nc, s0, &gr);
+        if (got > best)
+            best = got;
         if (order(&gr, c, cols, rows, xy))
             goto found;
     }
     rc = err_set(e, ST_EFORMAT,
-                 best >= 4 ? "checkerboard %dx%d not found whole: at most %d corners in one grid "
-                             "(partly out of view, covered, or the size is wrong)"
-                           : "no checkerboard %dx%d found (%d corners in a grid)",
+                 "checkerboard %dx%d not found whole: the largest grid of corners has %d points "
+                 "(board partly out of view or covered, squares too small, or another size)",
                  cols, rows, best);
     goto fail;
 found:
