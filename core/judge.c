@@ -77,6 +77,7 @@ void judge_regions_opts(const struct recipe *r, const struct image *zones, struc
         o->merge_gap_mm[c] = r->merge_gap_mm[c];
     }
     o->zones = zones;
+    o->image_to_plane = r->has_calibration ? r->cal.image_to_plane : NULL;
 }
 
 static void grey_frame(const struct image *img, uint8_t *grey)

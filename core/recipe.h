@@ -18,6 +18,7 @@
 #include <stdint.h>
 
 #include "booster.h"
+#include "calfile.h"
 #include "err.h"
 #include "features.h"
 #include "zones.h"
@@ -82,7 +83,10 @@ struct recipe {
     int samples_per_class;     /* cap of training pixels per class per image */
     double validation_fraction;/* share of sampled pixels held out, (0, 0.5] */
     char model_path[PATH_MAX]; /* resolved against dir */
-    double mm_per_px_x, mm_per_px_y;
+    double mm_per_px_x, mm_per_px_y; /* [scale], or the calibration's at its target's centre */
+    char calibration_path[PATH_MAX]; /* [scale] calibration, resolved against dir; "" = none */
+    int has_calibration;
+    struct calfile cal;        /* when has_calibration: areas follow its homography */
     struct recipe_tolerance tol[RECIPE_MAX_CLASSES];
     struct recipe_gates gates;
     double merge_gap_mm[RECIPE_MAX_CLASSES]; /* [tolerance NAME] merge_gap_mm */
