@@ -26,7 +26,7 @@
 
 #include "core/image.h"
 
-#define CORNERS_EDGE_PX 8   /* nearer the edge, the refinement window is cut off */
+#define CORNERS_EDGE_PX 10  /* nearer the edge, the refinement window (5 px and the gradient) is cut off */
 #define CORNERS_MAX 4096
 
 /* cols x rows inner corners (each >= 2, product <= CORNERS_MAX); xy
