@@ -7,7 +7,8 @@
   OpenCV's usual 23x23 (winSize 11); the camera matrix from all views against
   cv2.calibrateCamera with the same lens model (CALIB_ZERO_TANGENT_DIST |
   CALIB_FIX_K3) and against OpenCV's own test suite, which expects RMS about
-  0.196 px and fx about fy about 532.8 on these images (from memory).
+  0.196 px and fx about fy about 532.8 on these images (from memory); the
+  corners corrected through our lens against cv2.undistortPoints.
 - scikit-image's chessboard_GRAY.png (25 px squares): declared 5 mm squares
   must give 0.2 mm per pixel.
 - Boards rendered here with numpy/scipy at a known homography (scale, tilt),
@@ -126,6 +127,27 @@ def check_photographs():
           f"{lens['rms_px']:.3f} vs {rms:.3f}")
     check("k1 negative (barrel) like OpenCV's", lens["k1"] < 0 and dist.ravel()[0] < 0)
 
+    # corners corrected through our lens against OpenCV's correction with our lens
+    pts = np.concatenate(ocv5)
+    r = subprocess.run([tool("undistort")] + [repr(lens[k]) for k in ("fx", "fy", "cx", "cy",
+                                                                      "k1", "k2")],
+                       input="\n".join(f"{u} {v}" for u, v in pts), capture_output=True, text=True)
+    ours = np.array([[float(v) for v in line.split()] for line in r.stdout.splitlines()])
+    Kl = np.array([[lens["fx"], 0, lens["cx"]], [0, lens["fy"], lens["cy"]], [0, 0, 1]])
+    ref = cv2.undistortPoints(pts.reshape(-1, 1, 2).astype(np.float64), Kl,
+                              np.array([lens["k1"], lens["k2"], 0, 0, 0]), P=Kl).reshape(-1, 2)
+    dd = np.hypot(*(ours - ref).T) if ours.shape == ref.shape else np.array([np.inf])
+    print(f"undistorted corners: worst {dd.max():.2e} px from cv2.undistortPoints")
+    check("lens_undistort within 0.01 px of cv2.undistortPoints on every corner",
+          dd.max() < 0.01, f"{dd.max():.2e} px")
+    # and bent again by the model (OpenCV's projectPoints), they are the corners found
+    xn = np.column_stack([(ours[:, 0] - lens["cx"]) / lens["fx"],
+                          (ours[:, 1] - lens["cy"]) / lens["fy"], np.ones(len(ours))])
+    back, _ = cv2.projectPoints(xn, np.zeros(3), np.zeros(3), Kl,
+                                np.array([lens["k1"], lens["k2"], 0, 0, 0]))
+    db = np.hypot(*(back.reshape(-1, 2) - pts).T)
+    check("corrected corners bent again by cv2.projectPoints come back within 1e-6 px",
+          db.max() < 1e-6, f"{db.max():.2e} px")
     r, _, _ = calibrate(pngs[:1], "9x6", 25, "--max-error", "1")
     check("left01's worst homography error (lens bending) over 1 px is refused",
           r.returncode == 3 and "exceeds the limit 1.000 px" in r.stderr, r.stderr.strip())
