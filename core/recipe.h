@@ -9,7 +9,9 @@
  * line (`FILE: missing section [scale]`), a defect class without its
  * [tolerance NAME] names the class's header line.  A file that cannot be
  * opened is ST_EIO.  The first error stops the parse.  Relative paths
- * resolve against the recipe's folder.  On failure *r is left untouched.
+ * resolve against the recipe's folder.  `[scale] calibration = FILE` loads
+ * the calibration file (core/calfile.h) into r->cal and fills mm_per_px_x/y
+ * from it.  On failure *r is left untouched.
  * A recipe is a plain value: no heap, copy it freely. */
 #ifndef ST_RECIPE_H
 #define ST_RECIPE_H
