@@ -7,7 +7,8 @@
 #include "homography.h"
 #include "linalg.h"
 
-#define NI 6 /* fx fy cx cy k1 k2 */
+#define NI 6    /* fx fy cx cy k1 k2 */
+#define NPOSE 6 /* rotation vector, translation */
 
 struct problem {
     const double *const *xy;
@@ -35,8 +36,23 @@ static void rotvec(const double r[9], double *w)
     double c = 0.5 * (r[0] + r[4] + r[8] - 1);
     c = c > 1 ? 1 : c < -1 ? -1 : c;
     double th = acos(c), s = sin(th);
-    if (s < 1e-9) {
-        w[0] = w[1] = w[2] = 0; /* a board seen head-on or turned a half-turn: LM corrects */
+    if (s < 1e-6 && c > 0) {
+        w[0] = w[1] = w[2] = 0;
+        return;
+    }
+    if (s < 1e-6) { /* a half-turn: the axis from the diagonal, signs from the largest part */
+        double k[3];
+        int m = 0;
+        for (int i = 0; i < 3; i++) {
+            k[i] = sqrt(fmax(0, (r[4 * i] + 1) / 2));
+            if (k[i] > k[m])
+                m = i;
+        }
+        for (int i = 0; i < 3; i++)
+            if (i != m && r[3 * m + i] < 0)
+                k[i] = -k[i];
+        for (int i = 0; i < 3; i++)
+            w[i] = th * k[i];
         return;
     }
     w[0] = th * (r[7] - r[5]) / (2 * s);
@@ -56,20 +72,28 @@ static void project(const double *in, const double *pose, double X, double Y, do
     *v = in[1] * y * d + in[3];
 }
 
+/* Residuals of view vw into res + 2 * vw * npts; the sum of their squares. */
+static double view_residuals(const struct problem *p, const double *par, int vw, double *res)
+{
+    double s = 0;
+    for (int k = 0; k < p->npts; k++) {
+        double u, v;
+        project(par, par + NI + 6 * vw, (k % p->cols) * p->square, (k / p->cols) * p->square, &u,
+                &v);
+        double *o = res + 2 * ((size_t)vw * p->npts + k);
+        o[0] = u - p->xy[vw][2 * k];
+        o[1] = v - p->xy[vw][2 * k + 1];
+        s += o[0] * o[0] + o[1] * o[1];
+    }
+    return s;
+}
+
 /* Residuals of every view; res holds 2 * nviews * npts. */
 static double residuals(const struct problem *p, const double *par, double *res)
 {
     double s = 0;
     for (int vw = 0; vw < p->nviews; vw++)
-        for (int k = 0; k < p->npts; k++) {
-            double u, v;
-            project(par, par + NI + 6 * vw, (k % p->cols) * p->square, (k / p->cols) * p->square,
-                    &u, &v);
-            double *o = res + 2 * ((size_t)vw * p->npts + k);
-            o[0] = u - p->xy[vw][2 * k];
-            o[1] = v - p->xy[vw][2 * k + 1];
-            s += o[0] * o[0] + o[1] * o[1];
-        }
+        s += view_residuals(p, par, vw, res);
     return s;
 }
 
@@ -199,22 +223,31 @@ static int refine(const struct problem *p, double *par, int np, double *rms, str
     for (int it = 0; it < 100; it++) {
         for (int q = 0; q < np; q++) {
             double keep = par[q], step = 1e-6 * (fabs(keep) > 1 ? fabs(keep) : 1);
+            /* a pose moves only its own view's residuals */
+            int v0 = q < NI ? 0 : (q - NI) / 6, v1 = q < NI ? p->nviews : v0 + 1;
+            size_t i0 = 2 * (size_t)v0 * p->npts, i1 = 2 * (size_t)v1 * p->npts;
             par[q] = keep + step;
-            residuals(p, par, r2);
+            for (int vw = v0; vw < v1; vw++)
+                view_residuals(p, par, vw, r2);
             par[q] = keep;
             for (size_t i = 0; i < nr; i++)
-                jac[i * np + q] = (r2[i] - res[i]) / step;
+                jac[i * np + q] = i >= i0 && i < i1 ? (r2[i] - res[i]) / step : 0;
         }
         memset(g, 0, np * sizeof *g);
         memset(a, 0, (size_t)np * np * sizeof *a);
         for (size_t i = 0; i < nr; i++) {
+            /* a row is non-zero in the intrinsics and its own view's pose only */
             const double *ji = jac + i * np;
-            for (int q = 0; q < np; q++) {
-                if (ji[q] == 0)
-                    continue;
+            int idx[NI + NPOSE], vw = (int)(i / (2 * (size_t)p->npts));
+            for (int k = 0; k < NI; k++)
+                idx[k] = k;
+            for (int k = 0; k < NPOSE; k++)
+                idx[NI + k] = NI + NPOSE * vw + k;
+            for (int qa = 0; qa < NI + NPOSE; qa++) {
+                int q = idx[qa];
                 g[q] -= ji[q] * res[i];
-                for (int t = 0; t < np; t++)
-                    a[q * np + t] += ji[q] * ji[t];
+                for (int ta = 0; ta < NI + NPOSE; ta++)
+                    a[q * np + idx[ta]] += ji[q] * ji[idx[ta]];
             }
         }
         int better = 0;
