@@ -127,6 +127,12 @@ static int calibrate_scale(int argc, char **argv)
         cli_say("at most %d images", LENS_MAX_VIEWS);
         return EXIT_USAGE;
     }
+    if (strlen(camera) >= sizeof(((struct calfile *)0)->camera) || !*camera ||
+        strspn(camera, "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789._-") !=
+            strlen(camera)) {
+        cli_say("--camera '%s': 1..63 of A-Z a-z 0-9 . _ -", camera);
+        return EXIT_USAGE;
+    }
     struct image *frames[LENS_MAX_VIEWS] = {0};
     struct err e = {0};
     struct calfile cal;
@@ -139,13 +145,6 @@ static int calibrate_scale(int argc, char **argv)
     if (scale_calibrate((const struct image *const *)frames, (const char *const *)argv + optind,
                         n, cols, rows, square, max_error, &cal, &e)) {
         cli_say("%s", e.msg);
-        goto done;
-    }
-    if (strlen(camera) >= sizeof cal.camera || !*camera ||
-        strspn(camera, "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789._-") !=
-            strlen(camera)) {
-        cli_say("--camera '%s': 1..63 of A-Z a-z 0-9 . _ -", camera);
-        rc = EXIT_USAGE;
         goto done;
     }
     snprintf(cal.camera, sizeof cal.camera, "%s", camera);
