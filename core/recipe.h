@@ -71,6 +71,9 @@ struct recipe_gates {
     double min_frame_change;   /* mean |grey change| from the last frame at or below = frozen; -1 off */
 };
 
+/* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
+enum recipe_pass_evidence { RECIPE_PASS_NONE = 0, RECIPE_PASS_ALL, RECIPE_PASS_EVERY };
+
 struct recipe {
     char path[PATH_MAX];
     char dir[PATH_MAX];
@@ -99,6 +102,8 @@ struct recipe {
      * own tolerance for class c (keys it leaves out keep the class's) */
     int ztol_set[ZONE_MAX][RECIPE_MAX_CLASSES];
     struct recipe_tolerance ztol[ZONE_MAX][RECIPE_MAX_CLASSES];
+    int evidence_pass;         /* enum recipe_pass_evidence, default none */
+    int evidence_every;        /* N of "every N" */
 };
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);

@@ -16,6 +16,7 @@ static const struct {
     {"recipe", cmd_recipe, "check a recipe file"},
     {"calibrate", cmd_calibrate, "measure the bench: pixel scale from a checkerboard target"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
+    {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify"},
 };
 
 static void usage(FILE *f)
