@@ -36,7 +36,7 @@ calfile wide.json "$(date -u +%Y-%m-%dT%H:%M:%SZ)" 640
 for c in fresh.json old.json wide.json; do with_cal $c; done
 inspect() { # RECIPE OUT
     set +e
-    "$BUILD/station" inspect "$1" $frames >"$2" 2>>"$out/inspect.log"
+    "$BUILD/station" inspect --log "$out/log.db" "$1" $frames >"$2" 2>>"$out/inspect.log"
     echo $? >"$2.rc"
     set -e
 }
