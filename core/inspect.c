@@ -295,6 +295,10 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
                        "%s: no expected part area: set [part] area_mm2, or train again (%s "
                        "predates references)",
                        r->path, r->model_path);
+    if (r->has_calibration && (img->w != r->cal.width || img->h != r->cal.height))
+        return err_set(e, ST_EINVAL, "frame is %dx%d but the calibration %s is for %dx%d",
+                       img->w, img->h, r->calibration_path, r->cal.width, r->cal.height);
+    in->refs.calibration_age_days = calfile_age_days(&r->cal, time(NULL));
     int rc = inspector_classify(in, img, t, e);
     if (rc)
         return rc;

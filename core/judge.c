@@ -34,7 +34,8 @@ static const char *rule_words(const char *rule)
              {"part_size", "part area"},
              {"part_at_border", "part at the frame border: gap"},
              {"outside_field", "part outside the field by"},
-             {"unsure", "classifier unsure on a share"}};
+             {"unsure", "classifier unsure on a share"},
+             {"calibration_expired", "calibration expired: age"}};
     for (size_t i = 0; i < sizeof w / sizeof w[0]; i++)
         if (strcmp(w[i].rule, rule) == 0)
             return w[i].words;
@@ -49,6 +50,8 @@ static const char *unit_words(const char *unit)
         return " mm";
     if (!strcmp(unit, "px"))
         return " px";
+    if (!strcmp(unit, "days"))
+        return " days";
     return "";
 }
 
@@ -77,6 +80,7 @@ void judge_regions_opts(const struct recipe *r, const struct image *zones, struc
         o->merge_gap_mm[c] = r->merge_gap_mm[c];
     }
     o->zones = zones;
+    o->image_to_plane = r->has_calibration ? r->cal.image_to_plane : NULL;
 }
 
 static void grey_frame(const struct image *img, uint8_t *grey)
@@ -213,6 +217,8 @@ static void check_gates(const struct recipe *r, const struct judge_refs *refs,
                         const struct quality *q, const struct part_pose *p, struct judgement *j)
 {
     const struct recipe_gates *g = &r->gates;
+    if (r->has_calibration && !(refs->calibration_age_days <= r->cal.valid_days))
+        gate(j, "calibration_expired", refs->calibration_age_days, r->cal.valid_days, 0, "days");
     if (!p->found || q->part_fraction < g->min_part_fraction) {
         gate(j, "no_part", q->part_fraction, g->min_part_fraction, 1, "fraction");
         return; /* the other gates are measured over the part */

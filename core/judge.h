@@ -8,7 +8,7 @@
  * recipe's bounds; too many saturated or black part pixels; sharpness below
  * a share of the reference; part area off the expected one; part at the
  * frame border or outside the recipe's field; too many part pixels the
- * classifier is unsure of.
+ * classifier is unsure of; the recipe's calibration past its validity.
  *
  * Otherwise each defect region is judged by the tolerance of its class in
  * its zone (recipe_tolerance_for: the zone's own, else the class's).  A
@@ -69,6 +69,9 @@ struct quality {
 struct judge_refs {
     double sharpness;
     double part_area_mm2;
+    /* days since the recipe's calibration was made, at this frame (the
+     * caller reads the clock); past its valid_days every frame is NO VERDICT */
+    double calibration_age_days;
 };
 
 struct judgement {

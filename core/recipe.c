@@ -25,6 +25,7 @@ enum val_type {
     V_FAMILIES, /* unsigned OR of enum feat_family */
     V_MODEL,    /* char[PATH_MAX] ending in .json or .ubj, resolved against the recipe's folder */
     V_MASK,     /* char[PATH_MAX] ending in .png, resolved likewise */
+    V_CALIB,    /* char[PATH_MAX] ending in .json (a calibration file), resolved likewise */
     V_PAIR,     /* double[2], each in [lo, hi] (or (lo, hi]) */
     V_POINTS,   /* double[maxn][2] polygon vertices, count at count_off */
     V_GRADE,    /* "N x A": int N >= 1 at off, double A > 0 at count_off */
@@ -103,8 +104,10 @@ static const struct key_def classifier_keys[] = {
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def scale_keys[] = {
-    {"mm_per_px_x", V_REAL, R(mm_per_px_x), 0, 0, 100, 0, K_LO_OPEN, NULL},
-    {"mm_per_px_y", V_REAL, R(mm_per_px_y), 0, 0, 100, 0, K_LO_OPEN, NULL},
+    /* either both mm_per_px keys or calibration: checked after parsing */
+    {"mm_per_px_x", V_REAL, R(mm_per_px_x), 0, 0, 100, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"mm_per_px_y", V_REAL, R(mm_per_px_y), 0, 0, 100, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"calibration", V_CALIB, R(calibration_path), 0, 0, 0, 0, K_OPTIONAL, NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 /* A tolerance section parses into a struct tol_slot: the limits, and the
@@ -407,6 +410,8 @@ static int store_path(struct parse *p, const struct key_def *k, char *base, cons
                        value);
     if (k->type == V_MASK && !ends_with(value, ".png"))
         return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .png", k->name, value);
+    if (k->type == V_CALIB && !ends_with(value, ".json"))
+        return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .json", k->name, value);
     int n = value[0] == '/' ? snprintf(dst, PATH_MAX, "%s", value)
                             : snprintf(dst, PATH_MAX, "%s/%s", p->r.dir, value);
     if (n < 0 || n >= PATH_MAX)
@@ -625,6 +630,7 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
         return store_pass(p, k, base, value);
     case V_MODEL:
     case V_MASK:
+    case V_CALIB:
         break;
     }
     return store_path(p, k, base, value);
@@ -1016,6 +1022,35 @@ static int check_gates(struct parse *p)
     return ST_OK;
 }
 
+/* The scale comes one way only: the two mm_per_px keys, or a calibration
+ * file whose scale (at the target's centre) fills them. */
+static int check_scale(struct parse *p)
+{
+    const struct section *s = NULL;
+    for (int i = 0; i < p->nsec && !s; i++)
+        if (p->sec[i].kind == SEC_SCALE)
+            s = &p->sec[i];
+    int lx = s->key_line[key_index(SEC_SCALE, "mm_per_px_x")];
+    int ly = s->key_line[key_index(SEC_SCALE, "mm_per_px_y")];
+    int lc = s->key_line[key_index(SEC_SCALE, "calibration")];
+    if (lc && (lx || ly))
+        return fail_at(p, lc, ST_EFORMAT,
+                       "[scale] has both calibration and mm_per_px_%s: give one of the two",
+                       lx ? "x" : "y");
+    if (!lc && !(lx && ly))
+        return fail_at(p, s->line, ST_EFORMAT,
+                       "[scale] needs mm_per_px_x and mm_per_px_y, or calibration = FILE");
+    if (!lc)
+        return ST_OK;
+    struct err ce = {0};
+    if (calfile_load(p->r.calibration_path, &p->r.cal, &ce))
+        return fail_at(p, lc, ce.code, "calibration: %s", ce.msg);
+    p->r.has_calibration = 1;
+    p->r.mm_per_px_x = p->r.cal.mm_per_px_x;
+    p->r.mm_per_px_y = p->r.cal.mm_per_px_y;
+    return ST_OK;
+}
+
 static void set_defaults(struct recipe *r)
 {
     r->feat.gabor_orientations = 4;
@@ -1089,7 +1124,7 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
     }
     if ((rc = check_sections(p)) != ST_OK || (rc = check_classes(p)) != ST_OK ||
         (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
-        (rc = check_gates(p)) != ST_OK)
+        (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:

@@ -9,7 +9,9 @@
  * line (`FILE: missing section [scale]`), a defect class without its
  * [tolerance NAME] names the class's header line.  A file that cannot be
  * opened is ST_EIO.  The first error stops the parse.  Relative paths
- * resolve against the recipe's folder.  On failure *r is left untouched.
+ * resolve against the recipe's folder.  `[scale] calibration = FILE` loads
+ * the calibration file (core/calfile.h) into r->cal and fills mm_per_px_x/y
+ * from it.  On failure *r is left untouched.
  * A recipe is a plain value: no heap, copy it freely. */
 #ifndef ST_RECIPE_H
 #define ST_RECIPE_H
@@ -18,6 +20,7 @@
 #include <stdint.h>
 
 #include "booster.h"
+#include "calfile.h"
 #include "err.h"
 #include "features.h"
 #include "zones.h"
@@ -85,7 +88,10 @@ struct recipe {
     int samples_per_class;     /* cap of training pixels per class per image */
     double validation_fraction;/* share of sampled pixels held out, (0, 0.5] */
     char model_path[PATH_MAX]; /* resolved against dir */
-    double mm_per_px_x, mm_per_px_y;
+    double mm_per_px_x, mm_per_px_y; /* [scale], or the calibration's at its target's centre */
+    char calibration_path[PATH_MAX]; /* [scale] calibration, resolved against dir; "" = none */
+    int has_calibration;
+    struct calfile cal;        /* when has_calibration: areas follow its homography */
     struct recipe_tolerance tol[RECIPE_MAX_CLASSES];
     struct recipe_gates gates;
     double merge_gap_mm[RECIPE_MAX_CLASSES]; /* [tolerance NAME] merge_gap_mm */

@@ -498,6 +498,34 @@ static double orientation(const struct moments *m, int n, double sx, double sy)
     return a <= -PI / 2 ? a + PI : a;
 }
 
+/* mm per pixel along image x and y at (x, y): the lengths of the columns
+ * of the image-to-plane map's Jacobian there. */
+static void local_scale(const double *h, double x, double y, double *sx, double *sy)
+{
+    double w = h[6] * x + h[7] * y + h[8];
+    double u = (h[0] * x + h[1] * y + h[2]) / w, v = (h[3] * x + h[4] * y + h[5]) / w;
+    *sx = hypot(h[0] - u * h[6], h[3] - v * h[6]) / fabs(w);
+    *sy = hypot(h[1] - u * h[7], h[4] - v * h[7]) / fabs(w);
+}
+
+/* Areas through the homography: |det J| at each pixel's centre, which for
+ * a projective map is |det H| / |w|^3 (w = h6 x + h7 y + h8). */
+static void plane_areas(struct region_set *rs, const double *h, int w, int hgt)
+{
+    double det = h[0] * (h[4] * h[8] - h[5] * h[7]) - h[1] * (h[3] * h[8] - h[5] * h[6]) +
+                 h[2] * (h[3] * h[7] - h[4] * h[6]);
+    for (int i = 0; i < rs->n; i++)
+        rs->r[i].area_mm2 = 0;
+    for (int y = 0; y < hgt; y++) {
+        const int32_t *l = rs->labels + (size_t)y * w;
+        for (int x = 0; x < w; x++)
+            if (l[x] >= 0) {
+                double q = h[6] * x + h[7] * y + h[8];
+                rs->r[l[x]].area_mm2 += fabs(det / (q * q * q));
+            }
+    }
+}
+
 /* Everything measured from the (summed) counts and the rows. */
 static int measure(struct region_set *rs, int k, const struct hull_row *rows,
                    const struct regions_opts *o)
@@ -507,6 +535,8 @@ static int measure(struct region_set *rs, int k, const struct hull_row *rows,
     double sx = o->mm_per_px_x, sy = o->mm_per_px_y;
     g->cx = (double)m->x / g->pixels;
     g->cy = (double)m->y / g->pixels;
+    if (o->image_to_plane)
+        local_scale(o->image_to_plane, g->cx, g->cy, &sx, &sy);
     g->mean_conf = (float)(m->conf / g->pixels);
     g->area_mm2 = g->pixels * sx * sy;
     g->orientation = orientation(m, g->pixels, sx, sy);
@@ -645,5 +675,7 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
     if ((rc = fold_labels(rs, nlab, nreg)) || (rc = merge_pass(rs, o, w, h, nreg, &merged)) ||
         (rc = finish(rs, o, w, h, nreg, merged)))
         return err_set(e, rc, "out of memory measuring %d regions", nreg);
+    if (o->image_to_plane)
+        plane_areas(rs, o->image_to_plane, w, h);
     return ST_OK;
 }

@@ -4,7 +4,8 @@
  * same class) finds the regions of every class flagged as a defect and
  * gathers, per provisional label, everything measured below; labels are
  * then folded into their regions.  Per region:
- *   - pixels, and area in mm^2 = pixels x mm_per_px_x x mm_per_px_y.
+ *   - pixels, and area in mm^2 = pixels x mm_per_px_x x mm_per_px_y
+ *     (through a calibration's homography: see regions_opts).
  *     Contour-polygon areas are smaller for small regions (a 16x16 square
  *     is 256 px by count, 225 by its contour); the count is what the
  *     classifier actually marked.
@@ -72,6 +73,17 @@ struct regions_opts {
      * 255 outside every zone.  A region takes the lowest index it touches
      * (zones are listed in priority order). */
     const struct image *zones;
+    /* NULL, or the image-to-plane homography of a calibration (3x3
+     * row-major, pixel centres at integers, plane in mm): then a region's
+     * area is the sum over its pixels of |det J| of that map at the pixel
+     * (exact for the map's local area change; with an affine map it is
+     * pixels x mm_per_px_x x mm_per_px_y), and Feret diameters and
+     * orientation use the map's local scale at the region's centroid (mm
+     * per pixel along image x and y: the lengths of J's columns; the skew
+     * of J, which a tilt about an axis oblique to the image axes brings,
+     * is left out, as is the scale's change across one region).  Gap
+     * merging keeps mm_per_px_x/y. */
+    const double *image_to_plane;
 };
 
 struct region_set {

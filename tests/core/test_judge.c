@@ -68,7 +68,7 @@ static const struct quality good_q = {.level = 150, .part_fraction = 0.4, .sharp
 static const struct part_pose good_pose = {.found = 1, .pixels = 4000, .area_mm2 = 40,
                                            .cx = 50, .cy = 50, .x0 = 10, .y0 = 10, .x1 = 90,
                                            .y1 = 90, .border_gap = 10};
-static const struct judge_refs refs = {100, 40};
+static const struct judge_refs refs = {.sharpness = 100, .part_area_mm2 = 40};
 
 static struct region reg(int id, int cls, int pixels)
 {

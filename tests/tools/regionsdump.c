@@ -4,7 +4,8 @@
  * reference checks against scipy, OpenCV and scikit-image.  DEFECTS is a
  * comma list of defect class indices, SX SY the pixel size in mm, GAP the
  * merge gap in mm of every defect class.  LABELS, when given, receives the
- * region index of every pixel (int32, -1 outside every region). */
+ * region index of every pixel (int32, -1 outside every region).  A last
+ * argument H=h0,...,h8 sets regions_opts.image_to_plane. */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -22,7 +23,21 @@ static int parse_mm(const char *s, double *v)
 int main(int argc, char **argv)
 {
     int w, h, n, conn;
-    double sx, sy, gap;
+    double sx, sy, gap, hom[9];
+    int use_h = argc > 1 && !strncmp(argv[argc - 1], "H=", 2);
+    if (use_h) {
+        const char *q = argv[argc - 1] + 2;
+        for (int i = 0; i < 9; i++) {
+            char *end;
+            hom[i] = strtod(q, &end);
+            if (end == q || (i < 8 && *end != ',') || (i == 8 && *end)) {
+                fprintf(stderr, "regionsdump: H= needs 9 comma-separated numbers\n");
+                return 2;
+            }
+            q = end + 1;
+        }
+        argc--;
+    }
     if ((argc != 10 && argc != 11) || parse_int(argv[1], &w) || parse_int(argv[2], &h) ||
         parse_int(argv[3], &n) || parse_int(argv[5], &conn) || parse_mm(argv[6], &sx) ||
         parse_mm(argv[7], &sy) || parse_mm(argv[8], &gap)) {
@@ -30,7 +45,7 @@ int main(int argc, char **argv)
         return 2;
     }
     struct regions_opts o = {.connectivity = conn, .mm_per_px_x = sx, .mm_per_px_y = sy,
-                             .nclasses = n};
+                             .nclasses = n, .image_to_plane = use_h ? hom : NULL};
     for (char *t = strtok(argv[4], ","); t; t = strtok(NULL, ",")) {
         int c;
         if (parse_int(t, &c) || c < 0 || c >= REGIONS_MAX_CLASSES) {

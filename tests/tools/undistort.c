@@ -1,0 +1,23 @@
+/* undistort FX FY CX CY K1 K2: reads "u v" lines on stdin and prints each
+ * point corrected by lens_undistort, for tests/ref/test_calib.py to compare
+ * with cv2.undistortPoints. */
+#include <stdio.h>
+#include <stdlib.h>
+
+#include "calib/lens.h"
+
+int main(int argc, char **argv)
+{
+    if (argc != 7) {
+        fprintf(stderr, "usage: undistort FX FY CX CY K1 K2 < points\n");
+        return 4;
+    }
+    struct lens l = {atof(argv[1]), atof(argv[2]), atof(argv[3]), atof(argv[4]), atof(argv[5]),
+                     atof(argv[6]), 0};
+    double u, v, x, y;
+    while (scanf("%lf %lf", &u, &v) == 2) {
+        lens_undistort(&l, u, v, &x, &y);
+        printf("%.9f %.9f\n", x, y);
+    }
+    return 0;
+}
