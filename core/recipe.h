@@ -68,6 +68,14 @@ struct recipe_gates {
     double min_frame_change;   /* mean |grey change| from the last frame at or below = frozen; -1 off */
 };
 
+/* [master NAME]: a part of known verdict that `station verify` runs. */
+#define RECIPE_MAX_MASTERS 8
+struct recipe_master {
+    char name[32];
+    char image[PATH_MAX];      /* resolved against dir */
+    int expect;                /* enum verdict: VERDICT_PASS or VERDICT_FAIL */
+};
+
 struct recipe {
     char path[PATH_MAX];
     char dir[PATH_MAX];
@@ -93,6 +101,12 @@ struct recipe {
      * own tolerance for class c (keys it leaves out keep the class's) */
     int ztol_set[ZONE_MAX][RECIPE_MAX_CLASSES];
     struct recipe_tolerance ztol[ZONE_MAX][RECIPE_MAX_CLASSES];
+    char flat_field[PATH_MAX]; /* [lighting] flat_field, resolved; "" = none */
+    /* [verification] interval_hours (-1: no masters) and the [master NAME]
+     * sections; when there are any, at least one expects PASS and one FAIL */
+    double verify_interval_hours;
+    int nmasters;
+    struct recipe_master masters[RECIPE_MAX_MASTERS];
 };
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);
