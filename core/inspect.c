@@ -71,6 +71,7 @@ int inspector_new(const struct recipe *r, struct inspector **out, struct err *e)
     in->refs.sharpness =
         r->gates.sharpness_reference > 0 ? r->gates.sharpness_reference : in->meta.ref_sharpness;
     in->refs.part_area_mm2 = r->part.area_mm2 > 0 ? r->part.area_mm2 : in->meta.ref_part_area_mm2;
+    in->refs.since_verified_h = -1;
     if (r->nzones && (rc = zone_map_new(r->zones, r->nzones, &in->zones, e)))
         goto fail;
     if ((rc = forest_load(r->model_path, &in->forest, e)))
@@ -361,6 +362,12 @@ const struct image *inspector_zone_map(const struct inspector *in)
 }
 const struct model_meta *inspector_model(const struct inspector *in) { return &in->meta; }
 int inspector_threads(const struct inspector *in) { return in->threads; }
+
+void inspector_set_verified(struct inspector *in, double hours_ago)
+{
+    in->refs.since_verified_h =
+        hours_ago < 0 ? -1 : hours_ago < JUDGE_NEVER_VERIFIED_H ? hours_ago : JUDGE_NEVER_VERIFIED_H;
+}
 
 void inspector_set_locating(struct inspector *in, int on)
 {

@@ -62,6 +62,9 @@ const struct judge_refs *inspector_refs(const struct inspector *in);
 const struct image *inspector_zone_map(const struct inspector *in);
 const struct model_meta *inspector_model(const struct inspector *in);
 int inspector_threads(const struct inspector *in);
+/* Hours since the last passing master-part verification (from the log; -1:
+ * not checked, the default), for the verification_due gate (core/judge.h). */
+void inspector_set_verified(struct inspector *in, double hours_ago);
 /* The locating pass (on by default; see inspect.c): off classifies every
  * pixel in full, which the tests use to show the two agree. */
 void inspector_set_locating(struct inspector *in, int on);

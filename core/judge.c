@@ -34,7 +34,8 @@ static const char *rule_words(const char *rule)
              {"part_size", "part area"},
              {"part_at_border", "part at the frame border: gap"},
              {"outside_field", "part outside the field by"},
-             {"unsure", "classifier unsure on a share"}};
+             {"unsure", "classifier unsure on a share"},
+             {"verification_due", "verification due: hours since the last passing one"}};
     for (size_t i = 0; i < sizeof w / sizeof w[0]; i++)
         if (strcmp(w[i].rule, rule) == 0)
             return w[i].words;
@@ -49,6 +50,8 @@ static const char *unit_words(const char *unit)
         return " mm";
     if (!strcmp(unit, "px"))
         return " px";
+    if (!strcmp(unit, "h"))
+        return " h";
     return "";
 }
 
@@ -213,6 +216,8 @@ static void check_gates(const struct recipe *r, const struct judge_refs *refs,
                         const struct quality *q, const struct part_pose *p, struct judgement *j)
 {
     const struct recipe_gates *g = &r->gates;
+    if (r->verify_interval_hours > 0 && refs->since_verified_h > r->verify_interval_hours)
+        gate(j, "verification_due", refs->since_verified_h, r->verify_interval_hours, 0, "h");
     if (!p->found || q->part_fraction < g->min_part_fraction) {
         gate(j, "no_part", q->part_fraction, g->min_part_fraction, 1, "fraction");
         return; /* the other gates are measured over the part */

@@ -8,7 +8,9 @@
  * recipe's bounds; too many saturated or black part pixels; sharpness below
  * a share of the reference; part area off the expected one; part at the
  * frame border or outside the recipe's field; too many part pixels the
- * classifier is unsure of.
+ * classifier is unsure of.  Before all of them, and whatever the frame:
+ * verification due, when the recipe lists master parts and the hours since
+ * the last passing verification (refs, from the log) exceed its interval.
  *
  * Otherwise each defect region is judged by the tolerance of its class in
  * its zone (recipe_tolerance_for: the zone's own, else the class's).  A
@@ -69,7 +71,12 @@ struct quality {
 struct judge_refs {
     double sharpness;
     double part_area_mm2;
+    /* hours since the last passing master-part verification, capped at
+     * JUDGE_NEVER_VERIFIED_H (which is also what none on record reads as);
+     * -1: not checked (inspection without a log) */
+    double since_verified_h;
 };
+#define JUDGE_NEVER_VERIFIED_H 1e6
 
 struct judgement {
     int verdict;
