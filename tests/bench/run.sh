@@ -33,3 +33,5 @@ echo
 "$BUILD/tests/bench/bench_overlay"
 echo "bench: regions alone on simulated class maps" >&2
 "$BUILD/tests/bench/regions_bench" "$REPEAT"
+echo "bench: flat-field correction" >&2
+"$BUILD/tests/bench/flat_bench" "$REPEAT"
