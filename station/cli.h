@@ -44,6 +44,7 @@ int cmd_demo(int argc, char **argv);
 int cmd_recipe(int argc, char **argv);
 int cmd_bench(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
+int cmd_verify(int argc, char **argv);
 
 /* True when argv holds -h or --help; such commands print usage and return 0. */
 int cli_wants_help(int argc, char **argv);

@@ -14,6 +14,7 @@ static const struct {
     {"evaluate", cmd_evaluate, "measure a trained recipe against a labelled dataset"},
     {"inspect", cmd_inspect, "judge image files against a recipe (PASS / FAIL / NO_VERDICT)"},
     {"recipe", cmd_recipe, "check a recipe file"},
+    {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?"},
     {"calibrate", cmd_calibrate, "build a calibration: flat field"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
 };
