@@ -9,4 +9,5 @@ rm -rf "$out"
 "$BUILD/station" demo --out "$out" --seed 11
 "$PYTHON" tests/e2e/check_demo.py "$BUILD/station" "$out"
 "$PYTHON" tests/e2e/check_flat.py "$BUILD/station" "$out"
+"$PYTHON" tests/e2e/check_verify.py "$BUILD/station" "$out"
 exec "$PYTHON" tests/e2e/check_degraded.py "$BUILD/station" "$out"
