@@ -2,7 +2,9 @@
 
 #include <errno.h>
 #include <png.h>
+#include <zlib.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 /* Ancillary chunks (text, ICC profiles) are never used, but libpng still
@@ -23,6 +25,8 @@ struct pngio_ctx {
     int err_no;         /* errno when libpng failed: a short fread/fwrite sets it */
     char msg[160];      /* libpng's error message */
     char warning[160];  /* libpng's last warning: often says why the error came */
+    unsigned char *mem; /* pngio_encode_mem's growing output (fp is NULL then) */
+    size_t mem_len, mem_cap;
 };
 
 static void pngio_on_error(png_structp png, png_const_charp msg)
@@ -53,9 +57,9 @@ static int pngio_fail_errno(struct err *e, int code, const char *path, const cha
 static int pngio_fail_lib(const struct pngio_ctx *c, struct err *e, int code, const char *what,
                           const char *io_what)
 {
-    if (ferror(c->fp))
+    if (c->fp && ferror(c->fp))
         return pngio_fail_errno(e, ST_EIO, c->path, io_what, c->err_no);
-    if (feof(c->fp))
+    if (c->fp && feof(c->fp))
         what = "truncated PNG (file ends early)";
     if (c->warning[0])
         return err_set(e, code, "%s: %s (libpng: %s; %s)", c->path, what, c->warning, c->msg);
@@ -207,15 +211,45 @@ int pngio_load_label(const char *path, int nclasses, struct image **out, struct 
     return pngio_load(path, PNGIO_LABEL, nclasses, out, e);
 }
 
+static void pngio_mem_write(png_structp png, png_bytep data, size_t len)
+{
+    struct pngio_ctx *c = png_get_io_ptr(png);
+    if (len > c->mem_cap - c->mem_len) {
+        size_t cap = c->mem_cap ? c->mem_cap : 65536;
+        while (cap - c->mem_len < len)
+            cap *= 2;
+        unsigned char *m = realloc(c->mem, cap);
+        if (!m)
+            png_error(png, "out of memory");
+        c->mem = m;
+        c->mem_cap = cap;
+    }
+    memcpy(c->mem + c->mem_len, data, len);
+    c->mem_len += len;
+}
+
+static void pngio_mem_flush(png_structp png)
+{
+    (void)png;
+}
+
 /* All libpng write calls; may longjmp back to pngio_write_run. */
 static void pngio_encode(struct pngio_ctx *c, const struct image *img, int level)
 {
     png_structp png = c->png;
-    png_init_io(png, c->fp);
+    if (c->fp)
+        png_init_io(png, c->fp);
+    else
+        png_set_write_fn(png, c, pngio_mem_write, pngio_mem_flush);
     png_set_IHDR(png, c->info, (png_uint_32)img->w, (png_uint_32)img->h, 8,
                  img->channels == 3 ? PNG_COLOR_TYPE_RGB : PNG_COLOR_TYPE_GRAY, PNG_INTERLACE_NONE,
                  PNG_COMPRESSION_TYPE_DEFAULT, PNG_FILTER_TYPE_DEFAULT);
     png_set_compression_level(png, level);
+    /* Sensor noise leaves deflate's string matches little to find: on a
+     * simulated 640x480 bench frame run-length matching alone took 20 ms
+     * for 479 kB against 26 ms for 550 kB with the default strategy. */
+    if (level == 1)
+        png_set_compression_strategy(png, Z_RLE);
     /* libpng's adaptive filter choice tries all five filters per row: at
      * level 1 that made a 2048x1536 RGB frame take 420 ms instead of 270 ms
      * with SUB alone, for 4% less size.  Stored (level 0) data gains nothing
@@ -239,33 +273,64 @@ static int pngio_write_run(struct pngio_ctx *c, const struct image *img, int lev
     return ST_OK;
 }
 
-int pngio_save(const char *path, const struct image *img, int level, struct err *e)
+static int pngio_check_save(const char *path, const struct image *img, int level, struct err *e)
 {
-    if (!path || !img || !img->px)
-        return err_set(e, ST_EINVAL, "%s: no image to save", path ? path : "pngio");
+    if (!img || !img->px)
+        return err_set(e, ST_EINVAL, "%s: no image to save", path);
     struct err sub;
     if (image_check_size(img->w, img->h, img->channels, NULL, &sub))
         return err_set(e, sub.code, "%s: %s", path, sub.msg);
     if (level < 0 || level > 9)
         return err_set(e, ST_EINVAL, "%s: zlib level %d outside 0..9", path, level);
+    return ST_OK;
+}
 
+/* Creates the encoder in c and runs it; the caller destroys it. */
+static int pngio_write(struct pngio_ctx *c, const struct image *img, int level, struct err *e)
+{
+    c->png = png_create_write_struct(PNG_LIBPNG_VER_STRING, c, pngio_on_error, pngio_on_warning);
+    if (c->png)
+        c->info = png_create_info_struct(c->png);
+    if (!c->info)
+        return err_set(e, ST_ENOMEM, "%s: out of memory starting the PNG encoder", c->path);
+    return pngio_write_run(c, img, level, e);
+}
+
+int pngio_save(const char *path, const struct image *img, int level, struct err *e)
+{
+    if (!path)
+        return err_set(e, ST_EINVAL, "pngio: no path to save to");
+    int rc = pngio_check_save(path, img, level, e);
+    if (rc)
+        return rc;
     struct pngio_ctx c = { .path = path };
-    int rc = ST_OK;
     c.fp = fopen(path, "wb");
     if (!c.fp)
         return pngio_fail_errno(e, ST_EIO, path, "cannot create", errno);
-    c.png = png_create_write_struct(PNG_LIBPNG_VER_STRING, &c, pngio_on_error, pngio_on_warning);
-    if (c.png)
-        c.info = png_create_info_struct(c.png);
-    if (!c.info) {
-        rc = err_set(e, ST_ENOMEM, "%s: out of memory starting the PNG encoder", path);
-        goto fail;
-    }
-    rc = pngio_write_run(&c, img, level, e);
-fail:
+    rc = pngio_write(&c, img, level, e);
     png_destroy_write_struct(&c.png, &c.info);
     /* Buffered data reaches the disk only now, so a full disk shows here. */
     if (fclose(c.fp) != 0 && rc == ST_OK)
         rc = pngio_fail_errno(e, ST_EIO, path, "cannot write", errno);
     return rc;
+}
+
+int pngio_encode_mem(const char *what, const struct image *img, int level, unsigned char **buf,
+                     size_t *len, struct err *e)
+{
+    *buf = NULL;
+    *len = 0;
+    int rc = pngio_check_save(what, img, level, e);
+    if (rc)
+        return rc;
+    struct pngio_ctx c = { .path = what };
+    rc = pngio_write(&c, img, level, e);
+    png_destroy_write_struct(&c.png, &c.info);
+    if (rc) {
+        free(c.mem);
+        return rc;
+    }
+    *buf = c.mem;
+    *len = c.mem_len;
+    return ST_OK;
 }

@@ -35,9 +35,16 @@ int pngio_load_rgb(const char *path, struct image **out, struct err *e);
 int pngio_load_label(const char *path, int nclasses, struct image **out, struct err *e);
 
 /* Writes a 1- or 3-channel image, 8-bit, not interlaced. level is the zlib
- * level (0..9); evidence writing uses a low level for speed.  The file is
+ * level (0..9); evidence writing uses level 1 for speed, which also takes
+ * the SUB filter and zlib's run-length strategy.  The file is
  * written in place: on failure a partial file may remain, so callers that
  * need atomicity write to a temporary name and rename. */
 int pngio_save(const char *path, const struct image *img, int level, struct err *e);
+
+/* The same PNG encoded into a heap buffer (*buf, *len; caller frees *buf), so
+ * a caller can hash it and write it through its own I/O; what names the
+ * image in messages. */
+int pngio_encode_mem(const char *what, const struct image *img, int level, unsigned char **buf,
+                     size_t *len, struct err *e);
 
 #endif

@@ -11,7 +11,7 @@
 #include <ini.h>
 
 enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
-                SEC_GATES, SEC_PART, SEC_ZONE,
+                SEC_GATES, SEC_PART, SEC_ZONE, SEC_EVIDENCE,
                 SEC_LIGHTING, SEC_VERIFICATION, SEC_MASTER, SEC_KINDS };
 
 enum val_type {
@@ -31,7 +31,8 @@ enum val_type {
     V_POINTS,   /* double[maxn][2] polygon vertices, count at count_off */
     V_GRADE,    /* "N x A": int N >= 1 at off, double A > 0 at count_off */
     V_FIELD,    /* int[4] x0 y0 x1 y1, x0 < x1, y0 < y1 */
-    V_WORD      /* int index into the section's word list (see word_lists) */
+    V_WORD,     /* int index into the section's word list (see word_lists) */
+    V_PASS      /* enum recipe_pass_evidence at off, N of "every N" at count_off */
 };
 
 enum {
@@ -41,7 +42,7 @@ enum {
 };
 
 #define MAX_KEYS 12
-#define MAX_SECTIONS (7 + (2 + ZONE_MAX) * RECIPE_MAX_CLASSES + ZONE_MAX)
+#define MAX_SECTIONS (8 + (2 + ZONE_MAX) * RECIPE_MAX_CLASSES + ZONE_MAX)
 #define NAME_MAX_LEN ((int)sizeof(((struct recipe_class *)0)->name) - 1)
 
 struct key_def {
@@ -194,6 +195,10 @@ static const struct {
 };
 #define NSHAPES ((int)(sizeof zone_shape_keys / sizeof zone_shape_keys[0]))
 
+static const struct key_def evidence_keys[] = {
+    {"pass", V_PASS, R(evidence_pass), R(evidence_every), 1, INT_MAX, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
 static const struct sec_def {
     const char *word;
     int named;       /* [class NAME], [tolerance NAME] */
@@ -212,6 +217,7 @@ static const struct sec_def {
     [SEC_LIGHTING] = {"lighting", 0, 0, lighting_keys},
     [SEC_VERIFICATION] = {"verification", 0, 0, verification_keys},
     [SEC_MASTER] = {"master", 1, 0, master_keys},
+    [SEC_EVIDENCE] = {"evidence", 0, 0, evidence_keys},
 };
 
 /* Same order as the bits of enum feat_family. */
@@ -547,6 +553,25 @@ static int store_word(struct parse *p, const struct key_def *k, char *base, cons
     return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not one of: %s", k->name, value, list);
 }
 
+/* "none", "all" or "every N". */
+static int store_pass(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    long n;
+    int *mode = (int *)(base + k->off), *every = (int *)(base + k->count_off);
+    if (!strcmp(value, "none") || !strcmp(value, "all")) {
+        *mode = !strcmp(value, "all") ? RECIPE_PASS_ALL : RECIPE_PASS_NONE;
+        return ST_OK;
+    }
+    if (strncmp(value, "every", 5) || !is_blank(value[5]) || parse_long(value + 6, &n))
+        return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not none, all or every N", k->name,
+                       value);
+    if (!in_range(k, (double)n))
+        return out_of_range(p, k, value + 6);
+    *mode = RECIPE_PASS_EVERY;
+    *every = (int)n;
+    return ST_OK;
+}
+
 static int store_value(struct parse *p, const struct key_def *k, char *base, const char *value)
 {
     long iv;
@@ -617,6 +642,8 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
         return store_field(p, k, base, value);
     case V_WORD:
         return store_word(p, k, base, value);
+    case V_PASS:
+        return store_pass(p, k, base, value);
     case V_MODEL:
     case V_MASK:
     case V_FILE:

@@ -75,6 +75,8 @@ struct recipe_master {
     char image[PATH_MAX];      /* resolved against dir */
     int expect;                /* enum verdict: VERDICT_PASS or VERDICT_FAIL */
 };
+/* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
+enum recipe_pass_evidence { RECIPE_PASS_NONE = 0, RECIPE_PASS_ALL, RECIPE_PASS_EVERY };
 
 struct recipe {
     char path[PATH_MAX];
@@ -107,6 +109,8 @@ struct recipe {
     double verify_interval_hours;
     int nmasters;
     struct recipe_master masters[RECIPE_MAX_MASTERS];
+    int evidence_pass;         /* enum recipe_pass_evidence, default none */
+    int evidence_every;        /* N of "every N" */
 };
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);

@@ -17,6 +17,14 @@ void cli_say(const char *fmt, ...)
     va_end(ap);
 }
 
+void cli_emit(json_t *o)
+{
+    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(6));
+    fputc('\n', stdout);
+    fflush(stdout);
+    json_decref(o);
+}
+
 double cli_now_ms(void)
 {
     struct timespec ts;

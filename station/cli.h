@@ -6,6 +6,7 @@
 #ifndef ST_CLI_H
 #define ST_CLI_H
 
+#include <jansson.h>
 #include <stdio.h>
 
 enum exit_status {
@@ -22,6 +23,10 @@ enum exit_status {
 
 /* "station: message\n" on stderr. */
 void cli_say(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+
+/* One JSON value as a compact line on stdout, flushed at once (a reader may
+ * be waiting on it), then freed. */
+void cli_emit(json_t *o);
 
 /* A progress line rewritten in place on a terminal, one line per update
  * (throttled) when stderr is not a terminal. */
@@ -45,6 +50,7 @@ int cmd_recipe(int argc, char **argv);
 int cmd_bench(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
 int cmd_verify(int argc, char **argv);
+int cmd_audit(int argc, char **argv);
 
 /* True when argv holds -h or --help; such commands print usage and return 0. */
 int cli_wants_help(int argc, char **argv);

@@ -20,6 +20,7 @@
 #include "core/pngio.h"
 #include "core/rng.h"
 #include "evaluate.h"
+#include "logbook.h"
 #include "report.h"
 #include "simbench.h"
 #include "train.h"
@@ -30,7 +31,7 @@
 static void usage(FILE *f)
 {
     fprintf(f, "usage: station demo [--out DIR] [--seed N] [--train N] [--test N] [--shifted N]\n"
-               "                    [--recipe FILE]\n\n"
+               "                    [--recipe FILE] [--log DB] [--station ID]\n\n"
                "Runs the whole job on the simulated bench: renders Ostrel cap 38 parts (an\n"
                "invented product) with ground truth, trains the demo recipe, evaluates it,\n"
                "inspects the test parts and compares every verdict with the truth.\n\n"
@@ -39,7 +40,10 @@ static void usage(FILE *f)
                "  --train N      training parts (default 60)\n"
                "  --test N       nominal test parts (default 30)\n"
                "  --shifted N    test parts under the next shift's conditions (default 20)\n"
-               "  --recipe FILE  the demo recipe (default: recipes/%s next to the program)\n\n"
+               "  --recipe FILE  the demo recipe (default: recipes/%s next to the program)\n"
+               "  --log DB       the inspection log the test parts are recorded in\n"
+               "                 (default DIR/log/station.db, evidence in DIR/log/evidence/)\n"
+               "  --station ID   station id of those records (default demo-bench)\n\n"
                "%s\n",
             DEMO_RECIPE, CLI_CAUTION);
 }
@@ -165,6 +169,7 @@ struct batch {
      * defective part it fails whose worst broken rule is the least over */
     int good_part, over_part;
     double over_ratio;
+    struct logbook *lb;        /* every inspection is recorded here */
 };
 
 /* How far the truth's worst broken rule is over its limit (measured / limit). */
@@ -209,7 +214,14 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         struct judgement got, want;
         if ((rc = pngio_load_rgb(ip, &img, e)) || (rc = pngio_load_label(lp, r->nclasses, &lab, e)))
             goto next;
-        if ((rc = inspector_run(in, img, &got, NULL, e)))
+        struct inspect_times t = {0};
+        if ((rc = inspector_run(in, img, &got, &t, e)))
+            goto next;
+        json_t *rep = report_json(ip, in, &got, &t);
+        int64_t seq;
+        rc = logbook_record(b->lb, rep, in, img, &got, NULL, NULL, &seq, e);
+        json_decref(rep);
+        if (rc)
             goto next;
         /* the truth is judged by the same tolerances in the zones the
          * station placed: its pose error is far below a zone's width */
@@ -307,7 +319,7 @@ static int save_masters(const char *out, const char *test_dir, const struct batc
 }
 
 struct demo_opts {
-    const char *out, *recipe;
+    const char *out, *recipe, *log, *station;
     uint64_t seed;
     int ntrain, ntest, nshifted;
 };
@@ -361,8 +373,18 @@ static int run_demo(const struct demo_opts *o, struct err *e)
     const char *dirs[2] = {test_dir, shift_dir};
     const int first[2] = {o->ntrain, o->ntrain + o->ntest};
     const int count[2] = {o->ntest, o->nshifted};
+    struct logbook lb;
+    char log_path[PATH_MAX];
+    snprintf(log_path, sizeof log_path, "%s/log/station.db", o->out);
+    if (o->log)
+        snprintf(log_path, sizeof log_path, "%s", o->log);
     if ((rc = inspector_new(&r, &in, e)))
         return rc;
+    if ((rc = logbook_open(&lb, log_path, o->station, 0, &r, e))) {
+        inspector_free(in);
+        return rc;
+    }
+    b[0].lb = b[1].lb = &lb;
     for (int k = 0; k < 2 && !rc; k++) {
         snprintf(dir, sizeof dir, "%s/evaluation", dirs[k]);
         if (count[k] == 0)
@@ -373,6 +395,7 @@ static int run_demo(const struct demo_opts *o, struct err *e)
     inspector_free(in);
     if (!rc && count[0])
         rc = save_masters(o->out, test_dir, &b[0], e);
+    logbook_close(&lb);
     if (!rc) {
         for (int k = 0; k < 2; k++)
             if (count[k])
@@ -393,8 +416,9 @@ static int run_demo(const struct demo_opts *o, struct err *e)
             rc = err_set(e, ST_EIO, "%s: cannot write", dir);
         json_decref(s);
         fprintf(stderr, "\ndemo: finished in %.0f s. Sheets of the worst images: %s/*/evaluation/;"
-                        " overlays of failed parts: %s/*/overlays/; figures: %s\n%s\n",
-                (cli_now_ms() - t0) / 1e3, o->out, o->out, dir, CLI_CAUTION);
+                        " overlays of failed parts: %s/*/overlays/; figures: %s\n"
+                        "inspection log with evidence: %s (try: station audit list --log %s)\n%s\n",
+                (cli_now_ms() - t0) / 1e3, o->out, o->out, dir, log_path, log_path, CLI_CAUTION);
     }
     for (int k = 0; k < 2; k++)
         evaluate_clear(&b[k].eval);
@@ -411,9 +435,10 @@ int cmd_demo(int argc, char **argv)
         {"out", required_argument, NULL, 'o'},    {"seed", required_argument, NULL, 's'},
         {"train", required_argument, NULL, 't'},  {"test", required_argument, NULL, 'T'},
         {"shifted", required_argument, NULL, 'S'}, {"recipe", required_argument, NULL, 'r'},
+        {"log", required_argument, NULL, 'l'},    {"station", required_argument, NULL, 'i'},
         {0, 0, 0, 0}};
     struct demo_opts o = {.out = "station-demo", .seed = 1, .ntrain = 60, .ntest = 30,
-                          .nshifted = 20};
+                          .nshifted = 20, .station = "demo-bench"};
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
@@ -424,6 +449,8 @@ int cmd_demo(int argc, char **argv)
         case 'T': o.ntest = atoi(optarg); break;
         case 'S': o.nshifted = atoi(optarg); break;
         case 'r': o.recipe = optarg; break;
+        case 'l': o.log = optarg; break;
+        case 'i': o.station = optarg; break;
         default: usage(stderr); return EXIT_USAGE;
         }
     }

@@ -17,6 +17,7 @@ static const struct {
     {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?"},
     {"calibrate", cmd_calibrate, "build a calibration: flat field"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
+    {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify"},
 };
 
 static void usage(FILE *f)

@@ -598,6 +598,26 @@ static void test_missing_file(void **state)
     assert_memory_equal(e.msg, prefix, strlen(prefix));
 }
 
+/* [evidence] pass: none (default), all, every N. */
+static void test_evidence_section(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(GOOD, &r);
+    assert_int_equal(r.evidence_pass, RECIPE_PASS_NONE);
+    load_ok(GOOD "[evidence]\npass = all\n", &r);
+    assert_int_equal(r.evidence_pass, RECIPE_PASS_ALL);
+    load_ok(GOOD "[evidence]\npass = every  25\n", &r);
+    assert_int_equal(r.evidence_pass, RECIPE_PASS_EVERY);
+    assert_int_equal(r.evidence_every, 25);
+    const char *zero = GOOD "[evidence]\npass = every 0\n";
+    load_bad(zero, ST_ERANGE, line_of(zero, "every", 1), "pass");
+    const char *odd = GOOD "[evidence]\npass = sometimes\n";
+    load_bad(odd, ST_EFORMAT, line_of(odd, "sometimes", 1), "is not none, all or every N");
+    const char *junk = GOOD "[evidence]\npass = every 3x\n";
+    load_bad(junk, ST_EFORMAT, line_of(junk, "every", 1), "is not none, all or every N");
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -605,6 +625,7 @@ int main(void)
         cmocka_unit_test(test_zones_and_part),
         cmocka_unit_test(test_zone_errors),
         cmocka_unit_test(test_grade_and_gates_errors),
+        cmocka_unit_test(test_evidence_section),
         cmocka_unit_test(test_minimal_defaults),
         cmocka_unit_test(test_absolute_model_and_no_gabor),
         cmocka_unit_test(test_lighting_and_masters),

@@ -25,3 +25,24 @@ grep -q '"image":"[^"]*cut.png","verdict":"NO_VERDICT"' "$out/inspect.jsonl" || 
     exit 1
 }
 echo "ok   smoke: demo, inspect, truncated file NO_VERDICT (exit 2)"
+# The demo's log read by the audit's numbers: the page holds one thumbnail
+# per reject the log lists, the CSV one row per record.
+log="$out/log/station.db"
+"$BUILD/station" audit stats --log "$log" --json >"$out/stats.json" 2>"$out/audit.log" &&
+    "$BUILD/station" audit report --log "$log" --out "$out/audit.html" 2>>"$out/audit.log" &&
+    "$BUILD/station" audit export --log "$log" --out "$out/records.csv" 2>>"$out/audit.log" || {
+    tail -3 "$out/audit.log"
+    echo "FAIL audit stats, report or export on the demo's log"
+    exit 1
+}
+records=$(grep -o '"records":[0-9]*' "$out/stats.json" | cut -d: -f2)
+"$BUILD/station" audit list --log "$log" --json >"$out/list.jsonl"
+rejects=$(grep -c -v '"verdict":"PASS"' "$out/list.jsonl" || true)
+thumbs=$(grep -o 'src="data:image/png;base64,' "$out/audit.html" | wc -l)
+rows=$(wc -l <"$out/records.csv")
+[ "$records" -ge 1 ] && [ "$records" = "$(wc -l <"$out/list.jsonl")" ] && [ "$thumbs" = "$rejects" ] &&
+    [ "$rows" = $((records + 1)) ] || {
+    echo "FAIL audit on the demo's log: $records records, $rejects rejects, $thumbs thumbnails, $rows CSV lines"
+    exit 1
+}
+echo "ok   smoke: audit stats, report ($thumbs thumbnails) and export ($records records) of the demo's log"

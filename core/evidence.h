@@ -1,0 +1,23 @@
+/* evidence: writes one evidence file durably — the bytes go to NAME.tmp,
+ * are fsynced, renamed to NAME, and the folder is fsynced, so after a crash
+ * NAME is either absent or complete.  Folders under the root are created as
+ * needed (and their parent fsynced).  Every write, fsync, rename and close
+ * goes through the caller's struct log_io, so a test can make any of them
+ * fail.  Never prints; keeps no state. */
+#ifndef ST_EVIDENCE_H
+#define ST_EVIDENCE_H
+
+#include <stddef.h>
+
+#include "log.h"
+
+/* Writes len bytes to ROOT/NAME (NAME may hold one folder: "DATE/FILE"). */
+int evidence_write(const struct log_io *io, const char *root, const char *name,
+                   const void *data, size_t len, struct err *e);
+
+/* Checks ROOT/NAME against its recorded SHA-256 and size: ST_OK, or ST_EIO
+ * (missing, unreadable) / ST_EFORMAT (differs) with the reason in e. */
+int evidence_check(const char *root, const char *name, const char *sha256, long long bytes,
+                   struct err *e);
+
+#endif

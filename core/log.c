@@ -1,0 +1,985 @@
+#include "log.h"
+
+#include <errno.h>
+#include <fcntl.h>
+#include <inttypes.h>
+#include <limits.h>
+#include <pthread.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "evidence.h"
+#include "judge.h"
+#include "logcanon.h"
+#include "pngio.h"
+#include "recipe.h"
+
+/* 'STLG': tells a station log from any other SQLite file. */
+#define LOG_APPLICATION_ID 0x53544c47
+#define LOG_BUSY_MS 5000
+#define LOG_PURGE_BATCH 32
+
+/* Step N takes a database from schema N to N + 1, in the same transaction
+ * that sets user_version, so an upgrade is all or nothing. */
+static const char *const log_upgrade[LOG_SCHEMA_VERSION] = {
+    /* 0 -> 1: records, their evidence, dispositions; all append-only. */
+    "CREATE TABLE records(seq INTEGER PRIMARY KEY, utc TEXT NOT NULL, station TEXT NOT NULL,"
+    " operator TEXT NOT NULL, serial TEXT NOT NULL, recipe_id TEXT NOT NULL,"
+    " recipe_version INTEGER NOT NULL, recipe_sha256 TEXT NOT NULL, model_sha256 TEXT NOT NULL,"
+    " scale_id TEXT NOT NULL, verdict TEXT NOT NULL, reasons TEXT NOT NULL,"
+    " regions TEXT NOT NULL, camera TEXT, prev_hash TEXT NOT NULL, hash TEXT NOT NULL);"
+    "CREATE INDEX records_utc ON records(utc);"
+    "CREATE TABLE evidence(record_seq INTEGER NOT NULL REFERENCES records(seq),"
+    " kind TEXT NOT NULL, name TEXT NOT NULL UNIQUE, sha256 TEXT NOT NULL,"
+    " bytes INTEGER NOT NULL, PRIMARY KEY(record_seq, kind));"
+    "CREATE TABLE dispositions(dseq INTEGER PRIMARY KEY,"
+    " record_seq INTEGER NOT NULL REFERENCES records(seq), utc TEXT NOT NULL,"
+    " auditor TEXT NOT NULL, disposition TEXT NOT NULL, comment TEXT NOT NULL,"
+    " prev_hash TEXT NOT NULL, hash TEXT NOT NULL);"
+    "CREATE INDEX dispositions_record ON dispositions(record_seq, dseq);"
+    "CREATE TRIGGER records_no_update BEFORE UPDATE ON records"
+    " BEGIN SELECT RAISE(ABORT, 'records are append-only'); END;"
+    "CREATE TRIGGER records_no_delete BEFORE DELETE ON records"
+    " BEGIN SELECT RAISE(ABORT, 'records are append-only'); END;"
+    "CREATE TRIGGER evidence_no_update BEFORE UPDATE ON evidence"
+    " BEGIN SELECT RAISE(ABORT, 'evidence rows are append-only'); END;"
+    "CREATE TRIGGER evidence_no_delete BEFORE DELETE ON evidence"
+    " BEGIN SELECT RAISE(ABORT, 'evidence rows are append-only'); END;"
+    "CREATE TRIGGER dispositions_no_update BEFORE UPDATE ON dispositions"
+    " BEGIN SELECT RAISE(ABORT, 'dispositions are append-only'); END;"
+    "CREATE TRIGGER dispositions_no_delete BEFORE DELETE ON dispositions"
+    " BEGIN SELECT RAISE(ABORT, 'dispositions are append-only'); END;",
+    /* 1 -> 2: retention's deletions, recorded before the file goes. */
+    "CREATE TABLE evidence_purged(name TEXT PRIMARY KEY REFERENCES evidence(name),"
+    " record_seq INTEGER NOT NULL, utc TEXT NOT NULL, reason TEXT NOT NULL);"
+    "CREATE TRIGGER purged_no_update BEFORE UPDATE ON evidence_purged"
+    " BEGIN SELECT RAISE(ABORT, 'evidence_purged is append-only'); END;"
+    "CREATE TRIGGER purged_no_delete BEFORE DELETE ON evidence_purged"
+    " BEGIN SELECT RAISE(ABORT, 'evidence_purged is append-only'); END;",
+};
+
+#define REC_COLS                                                                              \
+    "r.seq, r.utc, r.station, r.operator, r.serial, r.recipe_id, r.recipe_version,"          \
+    " r.recipe_sha256, r.model_sha256, r.scale_id, r.verdict, r.reasons, r.regions, r.camera," \
+    " r.prev_hash, r.hash"
+#define DISP_COLS "dseq, record_seq, utc, auditor, disposition, comment, prev_hash, hash"
+
+enum stmt_id {
+    S_BEGIN, S_COMMIT, S_ROLLBACK, S_LAST, S_INS_REC, S_INS_EV, S_PURGE_CAND, S_INS_PURGE,
+    S_LAST_DISP, S_REC_HASH, S_INS_DISP, S_GET, S_EV, S_LATEST_DISP, S_DISPS, S_DISPS_ALL,
+    S_EV_TOTAL, S_COUNT
+};
+
+static const char *const stmt_sql[S_COUNT] = {
+    [S_BEGIN] = "BEGIN IMMEDIATE",
+    [S_COMMIT] = "COMMIT",
+    [S_ROLLBACK] = "ROLLBACK",
+    [S_LAST] = "SELECT seq, hash FROM records ORDER BY seq DESC LIMIT 1",
+    [S_INS_REC] = "INSERT INTO records VALUES(?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+    [S_INS_EV] = "INSERT INTO evidence VALUES(?,?,?,?,?)",
+    /* PASS evidence oldest first, then evidence of disposed rejects; never
+     * that of a reject no auditor has seen. */
+    [S_PURGE_CAND] = "SELECT e.name, e.bytes, e.record_seq FROM evidence e"
+                     " JOIN records r ON r.seq = e.record_seq"
+                     " WHERE NOT EXISTS(SELECT 1 FROM evidence_purged p WHERE p.name = e.name)"
+                     " AND (r.verdict = 'PASS' OR EXISTS(SELECT 1 FROM dispositions d"
+                     " WHERE d.record_seq = r.seq))"
+                     " ORDER BY r.verdict <> 'PASS', e.record_seq LIMIT ?",
+    [S_INS_PURGE] = "INSERT INTO evidence_purged VALUES(?,?,?,?)",
+    [S_LAST_DISP] = "SELECT dseq, hash FROM dispositions ORDER BY dseq DESC LIMIT 1",
+    [S_REC_HASH] = "SELECT hash, verdict FROM records WHERE seq = ?",
+    [S_INS_DISP] = "INSERT INTO dispositions VALUES(?,?,?,?,?,?,?,?)",
+    [S_GET] = "SELECT " REC_COLS " FROM records r WHERE r.seq = ?",
+    [S_EV] = "SELECT kind, name, sha256, bytes,"
+             " EXISTS(SELECT 1 FROM evidence_purged p WHERE p.name = e.name)"
+             " FROM evidence e WHERE record_seq = ? ORDER BY kind <> 'frame', kind",
+    [S_LATEST_DISP] = "SELECT " DISP_COLS " FROM dispositions WHERE record_seq = ?"
+                      " ORDER BY dseq DESC LIMIT 1",
+    [S_DISPS] = "SELECT " DISP_COLS " FROM dispositions WHERE record_seq = ? ORDER BY dseq",
+    [S_DISPS_ALL] = "SELECT " DISP_COLS " FROM dispositions ORDER BY dseq",
+    [S_EV_TOTAL] = "SELECT COALESCE(SUM(bytes), 0) FROM evidence e"
+                   " WHERE NOT EXISTS(SELECT 1 FROM evidence_purged p WHERE p.name = e.name)",
+};
+
+struct log_db {
+    sqlite3 *h;
+    sqlite3_stmt *st[S_COUNT];
+    int mode;
+    char path[PATH_MAX];
+    char evdir[PATH_MAX];
+    struct log_options opt;
+    int64_t ev_total;          /* bytes of evidence not purged (write mode) */
+    long pass_count;           /* PASS inspections seen by log_pass_wants_evidence */
+};
+
+static const char *const disp_names[LOG_DISP_COUNT] = {"none", "confirmed", "false-reject",
+                                                       "rework", "other"};
+
+const char *log_disp_name(int disp)
+{
+    return disp >= 0 && disp < LOG_DISP_COUNT ? disp_names[disp] : "?";
+}
+
+int log_disp_parse(const char *name)
+{
+    for (int i = 0; i < LOG_DISP_COUNT; i++)
+        if (name && strcmp(name, disp_names[i]) == 0)
+            return i;
+    return -1;
+}
+
+int log_verdict_parse(const char *s)
+{
+    for (int v = VERDICT_PASS; v <= VERDICT_NONE; v++)
+        if (s && strcmp(s, judge_verdict_name(v)) == 0)
+            return v;
+    return -1;
+}
+
+static int sys_open(const char *path, int flags, mode_t mode)
+{
+    return open(path, flags, mode);
+}
+
+static const struct log_io io_default = {sys_open, write, fsync, close, rename};
+
+const struct log_io *log_io_default(void)
+{
+    return &io_default;
+}
+
+void log_options_init(struct log_options *o)
+{
+    memset(o, 0, sizeof *o);
+    o->png_level = 1;
+}
+
+static int db_fail(struct log_db *db, struct err *e, const char *what)
+{
+    int code = sqlite3_errcode(db->h);
+    int st = code == SQLITE_NOMEM ? ST_ENOMEM : code == SQLITE_CORRUPT || code == SQLITE_NOTADB
+                                                    ? ST_EFORMAT
+                                                    : ST_EIO;
+    return err_set(e, st, "%s: %s: %s", db->path, what, sqlite3_errmsg(db->h));
+}
+
+/* Runs a statement that returns no rows (or whose rows do not matter). */
+static int step_done(struct log_db *db, sqlite3_stmt *s, struct err *e, const char *what)
+{
+    int rc;
+    while ((rc = sqlite3_step(s)) == SQLITE_ROW)
+        ;
+    sqlite3_reset(s);
+    return rc == SQLITE_DONE ? ST_OK : db_fail(db, e, what);
+}
+
+static int exec(struct log_db *db, const char *sql, struct err *e, const char *what)
+{
+    return sqlite3_exec(db->h, sql, NULL, NULL, NULL) == SQLITE_OK ? ST_OK
+                                                                    : db_fail(db, e, what);
+}
+
+static int pragma_int(struct log_db *db, const char *sql, int *v, struct err *e)
+{
+    sqlite3_stmt *s = NULL;
+    if (sqlite3_prepare_v2(db->h, sql, -1, &s, NULL) != SQLITE_OK)
+        return db_fail(db, e, "cannot read the database header");
+    int rc = sqlite3_step(s);
+    *v = rc == SQLITE_ROW ? sqlite3_column_int(s, 0) : 0;
+    sqlite3_finalize(s);
+    return rc == SQLITE_ROW || rc == SQLITE_DONE ? ST_OK
+                                                 : db_fail(db, e, "cannot read the database header");
+}
+
+/* user_version, with the checks that it is our file and not from the future. */
+static int schema_version(struct log_db *db, int *version, struct err *e)
+{
+    int app = 0, tables = 0;
+    int rc = pragma_int(db, "PRAGMA user_version", version, e);
+    if (!rc)
+        rc = pragma_int(db, "PRAGMA application_id", &app, e);
+    if (!rc)
+        rc = pragma_int(db, "SELECT count(*) FROM sqlite_master", &tables, e);
+    if (rc)
+        return rc;
+    if ((app != 0 && app != LOG_APPLICATION_ID) || (app == 0 && tables > 0))
+        return err_set(e, ST_EFORMAT, "%s: not a station log (an SQLite file of another kind)",
+                       db->path);
+    if (*version > LOG_SCHEMA_VERSION)
+        return err_set(e, ST_EFORMAT,
+                       "%s: log schema %d is newer than this program's %d; use a newer station",
+                       db->path, *version, LOG_SCHEMA_VERSION);
+    return ST_OK;
+}
+
+static int upgrade(struct log_db *db, struct err *e)
+{
+    int rc = exec(db, "BEGIN IMMEDIATE", e, "cannot lock the log");
+    if (rc)
+        return rc;
+    int v = 0;
+    rc = schema_version(db, &v, e);
+    for (; !rc && v < LOG_SCHEMA_VERSION; v++) {
+        char sql[96];
+        rc = exec(db, log_upgrade[v], e, "cannot upgrade the log schema");
+        snprintf(sql, sizeof sql, "PRAGMA user_version = %d; PRAGMA application_id = %d", v + 1,
+                 LOG_APPLICATION_ID);
+        if (!rc)
+            rc = exec(db, sql, e, "cannot upgrade the log schema");
+    }
+    if (!rc)
+        return exec(db, "COMMIT", e, "cannot commit the schema");
+    sqlite3_exec(db->h, "ROLLBACK", NULL, NULL, NULL);
+    return rc;
+}
+
+static int open_db(struct log_db *db, struct err *e)
+{
+    int flags = db->mode == LOG_OPEN_WRITE ? SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE
+                                           : SQLITE_OPEN_READONLY;
+    if (sqlite3_open_v2(db->path, &db->h, flags | SQLITE_OPEN_NOMUTEX, NULL) != SQLITE_OK)
+        return db->h ? db_fail(db, e, "cannot open the log")
+                     : err_set(e, ST_ENOMEM, "%s: out of memory opening the log", db->path);
+    sqlite3_busy_timeout(db->h, LOG_BUSY_MS);
+    int rc = ST_OK, v = 0;
+    if (db->mode == LOG_OPEN_WRITE) {
+        rc = exec(db, "PRAGMA journal_mode = WAL", e, "cannot switch to WAL");
+        if (!rc)
+            rc = exec(db, "PRAGMA synchronous = FULL", e, "cannot set synchronous");
+        if (!rc)
+            rc = upgrade(db, e);
+        return rc;
+    }
+    rc = schema_version(db, &v, e);
+    if (!rc && v < LOG_SCHEMA_VERSION)
+        rc = err_set(e, ST_EFORMAT,
+                     "%s: log schema %d is older than %d; any writing command (station inspect,"
+                     " audit dispose) upgrades it",
+                     db->path, v, LOG_SCHEMA_VERSION);
+    return rc;
+}
+
+int log_open(const char *path, int mode, const struct log_options *opt, struct log_db **out,
+             struct err *e)
+{
+    *out = NULL;
+    if (!path || !*path)
+        return err_set(e, ST_EINVAL, "log: no database path");
+    if (mode == LOG_OPEN_READ && access(path, R_OK) != 0)
+        return err_set(e, ST_EIO, "%s: cannot open the log: %s", path, strerror(errno));
+    struct log_db *db = calloc(1, sizeof *db);
+    if (!db)
+        return err_set(e, ST_ENOMEM, "%s: out of memory", path);
+    db->mode = mode;
+    if (opt)
+        db->opt = *opt;
+    else
+        log_options_init(&db->opt);
+    if (!db->opt.io)
+        db->opt.io = log_io_default();
+    int rc = ST_OK;
+    if ((size_t)snprintf(db->path, sizeof db->path, "%s", path) >= sizeof db->path)
+        rc = err_set(e, ST_ERANGE, "%s: path too long", path);
+    if (!rc && db->opt.evidence_dir)
+        snprintf(db->evdir, sizeof db->evdir, "%s", db->opt.evidence_dir);
+    else if (!rc) {
+        const char *slash = strrchr(path, '/');
+        int dirlen = slash ? (int)(slash - path) : 1;
+        snprintf(db->evdir, sizeof db->evdir, "%.*s/evidence", dirlen, slash ? path : ".");
+    }
+    if (!rc)
+        rc = open_db(db, e);
+    for (int i = 0; !rc && i < S_COUNT; i++)
+        if (sqlite3_prepare_v3(db->h, stmt_sql[i], -1, SQLITE_PREPARE_PERSISTENT, &db->st[i],
+                               NULL) != SQLITE_OK)
+            rc = db_fail(db, e, "cannot prepare a statement");
+    if (!rc && mode == LOG_OPEN_WRITE) {
+        sqlite3_stmt *s = db->st[S_EV_TOTAL];
+        if (sqlite3_step(s) == SQLITE_ROW)
+            db->ev_total = sqlite3_column_int64(s, 0);
+        rc = step_done(db, s, e, "cannot sum the evidence");
+    }
+    if (rc) {
+        log_close(db);
+        return rc;
+    }
+    *out = db;
+    return ST_OK;
+}
+
+void log_close(struct log_db *db)
+{
+    if (!db)
+        return;
+    for (int i = 0; i < S_COUNT; i++)
+        sqlite3_finalize(db->st[i]);
+    sqlite3_close(db->h);
+    free(db);
+}
+
+const char *log_evidence_dir(const struct log_db *db)
+{
+    return db->evdir;
+}
+
+const char *log_path(const struct log_db *db)
+{
+    return db->path;
+}
+
+int log_evidence_path(const struct log_db *db, const char *name, char *buf, size_t len,
+                      struct err *e)
+{
+    if ((size_t)snprintf(buf, len, "%s/%s", db->evdir, name) >= len)
+        return err_set(e, ST_ERANGE, "%s/%s: path too long", db->evdir, name);
+    return ST_OK;
+}
+
+static void utc_now(char out[LOG_UTC_MAX])
+{
+    struct timespec ts;
+    struct tm tm;
+    clock_gettime(CLOCK_REALTIME, &ts);
+    gmtime_r(&ts.tv_sec, &tm);
+    size_t n = strftime(out, LOG_UTC_MAX, "%Y-%m-%dT%H:%M:%S", &tm);
+    snprintf(out + n, LOG_UTC_MAX - n, ".%03ldZ", ts.tv_nsec / 1000000);
+}
+
+static void bind_text(sqlite3_stmt *s, int i, const char *v)
+{
+    sqlite3_bind_text(s, i, v ? v : "", -1, SQLITE_STATIC);
+}
+
+static int copy_id(char *dst, const char *src, const char *what, struct err *e)
+{
+    if ((size_t)snprintf(dst, LOG_ID_MAX, "%s", src ? src : "") >= LOG_ID_MAX)
+        return err_set(e, ST_ERANGE, "log: %s '%.20s...' longer than %d characters", what, src,
+                       LOG_ID_MAX - 1);
+    return ST_OK;
+}
+
+int log_pass_wants_evidence(struct log_db *db, int pass_evidence, int every)
+{
+    db->pass_count++;
+    if (pass_evidence == RECIPE_PASS_ALL)
+        return 1;
+    return pass_evidence == RECIPE_PASS_EVERY && every > 0 && db->pass_count % every == 0;
+}
+
+/* What one append has done so far, so failure can undo what is undoable. */
+struct append_work {
+    int npng;
+    unsigned char *png[LOG_MAX_EVIDENCE];
+    size_t png_len[LOG_MAX_EVIDENCE];
+    char sha256[LOG_MAX_EVIDENCE][SHA256_HEX_LEN];
+    int written;                         /* evidence files in place */
+    char (*purged)[LOG_NAME_MAX];        /* names to unlink after the commit */
+    int npurged, cap_purged;
+    int64_t purged_bytes;
+};
+
+static int note_purge(struct append_work *w, const char *name, struct err *e)
+{
+    if (w->npurged == w->cap_purged) {
+        int cap = w->cap_purged ? 2 * w->cap_purged : LOG_PURGE_BATCH;
+        void *p = realloc(w->purged, (size_t)cap * sizeof *w->purged);
+        if (!p)
+            return err_set(e, ST_ENOMEM, "log: out of memory planning retention");
+        w->purged = p;
+        w->cap_purged = cap;
+    }
+    snprintf(w->purged[w->npurged++], LOG_NAME_MAX, "%s", name);
+    return ST_OK;
+}
+
+/* Marks the oldest deletable evidence purged until need more bytes fit. */
+static int make_room(struct log_db *db, int64_t need, const char *utc, struct append_work *w,
+                     struct err *e)
+{
+    uint64_t budget = db->opt.evidence_budget;
+    while (budget && (uint64_t)(db->ev_total - w->purged_bytes + need) > budget) {
+        sqlite3_stmt *c = db->st[S_PURGE_CAND];
+        sqlite3_bind_int(c, 1, LOG_PURGE_BATCH);
+        int rc, got = 0;
+        while ((uint64_t)(db->ev_total - w->purged_bytes + need) > budget &&
+               (rc = sqlite3_step(c)) == SQLITE_ROW) {
+            const char *name = (const char *)sqlite3_column_text(c, 0);
+            int64_t bytes = sqlite3_column_int64(c, 1);
+            sqlite3_stmt *p = db->st[S_INS_PURGE];
+            bind_text(p, 1, name);
+            sqlite3_bind_int64(p, 2, sqlite3_column_int64(c, 2));
+            bind_text(p, 3, utc);
+            bind_text(p, 4, "evidence budget");
+            int bad = note_purge(w, name, e) || step_done(db, p, e, "cannot record a deletion");
+            if (bad) {
+                sqlite3_reset(c);
+                return e->code;
+            }
+            w->purged_bytes += bytes;
+            got++;
+        }
+        sqlite3_reset(c);
+        if (!got)
+            return err_set(e, ST_ERANGE,
+                           "%s: evidence budget full (%" PRIu64 " bytes): only evidence of rejects"
+                           " not yet audited is left; dispose of them (station audit dispose) or"
+                           " raise the budget — inspection stops",
+                           db->path, budget);
+    }
+    return ST_OK;
+}
+
+static const char *const ev_kinds[LOG_MAX_EVIDENCE] = {"frame", "overlay"};
+
+/* One evidence PNG encoded and hashed, on its own thread. */
+struct encode_job {
+    const struct image *img;
+    int level, k;
+    struct append_work *w;
+    struct err e;
+    int rc;
+};
+
+static void *encode_run(void *arg)
+{
+    struct encode_job *j = arg;
+    struct append_work *w = j->w;
+    j->rc = pngio_encode_mem(ev_kinds[j->k], j->img, j->level, &w->png[j->k], &w->png_len[j->k],
+                             &j->e);
+    if (!j->rc)
+        sha256_hex_buffer(w->png[j->k], w->png_len[j->k], w->sha256[j->k]);
+    return NULL;
+}
+
+/* Encodes the frame and the overlay at once (two cores: half the time),
+ * before the write lock is taken. */
+static int encode_evidence(struct log_db *db, const struct log_entry *en, struct append_work *w,
+                           struct err *e)
+{
+    struct encode_job jobs[LOG_MAX_EVIDENCE];
+    const struct image *img[LOG_MAX_EVIDENCE] = {en->frame, en->overlay};
+    pthread_t tid;
+    int n = en->overlay ? 2 : 1, threaded = 0;
+    for (int k = 0; k < n; k++)
+        jobs[k] = (struct encode_job){.img = img[k], .level = db->opt.png_level, .k = k, .w = w};
+    if (n == 2)
+        threaded = pthread_create(&tid, NULL, encode_run, &jobs[1]) == 0;
+    encode_run(&jobs[0]);
+    if (threaded)
+        pthread_join(tid, NULL);
+    else if (n == 2)
+        encode_run(&jobs[1]);
+    w->npng = n;
+    for (int k = 0; k < n; k++)
+        if (jobs[k].rc)
+            return err_set(e, jobs[k].rc, "%s", jobs[k].e.msg);
+    return ST_OK;
+}
+
+static int write_evidence(struct log_db *db, struct log_record *r, struct append_work *w,
+                          struct err *e)
+{
+    int64_t need = 0;
+    for (int i = 0; i < w->npng; i++) {
+        struct log_evidence *v = &r->ev[r->nevidence++];
+        snprintf(v->kind, sizeof v->kind, "%s", ev_kinds[i]);
+        snprintf(v->name, sizeof v->name, "%.10s/%08" PRId64 "-%s.png", r->utc, r->seq,
+                 ev_kinds[i]);
+        memcpy(v->sha256, w->sha256[i], SHA256_HEX_LEN);
+        v->bytes = (int64_t)w->png_len[i];
+        need += v->bytes;
+    }
+    int rc = make_room(db, need, r->utc, w, e);
+    for (int i = 0; !rc && i < r->nevidence; i++) {
+        rc = evidence_write(db->opt.io, db->evdir, r->ev[i].name, w->png[i], w->png_len[i], e);
+        if (!rc)
+            w->written++;
+    }
+    return rc;
+}
+
+static int insert_record(struct log_db *db, const struct log_record *r, struct err *e)
+{
+    sqlite3_stmt *s = db->st[S_INS_REC];
+    sqlite3_bind_int64(s, 1, r->seq);
+    const char *text[] = {r->utc,           r->station,      r->operator_id, r->serial,
+                          r->recipe_id,     NULL,            r->recipe_sha256, r->model_sha256,
+                          r->scale_id,      judge_verdict_name(r->verdict), r->reasons_json,
+                          r->regions_json};
+    for (int i = 0; i < (int)(sizeof text / sizeof text[0]); i++)
+        if (i != 5)
+            bind_text(s, i + 2, text[i]);
+    sqlite3_bind_int(s, 7, r->recipe_version);
+    if (r->camera_json)
+        bind_text(s, 14, r->camera_json);
+    else
+        sqlite3_bind_null(s, 14);
+    bind_text(s, 15, r->prev_hash);
+    bind_text(s, 16, r->hash);
+    int rc = step_done(db, s, e, "cannot insert the record");
+    for (int i = 0; !rc && i < r->nevidence; i++) {
+        sqlite3_stmt *v = db->st[S_INS_EV];
+        sqlite3_bind_int64(v, 1, r->seq);
+        bind_text(v, 2, r->ev[i].kind);
+        bind_text(v, 3, r->ev[i].name);
+        bind_text(v, 4, r->ev[i].sha256);
+        sqlite3_bind_int64(v, 5, r->ev[i].bytes);
+        rc = step_done(db, v, e, "cannot insert an evidence row");
+    }
+    return rc;
+}
+
+/* The last record's sequence number and hash (genesis when empty). */
+static int chain_tail(struct log_db *db, int which, int64_t *seq, char hash[SHA256_HEX_LEN],
+                      struct err *e)
+{
+    sqlite3_stmt *s = db->st[which];
+    *seq = 0;
+    snprintf(hash, SHA256_HEX_LEN, "%s", LOGCANON_GENESIS);
+    if (sqlite3_step(s) == SQLITE_ROW) {
+        *seq = sqlite3_column_int64(s, 0);
+        snprintf(hash, SHA256_HEX_LEN, "%s", (const char *)sqlite3_column_text(s, 1));
+    }
+    return step_done(db, s, e, "cannot read the chain's last link");
+}
+
+static int fill_entry(const struct log_entry *en, struct log_record *r, struct err *e)
+{
+    int rc = copy_id(r->station, en->station, "station id", e);
+    if (!rc)
+        rc = copy_id(r->operator_id, en->operator_id, "operator id", e);
+    if (!rc)
+        rc = copy_id(r->serial, en->serial, "serial", e);
+    if (!rc)
+        rc = copy_id(r->recipe_id, en->recipe_id, "recipe id", e);
+    if (!rc)
+        rc = copy_id(r->scale_id, en->scale_id, "scale id", e);
+    if (rc)
+        return rc;
+    if (!r->station[0])
+        return err_set(e, ST_EINVAL, "log: a record needs a station id");
+    if (en->verdict < VERDICT_PASS || en->verdict > VERDICT_NONE)
+        return err_set(e, ST_EINVAL, "log: verdict %d unknown", en->verdict);
+    r->recipe_version = en->recipe_version;
+    snprintf(r->recipe_sha256, SHA256_HEX_LEN, "%s", en->recipe_sha256 ? en->recipe_sha256 : "");
+    snprintf(r->model_sha256, SHA256_HEX_LEN, "%s", en->model_sha256 ? en->model_sha256 : "");
+    r->verdict = en->verdict;
+    /* borrowed for the append only; never freed through r */
+    r->reasons_json = (char *)(en->reasons_json ? en->reasons_json : "[]");
+    r->regions_json = (char *)(en->regions_json ? en->regions_json : "[]");
+    r->camera_json = (char *)en->camera_json;
+    return ST_OK;
+}
+
+int log_append(struct log_db *db, const struct log_entry *en, int64_t *seq, struct err *e)
+{
+    if (db->mode != LOG_OPEN_WRITE)
+        return err_set(e, ST_EINVAL, "%s: log opened read-only", db->path);
+    struct log_record r;
+    memset(&r, 0, sizeof r);
+    struct append_work w = {0};
+    int rc = fill_entry(en, &r, e);
+    if (!rc && en->frame)
+        rc = encode_evidence(db, en, &w, e);
+    if (!rc)
+        rc = step_done(db, db->st[S_BEGIN], e, "cannot lock the log");
+    if (rc) {
+        for (int i = 0; i < LOG_MAX_EVIDENCE; i++)
+            free(w.png[i]);
+        return rc;
+    }
+    int64_t last = 0;
+    rc = chain_tail(db, S_LAST, &last, r.prev_hash, e);
+    r.seq = last + 1;
+    utc_now(r.utc);
+    if (!rc && en->frame)
+        rc = write_evidence(db, &r, &w, e);
+    if (!rc)
+        rc = logcanon_record_hash(&r, r.hash, e);
+    if (!rc)
+        rc = insert_record(db, &r, e);
+    int tried_commit = 0;
+    if (!rc) {
+        tried_commit = 1;
+        rc = step_done(db, db->st[S_COMMIT], e, "cannot commit the record");
+    }
+    if (rc) {
+        step_done(db, db->st[S_ROLLBACK], NULL, "rollback");
+        /* Files no record names go; after a failed COMMIT they stay, because
+         * SQLite may still bring the record back from its journal. */
+        for (int i = 0; !tried_commit && i < w.written; i++) {
+            char path[PATH_MAX];
+            if (!log_evidence_path(db, r.ev[i].name, path, sizeof path, NULL))
+                unlink(path);
+        }
+    }
+    if (!rc) {
+        for (int i = 0; i < w.npurged; i++) {
+            char path[PATH_MAX];
+            if (!log_evidence_path(db, w.purged[i], path, sizeof path, NULL))
+                unlink(path);
+        }
+        db->ev_total += -w.purged_bytes;
+        for (int i = 0; i < r.nevidence; i++)
+            db->ev_total += r.ev[i].bytes;
+        *seq = r.seq;
+    }
+    for (int i = 0; i < LOG_MAX_EVIDENCE; i++)
+        free(w.png[i]);
+    free(w.purged);
+    return rc;
+}
+
+void log_record_init(struct log_record *r)
+{
+    memset(r, 0, sizeof *r);
+}
+
+void log_record_clear(struct log_record *r)
+{
+    free(r->reasons_json);
+    free(r->regions_json);
+    free(r->camera_json);
+    free(r->disp.comment);
+    log_record_init(r);
+}
+
+static void col_copy(sqlite3_stmt *s, int i, char *dst, size_t len)
+{
+    const unsigned char *v = sqlite3_column_text(s, i);
+    snprintf(dst, len, "%s", v ? (const char *)v : "");
+}
+
+static char *col_dup(sqlite3_stmt *s, int i, int *oom)
+{
+    const unsigned char *v = sqlite3_column_text(s, i);
+    if (!v)
+        return NULL;
+    char *d = strdup((const char *)v);
+    if (!d)
+        *oom = 1;
+    return d;
+}
+
+static int read_disposition(sqlite3_stmt *s, struct log_disposition *d)
+{
+    int oom = 0;
+    d->dseq = sqlite3_column_int64(s, 0);
+    d->record_seq = sqlite3_column_int64(s, 1);
+    col_copy(s, 2, d->utc, sizeof d->utc);
+    col_copy(s, 3, d->auditor, sizeof d->auditor);
+    d->disp = log_disp_parse((const char *)sqlite3_column_text(s, 4));
+    d->comment = col_dup(s, 5, &oom);
+    col_copy(s, 6, d->prev_hash, sizeof d->prev_hash);
+    col_copy(s, 7, d->hash, sizeof d->hash);
+    return oom;
+}
+
+/* Evidence rows and the latest disposition of the record in r. */
+static int read_attached(struct log_db *db, struct log_record *r, struct err *e)
+{
+    sqlite3_stmt *s = db->st[S_EV];
+    sqlite3_bind_int64(s, 1, r->seq);
+    while (r->nevidence < LOG_MAX_EVIDENCE && sqlite3_step(s) == SQLITE_ROW) {
+        struct log_evidence *v = &r->ev[r->nevidence++];
+        col_copy(s, 0, v->kind, sizeof v->kind);
+        col_copy(s, 1, v->name, sizeof v->name);
+        col_copy(s, 2, v->sha256, sizeof v->sha256);
+        v->bytes = sqlite3_column_int64(s, 3);
+        v->purged = sqlite3_column_int(s, 4);
+    }
+    int rc = step_done(db, s, e, "cannot read evidence rows");
+    if (rc)
+        return rc;
+    s = db->st[S_LATEST_DISP];
+    sqlite3_bind_int64(s, 1, r->seq);
+    int oom = 0;
+    if (sqlite3_step(s) == SQLITE_ROW) {
+        r->has_disposition = 1;
+        oom = read_disposition(s, &r->disp);
+    }
+    rc = step_done(db, s, e, "cannot read dispositions");
+    if (!rc && oom)
+        rc = err_set(e, ST_ENOMEM, "%s: out of memory reading a disposition", db->path);
+    return rc;
+}
+
+/* The columns of REC_COLS into r (cleared first). */
+static int read_record(struct log_db *db, sqlite3_stmt *s, struct log_record *r, struct err *e)
+{
+    log_record_clear(r);
+    int oom = 0;
+    r->seq = sqlite3_column_int64(s, 0);
+    col_copy(s, 1, r->utc, sizeof r->utc);
+    col_copy(s, 2, r->station, sizeof r->station);
+    col_copy(s, 3, r->operator_id, sizeof r->operator_id);
+    col_copy(s, 4, r->serial, sizeof r->serial);
+    col_copy(s, 5, r->recipe_id, sizeof r->recipe_id);
+    r->recipe_version = sqlite3_column_int(s, 6);
+    col_copy(s, 7, r->recipe_sha256, sizeof r->recipe_sha256);
+    col_copy(s, 8, r->model_sha256, sizeof r->model_sha256);
+    col_copy(s, 9, r->scale_id, sizeof r->scale_id);
+    r->verdict = log_verdict_parse((const char *)sqlite3_column_text(s, 10));
+    r->reasons_json = col_dup(s, 11, &oom);
+    r->regions_json = col_dup(s, 12, &oom);
+    r->camera_json = col_dup(s, 13, &oom);
+    col_copy(s, 14, r->prev_hash, sizeof r->prev_hash);
+    col_copy(s, 15, r->hash, sizeof r->hash);
+    if (oom)
+        return err_set(e, ST_ENOMEM, "%s: out of memory reading record %" PRId64, db->path,
+                       r->seq);
+    return read_attached(db, r, e);
+}
+
+int log_get(struct log_db *db, int64_t seq, struct log_record *rec, struct err *e)
+{
+    sqlite3_stmt *s = db->st[S_GET];
+    sqlite3_bind_int64(s, 1, seq);
+    int step = sqlite3_step(s);
+    int rc = step == SQLITE_ROW ? read_record(db, s, rec, e)
+           : step == SQLITE_DONE
+               ? err_set(e, ST_ERANGE, "%s: no record %" PRId64, db->path, seq)
+               : db_fail(db, e, "cannot read a record");
+    sqlite3_reset(s);
+    return rc;
+}
+
+struct log_iter {
+    struct log_db *db;
+    sqlite3_stmt *s;
+};
+
+void log_filter_init(struct log_filter *f)
+{
+    memset(f, 0, sizeof *f);
+    f->verdict = -1;
+    f->disp = -1;
+}
+
+/* Appends " AND cond" to sql. */
+static void cond(char *sql, size_t len, const char *c)
+{
+    size_t n = strlen(sql);
+    snprintf(sql + n, len - n, " AND %s", c);
+}
+
+#define JSON_HAS(key)                                                                       \
+    "(EXISTS(SELECT 1 FROM json_each(r.reasons) WHERE json_extract(value, '$." key "') = ?)" \
+    " OR EXISTS(SELECT 1 FROM json_each(r.regions) WHERE json_extract(value, '$." key "') = ?))"
+#define LATEST_DISP                                                                      \
+    "(SELECT disposition FROM dispositions d WHERE d.record_seq = r.seq ORDER BY dseq DESC" \
+    " LIMIT 1)"
+
+int log_iter_new(struct log_db *db, const struct log_filter *f, struct log_iter **out,
+                 struct err *e)
+{
+    *out = NULL;
+    struct log_filter any;
+    if (!f) {
+        log_filter_init(&any);
+        f = &any;
+    }
+    char sql[2048] = "SELECT " REC_COLS " FROM records r WHERE 1";
+    if (f->from_utc)
+        cond(sql, sizeof sql, "r.utc >= ?");
+    if (f->to_utc)
+        cond(sql, sizeof sql, "r.utc < ?");
+    if (f->verdict >= 0)
+        cond(sql, sizeof sql, "r.verdict = ?");
+    if (f->rejects)
+        cond(sql, sizeof sql, "r.verdict <> 'PASS'");
+    if (f->cls)
+        cond(sql, sizeof sql, JSON_HAS("class"));
+    if (f->zone)
+        cond(sql, sizeof sql, JSON_HAS("zone"));
+    if (f->recipe_id)
+        cond(sql, sizeof sql, "r.recipe_id = ?");
+    if (f->station)
+        cond(sql, sizeof sql, "r.station = ?");
+    if (f->disp == LOG_DISP_NONE)
+        cond(sql, sizeof sql, "NOT EXISTS(SELECT 1 FROM dispositions d WHERE d.record_seq = r.seq)");
+    else if (f->disp > 0)
+        cond(sql, sizeof sql, LATEST_DISP " = ?");
+    if (f->seq_from > 0)
+        cond(sql, sizeof sql, "r.seq >= ?");
+    if (f->seq_to > 0)
+        cond(sql, sizeof sql, "r.seq <= ?");
+    size_t n = strlen(sql);
+    snprintf(sql + n, sizeof sql - n, " ORDER BY r.seq");
+
+    struct log_iter *it = calloc(1, sizeof *it);
+    if (!it)
+        return err_set(e, ST_ENOMEM, "%s: out of memory", db->path);
+    it->db = db;
+    if (sqlite3_prepare_v2(db->h, sql, -1, &it->s, NULL) != SQLITE_OK) {
+        int rc = db_fail(db, e, "cannot prepare the record query");
+        log_iter_free(it);
+        return rc;
+    }
+    int k = 1;
+    sqlite3_stmt *s = it->s;
+    if (f->from_utc)
+        bind_text(s, k++, f->from_utc);
+    if (f->to_utc)
+        bind_text(s, k++, f->to_utc);
+    if (f->verdict >= 0)
+        bind_text(s, k++, judge_verdict_name(f->verdict));
+    for (int twice = 0; f->cls && twice < 2; twice++)
+        bind_text(s, k++, f->cls);
+    for (int twice = 0; f->zone && twice < 2; twice++)
+        bind_text(s, k++, f->zone);
+    if (f->recipe_id)
+        bind_text(s, k++, f->recipe_id);
+    if (f->station)
+        bind_text(s, k++, f->station);
+    if (f->disp > 0)
+        bind_text(s, k++, log_disp_name(f->disp));
+    if (f->seq_from > 0)
+        sqlite3_bind_int64(s, k++, f->seq_from);
+    if (f->seq_to > 0)
+        sqlite3_bind_int64(s, k++, f->seq_to);
+    *out = it;
+    return ST_OK;
+}
+
+int log_iter_next(struct log_iter *it, struct log_record *rec, int *have, struct err *e)
+{
+    *have = 0;
+    int step = sqlite3_step(it->s);
+    if (step == SQLITE_DONE)
+        return ST_OK;
+    if (step != SQLITE_ROW)
+        return db_fail(it->db, e, "cannot read records");
+    int rc = read_record(it->db, it->s, rec, e);
+    *have = !rc;
+    return rc;
+}
+
+void log_iter_free(struct log_iter *it)
+{
+    if (!it)
+        return;
+    sqlite3_finalize(it->s);
+    free(it);
+}
+
+void log_dispositions_free(struct log_disposition *d, int n)
+{
+    for (int i = 0; d && i < n; i++)
+        free(d[i].comment);
+    free(d);
+}
+
+int log_dispositions_get(struct log_db *db, int64_t seq, struct log_disposition **out, int *n,
+                         struct err *e)
+{
+    *out = NULL;
+    *n = 0;
+    sqlite3_stmt *s = db->st[seq > 0 ? S_DISPS : S_DISPS_ALL];
+    if (seq > 0)
+        sqlite3_bind_int64(s, 1, seq);
+    struct log_disposition *d = NULL;
+    int cap = 0, count = 0, rc = ST_OK, step;
+    while (!rc && (step = sqlite3_step(s)) == SQLITE_ROW) {
+        if (count == cap) {
+            cap = cap ? 2 * cap : 8;
+            void *p = realloc(d, (size_t)cap * sizeof *d);
+            if (!p) {
+                rc = err_set(e, ST_ENOMEM, "%s: out of memory reading dispositions", db->path);
+                break;
+            }
+            d = p;
+        }
+        memset(&d[count], 0, sizeof d[count]);
+        if (read_disposition(s, &d[count++]))
+            rc = err_set(e, ST_ENOMEM, "%s: out of memory reading dispositions", db->path);
+    }
+    if (!rc && step != SQLITE_DONE)
+        rc = db_fail(db, e, "cannot read dispositions");
+    sqlite3_reset(s);
+    if (rc) {
+        log_dispositions_free(d, count);
+        return rc;
+    }
+    *out = d;
+    *n = count;
+    return ST_OK;
+}
+
+int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
+                const char *comment, int64_t *dseq, struct err *e)
+{
+    if (db->mode != LOG_OPEN_WRITE)
+        return err_set(e, ST_EINVAL, "%s: log opened read-only", db->path);
+    if (!auditor || !*auditor)
+        return err_set(e, ST_EINVAL, "log: a disposition needs an auditor id");
+    if (disp <= LOG_DISP_NONE || disp >= LOG_DISP_COUNT)
+        return err_set(e, ST_EINVAL, "log: disposition %d unknown", disp);
+    struct log_disposition d;
+    memset(&d, 0, sizeof d);
+    int rc = copy_id(d.auditor, auditor, "auditor id", e);
+    if (rc)
+        return rc;
+    d.record_seq = seq;
+    d.disp = disp;
+    d.comment = (char *)(comment ? comment : "");  /* borrowed, never freed through d */
+    rc = step_done(db, db->st[S_BEGIN], e, "cannot lock the log");
+    if (rc)
+        return rc;
+    char record_hash[SHA256_HEX_LEN] = "";
+    sqlite3_stmt *s = db->st[S_REC_HASH];
+    sqlite3_bind_int64(s, 1, seq);
+    if (sqlite3_step(s) == SQLITE_ROW)
+        col_copy(s, 0, record_hash, sizeof record_hash);
+    rc = step_done(db, s, e, "cannot read the record");
+    if (!rc && !record_hash[0])
+        rc = err_set(e, ST_ERANGE, "%s: no record %" PRId64, db->path, seq);
+    int64_t last = 0;
+    if (!rc)
+        rc = chain_tail(db, S_LAST_DISP, &last, d.prev_hash, e);
+    d.dseq = last + 1;
+    utc_now(d.utc);
+    if (!rc)
+        rc = logcanon_disposition_hash(&d, record_hash, d.hash, e);
+    if (!rc) {
+        s = db->st[S_INS_DISP];
+        sqlite3_bind_int64(s, 1, d.dseq);
+        sqlite3_bind_int64(s, 2, d.record_seq);
+        bind_text(s, 3, d.utc);
+        bind_text(s, 4, d.auditor);
+        bind_text(s, 5, log_disp_name(d.disp));
+        bind_text(s, 6, d.comment);
+        bind_text(s, 7, d.prev_hash);
+        bind_text(s, 8, d.hash);
+        rc = step_done(db, s, e, "cannot insert the disposition");
+    }
+    if (!rc)
+        rc = step_done(db, db->st[S_COMMIT], e, "cannot commit the disposition");
+    if (rc) {
+        step_done(db, db->st[S_ROLLBACK], NULL, "rollback");
+        return rc;
+    }
+    *dseq = d.dseq;
+    return ST_OK;
+}
+
+int log_check_integrity(struct log_db *db, struct err *e)
+{
+    sqlite3_stmt *s = NULL;
+    if (sqlite3_prepare_v2(db->h, "PRAGMA integrity_check(1)", -1, &s, NULL) != SQLITE_OK)
+        return db_fail(db, e, "cannot check integrity");
+    int rc = ST_OK;
+    if (sqlite3_step(s) == SQLITE_ROW) {
+        const char *v = (const char *)sqlite3_column_text(s, 0);
+        if (!v || strcmp(v, "ok") != 0)
+            rc = err_set(e, ST_EFORMAT, "%s: integrity check: %s", db->path, v ? v : "?");
+    } else {
+        rc = db_fail(db, e, "cannot check integrity");
+    }
+    sqlite3_finalize(s);
+    return rc;
+}

@@ -1,0 +1,156 @@
+#include "logverify.h"
+
+#include <inttypes.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "evidence.h"
+#include "judge.h"
+#include "logcanon.h"
+
+/* Notes the first break only; later ones just count as links after it. */
+static void brk(struct log_verify_result *res, const char *chain, int64_t seq, const char *what)
+{
+    if (!res->ok)
+        return;
+    res->ok = 0;
+    snprintf(res->chain, sizeof res->chain, "%s", chain);
+    res->seq = seq;
+    snprintf(res->what, sizeof res->what, "%s", what);
+}
+
+static void check_link(struct log_verify_result *res, const char *chain, int64_t seq,
+                       int64_t want_seq, const char *prev, const char *want_prev,
+                       const char *hash, const char *want_hash)
+{
+    char what[400];
+    if (seq != want_seq)
+        snprintf(what, sizeof what, "%s %" PRId64 " follows %" PRId64 ": %s missing", chain, seq,
+                 want_seq - 1, seq > want_seq ? "links are" : "order is");
+    else if (strcmp(prev, want_prev) != 0)
+        snprintf(what, sizeof what,
+                 "%s %" PRId64 ": previous hash %.16s... does not match %s %" PRId64
+                 "'s hash %.16s...",
+                 chain, seq, prev, chain, seq - 1, want_prev);
+    else if (strcmp(hash, want_hash) != 0)
+        snprintf(what, sizeof what,
+                 "%s %" PRId64 ": content does not match its hash (stored %.16s..., content"
+                 " hashes to %.16s...): a field was changed after it was written",
+                 chain, seq, hash, want_hash);
+    else
+        return;
+    brk(res, chain, seq, what);
+}
+
+static int check_evidence(struct log_db *db, const struct log_record *r,
+                          struct log_verify_result *res)
+{
+    for (int i = 0; i < r->nevidence; i++) {
+        const struct log_evidence *v = &r->ev[i];
+        char what[600];
+        if (v->purged) {
+            if (r->verdict != VERDICT_PASS && !r->has_disposition) {
+                snprintf(what, sizeof what,
+                         "record %" PRId64 ": evidence %s of a reject not yet audited was marked"
+                         " deleted",
+                         r->seq, v->name);
+                brk(res, "evidence", r->seq, what);
+                return 1;
+            }
+            continue;
+        }
+        struct err sub;
+        err_clear(&sub);
+        res->evidence_files++;
+        if (evidence_check(log_evidence_dir(db), v->name, v->sha256, v->bytes, &sub)) {
+            snprintf(what, sizeof what, "record %" PRId64 ": %s", r->seq, sub.msg);
+            brk(res, "evidence", r->seq, what);
+            return 1;
+        }
+    }
+    return 0;
+}
+
+static int walk_records(struct log_db *db, struct log_verify_result *res, struct err *e)
+{
+    struct log_iter *it = NULL;
+    int rc = log_iter_new(db, NULL, &it, e);
+    if (rc)
+        return rc;
+    struct log_record r;
+    log_record_init(&r);
+    char prev[SHA256_HEX_LEN] = LOGCANON_GENESIS, hash[SHA256_HEX_LEN];
+    int64_t want = 1;
+    int broken = 0, have;
+    while (!(rc = log_iter_next(it, &r, &have, e)) && have) {
+        res->records++;
+        if (broken) {
+            res->after++;
+            continue;
+        }
+        rc = logcanon_record_hash(&r, hash, e);
+        if (rc)
+            break;
+        check_link(res, "record", r.seq, want, r.prev_hash, prev, r.hash, hash);
+        broken = !res->ok || check_evidence(db, &r, res);
+        snprintf(prev, sizeof prev, "%s", r.hash);
+        want = r.seq + 1;
+    }
+    log_record_clear(&r);
+    log_iter_free(it);
+    return rc;
+}
+
+static int walk_dispositions(struct log_db *db, struct log_verify_result *res, struct err *e)
+{
+    struct log_disposition *d = NULL;
+    int n = 0;
+    int rc = log_dispositions_get(db, 0, &d, &n, e);
+    if (rc)
+        return rc;
+    char prev[SHA256_HEX_LEN] = LOGCANON_GENESIS, hash[SHA256_HEX_LEN];
+    int broken = !res->ok;
+    struct log_record r;
+    log_record_init(&r);
+    for (int i = 0; i < n && !rc; i++) {
+        res->dispositions++;
+        if (broken) {
+            if (strcmp(res->chain, "disposition") == 0)
+                res->after++;
+            continue;
+        }
+        struct err sub;
+        if (log_get(db, d[i].record_seq, &r, &sub)) {
+            char what[600];
+            snprintf(what, sizeof what, "disposition %" PRId64 ": %s", d[i].dseq, sub.msg);
+            brk(res, "disposition", d[i].dseq, what);
+        } else {
+            rc = logcanon_disposition_hash(&d[i], r.hash, hash, e);
+            if (!rc)
+                check_link(res, "disposition", d[i].dseq, i + 1, d[i].prev_hash, prev,
+                           d[i].hash, hash);
+        }
+        broken = !res->ok;
+        snprintf(prev, sizeof prev, "%s", d[i].hash);
+    }
+    log_record_clear(&r);
+    log_dispositions_free(d, n);
+    return rc;
+}
+
+int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e)
+{
+    memset(res, 0, sizeof *res);
+    res->ok = 1;
+    struct err sub;
+    if (log_check_integrity(db, &sub)) {
+        brk(res, "database", 0, sub.msg);
+        return ST_OK;
+    }
+    int rc = walk_records(db, res, e);
+    if (!rc)
+        rc = walk_dispositions(db, res, e);
+    if (!rc && !res->ok)
+        res->torn = res->after == 0 && strcmp(res->chain, "database") != 0;
+    return rc;
+}

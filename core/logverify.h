@@ -1,0 +1,34 @@
+/* logverify: checks a station log end to end — what `station audit verify`
+ * runs.
+ *
+ * In order: SQLite's PRAGMA integrity_check; the record chain (sequence
+ * numbers without gaps from 1, each prev_hash equal to the previous record's
+ * hash, each hash equal to the SHA-256 of the record's canonical form, see
+ * core/logcanon.h); every evidence file a record names (present, same size,
+ * same SHA-256) unless retention deleted it, and retention may only have
+ * deleted evidence of a PASS or of a disposed reject; then the disposition
+ * chain the same way, each disposition bound to its record's hash.  The
+ * first broken link is reported: the chain, the sequence number and what
+ * differs.  A break at the very last link of a chain, with every earlier
+ * link intact, is told apart as torn (an interrupted last write) from damage
+ * with intact links after it.  Reads only; never prints. */
+#ifndef ST_LOGVERIFY_H
+#define ST_LOGVERIFY_H
+
+#include "log.h"
+
+struct log_verify_result {
+    int ok;                        /* 1 only when everything verified */
+    int64_t records, dispositions, evidence_files;   /* links checked */
+    int torn;                      /* the first break is at a chain's last link */
+    char chain[16];                /* "database", "record", "evidence", "disposition" */
+    int64_t seq;                   /* the broken link's sequence number */
+    int64_t after;                 /* links of that chain after the break */
+    char what[600];                /* what differs, one line */
+};
+
+/* ST_OK when the walk finished (res says whether all verified); an error
+ * only when the log could not be read at all. */
+int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e);
+
+#endif

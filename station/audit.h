@@ -1,0 +1,39 @@
+/* audit: the sub-verbs of `station audit` and what they share.
+ *
+ * cmd_audit.c dispatches `station audit VERB ...` to one function per verb,
+ * each in its own file (audit_list.c, audit_show.c, audit_dispose.c,
+ * audit_verify.c; further verbs add a file and a row in cmd_audit.c).  Every
+ * verb takes --log DB (default: the station's log, see station/logbook.h,
+ * chosen with --station ID).  Verbs only read the log, through a read-only
+ * handle that never blocks the station writing (WAL), except dispose, which
+ * appends to the disposition chain.  JSON lines go to stdout, text for a
+ * person to stderr; errors are one line. */
+#ifndef ST_AUDIT_H
+#define ST_AUDIT_H
+
+#include <jansson.h>
+
+#include "core/log.h"
+
+/* Each returns an exit_status (station/cli.h); argv[0] is the verb. */
+int audit_list(int argc, char **argv);
+int audit_show(int argc, char **argv);
+int audit_dispose(int argc, char **argv);
+int audit_verify(int argc, char **argv);
+
+/* Opens db_path, or the default log of station (LOGBOOK_DEFAULT_STATION when
+ * NULL); prints the one-line reason and returns EXIT_ERROR on failure. */
+int audit_open_log(const char *db_path, const char *station, int mode, struct log_db **out);
+
+/* A record as a JSON object: every field of struct log_record, reasons and
+ * regions parsed back into arrays, evidence with full paths, the latest
+ * disposition.  NULL when memory runs out. */
+json_t *audit_record_json(const struct log_db *db, const struct log_record *r);
+
+/* A whole number >= 1 for a record sequence number, or -1. */
+long long audit_parse_seq(const char *s);
+
+/* A disposition as a JSON object. */
+json_t *audit_disposition_json(const struct log_disposition *d);
+
+#endif

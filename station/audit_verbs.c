@@ -1,0 +1,396 @@
+#include "audit_verbs.h"
+
+#include <errno.h>
+#include <getopt.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "audit.h"
+#include "audit_csv.h"
+#include "audit_report.h"
+#include "audit_stats.h"
+#include "cli.h"
+#include "core/judge.h"
+#include "core/pngio.h"
+
+#define DEFAULT_SHIFTS "6,14,22"
+#define DEFAULT_THUMBS 48
+
+enum { V_STATS = 1, V_REPORT = 2, V_EXPORT = 4 };
+
+struct verb_opts {
+    const char *log, *from, *to, *station, *recipe, *out;
+    struct qstats_shifts shifts;
+    int by_shift, json, thumbs;
+};
+
+static const char FILTER_HELP[] =
+    "  --log DB          the station's log (default: the default station's)\n"
+    "  --from DATE       first UTC time included, an ISO 8601 prefix (2026-12-01)\n"
+    "  --to DATE         first UTC time excluded\n"
+    "  --station ID      records of this station only (and its default log)\n"
+    "  --recipe ID       records of this recipe only\n";
+static const char COUNT_HELP[] =
+    "  --shifts H,H,...  shift start hours, ascending (default " DEFAULT_SHIFTS "); hours\n"
+    "                    before the first belong to the previous day's last shift\n"
+    "  --utc-offset MIN  count days and shifts on a clock MIN minutes ahead of UTC\n"
+    "  --by day|shift    p-chart subgroups (default day)\n";
+
+static void usage(FILE *f, int verb)
+{
+    if (verb == V_STATS)
+        fprintf(f, "usage: station audit stats [OPTIONS]\n\n"
+                   "Counts per verdict, day and shift; the reject rate on a p-chart; the\n"
+                   "Pareto of reasons; the false-reject rate among audited rejects with its\n"
+                   "exact 95%% interval; Cohen's kappa between station and auditor.  Text on\n"
+                   "stderr, or one JSON object on stdout with --json.\n\n%s%s"
+                   "  --json            the figures as one JSON line on stdout\n",
+                FILTER_HELP, COUNT_HELP);
+    else if (verb == V_REPORT)
+        fprintf(f, "usage: station audit report --out FILE.html [OPTIONS]\n\n"
+                   "One self-contained HTML page: the figures of `audit stats`, the p-chart\n"
+                   "and Pareto charts, and thumbnails of the newest rejects' overlays.\n\n%s%s"
+                   "  --thumbs N        rejects shown as thumbnails (default %d, 0 none)\n",
+                FILTER_HELP, COUNT_HELP, DEFAULT_THUMBS);
+    else
+        fprintf(f, "usage: station audit export --out FILE.csv [OPTIONS]\n\n"
+                   "The selected records as CSV (RFC 4180), one row each: " AUDIT_CSV_COLUMNS
+                   ".\n--out - writes to stdout.\n\n%s",
+                FILTER_HELP);
+    fprintf(f, "\n%s\n", CLI_CAUTION);
+}
+
+static int parse_int_arg(const char *s, int lo, int hi, int *v)
+{
+    char *end;
+    long x = strtol(s, &end, 10);
+    if (*s == '\0' || *end != '\0' || x < lo || x > hi)
+        return -1;
+    *v = (int)x;
+    return 0;
+}
+
+/* 0 on success, else the exit status to return. */
+static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
+{
+    static const struct option opts[] = {
+        {"log", required_argument, NULL, 'l'},     {"from", required_argument, NULL, 'f'},
+        {"to", required_argument, NULL, 't'},      {"station", required_argument, NULL, 's'},
+        {"recipe", required_argument, NULL, 'r'},  {"out", required_argument, NULL, 'o'},
+        {"shifts", required_argument, NULL, 'S'},  {"utc-offset", required_argument, NULL, 'u'},
+        {"by", required_argument, NULL, 'b'},      {"json", no_argument, NULL, 'j'},
+        {"thumbs", required_argument, NULL, 'n'},  {0, 0, 0, 0}};
+    memset(o, 0, sizeof *o);
+    o->thumbs = DEFAULT_THUMBS;
+    const char *shifts = DEFAULT_SHIFTS;
+    int c, offset_min = 0, counting = verb & (V_STATS | V_REPORT);
+    optind = 1;
+    while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
+        int ok = 1;
+        switch (c) {
+        case 'l': o->log = optarg; break;
+        case 'f': o->from = optarg; break;
+        case 't': o->to = optarg; break;
+        case 's': o->station = optarg; break;
+        case 'r': o->recipe = optarg; break;
+        case 'o': o->out = optarg; ok = verb != V_STATS; break;
+        case 'S': shifts = optarg; ok = counting; break;
+        case 'u': ok = counting && !parse_int_arg(optarg, -1440, 1440, &offset_min); break;
+        case 'b':
+            ok = counting && (!strcmp(optarg, "day") || !strcmp(optarg, "shift"));
+            o->by_shift = !strcmp(optarg, "shift");
+            break;
+        case 'j': o->json = 1; ok = verb == V_STATS; break;
+        case 'n': ok = verb == V_REPORT && !parse_int_arg(optarg, 0, 10000, &o->thumbs); break;
+        default: ok = 0;
+        }
+        if (!ok) {
+            usage(stderr, verb);
+            return EXIT_USAGE;
+        }
+    }
+    if (optind != argc || (verb != V_STATS && !o->out)) {
+        usage(stderr, verb);
+        return EXIT_USAGE;
+    }
+    struct err e;
+    if (qstats_shifts_parse(shifts, &o->shifts, &e)) {
+        cli_say("--shifts: %s", e.msg);
+        return EXIT_USAGE;
+    }
+    o->shifts.offset_min = offset_min;
+    return 0;
+}
+
+/* Opens the log for reading (audit_open_log prints why it cannot) and
+ * starts the filtered walk; 0 or an exit status. */
+static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_iter **it)
+{
+    if (audit_open_log(o->log, o->station, LOG_OPEN_READ, db))
+        return EXIT_ERROR;
+    struct log_filter f;
+    log_filter_init(&f);
+    f.from_utc = o->from;
+    f.to_utc = o->to;
+    f.station = o->station;
+    f.recipe_id = o->recipe;
+    struct err e;
+    err_clear(&e);
+    if (log_iter_new(*db, &f, it, &e)) {
+        cli_say("%s", e.msg);
+        return EXIT_ERROR;
+    }
+    return 0;
+}
+
+/* The newest rejects seen so far, kept in a ring of records whose contents
+ * are swapped in from the walk's record (no copies of the heap strings). */
+struct ring {
+    struct log_record *rec;
+    size_t cap, n, next;
+};
+
+static void ring_take(struct ring *g, struct log_record *r)
+{
+    struct log_record tmp = g->rec[g->next];
+    g->rec[g->next] = *r;
+    *r = tmp;
+    g->next = (g->next + 1) % g->cap;
+    if (g->n < g->cap)
+        g->n++;
+}
+
+/* i = 0 is the newest. */
+static struct log_record *ring_get(struct ring *g, size_t i)
+{
+    return &g->rec[(g->next + g->cap - 1 - i) % g->cap];
+}
+
+static int walk(struct log_iter *it, struct audit_stats *st, struct ring *g, struct err *e)
+{
+    struct log_record r;
+    log_record_init(&r);
+    int have = 1, rc = ST_OK;
+    while (rc == ST_OK && (rc = log_iter_next(it, &r, &have, e)) == ST_OK && have) {
+        rc = audit_stats_add(st, &r, e);
+        if (rc == ST_OK && g && g->cap && r.verdict != VERDICT_PASS)
+            ring_take(g, &r);
+    }
+    log_record_clear(&r);
+    return rc;
+}
+
+/* Walks the selected records into the figures; 0 or an exit status.  g,
+ * when not NULL, keeps the newest rejects. */
+static int gather(const struct verb_opts *o, struct log_db **db, struct ring *g, json_t **js)
+{
+    struct log_iter *it = NULL;
+    struct audit_stats st;
+    struct err e;
+    err_clear(&e);
+    int rc = open_walk(o, db, &it);
+    if (rc)
+        return rc;
+    if (audit_stats_init(&st, &o->shifts, &e) || walk(it, &st, g, &e) ||
+        !(*js = audit_stats_json(&st, o->by_shift))) {
+        cli_say("%s", e.msg[0] ? e.msg : "audit: out of memory");
+        rc = EXIT_ERROR;
+    }
+    audit_stats_clear(&st);
+    log_iter_free(it);
+    return rc;
+}
+
+int audit_cmd_stats(int argc, char **argv)
+{
+    struct verb_opts o;
+    if (cli_wants_help(argc, argv)) {
+        usage(stdout, V_STATS);
+        return 0;
+    }
+    int rc = parse_opts(argc, argv, V_STATS, &o);
+    if (rc)
+        return rc;
+    struct log_db *db = NULL;
+    json_t *js = NULL;
+    rc = gather(&o, &db, NULL, &js);
+    log_close(db);
+    if (rc)
+        return rc;
+    if (o.json) {
+        cli_emit(js);
+    } else {
+        audit_stats_print(stderr, js);
+        json_decref(js);
+    }
+    return 0;
+}
+
+/* Writes through write_fn into a temporary file beside out and renames it
+ * into place, so a failed run never leaves half a file under the name. */
+static int write_atomic(const char *out, int (*write_fn)(FILE *, void *, struct err *),
+                        void *ctx, struct err *e)
+{
+    if (!strcmp(out, "-"))
+        return write_fn(stdout, ctx, e);
+    size_t len = strlen(out) + 8;
+    char *tmp = malloc(len);
+    if (!tmp)
+        return err_set(e, ST_ENOMEM, "%s: out of memory", out);
+    snprintf(tmp, len, "%s.part", out);
+    FILE *f = fopen(tmp, "wb");
+    int rc;
+    if (!f) {
+        rc = err_set(e, ST_EIO, "%s: cannot create: %s", tmp, strerror(errno));
+    } else {
+        rc = write_fn(f, ctx, e);
+        if (fclose(f) != 0 && rc == ST_OK)
+            rc = err_set(e, ST_EIO, "%s: cannot write: %s", tmp, strerror(errno));
+        if (rc == ST_OK && rename(tmp, out) != 0)
+            rc = err_set(e, ST_EIO, "%s: cannot rename into place: %s", out, strerror(errno));
+        if (rc)
+            remove(tmp);
+    }
+    free(tmp);
+    return rc;
+}
+
+static int write_csv(FILE *f, void *ctx, struct err *e)
+{
+    struct log_iter *it = ctx;
+    struct log_record r;
+    log_record_init(&r);
+    int have = 1, rc;
+    audit_csv_header(f);
+    while ((rc = log_iter_next(it, &r, &have, e)) == ST_OK && have)
+        audit_csv_row(f, &r);
+    log_record_clear(&r);
+    if (rc == ST_OK && ferror(f))
+        rc = err_set(e, ST_EIO, "export: write failed");
+    return rc;
+}
+
+int audit_cmd_export(int argc, char **argv)
+{
+    struct verb_opts o;
+    if (cli_wants_help(argc, argv)) {
+        usage(stdout, V_EXPORT);
+        return 0;
+    }
+    int rc = parse_opts(argc, argv, V_EXPORT, &o);
+    if (rc)
+        return rc;
+    struct log_db *db = NULL;
+    struct log_iter *it = NULL;
+    rc = open_walk(&o, &db, &it);
+    struct err e;
+    err_clear(&e);
+    if (!rc && write_atomic(o.out, write_csv, it, &e)) {
+        cli_say("%s", e.msg);
+        rc = EXIT_ERROR;
+    }
+    log_iter_free(it);
+    log_close(db);
+    return rc;
+}
+
+struct report_ctx {
+    const char *source;
+    const json_t *stats;
+    const struct audit_thumb *thumbs;
+    size_t n;
+};
+
+static int write_html(FILE *f, void *ctx, struct err *e)
+{
+    const struct report_ctx *c = ctx;
+    return audit_report_html(f, c->source, c->stats, c->thumbs, c->n, e);
+}
+
+/* The thumbnail of a reject's overlay; a missing, purged or unreadable file
+ * is shown as a note rather than failing the report. */
+static void load_thumb(struct log_db *db, const struct log_record *r, struct audit_thumb *t,
+                       struct image **owned)
+{
+    t->rec = r;
+    t->img = NULL;
+    t->note = "no overlay evidence";
+    *owned = NULL;
+    for (int i = 0; i < r->nevidence; i++) {
+        if (strcmp(r->ev[i].kind, "overlay") != 0)
+            continue;
+        if (r->ev[i].purged) {
+            t->note = "evidence removed by retention";
+            return;
+        }
+        char path[4096];
+        struct image *full = NULL;
+        struct err e;
+        if (log_evidence_path(db, r->ev[i].name, path, sizeof path, &e) ||
+            pngio_load_rgb(path, &full, &e)) {
+            t->note = "overlay file missing or unreadable (run audit verify)";
+            return;
+        }
+        *owned = audit_thumb_scale(full, AUDIT_THUMB_SIDE, &e);
+        image_free(full);
+        t->img = *owned;
+        if (!t->img)
+            t->note = "overlay too large to show";
+        return;
+    }
+}
+
+int audit_cmd_report(int argc, char **argv)
+{
+    struct verb_opts o;
+    if (cli_wants_help(argc, argv)) {
+        usage(stdout, V_REPORT);
+        return 0;
+    }
+    int rc = parse_opts(argc, argv, V_REPORT, &o);
+    if (rc)
+        return rc;
+    struct err e;
+    err_clear(&e);
+    struct log_db *db = NULL;
+    json_t *js = NULL;
+    size_t cap = (size_t)o.thumbs;
+    struct ring g = {calloc(cap + 1, sizeof(struct log_record)), cap, 0, 0};
+    struct audit_thumb *thumbs = calloc(cap + 1, sizeof *thumbs);
+    struct image **imgs = calloc(cap + 1, sizeof *imgs);
+    if (!g.rec || !thumbs || !imgs) {
+        cli_say("audit report: out of memory");
+        rc = EXIT_ERROR;
+        goto done;
+    }
+    for (size_t i = 0; i < cap; i++)
+        log_record_init(&g.rec[i]);
+    if ((rc = gather(&o, &db, &g, &js)) != 0)
+        goto done;
+    for (size_t i = 0; i < g.n; i++)
+        load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
+    /* the page names its selection, so a printed copy says what it covers */
+    char source[1024];
+    snprintf(source, sizeof source, "%s%s%s%s%s%s%s%s%s", log_path(db), o.from ? ", from " : "",
+             o.from ? o.from : "", o.to ? ", before " : "", o.to ? o.to : "",
+             o.station ? ", station " : "", o.station ? o.station : "",
+             o.recipe ? ", recipe " : "", o.recipe ? o.recipe : "");
+    struct report_ctx c = {source, js, thumbs, g.n};
+    if (write_atomic(o.out, write_html, &c, &e)) {
+        cli_say("%s", e.msg);
+        rc = EXIT_ERROR;
+        goto done;
+    }
+    cli_say("wrote %s (%zu reject thumbnails)", o.out, g.n);
+done:
+    for (size_t i = 0; g.rec && imgs && i < cap; i++) {
+        log_record_clear(&g.rec[i]);
+        image_free(imgs[i]);
+    }
+    free(g.rec);
+    free(thumbs);
+    free(imgs);
+    json_decref(js);
+    log_close(db);
+    return rc;
+}

@@ -1,0 +1,495 @@
+/* core/log, core/logcanon, core/logverify, core/evidence: the SHA-256 the
+ * chain uses against FIPS 180-4's examples, records and evidence round trips,
+ * filters, append-only triggers, schema versions, failing writes through the
+ * I/O table, the evidence budget and tampering.  Files live in a fresh
+ * mkdtemp folder removed at the end (rm -rf through system()). */
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <setjmp.h>
+#include <cmocka.h>
+
+#include <errno.h>
+#include <fcntl.h>
+#include <limits.h>
+#include <sqlite3.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "core/judge.h"
+#include "core/log.h"
+#include "core/logcanon.h"
+#include "core/logverify.h"
+#include "core/pngio.h"
+
+static char dir[64];
+
+static int setup(void **state)
+{
+    (void)state;
+    snprintf(dir, sizeof dir, "/tmp/test_log.XXXXXX");
+    return mkdtemp(dir) ? 0 : -1;
+}
+
+static int teardown(void **state)
+{
+    (void)state;
+    char cmd[128];
+    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
+    return system(cmd);
+}
+
+static const char *db_path(const char *name)
+{
+    static char p[4][128];
+    static int k;
+    k = (k + 1) % 4;
+    snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
+    return p[k];
+}
+
+/* FIPS 180-4 (and its predecessor 180-2), appendix examples: SHA-256 of
+ * "abc" (one block) and of the 56-byte two-block message. */
+static void test_sha256_fips(void **state)
+{
+    (void)state;
+    char hex[SHA256_HEX_LEN];
+    sha256_hex_buffer("abc", 3, hex);
+    assert_string_equal(hex, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    const char *two = "abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
+    sha256_hex_buffer(two, strlen(two), hex);
+    assert_string_equal(hex, "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1");
+}
+
+/* A small asymmetric RGB frame; value v shifts every pixel. */
+static struct image *frame(int w, int h, int v)
+{
+    struct err e;
+    struct image *img = image_new(w, h, 3, &e);
+    assert_non_null(img);
+    for (size_t i = 0; i < (size_t)w * h * 3; i++)
+        img->px[i] = (uint8_t)(i * 7 + (size_t)v * 31 + i / 5);
+    return img;
+}
+
+static struct log_entry entry(int verdict, const char *reasons)
+{
+    struct log_entry en = {.station = "bench-7", .operator_id = "op-3", .serial = "SN-0001",
+                           .recipe_id = "ostrel-cap38", .recipe_version = 2,
+                           .recipe_sha256 = "ab", .model_sha256 = "cd", .scale_id = "recipe:0.17",
+                           .verdict = verdict, .reasons_json = reasons, .regions_json = "[]"};
+    return en;
+}
+
+static struct log_db *open_w(const char *path, uint64_t budget, const struct log_io *io)
+{
+    struct log_options o;
+    log_options_init(&o);
+    o.evidence_budget = budget;
+    o.io = io;
+    struct log_db *db = NULL;
+    struct err e;
+    err_clear(&e);
+    int rc = log_open(path, LOG_OPEN_WRITE, &o, &db, &e);
+    if (rc)
+        fail_msg("%s", e.msg);
+    return db;
+}
+
+static int64_t append(struct log_db *db, struct log_entry en)
+{
+    int64_t seq = 0;
+    struct err e;
+    err_clear(&e);
+    if (log_append(db, &en, &seq, &e))
+        fail_msg("%s", e.msg);
+    return seq;
+}
+
+static int count(struct log_db *db, const struct log_filter *f)
+{
+    struct log_iter *it = NULL;
+    struct err e;
+    assert_int_equal(log_iter_new(db, f, &it, &e), ST_OK);
+    struct log_record r;
+    log_record_init(&r);
+    int n = 0, have;
+    while (log_iter_next(it, &r, &have, &e) == ST_OK && have)
+        n++;
+    log_record_clear(&r);
+    log_iter_free(it);
+    return n;
+}
+
+static void test_round_trip_and_filters(void **state)
+{
+    (void)state;
+    const char *p = db_path("rt.db");
+    struct log_db *db = open_w(p, 0, NULL);
+    struct image *f = frame(13, 9, 1), *o = frame(13, 9, 2);
+    int64_t s1 = append(db, entry(VERDICT_PASS, "[]"));
+    struct log_entry en = entry(VERDICT_FAIL, "[{\"rule\":\"max_area\",\"class\":\"scratch\","
+                                              "\"zone\":\"rim\"}]");
+    en.frame = f;
+    en.overlay = o;
+    en.serial = "line\nbreak\\";
+    int64_t s2 = append(db, en);
+    int64_t s3 = append(db, entry(VERDICT_NONE, "[{\"rule\":\"too_dark\",\"class\":\"image\"}]"));
+    assert_int_equal(s1, 1);
+    assert_int_equal(s2, 2);
+    assert_int_equal(s3, 3);
+
+    struct log_record r;
+    log_record_init(&r);
+    struct err e;
+    assert_int_equal(log_get(db, 2, &r, &e), ST_OK);
+    assert_string_equal(r.station, "bench-7");
+    assert_string_equal(r.serial, "line\nbreak\\");
+    assert_int_equal(r.verdict, VERDICT_FAIL);
+    assert_int_equal(r.recipe_version, 2);
+    assert_int_equal(r.nevidence, 2);
+    assert_string_equal(r.ev[0].kind, "frame");
+    assert_string_equal(r.ev[1].kind, "overlay");
+    assert_int_equal(r.utc[10], 'T');
+    /* the frame evidence is lossless: the same pixels come back */
+    char path[PATH_MAX];
+    assert_int_equal(log_evidence_path(db, r.ev[0].name, path, sizeof path, &e), ST_OK);
+    struct image *back = NULL;
+    assert_int_equal(pngio_load_rgb(path, &back, &e), ST_OK);
+    assert_memory_equal(back->px, f->px, 13 * 9 * 3);
+    image_free(back);
+    /* the documented canonical form: one line per field, values escaped */
+    char *canon = logcanon_record(&r);
+    assert_non_null(strstr(canon, "\nserial=line\\nbreak\\\\\n"));
+    assert_non_null(strstr(canon, "\nprev="));
+    char hex[SHA256_HEX_LEN];
+    sha256_hex_buffer(canon, strlen(canon), hex);
+    assert_string_equal(hex, r.hash);
+    free(canon);
+    log_record_clear(&r);
+    assert_int_equal(log_get(db, 9, &r, &e), ST_ERANGE);
+
+    struct log_filter flt;
+    log_filter_init(&flt);
+    assert_int_equal(count(db, &flt), 3);
+    flt.rejects = 1;
+    assert_int_equal(count(db, &flt), 2);
+    log_filter_init(&flt);
+    flt.cls = "scratch";
+    assert_int_equal(count(db, &flt), 1);
+    log_filter_init(&flt);
+    flt.zone = "rim";
+    assert_int_equal(count(db, &flt), 1);
+    log_filter_init(&flt);
+    flt.verdict = VERDICT_NONE;
+    assert_int_equal(count(db, &flt), 1);
+    log_filter_init(&flt);
+    flt.station = "bench-8";
+    assert_int_equal(count(db, &flt), 0);
+    log_filter_init(&flt);
+    flt.from_utc = "2000-01-01";
+    flt.to_utc = "2000-01-02";
+    assert_int_equal(count(db, &flt), 0);
+
+    int64_t dseq;
+    assert_int_equal(log_dispose(db, 2, "auditor-1", LOG_DISP_FALSE_REJECT, "fine", &dseq, &e),
+                     ST_OK);
+    assert_int_equal(log_dispose(db, 2, "", LOG_DISP_OTHER, NULL, &dseq, &e), ST_EINVAL);
+    assert_int_equal(log_dispose(db, 44, "a", LOG_DISP_OTHER, NULL, &dseq, &e), ST_ERANGE);
+    log_filter_init(&flt);
+    flt.disp = LOG_DISP_FALSE_REJECT;
+    assert_int_equal(count(db, &flt), 1);
+    flt.disp = LOG_DISP_NONE;
+    assert_int_equal(count(db, &flt), 2);
+    assert_int_equal(log_get(db, 2, &r, &e), ST_OK);
+    assert_true(r.has_disposition);
+    assert_string_equal(r.disp.auditor, "auditor-1");
+    log_record_clear(&r);
+
+    struct log_verify_result v;
+    assert_int_equal(log_verify(db, &v, &e), ST_OK);
+    assert_true(v.ok);
+    assert_int_equal(v.records, 3);
+    assert_int_equal(v.dispositions, 1);
+    assert_int_equal(v.evidence_files, 2);
+    log_close(db);
+    image_free(f);
+    image_free(o);
+}
+
+static int sql(const char *path, const char *stmt, char *msg, size_t len)
+{
+    sqlite3 *h;
+    assert_int_equal(sqlite3_open(path, &h), SQLITE_OK);
+    char *m = NULL;
+    int rc = sqlite3_exec(h, stmt, NULL, NULL, &m);
+    if (msg)
+        snprintf(msg, len, "%s", m ? m : "");
+    sqlite3_free(m);
+    sqlite3_close(h);
+    return rc;
+}
+
+/* SQLite's own RAISE(ABORT) is what refuses: the statement fails with our message. */
+static void test_append_only(void **state)
+{
+    (void)state;
+    const char *p = db_path("ao.db");
+    struct log_db *db = open_w(p, 0, NULL);
+    struct image *f = frame(5, 4, 1);
+    struct log_entry en = entry(VERDICT_FAIL, "[]");
+    en.frame = f;
+    append(db, en);
+    image_free(f);
+    int64_t dseq;
+    struct err e;
+    assert_int_equal(log_dispose(db, 1, "a", LOG_DISP_CONFIRMED, "", &dseq, &e), ST_OK);
+    log_close(db);
+    char msg[256];
+    assert_int_equal(sql(p, "UPDATE records SET verdict = 'PASS'", msg, sizeof msg),
+                     SQLITE_CONSTRAINT);
+    assert_string_equal(msg, "records are append-only");
+    assert_int_equal(sql(p, "DELETE FROM records", msg, sizeof msg), SQLITE_CONSTRAINT);
+    assert_int_equal(sql(p, "UPDATE dispositions SET comment = 'x'", msg, sizeof msg),
+                     SQLITE_CONSTRAINT);
+    assert_string_equal(msg, "dispositions are append-only");
+    assert_int_equal(sql(p, "DELETE FROM dispositions", msg, sizeof msg), SQLITE_CONSTRAINT);
+    assert_int_equal(sql(p, "DELETE FROM evidence", msg, sizeof msg), SQLITE_CONSTRAINT);
+    assert_string_equal(msg, "evidence rows are append-only");
+}
+
+static void test_schema_versions(void **state)
+{
+    (void)state;
+    const char *p = db_path("schema.db");
+    struct log_db *db = open_w(p, 0, NULL);
+    append(db, entry(VERDICT_PASS, "[]"));
+    log_close(db);
+    struct err e;
+    /* a future schema is refused, for reading and writing */
+    assert_int_equal(sql(p, "PRAGMA user_version = 99", NULL, 0), SQLITE_OK);
+    assert_int_equal(log_open(p, LOG_OPEN_READ, NULL, &db, &e), ST_EFORMAT);
+    assert_non_null(strstr(e.msg, "log schema 99 is newer than this program's 2"));
+    assert_int_equal(log_open(p, LOG_OPEN_WRITE, NULL, &db, &e), ST_EFORMAT);
+    assert_null(db);
+    /* schema 1 (before the retention table): reading asks for an upgrade,
+     * writing upgrades step by step and keeps the records */
+    assert_int_equal(sql(p, "DROP TRIGGER purged_no_update; DROP TRIGGER purged_no_delete;"
+                            "DROP TABLE evidence_purged; PRAGMA user_version = 1",
+                         NULL, 0),
+                     SQLITE_OK);
+    assert_int_equal(log_open(p, LOG_OPEN_READ, NULL, &db, &e), ST_EFORMAT);
+    assert_non_null(strstr(e.msg, "older"));
+    db = open_w(p, 0, NULL);
+    assert_int_equal(append(db, entry(VERDICT_FAIL, "[]")), 2);
+    struct log_verify_result v;
+    assert_int_equal(log_verify(db, &v, &e), ST_OK);
+    assert_true(v.ok);
+    log_close(db);
+    assert_int_equal(sql(p, "SELECT count(*) FROM evidence_purged", NULL, 0), SQLITE_OK);
+    /* not a station log */
+    const char *q = db_path("other.db");
+    assert_int_equal(sql(q, "CREATE TABLE t(x)", NULL, 0), SQLITE_OK);
+    assert_int_equal(log_open(q, LOG_OPEN_WRITE, NULL, &db, &e), ST_EFORMAT);
+    assert_non_null(strstr(e.msg, "not a station log"));
+}
+
+/* The fault shim: the n-th fsync (or any rename) fails with EIO. */
+static int fsync_calls, fsync_fail_at, rename_fails;
+static int bad_fsync(int fd)
+{
+    if (++fsync_calls == fsync_fail_at) {
+        errno = EIO;
+        return -1;
+    }
+    return fsync(fd);
+}
+static int bad_rename(const char *a, const char *b)
+{
+    if (rename_fails) {
+        errno = EIO;
+        return -1;
+    }
+    return rename(a, b);
+}
+
+static void test_failing_writes(void **state)
+{
+    (void)state;
+    const char *p = db_path("fault.db");
+    struct log_io io = *log_io_default();
+    io.fsync = bad_fsync;
+    io.rename = bad_rename;
+    struct image *f = frame(11, 7, 3);
+    struct log_entry en = entry(VERDICT_FAIL, "[]");
+    en.frame = f;
+    en.overlay = f;
+    struct log_db *db = open_w(p, 0, &io);
+    append(db, en);
+    struct err e;
+    int64_t seq = -5;
+    for (int at = 1; at <= 4; at++) {
+        fsync_calls = 0;
+        fsync_fail_at = at;   /* file, folder, second file, folder */
+        err_clear(&e);
+        assert_int_equal(log_append(db, &en, &seq, &e), ST_EIO);
+        assert_int_equal(seq, -5);
+        assert_non_null(strstr(e.msg, "cannot sync"));
+    }
+    fsync_fail_at = 0;
+    rename_fails = 1;
+    assert_int_equal(log_append(db, &en, &seq, &e), ST_EIO);
+    assert_non_null(strstr(e.msg, "cannot rename"));
+    rename_fails = 0;
+    /* nothing half-done stays: the next record takes the next number */
+    assert_int_equal(append(db, en), 2);
+    struct log_filter flt;
+    log_filter_init(&flt);
+    assert_int_equal(count(db, &flt), 2);
+    struct log_verify_result v;
+    assert_int_equal(log_verify(db, &v, &e), ST_OK);
+    assert_true(v.ok);
+    log_close(db);
+    image_free(f);
+}
+
+static void test_evidence_budget(void **state)
+{
+    (void)state;
+    const char *p = db_path("budget.db");
+    struct image *f = frame(16, 12, 5);
+    struct log_entry pass = entry(VERDICT_PASS, "[]"), fail = entry(VERDICT_FAIL, "[]");
+    pass.frame = fail.frame = f;
+    struct log_db *db = open_w(p, 0, NULL);
+    append(db, pass);
+    append(db, pass);
+    append(db, fail);
+    struct log_record r;
+    log_record_init(&r);
+    struct err e;
+    assert_int_equal(log_get(db, 1, &r, &e), ST_OK);
+    uint64_t one = (uint64_t)r.ev[0].bytes;   /* same frame: every file has this size */
+    log_record_clear(&r);
+    log_close(db);
+
+    /* room for three: the fourth goes in after the oldest PASS evidence goes */
+    db = open_w(p, 3 * one, NULL);
+    append(db, fail);
+    assert_int_equal(log_get(db, 1, &r, &e), ST_OK);
+    assert_true(r.ev[0].purged);
+    log_record_clear(&r);
+    assert_int_equal(log_get(db, 2, &r, &e), ST_OK);
+    assert_false(r.ev[0].purged);
+    log_record_clear(&r);
+    append(db, fail);   /* record 2's PASS evidence goes */
+    /* only unaudited rejects are left: refused, and nothing is recorded */
+    int64_t seq = 0;
+    char path[PATH_MAX];
+    assert_int_equal(log_append(db, &fail, &seq, &e), ST_ERANGE);
+    assert_non_null(strstr(e.msg, "evidence budget full"));
+    struct log_filter flt;
+    log_filter_init(&flt);
+    assert_int_equal(count(db, &flt), 5);
+    /* once audited, a reject's evidence may go */
+    int64_t dseq;
+    assert_int_equal(log_dispose(db, 3, "a", LOG_DISP_CONFIRMED, "", &dseq, &e), ST_OK);
+    assert_int_equal(append(db, fail), 6);
+    assert_int_equal(log_get(db, 3, &r, &e), ST_OK);
+    assert_true(r.ev[0].purged);
+    assert_int_equal(log_evidence_path(db, r.ev[0].name, path, sizeof path, &e), ST_OK);
+    assert_int_equal(access(path, F_OK), -1);
+    log_record_clear(&r);
+    struct log_verify_result v;
+    assert_int_equal(log_verify(db, &v, &e), ST_OK);
+    assert_true(v.ok);
+    assert_int_equal(v.evidence_files, 3);
+    log_close(db);
+    image_free(f);
+}
+
+static void verify_expect(const char *p, const char *chain, int64_t seq, int torn)
+{
+    struct log_db *db = NULL;
+    struct err e;
+    assert_int_equal(log_open(p, LOG_OPEN_READ, NULL, &db, &e), ST_OK);
+    struct log_verify_result v;
+    assert_int_equal(log_verify(db, &v, &e), ST_OK);
+    log_close(db);
+    assert_false(v.ok);
+    assert_string_equal(v.chain, chain);
+    assert_int_equal(v.seq, seq);
+    assert_int_equal(v.torn, torn);
+}
+
+/* An attacker with file access drops the triggers and edits a row. */
+static void test_tamper(void **state)
+{
+    (void)state;
+    const char *p = db_path("tamper.db");
+    struct image *f = frame(9, 9, 7);
+    struct log_entry fail = entry(VERDICT_FAIL, "[{\"rule\":\"max_area\",\"class\":\"pit\"}]");
+    fail.frame = f;
+    struct log_db *db = open_w(p, 0, NULL);
+    for (int i = 0; i < 4; i++)
+        append(db, fail);
+    int64_t dseq;
+    struct err e;
+    assert_int_equal(log_dispose(db, 2, "a", LOG_DISP_CONFIRMED, "ok", &dseq, &e), ST_OK);
+    assert_int_equal(log_dispose(db, 3, "a", LOG_DISP_REWORK, "ok", &dseq, &e), ST_OK);
+    log_close(db);
+    char cmd[256];
+    snprintf(cmd, sizeof cmd, "cp '%s' '%s.orig'", p, p);
+    assert_int_equal(system(cmd), 0);
+
+    assert_int_equal(sql(p, "DROP TRIGGER records_no_update;"
+                            "UPDATE records SET verdict = 'PASS' WHERE seq = 2",
+                         NULL, 0),
+                     SQLITE_OK);
+    verify_expect(p, "record", 2, 0);
+    snprintf(cmd, sizeof cmd, "cp '%s.orig' '%s'", p, p);
+    assert_int_equal(system(cmd), 0);
+    assert_int_equal(sql(p, "DROP TRIGGER records_no_update;"
+                            "UPDATE records SET serial = 'SN-0002' WHERE seq = 4",
+                         NULL, 0),
+                     SQLITE_OK);
+    verify_expect(p, "record", 4, 1);
+    assert_int_equal(system(cmd), 0);
+    assert_int_equal(sql(p, "DROP TRIGGER dispositions_no_update;"
+                            "UPDATE dispositions SET comment = 'ok!' WHERE dseq = 1",
+                         NULL, 0),
+                     SQLITE_OK);
+    verify_expect(p, "disposition", 1, 0);
+    assert_int_equal(system(cmd), 0);
+    /* a deleted record in the middle breaks the sequence */
+    assert_int_equal(sql(p, "DROP TRIGGER records_no_delete; DROP TRIGGER evidence_no_delete;"
+                            " DELETE FROM evidence WHERE"
+                            " record_seq = 1; DELETE FROM records WHERE seq = 1",
+                         NULL, 0),
+                     SQLITE_OK);
+    verify_expect(p, "record", 2, 0);
+    assert_int_equal(system(cmd), 0);
+    /* one byte of an evidence file */
+    snprintf(cmd, sizeof cmd, "f=$(ls %s/evidence/*/00000003-frame.png) &&"
+                              " printf 'X' | dd of=\"$f\" bs=1 seek=60 conv=notrunc 2>/dev/null",
+             dir);
+    assert_int_equal(system(cmd), 0);
+    verify_expect(p, "evidence", 3, 0);
+    image_free(f);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_sha256_fips),
+        cmocka_unit_test(test_round_trip_and_filters),
+        cmocka_unit_test(test_append_only),
+        cmocka_unit_test(test_schema_versions),
+        cmocka_unit_test(test_failing_writes),
+        cmocka_unit_test(test_evidence_budget),
+        cmocka_unit_test(test_tamper),
+    };
+    return cmocka_run_group_tests(tests, setup, teardown);
+}
