@@ -24,6 +24,7 @@
 #include "report.h"
 #include "simbench.h"
 #include "train.h"
+#include "verify.h"
 
 #define DEMO_RECIPE "ostrel-cap38.ini"
 #define CAP_DIAMETER_MM 38.0
@@ -318,6 +319,20 @@ static int save_masters(const char *out, const char *test_dir, const struct batc
     return rc;
 }
 
+static int verify_demo(const struct recipe *r, struct logbook *lb, struct err *e)
+{
+    struct verify_outcome v;
+    int64_t vseq = 0;
+    int rc = verify_run(r, &v, e);
+    if (!rc)
+        rc = verify_record(lb, r, &v, &vseq, e);
+    if (!rc)
+        fprintf(stderr, "demo: master parts verified: %d of %d got their verdict (log "
+                        "verification %lld)\n", v.matched, v.n, (long long)vseq);
+    verify_clear(&v);
+    return rc;
+}
+
 struct demo_opts {
     const char *out, *recipe, *log, *station;
     uint64_t seed;
@@ -395,6 +410,9 @@ static int run_demo(const struct demo_opts *o, struct err *e)
     inspector_free(in);
     if (!rc && count[0])
         rc = save_masters(o->out, test_dir, &b[0], e);
+    /* the shift starts as a real one would: the masters verified, in the log */
+    if (!rc && b[0].good_part >= 0 && b[0].over_part >= 0)
+        rc = verify_demo(&r, &lb, e);
     logbook_close(&lb);
     if (!rc) {
         for (int k = 0; k < 2; k++)

@@ -1,4 +1,4 @@
-/* station verify RECIPE [--log DB]: the recipe's master parts, judged. */
+/* station verify RECIPE [--log DB] [--station ID]: the recipe's master parts, judged and logged. */
 #include <getopt.h>
 #include <stdio.h>
 #include <string.h>
@@ -9,16 +9,18 @@
 
 static void usage(FILE *f)
 {
-    fprintf(f, "usage: station verify RECIPE [--log DB]\n\n"
+    fprintf(f, "usage: station verify RECIPE [--log DB] [--station ID]\n\n"
                "Inspects the recipe's master parts ([master NAME]: an image and the verdict it\n"
                "must get) exactly as station inspect would, and says for each whether it got\n"
                "its verdict. The verification passes only when every master does. One JSON\n"
                "line per master and a closing summary line on stdout, text on stderr.\n\n"
-               "  --log DB   record the outcome in the station's log; inspection with that log\n"
-               "             refuses parts (NO_VERDICT, verification_due) once the last passing\n"
-               "             verification is older than [verification] interval_hours\n\n"
+               "  --log DB       the station's log the outcome is recorded in (default: the\n"
+               "                 station's, as for station inspect); inspection with that log\n"
+               "                 refuses parts (NO_VERDICT, verification_due) once the last\n"
+               "                 passing verification is older than [verification] interval_hours\n"
+               "  --station ID   station id (default %s)\n\n"
                "Exit status: 0 every master matched, 1 any did not, 3 error, 4 usage.\n%s\n",
-            CLI_CAUTION);
+            LOGBOOK_DEFAULT_STATION, CLI_CAUTION);
 }
 
 static void emit(json_t *o)
@@ -34,16 +36,21 @@ int cmd_verify(int argc, char **argv)
         usage(stdout);
         return 0;
     }
-    static const struct option opts[] = {{"log", required_argument, NULL, 'l'}, {0, 0, 0, 0}};
-    const char *log_path = NULL;
+    static const struct option opts[] = {{"log", required_argument, NULL, 'l'},
+                                         {"station", required_argument, NULL, 's'},
+                                         {0, 0, 0, 0}};
+    const char *log_path = NULL, *station = NULL;
     int c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
-        if (c != 'l') {
+        if (c == 'l') {
+            log_path = optarg;
+        } else if (c == 's') {
+            station = optarg;
+        } else {
             usage(stderr);
             return EXIT_USAGE;
         }
-        log_path = optarg;
     }
     if (argc - optind != 1) {
         usage(stderr);
@@ -55,8 +62,14 @@ int cmd_verify(int argc, char **argv)
     struct err e;
     err_clear(&e);
     struct verify_outcome v;
+    struct logbook lb;
+    if (logbook_open(&lb, log_path, station, 0, &r, &e)) {
+        cli_say("%s", e.msg);
+        return EXIT_ERROR;
+    }
     if (verify_run(&r, &v, &e)) {
         cli_say("%s", e.msg);
+        logbook_close(&lb);
         return EXIT_ERROR;
     }
     for (int i = 0; i < v.n; i++) {
@@ -72,9 +85,19 @@ int cmd_verify(int argc, char **argv)
                 v.m[i].match ? "matches" : "DOES NOT MATCH");
     }
     int passed = v.matched == v.n;
-    json_t *s = json_pack("{s:s, s:s, s:i, s:i, s:i}", "verification", passed ? "passed" : "failed",
-                          "recipe", r.product, "recipe_version", r.version, "masters", v.n,
-                          "matched", v.matched);
+    int64_t vseq = 0;
+    /* an outcome the log cannot keep is no verification: inspection stays refused */
+    int rc = verify_record(&lb, &r, &v, &vseq, &e);
+    logbook_close(&lb);
+    if (rc) {
+        cli_say("verification not recorded: %s", e.msg);
+        verify_clear(&v);
+        return EXIT_ERROR;
+    }
+    json_t *s = json_pack("{s:s, s:s, s:i, s:i, s:i, s:I}", "verification",
+                          passed ? "passed" : "failed", "recipe", r.product, "recipe_version",
+                          r.version, "masters", v.n, "matched", v.matched, "log_vseq",
+                          (json_int_t)vseq);
     emit(s);
     json_decref(s);
     fprintf(stderr, "verification %s: %d of %d masters got their verdict.%s  %s\n",
@@ -82,6 +105,5 @@ int cmd_verify(int argc, char **argv)
             passed ? "" : " Do not inspect until the station is put right and verified again.",
             CLI_CAUTION);
     verify_clear(&v);
-    (void)log_path;
     return passed ? 0 : EXIT_ANY_FAIL;
 }
