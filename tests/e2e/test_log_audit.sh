@@ -104,7 +104,7 @@ expect_rc 3 "$S" audit list --log "$db"
 grep -q "log schema 7 is newer than this program's" "$out/last.err" || fail "newer: $(cat "$out/last.err")"
 expect_rc 3 "$S" inspect "$recipe" "$images/part-0004.png" --log "$db"
 restore
-sqlx "DROP TRIGGER purged_no_update; DROP TRIGGER purged_no_delete; DROP TABLE evidence_purged; PRAGMA user_version = 1"
+sqlx "DROP TRIGGER purged_no_update; DROP TRIGGER purged_no_delete; DROP TABLE evidence_purged; DROP TABLE verifications; PRAGMA user_version = 1"
 expect_rc 3 "$S" audit verify --log "$db"
 grep -q "older" "$out/last.err" || fail "older, read-only: $(cat "$out/last.err")"
 expect_rc 0 "$S" audit dispose 3 --log "$db" --auditor aud-1 --as rework
