@@ -6,16 +6,19 @@
 #include <string.h>
 
 #include "audit.h"
+#include "audit_view.h"
 #include "cli.h"
 #include "core/judge.h"
+#include "viewer.h"
 
 static void usage(FILE *f)
 {
-    fprintf(f, "usage: station audit show SEQ [--log DB] [--station ID] [--json]\n\n"
+    fprintf(f, "usage: station audit show SEQ [--log DB] [--station ID] [--json] [--view]\n\n"
                "Shows one record of the inspection log: when and where it was inspected, the\n"
                "recipe and model it was judged with, the verdict and its reasons, the measured\n"
                "regions, the evidence files and every disposition.  Text on stderr, or with\n"
-               "--json one JSON object on stdout.\n\n"
+               "--json one JSON object on stdout.  --view then opens the evidence in a window\n"
+               "when a display is present (as `station audit view SEQ` does).\n\n"
                "%s\n",
             CLI_CAUTION);
 }
@@ -70,15 +73,17 @@ int audit_show(int argc, char **argv)
     static const struct option opts[] = {{"log", required_argument, NULL, 'l'},
                                          {"station", required_argument, NULL, 's'},
                                          {"json", no_argument, NULL, 'j'},
+                                         {"view", no_argument, NULL, 'v'},
                                          {0, 0, 0, 0}};
     const char *db_path = NULL, *station = NULL;
-    int json = 0, c;
+    int json = 0, view = 0, c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
         case 'l': db_path = optarg; break;
         case 's': station = optarg; break;
         case 'j': json = 1; break;
+        case 'v': view = 1; break;
         default: usage(stderr); return EXIT_USAGE;
         }
     }
@@ -109,6 +114,12 @@ int audit_show(int argc, char **argv)
         cli_emit(o);
     } else {
         print_record(db, &r, d, nd);
+    }
+    if (!rc && view) {
+        if (getenv("DISPLAY") || getenv("WAYLAND_DISPLAY"))
+            rc = audit_view_record(db, &r, VIEWER_SIDE, NULL);
+        else
+            cli_say("no display: the evidence files are listed above");
     }
     log_dispositions_free(d, nd);
     log_record_clear(&r);

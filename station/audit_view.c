@@ -52,6 +52,27 @@ static int load_evidence(struct log_db *db, const struct log_record *r, struct i
     return 0;
 }
 
+int audit_view_record(struct log_db *db, const struct log_record *r, int mode,
+                      const char *screenshot)
+{
+    struct image *frame = NULL, *overlay = NULL;
+    struct err e;
+    err_clear(&e);
+    int rc = load_evidence(db, r, &frame, &overlay);
+    if (rc == 0) {
+        char title[160];
+        snprintf(title, sizeof title, "station: record %lld, %s, %s", (long long)r->seq,
+                 judge_verdict_name(r->verdict), r->utc);
+        if (viewer_run(title, frame, overlay, mode, screenshot, &e)) {
+            cli_say("%s", e.msg);
+            rc = EXIT_ERROR;
+        }
+    }
+    image_free(frame);
+    image_free(overlay);
+    return rc;
+}
+
 int audit_cmd_view(int argc, char **argv)
 {
     if (cli_wants_help(argc, argv)) {
@@ -92,24 +113,15 @@ int audit_cmd_view(int argc, char **argv)
         return EXIT_ERROR;
     struct log_record r;
     log_record_init(&r);
-    struct image *frame = NULL, *overlay = NULL;
     struct err e;
     err_clear(&e);
     int rc = 0;
     if (log_get(db, seq, &r, &e)) {
         cli_say("%s", e.msg);
         rc = EXIT_ERROR;
-    } else if ((rc = load_evidence(db, &r, &frame, &overlay)) == 0) {
-        char title[160];
-        snprintf(title, sizeof title, "station: record %lld, %s, %s", seq,
-                 judge_verdict_name(r.verdict), r.utc);
-        if (viewer_run(title, frame, overlay, mode < 0 ? VIEWER_SIDE : mode, shot, &e)) {
-            cli_say("%s", e.msg);
-            rc = EXIT_ERROR;
-        }
+    } else {
+        rc = audit_view_record(db, &r, mode < 0 ? VIEWER_SIDE : mode, shot);
     }
-    image_free(frame);
-    image_free(overlay);
     log_record_clear(&r);
     log_close(db);
     return rc;

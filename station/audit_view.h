@@ -7,7 +7,14 @@
 #ifndef ST_AUDIT_VIEW_H
 #define ST_AUDIT_VIEW_H
 
+#include "core/log.h"
+
 /* argv[0] is the verb, as `station audit` hands it on. */
 int audit_cmd_view(int argc, char **argv);
+
+/* Shows r's evidence (mode: enum in station/viewer.h; screenshot NULL for
+ * a window); 0 or an exit status, the reason printed. */
+int audit_view_record(struct log_db *db, const struct log_record *r, int mode,
+                      const char *screenshot);
 
 #endif

@@ -185,7 +185,7 @@ static void test_demo_recipe(void **state)
                                                   {1.5, 30, 45, 1, -1, -1, -1}};
     for (int c = 0; c < 5; c++)
         assert_memory_equal(&r.tol[c], &tol[c], sizeof tol[c]);
-    assert_true(r.merge_gap_mm[2] == 0.35 && r.merge_gap_mm[3] == 0);
+    assert_true(r.merge_gap_mm[2] == 0.35 && r.merge_gap_mm[3] == 0 && r.merge_gap_mm[4] == 1.0);
     assert_int_equal(r.part.orient, 0);
     assert_true(r.part.area_mm2 == -1 && r.part.area_tolerance == 0.15);
     assert_int_equal(r.nzones, 2);

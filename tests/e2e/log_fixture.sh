@@ -1,7 +1,9 @@
 # Sourced by the log tests: a tiny trained demo recipe in $fixture, made once
 # per build folder (a 4-part demo, a few seconds).  Needs BUILD set.
 fixture="$BUILD/e2e-log-fixture"
-if [ ! -f "$fixture/ostrel-cap38.model.json.meta.json" ]; then
+# remade whenever the station binary is newer, so it never outlives a format change
+if [ ! -f "$fixture/ostrel-cap38.model.json.meta.json" ] ||
+    [ "$BUILD/station" -nt "$fixture/ostrel-cap38.model.json.meta.json" ]; then
     rm -rf "$fixture"
     "$BUILD/station" demo --out "$fixture" --seed 5 --train 4 --test 3 --shifted 0 \
         2>"$fixture.log" || {

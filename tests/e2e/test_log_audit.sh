@@ -30,6 +30,10 @@ r2=$(sed -n 2p "$out/last.out" | sed 's/^{"seq":\([0-9]*\),.*/\1/')
 grep -q '"station":"qa-2","operator":"op-9","serial":"SN-77"' "$out/last.out" || fail "ids not recorded"
 expect_rc 0 "$S" audit show "$r1" --log "$db" --json
 grep -q '"kind":"frame"' "$out/last.out" || fail "show names no frame evidence"
+# --view without a display says so and still shows the record
+set +e; env -u DISPLAY -u WAYLAND_DISPLAY "$S" audit show "$r1" --log "$db" --view >"$out/last.out" 2>"$out/last.err"; rc=$?; set -e
+[ "$rc" = 0 ] && grep -q "no display" "$out/last.err" && grep -q "evidence" "$out/last.err" ||
+    fail "show --view without a display: exit $rc, $(cat "$out/last.err")"
 expect_rc 0 "$S" audit dispose "$r1" --log "$db" --auditor aud-1 --as false-reject --comment "light reflex"
 expect_rc 0 "$S" audit dispose "$r2" --log "$db" --auditor aud-1 --as confirmed --comment "deep pit"
 expect_rc 4 "$S" audit dispose 2 --log "$db" --as confirmed
