@@ -1,5 +1,7 @@
 #include "inspect.h"
 
+#include "flatfield.h"
+
 #include <pthread.h>
 #include <stdlib.h>
 #include <string.h>
@@ -41,6 +43,9 @@ struct inspector {
     struct judge_refs refs;
     uint8_t *grey, *last;   /* this frame's grey and the one before */
     int has_last;
+    struct flat_field *flat; /* NULL when the recipe has no [lighting] flat_field */
+    struct image *evened;   /* the frame after the flat field, reused */
+    const struct image *frame; /* what the features saw on the last call */
 };
 
 static double now_ms(void)
@@ -66,9 +71,12 @@ int inspector_new(const struct recipe *r, struct inspector **out, struct err *e)
     in->refs.sharpness =
         r->gates.sharpness_reference > 0 ? r->gates.sharpness_reference : in->meta.ref_sharpness;
     in->refs.part_area_mm2 = r->part.area_mm2 > 0 ? r->part.area_mm2 : in->meta.ref_part_area_mm2;
+    in->refs.since_verified_h = -1;
     if (r->nzones && (rc = zone_map_new(r->zones, r->nzones, &in->zones, e)))
         goto fail;
     if ((rc = forest_load(r->model_path, &in->forest, e)))
+        goto fail;
+    if (r->flat_field[0] && (rc = flatfield_load(r->flat_field, &in->flat, e)))
         goto fail;
     if (forest_nclasses(in->forest) != r->nclasses) {
         rc = err_set(e, ST_EFORMAT, "%s: model predicts %d classes, recipe %s has %d",
@@ -100,6 +108,9 @@ static void free_frame_buffers(struct inspector *in)
     free(in->grid_rows);
     free(in->grey);
     free(in->last);
+    image_free(in->evened);
+    in->evened = NULL;
+    in->frame = NULL;
     in->grey = in->last = NULL;
     in->has_last = 0;
     in->feat = NULL;
@@ -116,6 +127,7 @@ void inspector_free(struct inspector *in)
     if (!in)
         return;
     forest_free(in->forest);
+    flatfield_free(in->flat);
     zone_map_free(in->zones);
     free_frame_buffers(in);
     regions_clear(&in->rs);
@@ -134,7 +146,8 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     free_frame_buffers(in);
     if (!(in->feat = feat_ctx_new(&in->r.feat, w, h, e)) ||
         !(in->fs = fstack_new(w, h, feat_count(&in->r.feat), e)) ||
-        !(in->classes = image_new(w, h, 1, e)))
+        !(in->classes = image_new(w, h, 1, e)) ||
+        (in->flat && !(in->evened = image_new(w, h, 3, e))))
         return e ? e->code : ST_ENOMEM;
     in->gw = (w + ROI_STEP - 1) / ROI_STEP;
     in->gh = (h + ROI_STEP - 1) / ROI_STEP;
@@ -266,7 +279,12 @@ int inspector_classify(struct inspector *in, const struct image *img, struct ins
     if (rc)
         return rc;
     double t0 = now_ms();
-    if ((rc = feat_compute(in->feat, img, in->fs, e)))
+    /* the lighting is evened out before anything reads the frame */
+    struct err fe;
+    if (in->flat && (rc = flatfield_apply(in->flat, img, in->evened, &fe)))
+        return err_set(e, rc, "%s: %s", in->r.flat_field, fe.msg);
+    in->frame = in->flat ? in->evened : img;
+    if ((rc = feat_compute(in->feat, in->frame, in->fs, e)))
         return rc;
     double t1 = now_ms();
     rc = in->roi ? classify_located(in, e)
@@ -316,7 +334,7 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
     if (!in->grey && (!(in->grey = malloc((size_t)img->w * img->h)) ||
                       !(in->last = malloc((size_t)img->w * img->h))))
         return err_set(e, ST_ENOMEM, "out of memory for %dx%d grey frames", img->w, img->h);
-    if ((rc = judge_measure_quality(r, img, in->classes, in->conf, in->grey,
+    if ((rc = judge_measure_quality(r, in->frame, in->classes, in->conf, in->grey,
                                     in->has_last ? in->last : NULL, &in->q, e)))
         return rc;
     uint8_t *swap = in->last;
@@ -333,6 +351,7 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
 }
 
 const struct image *inspector_classes(const struct inspector *in) { return in->classes; }
+const struct image *inspector_frame(const struct inspector *in) { return in->frame; }
 const struct fstack *inspector_features(const struct inspector *in) { return in->fs; }
 const struct forest *inspector_forest(const struct inspector *in) { return in->forest; }
 const float *inspector_confidence(const struct inspector *in) { return in->conf; }
@@ -347,6 +366,12 @@ const struct image *inspector_zone_map(const struct inspector *in)
 }
 const struct model_meta *inspector_model(const struct inspector *in) { return &in->meta; }
 int inspector_threads(const struct inspector *in) { return in->threads; }
+
+void inspector_set_verified(struct inspector *in, double hours_ago)
+{
+    in->refs.since_verified_h =
+        hours_ago < 0 ? -1 : hours_ago < JUDGE_NEVER_VERIFIED_H ? hours_ago : JUDGE_NEVER_VERIFIED_H;
+}
 
 void inspector_set_locating(struct inspector *in, int on)
 {

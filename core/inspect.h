@@ -5,6 +5,9 @@
  * for the last frame size and reused while the size stays (first touch of
  * fresh memory costs more than the work on small frames).  inspector_new
  * refuses a model that does not belong to the recipe (model_check).
+ * When the recipe names a flat field (core/flatfield.h) the inspector loads
+ * it and evens out every frame's lighting into a buffer of its own before
+ * features and quality read it; a frame of another size is an error.
  * inspector_run computes features, classifies every pixel (class and
  * confidence), locates the part and paints its zones, finds the defect
  * regions, measures image quality (against the last frame too, for a frozen
@@ -43,6 +46,9 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
 
 /* Results of the last call; owned by the inspector, valid until the next call. */
 const struct image *inspector_classes(const struct inspector *in);
+/* The frame the features saw: the flat-field corrected copy, or the
+ * caller's own frame when the recipe has no flat field. */
+const struct image *inspector_frame(const struct inspector *in);
 const struct fstack *inspector_features(const struct inspector *in);
 const struct forest *inspector_forest(const struct inspector *in);
 const float *inspector_confidence(const struct inspector *in);
@@ -56,6 +62,9 @@ const struct judge_refs *inspector_refs(const struct inspector *in);
 const struct image *inspector_zone_map(const struct inspector *in);
 const struct model_meta *inspector_model(const struct inspector *in);
 int inspector_threads(const struct inspector *in);
+/* Hours since the last passing master-part verification (from the log; -1:
+ * not checked, the default), for the verification_due gate (core/judge.h). */
+void inspector_set_verified(struct inspector *in, double hours_ago);
 /* The locating pass (on by default; see inspect.c): off classifies every
  * pixel in full, which the tests use to show the two agree. */
 void inspector_set_locating(struct inspector *in, int on);

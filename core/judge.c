@@ -35,7 +35,8 @@ static const char *rule_words(const char *rule)
              {"part_at_border", "part at the frame border: gap"},
              {"outside_field", "part outside the field by"},
              {"unsure", "classifier unsure on a share"},
-             {"calibration_expired", "calibration expired: age"}};
+             {"calibration_expired", "calibration expired: age"},
+             {"verification_due", "verification due: hours since the last passing one"}};
     for (size_t i = 0; i < sizeof w / sizeof w[0]; i++)
         if (strcmp(w[i].rule, rule) == 0)
             return w[i].words;
@@ -52,6 +53,8 @@ static const char *unit_words(const char *unit)
         return " px";
     if (!strcmp(unit, "days"))
         return " days";
+    if (!strcmp(unit, "h"))
+        return " h";
     return "";
 }
 
@@ -219,6 +222,8 @@ static void check_gates(const struct recipe *r, const struct judge_refs *refs,
     const struct recipe_gates *g = &r->gates;
     if (r->has_calibration && !(refs->calibration_age_days <= r->cal.valid_days))
         gate(j, "calibration_expired", refs->calibration_age_days, r->cal.valid_days, 0, "days");
+    if (r->verify_interval_hours > 0 && refs->since_verified_h > r->verify_interval_hours)
+        gate(j, "verification_due", refs->since_verified_h, r->verify_interval_hours, 0, "h");
     if (!p->found || q->part_fraction < g->min_part_fraction) {
         gate(j, "no_part", q->part_fraction, g->min_part_fraction, 1, "fraction");
         return; /* the other gates are measured over the part */

@@ -9,6 +9,9 @@
  * a share of the reference; part area off the expected one; part at the
  * frame border or outside the recipe's field; too many part pixels the
  * classifier is unsure of; the recipe's calibration past its validity.
+ * Before all of them, and whatever the frame: verification due, when the
+ * recipe lists master parts and the hours since the last passing
+ * verification (refs, from the log) exceed its interval.
  *
  * Otherwise each defect region is judged by the tolerance of its class in
  * its zone (recipe_tolerance_for: the zone's own, else the class's).  A
@@ -72,7 +75,12 @@ struct judge_refs {
     /* days since the recipe's calibration was made, at this frame (the
      * caller reads the clock); past its valid_days every frame is NO VERDICT */
     double calibration_age_days;
+    /* hours since the last passing master-part verification, capped at
+     * JUDGE_NEVER_VERIFIED_H (which is also what none on record reads as);
+     * -1: not checked (inspection without a log) */
+    double since_verified_h;
 };
+#define JUDGE_NEVER_VERIFIED_H 1e6
 
 struct judgement {
     int verdict;

@@ -60,6 +60,16 @@ static const char *const log_upgrade[LOG_SCHEMA_VERSION] = {
     " BEGIN SELECT RAISE(ABORT, 'evidence_purged is append-only'); END;"
     "CREATE TRIGGER purged_no_delete BEFORE DELETE ON evidence_purged"
     " BEGIN SELECT RAISE(ABORT, 'evidence_purged is append-only'); END;",
+    /* 2 -> 3: master-part verifications, a chain of their own. */
+    "CREATE TABLE verifications(vseq INTEGER PRIMARY KEY, utc TEXT NOT NULL,"
+    " station TEXT NOT NULL, recipe_id TEXT NOT NULL, recipe_version INTEGER NOT NULL,"
+    " recipe_sha256 TEXT NOT NULL, model_sha256 TEXT NOT NULL, outcome TEXT NOT NULL,"
+    " masters TEXT NOT NULL, prev_hash TEXT NOT NULL, hash TEXT NOT NULL);"
+    "CREATE INDEX verifications_recipe ON verifications(station, recipe_id, vseq);"
+    "CREATE TRIGGER verifications_no_update BEFORE UPDATE ON verifications"
+    " BEGIN SELECT RAISE(ABORT, 'verifications are append-only'); END;"
+    "CREATE TRIGGER verifications_no_delete BEFORE DELETE ON verifications"
+    " BEGIN SELECT RAISE(ABORT, 'verifications are append-only'); END;",
 };
 
 #define REC_COLS                                                                              \
@@ -67,11 +77,14 @@ static const char *const log_upgrade[LOG_SCHEMA_VERSION] = {
     " r.recipe_sha256, r.model_sha256, r.scale_id, r.verdict, r.reasons, r.regions, r.camera," \
     " r.prev_hash, r.hash"
 #define DISP_COLS "dseq, record_seq, utc, auditor, disposition, comment, prev_hash, hash"
+#define VER_COLS                                                                              \
+    "vseq, utc, station, recipe_id, recipe_version, recipe_sha256, model_sha256, outcome,"    \
+    " masters, prev_hash, hash"
 
 enum stmt_id {
     S_BEGIN, S_COMMIT, S_ROLLBACK, S_LAST, S_INS_REC, S_INS_EV, S_PURGE_CAND, S_INS_PURGE,
     S_LAST_DISP, S_REC_HASH, S_INS_DISP, S_GET, S_EV, S_LATEST_DISP, S_DISPS, S_DISPS_ALL,
-    S_EV_TOTAL, S_COUNT
+    S_EV_TOTAL, S_LAST_VER, S_INS_VER, S_VER_LATEST, S_VERS, S_COUNT
 };
 
 static const char *const stmt_sql[S_COUNT] = {
@@ -103,6 +116,11 @@ static const char *const stmt_sql[S_COUNT] = {
     [S_DISPS_ALL] = "SELECT " DISP_COLS " FROM dispositions ORDER BY dseq",
     [S_EV_TOTAL] = "SELECT COALESCE(SUM(bytes), 0) FROM evidence e"
                    " WHERE NOT EXISTS(SELECT 1 FROM evidence_purged p WHERE p.name = e.name)",
+    [S_LAST_VER] = "SELECT vseq, hash FROM verifications ORDER BY vseq DESC LIMIT 1",
+    [S_INS_VER] = "INSERT INTO verifications VALUES(?,?,?,?,?,?,?,?,?,?,?)",
+    [S_VER_LATEST] = "SELECT " VER_COLS " FROM verifications WHERE station = ? AND recipe_id = ?"
+                     " AND recipe_version = ? AND model_sha256 = ? ORDER BY vseq DESC LIMIT 1",
+    [S_VERS] = "SELECT " VER_COLS " FROM verifications ORDER BY vseq",
 };
 
 struct log_db {
@@ -964,6 +982,116 @@ int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
         return rc;
     }
     *dseq = d.dseq;
+    return ST_OK;
+}
+
+int log_verification_append(struct log_db *db, struct log_verification *v, struct err *e)
+{
+    if (db->mode != LOG_OPEN_WRITE)
+        return err_set(e, ST_EINVAL, "%s: log opened read-only", db->path);
+    int rc = step_done(db, db->st[S_BEGIN], e, "cannot lock the log");
+    if (rc)
+        return rc;
+    int64_t last = 0;
+    rc = chain_tail(db, S_LAST_VER, &last, v->prev_hash, e);
+    v->vseq = last + 1;
+    utc_now(v->utc);
+    if (!rc)
+        rc = logcanon_verification_hash(v, v->hash, e);
+    if (!rc) {
+        sqlite3_stmt *s = db->st[S_INS_VER];
+        sqlite3_bind_int64(s, 1, v->vseq);
+        bind_text(s, 2, v->utc);
+        bind_text(s, 3, v->station);
+        bind_text(s, 4, v->recipe_id);
+        sqlite3_bind_int(s, 5, v->recipe_version);
+        bind_text(s, 6, v->recipe_sha256);
+        bind_text(s, 7, v->model_sha256);
+        bind_text(s, 8, v->passed ? "passed" : "failed");
+        bind_text(s, 9, v->masters_json);
+        bind_text(s, 10, v->prev_hash);
+        bind_text(s, 11, v->hash);
+        rc = step_done(db, s, e, "cannot insert the verification");
+    }
+    if (!rc)
+        rc = step_done(db, db->st[S_COMMIT], e, "cannot commit the verification");
+    if (rc)
+        step_done(db, db->st[S_ROLLBACK], NULL, "rollback");
+    return rc;
+}
+
+/* One row of VER_COLS; masters_json only when want_masters. */
+static int read_verification(sqlite3_stmt *s, struct log_verification *v, int want_masters)
+{
+    int oom = 0;
+    v->vseq = sqlite3_column_int64(s, 0);
+    col_copy(s, 1, v->utc, sizeof v->utc);
+    col_copy(s, 2, v->station, sizeof v->station);
+    col_copy(s, 3, v->recipe_id, sizeof v->recipe_id);
+    v->recipe_version = sqlite3_column_int(s, 4);
+    col_copy(s, 5, v->recipe_sha256, sizeof v->recipe_sha256);
+    col_copy(s, 6, v->model_sha256, sizeof v->model_sha256);
+    const unsigned char *o = sqlite3_column_text(s, 7);
+    v->passed = o && !strcmp((const char *)o, "passed");
+    v->masters_json = want_masters ? col_dup(s, 8, &oom) : NULL;
+    col_copy(s, 9, v->prev_hash, sizeof v->prev_hash);
+    col_copy(s, 10, v->hash, sizeof v->hash);
+    return oom;
+}
+
+int log_verification_last(struct log_db *db, const char *station, const char *recipe_id,
+                          int recipe_version, const char *model_sha256,
+                          struct log_verification *v, int *found, struct err *e)
+{
+    sqlite3_stmt *s = db->st[S_VER_LATEST];
+    bind_text(s, 1, station);
+    bind_text(s, 2, recipe_id);
+    sqlite3_bind_int(s, 3, recipe_version);
+    bind_text(s, 4, model_sha256);
+    memset(v, 0, sizeof *v);
+    *found = sqlite3_step(s) == SQLITE_ROW;
+    if (*found)
+        read_verification(s, v, 0);
+    return step_done(db, s, e, "cannot read the last verification");
+}
+
+void log_verifications_free(struct log_verification *v, int n)
+{
+    for (int i = 0; v && i < n; i++)
+        free(v[i].masters_json);
+    free(v);
+}
+
+int log_verifications_get(struct log_db *db, struct log_verification **out, int *n,
+                          struct err *e)
+{
+    *out = NULL;
+    *n = 0;
+    sqlite3_stmt *s = db->st[S_VERS];
+    struct log_verification *v = NULL;
+    int count = 0, cap = 0, oom = 0;
+    while (!oom && sqlite3_step(s) == SQLITE_ROW) {
+        if (count == cap) {
+            cap = cap ? 2 * cap : 16;
+            struct log_verification *g = realloc(v, (size_t)cap * sizeof *v);
+            if (!g) {
+                oom = 1;
+                break;
+            }
+            v = g;
+        }
+        memset(&v[count], 0, sizeof v[count]);
+        oom = read_verification(s, &v[count++], 1);
+    }
+    int rc = step_done(db, s, e, "cannot read the verifications");
+    if (!rc && oom)
+        rc = err_set(e, ST_ENOMEM, "%s: out of memory reading verifications", db->path);
+    if (rc) {
+        log_verifications_free(v, count);
+        return rc;
+    }
+    *out = v;
+    *n = count;
     return ST_OK;
 }
 

@@ -16,6 +16,10 @@
  * is never deleted — when only such evidence is left, log_append refuses with
  * ST_ERANGE ("evidence budget full ...") and inspection must stop.
  *
+ * Master-part verifications (station verify) are a third chain of their own,
+ * in the table verifications (schema 3): one row per run of a recipe's
+ * masters, append-only like the others.
+ *
  * Reading (LOG_OPEN_READ) never blocks the writer (WAL readers see the last
  * commit).  log_iter_* walks records in sequence order under a filter.
  *
@@ -41,7 +45,7 @@
 #include "image.h"
 #include "sha256.h"
 
-#define LOG_SCHEMA_VERSION 2
+#define LOG_SCHEMA_VERSION 3
 #define LOG_ID_MAX 64              /* station, operator, serial, recipe, scale, auditor ids */
 #define LOG_UTC_MAX 32             /* "2026-12-01T22:45:44.123Z" */
 #define LOG_NAME_MAX 96            /* evidence name relative to the evidence folder */
@@ -209,6 +213,38 @@ int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
 /* The full path of an evidence name. */
 int log_evidence_path(const struct log_db *db, const char *name, char *buf, size_t len,
                       struct err *e);
+
+/* One run of a recipe's master parts.  masters_json is a JSON array of
+ * {master, expect, verdict, match}: heap on read (freed by
+ * log_verifications_free), borrowed on append. */
+struct log_verification {
+    int64_t vseq;
+    char utc[LOG_UTC_MAX];
+    char station[LOG_ID_MAX];
+    char recipe_id[LOG_ID_MAX];
+    int recipe_version;
+    char recipe_sha256[SHA256_HEX_LEN];
+    char model_sha256[SHA256_HEX_LEN];
+    int passed;                    /* every master got its verdict */
+    char *masters_json;
+    char prev_hash[SHA256_HEX_LEN];
+    char hash[SHA256_HEX_LEN];
+};
+
+/* Appends v (station, recipe_*, model_sha256, passed, masters_json set by
+ * the caller) to the verification chain; fills vseq, utc, prev_hash, hash. */
+int log_verification_append(struct log_db *db, struct log_verification *v, struct err *e);
+
+/* The latest verification at station of recipe_id version with this model:
+ * *found = 0 when there is none.  v->masters_json is left NULL. */
+int log_verification_last(struct log_db *db, const char *station, const char *recipe_id,
+                          int recipe_version, const char *model_sha256,
+                          struct log_verification *v, int *found, struct err *e);
+
+/* Every verification, oldest first; free with log_verifications_free. */
+int log_verifications_get(struct log_db *db, struct log_verification **out, int *n,
+                          struct err *e);
+void log_verifications_free(struct log_verification *v, int n);
 
 /* PRAGMA integrity_check: ST_OK when SQLite answers "ok", else ST_EFORMAT
  * with its first complaint. */

@@ -130,3 +130,21 @@ int logcanon_disposition_hash(const struct log_disposition *d, const char *recor
 {
     return hash_text(logcanon_disposition(d, record_hash), hex, e);
 }
+
+int logcanon_verification_hash(const struct log_verification *v, char hex[SHA256_HEX_LEN],
+                               struct err *e)
+{
+    struct text t = { .ok = 1 };
+    put(&t, "station-log verification 1\n", 27);
+    field_int(&t, "vseq", v->vseq);
+    field(&t, "utc", v->utc);
+    field(&t, "station", v->station);
+    field(&t, "recipe_id", v->recipe_id);
+    field_int(&t, "recipe_version", v->recipe_version);
+    field(&t, "recipe_sha256", v->recipe_sha256);
+    field(&t, "model_sha256", v->model_sha256);
+    field(&t, "outcome", v->passed ? "passed" : "failed");
+    field(&t, "masters", v->masters_json);
+    field(&t, "prev", v->prev_hash);
+    return hash_text(finish(&t), hex, e);
+}

@@ -16,7 +16,10 @@
  * disposition's form is "station-log disposition 1" then dseq record_seq
  * record_hash utc auditor disposition comment prev, the same way; binding the
  * record's hash ties an audit to exactly what was judged.  hash = SHA-256 of
- * the text, lower-case hex.  Pure functions; never prints. */
+ * the text, lower-case hex.  A verification's form is "station-log
+ * verification 1" then vseq utc station recipe_id recipe_version
+ * recipe_sha256 model_sha256 outcome (passed / failed) masters prev, the
+ * same way.  Pure functions; never prints. */
 #ifndef ST_LOGCANON_H
 #define ST_LOGCANON_H
 
@@ -32,5 +35,8 @@ char *logcanon_disposition(const struct log_disposition *d, const char *record_h
 int logcanon_record_hash(const struct log_record *r, char hex[SHA256_HEX_LEN], struct err *e);
 int logcanon_disposition_hash(const struct log_disposition *d, const char *record_hash,
                               char hex[SHA256_HEX_LEN], struct err *e);
+
+int logcanon_verification_hash(const struct log_verification *v, char hex[SHA256_HEX_LEN],
+                               struct err *e);
 
 #endif

@@ -138,6 +138,33 @@ static int walk_dispositions(struct log_db *db, struct log_verify_result *res, s
     return rc;
 }
 
+static int walk_verifications(struct log_db *db, struct log_verify_result *res, struct err *e)
+{
+    struct log_verification *v = NULL;
+    int n = 0;
+    int rc = log_verifications_get(db, &v, &n, e);
+    if (rc)
+        return rc;
+    char prev[SHA256_HEX_LEN] = LOGCANON_GENESIS, hash[SHA256_HEX_LEN];
+    int broken = !res->ok;
+    for (int i = 0; i < n && !rc; i++) {
+        res->verifications++;
+        if (broken) {
+            if (strcmp(res->chain, "verification") == 0)
+                res->after++;
+            continue;
+        }
+        rc = logcanon_verification_hash(&v[i], hash, e);
+        if (!rc)
+            check_link(res, "verification", v[i].vseq, i + 1, v[i].prev_hash, prev, v[i].hash,
+                       hash);
+        broken = !res->ok;
+        snprintf(prev, sizeof prev, "%s", v[i].hash);
+    }
+    log_verifications_free(v, n);
+    return rc;
+}
+
 int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e)
 {
     memset(res, 0, sizeof *res);
@@ -150,6 +177,8 @@ int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e)
     int rc = walk_records(db, res, e);
     if (!rc)
         rc = walk_dispositions(db, res, e);
+    if (!rc)
+        rc = walk_verifications(db, res, e);
     if (!rc && !res->ok)
         res->torn = res->after == 0 && strcmp(res->chain, "database") != 0;
     return rc;

@@ -7,7 +7,8 @@
  * core/logcanon.h); every evidence file a record names (present, same size,
  * same SHA-256) unless retention deleted it, and retention may only have
  * deleted evidence of a PASS or of a disposed reject; then the disposition
- * chain the same way, each disposition bound to its record's hash.  The
+ * chain the same way, each disposition bound to its record's hash; then the
+ * verification chain (master-part runs) the same way.  The
  * first broken link is reported: the chain, the sequence number and what
  * differs.  A break at the very last link of a chain, with every earlier
  * link intact, is told apart as torn (an interrupted last write) from damage
@@ -20,8 +21,10 @@
 struct log_verify_result {
     int ok;                        /* 1 only when everything verified */
     int64_t records, dispositions, evidence_files;   /* links checked */
+    int64_t verifications;
     int torn;                      /* the first break is at a chain's last link */
-    char chain[16];                /* "database", "record", "evidence", "disposition" */
+    char chain[16];                /* "database", "record", "evidence", "disposition",
+                                      "verification" */
     int64_t seq;                   /* the broken link's sequence number */
     int64_t after;                 /* links of that chain after the break */
     char what[600];                /* what differs, one line */

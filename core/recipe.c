@@ -11,7 +11,8 @@
 #include <ini.h>
 
 enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
-                SEC_GATES, SEC_PART, SEC_ZONE, SEC_EVIDENCE, SEC_KINDS };
+                SEC_GATES, SEC_PART, SEC_ZONE, SEC_EVIDENCE,
+                SEC_LIGHTING, SEC_VERIFICATION, SEC_MASTER, SEC_KINDS };
 
 enum val_type {
     V_FORMAT,   /* int >= 1, refused when newer than RECIPE_FORMAT */
@@ -26,6 +27,7 @@ enum val_type {
     V_MODEL,    /* char[PATH_MAX] ending in .json or .ubj, resolved against the recipe's folder */
     V_MASK,     /* char[PATH_MAX] ending in .png, resolved likewise */
     V_CALIB,    /* char[PATH_MAX] ending in .json (a calibration file), resolved likewise */
+    V_FILE,     /* char[PATH_MAX], any file name, resolved likewise */
     V_PAIR,     /* double[2], each in [lo, hi] (or (lo, hi]) */
     V_POINTS,   /* double[maxn][2] polygon vertices, count at count_off */
     V_GRADE,    /* "N x A": int N >= 1 at off, double A > 0 at count_off */
@@ -57,6 +59,8 @@ struct key_def {
 
 static const char *const orient_words[] = {"fixed", "moments", NULL};
 static const char *const shape_words[] = {"rect", "circle", "ring", "polygon", "mask", NULL};
+/* enum verdict order */
+static const char *const expect_words[] = {"pass", "fail", NULL};
 
 #define R(f) offsetof(struct recipe, f)
 #define CLS(f) offsetof(struct recipe_class, f)
@@ -167,6 +171,20 @@ static const struct key_def zone_keys[] = {
     {"mask_mm_per_px", V_REAL, ZONE(mask_mm_per_px), 0, 0, 100, 0, K_OPTIONAL | K_LO_OPEN, NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
+static const struct key_def lighting_keys[] = {
+    {"flat_field", V_FILE, R(flat_field), 0, 0, 0, 0, 0, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+static const struct key_def verification_keys[] = {
+    {"interval_hours", V_REAL, R(verify_interval_hours), 0, 0, 8784, 0, K_LO_OPEN, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+#define MASTER(f) offsetof(struct recipe_master, f)
+static const struct key_def master_keys[] = {
+    {"image", V_MASK, MASTER(image), 0, 0, 0, 0, 0, NULL},
+    {"expect", V_WORD, MASTER(expect), 0, 0, 0, 0, 0, expect_words},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
 /* Per shape (enum zone_shape order), the zone keys it needs besides shape
  * (and may take: centre always, angle for rect and mask). */
 static const struct {
@@ -199,6 +217,9 @@ static const struct sec_def {
     [SEC_GATES] = {"gates", 0, 0, gates_keys},
     [SEC_PART] = {"part", 0, 0, part_keys},
     [SEC_ZONE] = {"zone", 1, 0, zone_keys},
+    [SEC_LIGHTING] = {"lighting", 0, 0, lighting_keys},
+    [SEC_VERIFICATION] = {"verification", 0, 0, verification_keys},
+    [SEC_MASTER] = {"master", 1, 0, master_keys},
     [SEC_EVIDENCE] = {"evidence", 0, 0, evidence_keys},
 };
 
@@ -631,6 +652,7 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
     case V_MODEL:
     case V_MASK:
     case V_CALIB:
+    case V_FILE:
         break;
     }
     return store_path(p, k, base, value);
@@ -661,6 +683,8 @@ static void *section_base(struct parse *p, struct section *s)
         return &p->r.part;
     case SEC_ZONE:
         return &p->r.zones[s->index];
+    case SEC_MASTER:
+        return &p->r.masters[s->index];
     default:
         return &p->r;
     }
@@ -753,6 +777,11 @@ static int begin_section(struct parse *p, char *line)
             return fail_at(p, p->line, ST_ERANGE, "more than %d zones", ZONE_MAX);
         s->index = p->r.nzones++;
         snprintf(p->r.zones[s->index].name, sizeof p->r.zones[s->index].name, "%s", name);
+    } else if (kind == SEC_MASTER) {
+        if (p->r.nmasters == RECIPE_MAX_MASTERS)
+            return fail_at(p, p->line, ST_ERANGE, "more than %d master parts", RECIPE_MAX_MASTERS);
+        s->index = p->r.nmasters++;
+        snprintf(p->r.masters[s->index].name, sizeof p->r.masters[s->index].name, "%s", name);
     }
     s->base = section_base(p, s);
     p->nsec++;
@@ -1051,6 +1080,28 @@ static int check_scale(struct parse *p)
     return ST_OK;
 }
 
+/* Verification needs both kinds of master: a good part shows the station
+ * passes what it should, one just over tolerance that it still rejects. */
+static int check_masters(struct parse *p)
+{
+    const struct section *v = find_section(p, SEC_VERIFICATION, "", "");
+    int pass = 0, fail = 0;
+    for (int i = 0; i < p->r.nmasters; i++) {
+        pass += p->r.masters[i].expect == 0;
+        fail += p->r.masters[i].expect == 1;
+    }
+    if (!p->r.nmasters && v)
+        return fail_at(p, v->line, ST_EFORMAT, "[verification] without any [master NAME]");
+    if (p->r.nmasters && !v)
+        return fail_at(p, 0, ST_EFORMAT, "master parts without a [verification] interval_hours");
+    if (p->r.nmasters && (!pass || !fail))
+        return fail_at(p, find_section(p, SEC_MASTER, p->r.masters[0].name, "")->line,
+                       ST_EFORMAT, "master parts need at least one 'expect = pass' and one "
+                       "'expect = fail' (a defect just over tolerance); these have no %s",
+                       pass ? "fail" : "pass");
+    return ST_OK;
+}
+
 static void set_defaults(struct recipe *r)
 {
     r->feat.gabor_orientations = 4;
@@ -1074,6 +1125,7 @@ static void set_defaults(struct recipe *r)
     r->part.area_tolerance = 0.25;
     r->part.border_margin_px = 2;
     r->part.field[0] = -1;
+    r->verify_interval_hours = -1;
 }
 
 static int set_paths(struct parse *p, const char *path)
@@ -1124,7 +1176,8 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
     }
     if ((rc = check_sections(p)) != ST_OK || (rc = check_classes(p)) != ST_OK ||
         (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
-        (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK)
+        (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK ||
+        (rc = check_masters(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:

@@ -71,6 +71,13 @@ struct recipe_gates {
     double min_frame_change;   /* mean |grey change| from the last frame at or below = frozen; -1 off */
 };
 
+/* [master NAME]: a part of known verdict that `station verify` runs. */
+#define RECIPE_MAX_MASTERS 8
+struct recipe_master {
+    char name[32];
+    char image[PATH_MAX];      /* resolved against dir */
+    int expect;                /* enum verdict: VERDICT_PASS or VERDICT_FAIL */
+};
 /* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
 enum recipe_pass_evidence { RECIPE_PASS_NONE = 0, RECIPE_PASS_ALL, RECIPE_PASS_EVERY };
 
@@ -102,6 +109,12 @@ struct recipe {
      * own tolerance for class c (keys it leaves out keep the class's) */
     int ztol_set[ZONE_MAX][RECIPE_MAX_CLASSES];
     struct recipe_tolerance ztol[ZONE_MAX][RECIPE_MAX_CLASSES];
+    char flat_field[PATH_MAX]; /* [lighting] flat_field, resolved; "" = none */
+    /* [verification] interval_hours (-1: no masters) and the [master NAME]
+     * sections; when there are any, at least one expects PASS and one FAIL */
+    double verify_interval_hours;
+    int nmasters;
+    struct recipe_master masters[RECIPE_MAX_MASTERS];
     int evidence_pass;         /* enum recipe_pass_evidence, default none */
     int evidence_every;        /* N of "every N" */
 };

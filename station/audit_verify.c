@@ -56,15 +56,17 @@ int audit_verify(int argc, char **argv)
         log_close(db);
         return EXIT_ERROR;
     }
-    cli_emit(json_pack("{s:b,s:I,s:I,s:I,s:f,s:s?,s:I,s:b,s:s?}", "ok", v.ok, "records",
+    cli_emit(json_pack("{s:b,s:I,s:I,s:I,s:I,s:f,s:s?,s:I,s:b,s:s?}", "ok", v.ok, "records",
                          (json_int_t)v.records, "dispositions", (json_int_t)v.dispositions,
+                         "verifications", (json_int_t)v.verifications,
                          "evidence_files", (json_int_t)v.evidence_files, "ms", ms, "chain",
                          v.ok ? NULL : v.chain, "seq", (json_int_t)v.seq, "torn", v.torn, "what",
                          v.ok ? NULL : v.what));
     if (v.ok)
-        fprintf(stderr, "%s: verified %lld records, %lld evidence files, %lld dispositions.\n",
+        fprintf(stderr, "%s: verified %lld records, %lld evidence files, %lld dispositions, "
+                        "%lld master-part verifications.\n",
                 log_path(db), (long long)v.records, (long long)v.evidence_files,
-                (long long)v.dispositions);
+                (long long)v.dispositions, (long long)v.verifications);
     else
         fprintf(stderr, "%s: BROKEN at %s %lld: %s\n  %s\n", log_path(db), v.chain,
                 (long long)v.seq, v.what,

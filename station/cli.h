@@ -48,6 +48,8 @@ int cmd_inspect(int argc, char **argv);
 int cmd_demo(int argc, char **argv);
 int cmd_recipe(int argc, char **argv);
 int cmd_bench(int argc, char **argv);
+int cmd_calibrate(int argc, char **argv);
+int cmd_verify(int argc, char **argv);
 int cmd_audit(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
 

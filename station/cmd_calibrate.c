@@ -8,6 +8,7 @@
 #include <time.h>
 
 #include "calib/scale.h"
+#include "calibrate_flat.h"
 #include "cli.h"
 #include "core/calfile.h"
 #include "core/pngio.h"
@@ -168,6 +169,7 @@ static const struct {
     const char *what;
 } verbs[] = {
     {"scale", calibrate_scale, "pixel-to-mm scale of the part plane from a checkerboard target"},
+    {"flat", calibrate_flat, "flat field from frames of a white target (and dark frames)"},
 };
 
 static void usage(FILE *f)

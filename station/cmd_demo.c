@@ -8,6 +8,7 @@
 #include <getopt.h>
 #include <libgen.h>
 #include <limits.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -23,6 +24,7 @@
 #include "report.h"
 #include "simbench.h"
 #include "train.h"
+#include "verify.h"
 
 #define DEMO_RECIPE "ostrel-cap38.ini"
 #define CAP_DIAMETER_MM 38.0
@@ -164,8 +166,24 @@ struct batch {
     /* the recipe's scale checked on the station's class map of the first part */
     struct disc_scale scale;
     struct err scale_err;
+    /* master-part candidates: a good part the station passes, and the
+     * defective part it fails whose worst broken rule is the least over */
+    int good_part, over_part;
+    double over_ratio;
     struct logbook *lb;        /* every inspection is recorded here */
 };
+
+/* How far the truth's worst broken rule is over its limit (measured / limit). */
+static double worst_excess(const struct judgement *want)
+{
+    double worst = 0;
+    for (int k = 0; k < want->nreasons; k++) {
+        const struct reason *x = &want->reasons[k];
+        double q = x->limit > 0 ? x->measured / x->limit : x->measured + 1;
+        worst = q > worst ? q : worst;
+    }
+    return worst;
+}
 
 /* A truth region over twice its class's largest-area tolerance. */
 static int truth_is_severe(const struct recipe *r, const struct region_set *rs)
@@ -220,6 +238,12 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
         b->table[tv][got.verdict]++;
         b->severe += severe;
         b->severe_passed += severe && got.verdict == VERDICT_PASS;
+        if (b->good_part < 0 && tv == 0 && got.verdict == VERDICT_PASS)
+            b->good_part = first + i;
+        if (tv == 1 && got.verdict == VERDICT_FAIL && worst_excess(&want) < b->over_ratio) {
+            b->over_part = first + i;
+            b->over_ratio = worst_excess(&want);
+        }
         if (got.verdict != VERDICT_PASS || want.verdict != VERDICT_PASS) {
             ov = report_overlay(in, img, &got, e);
             snprintf(op, sizeof op, "%s/part-%04d-%s.png", odir, first + i,
@@ -266,6 +290,47 @@ static void print_batch(const struct recipe *r, const struct batch *b)
             b->table[1][0], b->table[0][1], b->severe_passed, b->severe);
     fprintf(stderr, "  in short: pixel accuracy %.1f%%, mean IoU %.3f (defect classes %.3f)\n",
             100 * metrics_accuracy(cm), metrics_mean_iou(cm, NULL), metrics_mean_iou(cm, def));
+}
+
+/* The demo recipe's [master good] and [master over] images, copied from the
+ * nominal test parts; a batch without both kinds leaves them out (verify
+ * then names the missing file). */
+static int save_masters(const char *out, const char *test_dir, const struct batch *b,
+                        struct err *e)
+{
+    char dir[PATH_MAX], from[PATH_MAX + 32], to[PATH_MAX + 16];
+    snprintf(dir, sizeof dir, "%s/masters", out);
+    int rc = make_dir(dir, e);
+    const int part[2] = {b->good_part, b->over_part};
+    const char *name[2] = {"good", "over"};
+    for (int k = 0; k < 2 && !rc; k++) {
+        if (part[k] < 0) {
+            fprintf(stderr, "demo: no test part fits master '%s'; station verify will not pass\n",
+                    name[k]);
+            continue;
+        }
+        snprintf(from, sizeof from, "%s/images/part-%04d.png", test_dir, part[k]);
+        snprintf(to, sizeof to, "%s/%s.png", dir, name[k]);
+        rc = copy_file(from, to, e);
+    }
+    if (!rc && b->over_part >= 0)
+        fprintf(stderr, "demo: master parts: good = part-%04d, over = part-%04d (worst rule "
+                        "%.2f x its limit)\n", b->good_part, b->over_part, b->over_ratio);
+    return rc;
+}
+
+static int verify_demo(const struct recipe *r, struct logbook *lb, struct err *e)
+{
+    struct verify_outcome v;
+    int64_t vseq = 0;
+    int rc = verify_run(r, &v, e);
+    if (!rc)
+        rc = verify_record(lb, r, &v, &vseq, e);
+    if (!rc)
+        fprintf(stderr, "demo: master parts verified: %d of %d got their verdict (log "
+                        "verification %lld)\n", v.matched, v.n, (long long)vseq);
+    verify_clear(&v);
+    return rc;
 }
 
 struct demo_opts {
@@ -316,8 +381,10 @@ static int run_demo(const struct demo_opts *o, struct err *e)
     train_print_report(&r, &rep);
 
     struct inspector *in = NULL;
-    struct batch b[2] = {{.name = "test parts, nominal conditions"},
-                         {.name = "test parts, next shift (dimmer, noisier, softer focus)"}};
+    struct batch b[2] = {{.name = "test parts, nominal conditions", .good_part = -1,
+                          .over_part = -1, .over_ratio = HUGE_VAL},
+                         {.name = "test parts, next shift (dimmer, noisier, softer focus)",
+                          .good_part = -1, .over_part = -1, .over_ratio = HUGE_VAL}};
     const char *dirs[2] = {test_dir, shift_dir};
     const int first[2] = {o->ntrain, o->ntrain + o->ntest};
     const int count[2] = {o->ntest, o->nshifted};
@@ -341,6 +408,11 @@ static int run_demo(const struct demo_opts *o, struct err *e)
             rc = inspect_batch(in, dirs[k], first[k], count[k], &b[k], e);
     }
     inspector_free(in);
+    if (!rc && count[0])
+        rc = save_masters(o->out, test_dir, &b[0], e);
+    /* the shift starts as a real one would: the masters verified, in the log */
+    if (!rc && b[0].good_part >= 0 && b[0].over_part >= 0)
+        rc = verify_demo(&r, &lb, e);
     logbook_close(&lb);
     if (!rc) {
         for (int k = 0; k < 2; k++)

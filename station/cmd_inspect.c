@@ -11,6 +11,7 @@
 #include "core/pngio.h"
 #include "logbook.h"
 #include "report.h"
+#include "verify.h"
 
 static void usage(FILE *f)
 {
@@ -104,6 +105,18 @@ int cmd_inspect(int argc, char **argv)
         inspector_free(in);
         return EXIT_ERROR;
     }
+    double since = -1;
+    if (r.nmasters && verify_hours_since(&lb, &r, &since, &e)) {
+        cli_say("%s", e.msg);
+        inspector_free(in);
+        logbook_close(&lb);
+        return EXIT_ERROR;
+    }
+    inspector_set_verified(in, since);
+    if (r.nmasters && since > r.verify_interval_hours)
+        cli_say("verification due: no passing verification of %s in the last %g h; run station "
+                "verify %s first",
+                r.product, r.verify_interval_hours, argv[optind]);
     int counts[3] = {0}, stopped = 0;
     for (int i = optind + 1; i < argc && !stopped; i++) {
         const char *path = argv[i];

@@ -14,7 +14,8 @@ static const struct {
     {"evaluate", cmd_evaluate, "measure a trained recipe against a labelled dataset"},
     {"inspect", cmd_inspect, "judge image files against a recipe (PASS / FAIL / NO_VERDICT)"},
     {"recipe", cmd_recipe, "check a recipe file"},
-    {"calibrate", cmd_calibrate, "measure the bench: pixel scale from a checkerboard target"},
+    {"calibrate", cmd_calibrate, "measure the bench: pixel scale from a checkerboard target, flat field"},
+    {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
     {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify"},
 };

@@ -10,6 +10,7 @@
 #include "core/booster.h"
 #include "core/dataset.h"
 #include "core/features.h"
+#include "core/flatfield.h"
 #include "core/inspect.h"
 #include "core/model.h"
 #include "core/pngio.h"
@@ -35,8 +36,12 @@ static int sample_dataset(const struct recipe *r, const struct dataset *ds, stru
 {
     struct feat_ctx *ctx = NULL;
     struct fstack *fs = NULL;
-    struct image *img = NULL, *lab = NULL;
+    struct image *img = NULL, *lab = NULL, *evened = NULL;
+    struct flat_field *flat = NULL;
     int rc = ST_OK, cw = 0, ch = 0;
+    /* trained on frames as inspection will see them: lighting evened out */
+    if (r->flat_field[0] && (rc = flatfield_load(r->flat_field, &flat, e)))
+        return rc;
     uint64_t rng = (uint64_t)r->train.seed * 0x9e3779b97f4a7c15ull + 1;
     struct progress p;
     progress_init(&p);
@@ -58,16 +63,24 @@ static int sample_dataset(const struct recipe *r, const struct dataset *ds, stru
         if (!ctx || img->w != cw || img->h != ch) {
             feat_ctx_free(ctx);
             fstack_free(fs);
+            image_free(evened);
             fs = NULL;
+            evened = NULL;
             if (!(ctx = feat_ctx_new(&r->feat, img->w, img->h, e)) ||
-                !(fs = fstack_new(img->w, img->h, feat_count(&r->feat), e))) {
+                !(fs = fstack_new(img->w, img->h, feat_count(&r->feat), e)) ||
+                (flat && !(evened = image_new(img->w, img->h, 3, e)))) {
                 rc = e->code;
                 goto fail;
             }
             cw = img->w;
             ch = img->h;
         }
-        if ((rc = feat_compute(ctx, img, fs, e)) ||
+        struct err fe;
+        if (flat && (rc = flatfield_apply(flat, img, evened, &fe))) {
+            err_set(e, rc, "%s: %s (%s)", ip, fe.msg, r->flat_field);
+            goto fail;
+        }
+        if ((rc = feat_compute(ctx, flat ? evened : img, fs, e)) ||
             (rc = trainset_add_image(all, fs, lab, r->samples_per_class, &rng, e))) {
             if (rc != ST_OK && strncmp(e->msg, ip, strlen(ip)) != 0) {
                 char m[sizeof e->msg];
@@ -87,6 +100,8 @@ static int sample_dataset(const struct recipe *r, const struct dataset *ds, stru
 fail:
     image_free(img);
     image_free(lab);
+    image_free(evened);
+    flatfield_free(flat);
     feat_ctx_free(ctx);
     fstack_free(fs);
     return rc;
@@ -129,7 +144,7 @@ static int measure_references(const struct recipe *r, const struct dataset *ds,
         if (!(grey = malloc((size_t)img->w * img->h)))
             rc = err_set(e, ST_ENOMEM, "out of memory measuring %s", ip);
         if (!rc)
-            rc = judge_measure_quality(r, img, inspector_classes(in), inspector_confidence(in),
+            rc = judge_measure_quality(r, inspector_frame(in), inspector_classes(in), inspector_confidence(in),
                                        grey, NULL, &q, e);
         if (!rc)
             rc = part_locate(inspector_classes(in), r->mm_per_px_x, r->mm_per_px_y,

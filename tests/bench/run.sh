@@ -33,6 +33,8 @@ echo
 "$BUILD/tests/bench/bench_overlay"
 echo "bench: regions alone on simulated class maps" >&2
 "$BUILD/tests/bench/regions_bench" "$REPEAT"
+echo "bench: flat-field correction" >&2
+"$BUILD/tests/bench/flat_bench" "$REPEAT"
 # The inspection log: records per second with reject evidence, verify time.
 echo "bench: inspection log" >&2
 "$BUILD/tests/bench/log_bench" "$BUILD/bench-log" "${LOG_RECORDS:-40}" "${LOG_VERIFY_RECORDS:-100000}"

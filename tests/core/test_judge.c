@@ -68,7 +68,7 @@ static const struct quality good_q = {.level = 150, .part_fraction = 0.4, .sharp
 static const struct part_pose good_pose = {.found = 1, .pixels = 4000, .area_mm2 = 40,
                                            .cx = 50, .cy = 50, .x0 = 10, .y0 = 10, .x1 = 90,
                                            .y1 = 90, .border_gap = 10};
-static const struct judge_refs refs = {.sharpness = 100, .part_area_mm2 = 40};
+static const struct judge_refs refs = {.sharpness = 100, .part_area_mm2 = 40, .since_verified_h = -1};
 
 static struct region reg(int id, int cls, int pixels)
 {
@@ -99,6 +99,46 @@ static void test_clean_part_passes(void **state)
     judge_with(&r, &good_q, &good_pose, NULL, 0, &j);
     assert_int_equal(j.verdict, VERDICT_PASS);
     assert_int_equal(j.nreasons, 0);
+}
+
+/* The verification gate: a good frame is refused once the last passing
+ * master-part verification is older than the recipe's interval (the rule
+ * of issue 6; the interval is the recipe's), whatever the frame shows. */
+static void test_verification_due(void **state)
+{
+    (void)state;
+    struct recipe r;
+    load_recipe(&r, "[verification]\ninterval_hours = 8\n"
+                    "[master a]\nimage = a.png\nexpect = pass\n"
+                    "[master b]\nimage = b.png\nexpect = fail\n");
+    struct region_set rs = {0};
+    struct judgement j;
+    struct judge_refs at = refs;
+    const double ages[] = {-1, 0, 7.9, 8};
+    for (size_t i = 0; i < sizeof ages / sizeof ages[0]; i++) {
+        at.since_verified_h = ages[i];
+        judge_part(&r, &at, &good_q, &good_pose, &rs, &j);
+        assert_int_equal(j.verdict, VERDICT_PASS);
+    }
+    at.since_verified_h = 8.01;
+    judge_part(&r, &at, &good_q, &good_pose, &rs, &j);
+    assert_int_equal(j.verdict, VERDICT_NONE);
+    assert_int_equal(j.nreasons, 1);
+    assert_string_equal(j.reasons[0].rule, "verification_due");
+    assert_true(j.reasons[0].measured == 8.01 && j.reasons[0].limit == 8);
+    char text[160];
+    judge_describe_reason(&r, &j.reasons[0], text, sizeof text);
+    assert_string_equal(text, "verification due: hours since the last passing one 8.01 h > 8 h");
+    /* refused even with no part in view: the gate is about the station */
+    struct part_pose none = {0};
+    at.since_verified_h = JUDGE_NEVER_VERIFIED_H;
+    judge_part(&r, &at, &good_q, &none, &rs, &j);
+    assert_int_equal(j.verdict, VERDICT_NONE);
+    assert_string_equal(j.reasons[0].rule, "verification_due");
+    /* a recipe without masters has no interval */
+    load_recipe(&r, "");
+    judge_part(&r, &at, &good_q, &good_pose, &rs, &j);
+    assert_int_equal(j.verdict, VERDICT_PASS);
 }
 
 static void test_small_regions_do_not_count(void **state)
@@ -379,6 +419,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_clean_part_passes),
+        cmocka_unit_test(test_verification_due),
         cmocka_unit_test(test_small_regions_do_not_count),
         cmocka_unit_test(test_every_broken_rule_is_listed),
         cmocka_unit_test(test_zone_tolerances),

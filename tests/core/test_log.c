@@ -272,13 +272,14 @@ static void test_schema_versions(void **state)
     /* a future schema is refused, for reading and writing */
     assert_int_equal(sql(p, "PRAGMA user_version = 99", NULL, 0), SQLITE_OK);
     assert_int_equal(log_open(p, LOG_OPEN_READ, NULL, &db, &e), ST_EFORMAT);
-    assert_non_null(strstr(e.msg, "log schema 99 is newer than this program's 2"));
+    assert_non_null(strstr(e.msg, "log schema 99 is newer than this program's 3"));
     assert_int_equal(log_open(p, LOG_OPEN_WRITE, NULL, &db, &e), ST_EFORMAT);
     assert_null(db);
     /* schema 1 (before the retention table): reading asks for an upgrade,
      * writing upgrades step by step and keeps the records */
     assert_int_equal(sql(p, "DROP TRIGGER purged_no_update; DROP TRIGGER purged_no_delete;"
-                            "DROP TABLE evidence_purged; PRAGMA user_version = 1",
+                            "DROP TABLE evidence_purged; DROP TABLE verifications;"
+                            "PRAGMA user_version = 1",
                          NULL, 0),
                      SQLITE_OK);
     assert_int_equal(log_open(p, LOG_OPEN_READ, NULL, &db, &e), ST_EFORMAT);
@@ -290,6 +291,7 @@ static void test_schema_versions(void **state)
     assert_true(v.ok);
     log_close(db);
     assert_int_equal(sql(p, "SELECT count(*) FROM evidence_purged", NULL, 0), SQLITE_OK);
+    assert_int_equal(sql(p, "SELECT count(*) FROM verifications", NULL, 0), SQLITE_OK);
     /* not a station log */
     const char *q = db_path("other.db");
     assert_int_equal(sql(q, "CREATE TABLE t(x)", NULL, 0), SQLITE_OK);
@@ -480,6 +482,63 @@ static void test_tamper(void **state)
     image_free(f);
 }
 
+/* The verification chain: the latest per station, recipe and model; the
+ * chain checked like the others (an edited outcome is caught). */
+static void test_verifications(void **state)
+{
+    (void)state;
+    const char *p = db_path("verify.db");
+    struct log_db *db = open_w(p, 0, NULL);
+    struct err e;
+    struct log_verification v, got;
+    int found = 1;
+    assert_int_equal(log_verification_last(db, "st-1", "cap", 2, "m1", &got, &found, &e), ST_OK);
+    assert_false(found);
+    const int passed[3] = {1, 0, 1};
+    const char *model[3] = {"m1", "m1", "m2"};
+    for (int i = 0; i < 3; i++) {
+        memset(&v, 0, sizeof v);
+        snprintf(v.station, sizeof v.station, "st-1");
+        snprintf(v.recipe_id, sizeof v.recipe_id, "cap");
+        v.recipe_version = 2;
+        snprintf(v.model_sha256, sizeof v.model_sha256, "%s", model[i]);
+        v.passed = passed[i];
+        v.masters_json = (char *)"[{\"master\":\"good\",\"match\":true}]";
+        assert_int_equal(log_verification_append(db, &v, &e), ST_OK);
+        assert_int_equal(v.vseq, i + 1);
+    }
+    assert_int_equal(log_verification_last(db, "st-1", "cap", 2, "m1", &got, &found, &e), ST_OK);
+    assert_true(found);
+    assert_int_equal(got.vseq, 2);   /* the failed one after the pass */
+    assert_false(got.passed);
+    assert_int_equal(log_verification_last(db, "st-1", "cap", 2, "m2", &got, &found, &e), ST_OK);
+    assert_true(found && got.passed && got.vseq == 3);
+    assert_int_equal(log_verification_last(db, "st-2", "cap", 2, "m2", &got, &found, &e), ST_OK);
+    assert_false(found);
+    struct log_verification *all = NULL;
+    int n = 0;
+    assert_int_equal(log_verifications_get(db, &all, &n, &e), ST_OK);
+    assert_int_equal(n, 3);
+    assert_string_equal(all[2].prev_hash, all[1].hash);
+    assert_non_null(strstr(all[0].masters_json, "good"));
+    log_verifications_free(all, n);
+    struct log_verify_result r;
+    assert_int_equal(log_verify(db, &r, &e), ST_OK);
+    assert_true(r.ok);
+    assert_int_equal(r.verifications, 3);
+    log_close(db);
+    char msg[128];
+    assert_int_equal(sql(p, "UPDATE verifications SET outcome = 'passed' WHERE vseq = 2", msg,
+                         sizeof msg),
+                     SQLITE_CONSTRAINT);
+    assert_non_null(strstr(msg, "append-only"));
+    assert_int_equal(sql(p, "DROP TRIGGER verifications_no_update;"
+                            "UPDATE verifications SET outcome = 'passed' WHERE vseq = 2",
+                         NULL, 0),
+                     SQLITE_OK);
+    verify_expect(p, "verification", 2, 0);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -490,6 +549,7 @@ int main(void)
         cmocka_unit_test(test_failing_writes),
         cmocka_unit_test(test_evidence_budget),
         cmocka_unit_test(test_tamper),
+        cmocka_unit_test(test_verifications),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

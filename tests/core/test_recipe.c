@@ -347,6 +347,52 @@ static void test_absolute_model_and_no_gabor(void **state)
     assert_int_equal(r.feat.ngabor_freqs, 0);
 }
 
+/* [lighting], [verification] and [master NAME] (recipes/README.md): paths
+ * resolve against the recipe's folder; masters need both verdicts. */
+#define MASTERS                                                                                \
+    "[verification]\ninterval_hours = 8\n"                                                     \
+    "[master good-1]\nimage = masters/good.png\nexpect = pass\n"                               \
+    "[master over]\nimage = /srv/over.png\nexpect = fail\n"
+
+static void test_lighting_and_masters(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(GOOD "[lighting]\nflat_field = bench.flat\n" MASTERS, &r);
+    char want[PATH_MAX];
+    snprintf(want, sizeof want, "%s/bench.flat", dir);
+    assert_string_equal(r.flat_field, want);
+    assert_true(r.verify_interval_hours == 8);
+    assert_int_equal(r.nmasters, 2);
+    snprintf(want, sizeof want, "%s/masters/good.png", dir);
+    assert_string_equal(r.masters[0].name, "good-1");
+    assert_string_equal(r.masters[0].image, want);
+    assert_int_equal(r.masters[0].expect, 0);   /* VERDICT_PASS */
+    assert_string_equal(r.masters[1].image, "/srv/over.png");
+    assert_int_equal(r.masters[1].expect, 1);   /* VERDICT_FAIL */
+    load_ok(GOOD, &r);
+    assert_string_equal(r.flat_field, "");
+    assert_int_equal(r.nmasters, 0);
+    assert_true(r.verify_interval_hours == -1);
+
+    static const char only_pass[] = GOOD "[verification]\ninterval_hours = 8\n"
+                                         "[master a]\nimage = a.png\nexpect = pass\n";
+    load_bad(only_pass, ST_EFORMAT, line_of(only_pass, "[master a]", 1), "no fail");
+    static const char no_interval[] = GOOD "[master a]\nimage = a.png\nexpect = pass\n"
+                                           "[master b]\nimage = b.png\nexpect = fail\n";
+    load_bad(no_interval, ST_EFORMAT, 0, "without a [verification] interval_hours");
+    static const char lonely[] = GOOD "[verification]\ninterval_hours = 8\n";
+    load_bad(lonely, ST_EFORMAT, line_of(lonely, "[verification]", 1), "without any [master");
+    static const char word[] = GOOD MASTERS "[master c]\nimage = c.png\nexpect = PASS\n";
+    load_bad(word, ST_EFORMAT, line_of(word, "expect = PASS", 1), "PASS");
+    static const char zero[] = GOOD "[verification]\ninterval_hours = 0\n";
+    load_bad(zero, ST_ERANGE, line_of(zero, "interval_hours", 1), "interval_hours");
+    static const char jpg[] = GOOD MASTERS "[master d]\nimage = d.jpg\nexpect = fail\n";
+    load_bad(jpg, ST_EFORMAT, line_of(jpg, "d.jpg", 1), ".png");
+    static const char nokey[] = GOOD "[lighting]\n";
+    load_bad(nokey, ST_EFORMAT, line_of(nokey, "[lighting]", 1), "lacks key 'flat_field'");
+}
+
 /* Without multi-line values an indented line is a key of its own. */
 static void test_indented_line_is_a_key(void **state)
 {
@@ -359,8 +405,8 @@ static void test_indented_line_is_a_key(void **state)
 static void test_unknown_section(void **state)
 {
     (void)state;
-    const char *text = GOOD "[lighting]\nlux = 5\n";
-    load_bad(text, ST_EFORMAT, line_of(text, "[lighting]", 1), "unknown section [lighting]");
+    const char *text = GOOD "[lamp]\nlux = 5\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "[lamp]", 1), "unknown section [lamp]");
 }
 
 static void test_unknown_key(void **state)
@@ -582,6 +628,7 @@ int main(void)
         cmocka_unit_test(test_evidence_section),
         cmocka_unit_test(test_minimal_defaults),
         cmocka_unit_test(test_absolute_model_and_no_gabor),
+        cmocka_unit_test(test_lighting_and_masters),
         cmocka_unit_test(test_indented_line_is_a_key),
         cmocka_unit_test(test_unknown_section),
         cmocka_unit_test(test_unknown_key),

@@ -18,5 +18,9 @@ fresh() {
     mkdir -p "$out"
     cp "$fixture"/ostrel-cap38.* "$out"/
     recipe="$out/ostrel-cap38.ini"
+    # the log tests are about the log, not verification: the copy lists no
+    # master parts, so no verification_due gate (the demo recipe's masters
+    # and [verification] come last in the file)
+    sed -i '/^\[verification\]/,$d' "$recipe"
     images="$fixture/test/images"
 }
