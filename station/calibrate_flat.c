@@ -116,9 +116,7 @@ int calibrate_flat(int argc, char **argv)
                               "nonuniformity_before", f->nonuniformity_before,
                               "nonuniformity_after", f->nonuniformity_after, "ms",
                               cli_now_ms() - t0);
-        json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(6));
-        fputc('\n', stdout);
-        json_decref(o);
+        cli_emit(o);
         fprintf(stderr, "%s: %dx%d flat field from %d white and %d dark frames; "
                         "non-uniformity %.1f%% before, %.1f%% after\n",
                 out, f->w, f->h, f->white_frames, f->dark_frames,

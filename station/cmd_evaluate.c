@@ -76,10 +76,7 @@ int cmd_evaluate(int argc, char **argv)
             fprintf(stderr, "sheets of the worst images (frame | truth | prediction): %s\n",
                     sheet_dir);
         if (json) {
-            json_t *o = evaluate_json(&r, &res);
-            json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(6));
-            fputc('\n', stdout);
-            json_decref(o);
+            cli_emit(evaluate_json(&r, &res));
         }
     }
     evaluate_clear(&res);

@@ -23,13 +23,6 @@ static void usage(FILE *f)
             LOGBOOK_DEFAULT_STATION, CLI_CAUTION);
 }
 
-static void emit(json_t *o)
-{
-    json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(6));
-    fputc('\n', stdout);
-    fflush(stdout);
-}
-
 int cmd_verify(int argc, char **argv)
 {
     if (cli_wants_help(argc, argv)) {
@@ -78,8 +71,7 @@ int cmd_verify(int argc, char **argv)
                               m->image, "expect", judge_verdict_name(m->expect), "verdict",
                               judge_verdict_name(v.m[i].verdict), "match", v.m[i].match,
                               "inspection", v.m[i].report);
-        emit(o);
-        json_decref(o);
+        cli_emit(o);
         fprintf(stderr, "master %s: %s, expected %s — %s\n", m->name,
                 judge_verdict_name(v.m[i].verdict), judge_verdict_name(m->expect),
                 v.m[i].match ? "matches" : "DOES NOT MATCH");
@@ -98,8 +90,7 @@ int cmd_verify(int argc, char **argv)
                           passed ? "passed" : "failed", "recipe", r.product, "recipe_version",
                           r.version, "masters", v.n, "matched", v.matched, "log_vseq",
                           (json_int_t)vseq);
-    emit(s);
-    json_decref(s);
+    cli_emit(s);
     fprintf(stderr, "verification %s: %d of %d masters got their verdict.%s  %s\n",
             passed ? "passed" : "FAILED", v.matched, v.n,
             passed ? "" : " Do not inspect until the station is put right and verified again.",
