@@ -17,14 +17,14 @@ static const struct {
     {"calibrate", cmd_calibrate, "measure the bench: pixel scale from a checkerboard target, flat field"},
     {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
-    {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify"},
+    {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify, stats, report, export, view"},
 };
 
 static void usage(FILE *f)
 {
     fprintf(f, "usage: station COMMAND [OPTIONS]   (station COMMAND --help for details)\n\n");
     for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
-        fprintf(f, "  %-9s %s\n", commands[i].name, commands[i].what);
+        fprintf(f, "  %-10s %s\n", commands[i].name, commands[i].what);
     fprintf(f, "\nExit status of inspect: 0 all PASS, 1 any FAIL, 2 any NO_VERDICT, 3 error, "
                "4 usage.\n%s\n",
             CLI_CAUTION);
