@@ -149,6 +149,8 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
         !(in->classes = image_new(w, h, 1, e)) ||
         (in->flat && !(in->evened = image_new(w, h, 3, e))))
         return e ? e->code : ST_ENOMEM;
+    in->grey = malloc((size_t)w * h);
+    in->last = malloc((size_t)w * h);
     in->gw = (w + ROI_STEP - 1) / ROI_STEP;
     in->gh = (h + ROI_STEP - 1) / ROI_STEP;
     size_t cells = (size_t)in->gw * in->gh;
@@ -157,7 +159,8 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->need = malloc(cells);
     in->cell_conf = malloc(cells * sizeof *in->cell_conf);
     in->grid_rows = malloc((size_t)workers(in) * in->gw * in->fs->n * sizeof *in->grid_rows);
-    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows)
+    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows ||
+        !in->grey || !in->last)
         return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
     in->w = w;
     in->h = h;
@@ -298,21 +301,10 @@ int inspector_classify(struct inspector *in, const struct image *img, struct ins
     return rc;
 }
 
-int inspector_run(struct inspector *in, const struct image *img, struct judgement *j,
-                  struct inspect_times *t, struct err *e)
+int inspector_measure(struct inspector *in, const struct image *img, struct inspect_times *t,
+                      struct err *e)
 {
     const struct recipe *r = &in->r;
-    /* without references the gates cannot tell a good frame from a bad one */
-    if (!(in->refs.sharpness > 0))
-        return err_set(e, ST_EINVAL,
-                       "%s: no sharpness reference: set [gates] sharpness_reference, or train "
-                       "again (%s predates references)",
-                       r->path, r->model_path);
-    if (r->part.area_tolerance >= 0 && !(in->refs.part_area_mm2 > 0))
-        return err_set(e, ST_EINVAL,
-                       "%s: no expected part area: set [part] area_mm2, or train again (%s "
-                       "predates references)",
-                       r->path, r->model_path);
     if (r->has_calibration && (img->w != r->cal.width || img->h != r->cal.height))
         return err_set(e, ST_EINVAL, "frame is %dx%d but the calibration %s is for %dx%d",
                        img->w, img->h, r->calibration_path, r->cal.width, r->cal.height);
@@ -331,9 +323,6 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
     if ((rc = regions_find(&in->rs, in->classes, in->conf, &ro, e)))
         return rc;
     double t1 = now_ms();
-    if (!in->grey && (!(in->grey = malloc((size_t)img->w * img->h)) ||
-                      !(in->last = malloc((size_t)img->w * img->h))))
-        return err_set(e, ST_ENOMEM, "out of memory for %dx%d grey frames", img->w, img->h);
     if ((rc = judge_measure_quality(r, in->frame, in->classes, in->conf, in->grey,
                                     in->has_last ? in->last : NULL, &in->q, e)))
         return rc;
@@ -341,13 +330,41 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
     in->last = in->grey;
     in->grey = swap;
     in->has_last = 1;
-    judge_part(r, &in->refs, &in->q, &in->pose, &in->rs, j);
-    double t2 = now_ms();
     if (t) {
         t->regions_ms = t1 - t0;
-        t->verdict_ms = t2 - t1;
+        t->verdict_ms = now_ms() - t1;
     }
     return ST_OK;
+}
+
+int inspector_run(struct inspector *in, const struct image *img, struct judgement *j,
+                  struct inspect_times *t, struct err *e)
+{
+    const struct recipe *r = &in->r;
+    /* without references the gates cannot tell a good frame from a bad one */
+    if (!(in->refs.sharpness > 0))
+        return err_set(e, ST_EINVAL,
+                       "%s: no sharpness reference: set [gates] sharpness_reference, or train "
+                       "again (%s predates references)",
+                       r->path, r->model_path);
+    if (r->part.area_tolerance >= 0 && !(in->refs.part_area_mm2 > 0))
+        return err_set(e, ST_EINVAL,
+                       "%s: no expected part area: set [part] area_mm2, or train again (%s "
+                       "predates references)",
+                       r->path, r->model_path);
+    int rc = inspector_measure(in, img, t, e);
+    if (rc)
+        return rc;
+    double t0 = now_ms();
+    judge_part(r, &in->refs, &in->q, &in->pose, &in->rs, j);
+    if (t)
+        t->verdict_ms += now_ms() - t0;
+    return ST_OK;
+}
+
+void inspector_forget_last_frame(struct inspector *in)
+{
+    in->has_last = 0;
 }
 
 const struct image *inspector_classes(const struct inspector *in) { return in->classes; }

@@ -40,7 +40,11 @@ void inspector_free(struct inspector *in);
 /* Features and per-pixel classes only (what evaluation needs). */
 int inspector_classify(struct inspector *in, const struct image *img, struct inspect_times *t,
                        struct err *e);
-/* Classify, then regions, quality and verdict. */
+/* Classify, locate the part, paint its zones, find the regions and
+ * measure quality (what training measures its references with); no verdict. */
+int inspector_measure(struct inspector *in, const struct image *img, struct inspect_times *t,
+                      struct err *e);
+/* inspector_measure, then the verdict. */
 int inspector_run(struct inspector *in, const struct image *img, struct judgement *j,
                   struct inspect_times *t, struct err *e);
 
@@ -70,5 +74,8 @@ void inspector_set_verified(struct inspector *in, double hours_ago);
 void inspector_set_locating(struct inspector *in, int on);
 /* Classifier threads (1 = inline); features threads follow recipe.feat.threads. */
 void inspector_set_threads(struct inspector *in, int threads);
+/* The next frame is not compared with this one (the frozen-camera gate):
+ * for frames that are not a camera's consecutive ones. */
+void inspector_forget_last_frame(struct inspector *in);
 
 #endif

@@ -195,7 +195,7 @@ static void check_part(const struct recipe *r, const struct judge_refs *refs,
                        const struct part_pose *p, struct judgement *j)
 {
     const struct recipe_part *rp = &r->part;
-    double want = rp->area_mm2 > 0 ? rp->area_mm2 : refs->part_area_mm2;
+    double want = refs->part_area_mm2;
     if (rp->area_tolerance >= 0 && want > 0) {
         if (p->area_mm2 < want * (1 - rp->area_tolerance))
             gate(j, "part_size", p->area_mm2, want * (1 - rp->area_tolerance), 1, "mm2");
@@ -244,7 +244,7 @@ static void check_gates(const struct recipe *r, const struct judge_refs *refs,
         gate(j, "saturated", q->saturated, g->max_saturated, 0, "fraction");
     if (q->black > g->max_black)
         gate(j, "black", q->black, g->max_black, 0, "fraction");
-    double ref = g->sharpness_reference > 0 ? g->sharpness_reference : refs->sharpness;
+    double ref = refs->sharpness;
     /* no reference at all is refused when the inspector starts; here it
      * still must not let a frame through unchecked */
     if (!(ref > 0) || q->sharpness < g->min_sharpness_ratio * ref)
@@ -261,15 +261,10 @@ struct tally {
     double total[RECIPE_MAX_CLASSES][ZONE_MAX + 1];
 };
 
-static int tolerance_zone(const struct recipe *r, int cls, int zone)
-{
-    return zone >= 0 && zone < r->nzones && r->ztol_set[zone][cls] ? zone : -1;
-}
-
 static void judge_region(const struct recipe *r, const struct region *g, struct tally *t,
                          struct judgement *j)
 {
-    int z = tolerance_zone(r, g->cls, g->zone);
+    int z = recipe_tolerance_zone(r, g->cls, g->zone);
     const struct recipe_tolerance *tol = recipe_tolerance_for(r, g->cls, z);
     t->count[g->cls][z + 1]++;
     t->total[g->cls][z + 1] += g->area_mm2;
@@ -297,7 +292,7 @@ void judge_tolerances(const struct recipe *r, const struct region_set *rs, struc
         if (!r->cls[c].is_defect)
             continue;
         for (int z = -1; z < r->nzones; z++) {
-            if (z >= 0 && !r->ztol_set[z][c])
+            if (z >= 0 && recipe_tolerance_zone(r, c, z) < 0)
                 continue;
             const struct recipe_tolerance *tol = recipe_tolerance_for(r, c, z);
             int n = t.count[c][z + 1];

@@ -67,8 +67,9 @@ struct quality {
     double frame_change;   /* mean |grey - last frame's grey| over the frame; -1: no last frame */
 };
 
-/* What a good frame of this product looks like: from the recipe, else from
- * the training images (model metadata). */
+/* What a good frame of this product looks like, resolved by the caller
+ * (the inspector: the recipe's value, else the training images' in the model
+ * metadata), and the state of the station's calibration and verification. */
 struct judge_refs {
     double sharpness;
     double part_area_mm2;

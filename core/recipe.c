@@ -1195,9 +1195,13 @@ int recipe_find_class(const struct recipe *r, const char *name)
     return -1;
 }
 
+int recipe_tolerance_zone(const struct recipe *r, int cls, int zone)
+{
+    return zone >= 0 && zone < r->nzones && r->ztol_set[zone][cls] ? zone : -1;
+}
+
 const struct recipe_tolerance *recipe_tolerance_for(const struct recipe *r, int cls, int zone)
 {
-    if (zone >= 0 && zone < r->nzones && r->ztol_set[zone][cls])
-        return &r->ztol[zone][cls];
-    return &r->tol[cls];
+    int z = recipe_tolerance_zone(r, cls, zone);
+    return z >= 0 ? &r->ztol[z][cls] : &r->tol[cls];
 }

@@ -127,5 +127,7 @@ int recipe_find_class(const struct recipe *r, const char *name);
 /* The tolerance judging class cls in zone (-1: outside every zone): the
  * zone's own where it has one, else the class's. */
 const struct recipe_tolerance *recipe_tolerance_for(const struct recipe *r, int cls, int zone);
+/* The zone whose own tolerance judges class cls in zone, or -1: the class's. */
+int recipe_tolerance_zone(const struct recipe *r, int cls, int zone);
 
 #endif

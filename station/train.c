@@ -127,35 +127,21 @@ static int measure_references(const struct recipe *r, const struct dataset *ds,
     struct inspector *in = NULL;
     if ((rc = inspector_new(r, &in, e)))
         return rc;
-    uint8_t *grey = NULL;
     for (int i = 0; i < ds->n && n < MOST && !rc; i++) {
         char ip[PATH_MAX];
         struct image *img = NULL;
-        struct quality q;
-        struct part_pose pose;
         if (!ds->labelled[i])
             continue;
-        if ((rc = dataset_image_path(ds, i, ip, sizeof ip, e)) ||
-            (rc = pngio_load_rgb(ip, &img, e)) || (rc = inspector_classify(in, img, NULL, e))) {
-            image_free(img);
-            break;
-        }
-        free(grey);
-        if (!(grey = malloc((size_t)img->w * img->h)))
-            rc = err_set(e, ST_ENOMEM, "out of memory measuring %s", ip);
-        if (!rc)
-            rc = judge_measure_quality(r, inspector_frame(in), inspector_classes(in), inspector_confidence(in),
-                                       grey, NULL, &q, e);
-        if (!rc)
-            rc = part_locate(inspector_classes(in), r->mm_per_px_x, r->mm_per_px_y,
-                             (enum part_orient)r->part.orient, &pose, e);
-        if (!rc && pose.found) {
-            sharp[n] = q.sharpness;
-            area[n++] = pose.area_mm2;
+        /* training frames are separate parts: none is a frozen repeat */
+        inspector_forget_last_frame(in);
+        if (!(rc = dataset_image_path(ds, i, ip, sizeof ip, e)) &&
+            !(rc = pngio_load_rgb(ip, &img, e)) && !(rc = inspector_measure(in, img, NULL, e)) &&
+            inspector_pose(in)->found) {
+            sharp[n] = inspector_quality(in)->sharpness;
+            area[n++] = inspector_pose(in)->area_mm2;
         }
         image_free(img);
     }
-    free(grey);
     inspector_free(in);
     if (rc)
         return rc;
