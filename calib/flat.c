@@ -5,6 +5,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "core/calfile.h"
 #include "core/filters.h"
 
 #define MARGIN 0.05
@@ -113,14 +114,6 @@ static int check_frames(struct image *const *img, const char *const *names, int 
     return ST_OK;
 }
 
-static void stamp(char *out, size_t n)
-{
-    time_t t = time(NULL);
-    struct tm tm;
-    gmtime_r(&t, &tm);
-    strftime(out, n, "%Y-%m-%dT%H:%M:%SZ", &tm);
-}
-
 /* The mean white frame corrected by f, rounded to 8 bits as inspection sees it. */
 static int corrected_spread(const struct flat_field *f, float *const w3[3], double sigma,
                             double *out, struct err *e)
@@ -191,7 +184,7 @@ int flat_compute(struct image *const *white, const char *const *white_names, int
     f->sigma = sigma;
     f->white_frames = nwhite;
     f->dark_frames = ndark;
-    stamp(f->created, sizeof f->created);
+    calfile_format_time((long long)time(NULL), f->created, sizeof f->created);
     /* before: the mean white frame as the camera saw it (no dark subtracted) */
     for (size_t p = 0; p < npx; p++)
         tmp[p] = 0.299f * wp[0][p] + 0.587f * wp[1][p] + 0.114f * wp[2][p];

@@ -5,38 +5,15 @@
 #include <stdio.h>
 #include <string.h>
 
-/* Days from 1970-01-01 to y-m-d in the proleptic Gregorian calendar
- * (the era arithmetic of H. Hinnant's "chrono-compatible low-level date
- * algorithms"); avoids timegm, which POSIX does not have. */
-static long long days_from_civil(int y, int m, int d)
-{
-    y -= m <= 2;
-    long long era = (y >= 0 ? y : y - 399) / 400;
-    long long yoe = y - era * 400;
-    long long doy = (153 * (m + (m > 2 ? -3 : 9)) + 2) / 5 + d - 1;
-    long long doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    return era * 146097 + doe - 719468;
-}
-
-static void civil_from_days(long long z, int *y, int *m, int *d)
-{
-    z += 719468;
-    long long era = (z >= 0 ? z : z - 146096) / 146097;
-    long long doe = z - era * 146097;
-    long long yoe = (doe - doe / 1460 + doe / 36524 - doe / 146096) / 365;
-    long long doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    long long mp = (5 * doy + 2) / 153;
-    *d = (int)(doy - (153 * mp + 2) / 5 + 1);
-    *m = (int)(mp < 10 ? mp + 3 : mp - 9);
-    *y = (int)(yoe + era * 400 + (*m <= 2));
-}
+#include "civil.h"
 
 void calfile_format_time(long long t, char *buf, size_t len)
 {
     long long days = t >= 0 ? t / 86400 : -((-t + 86399) / 86400), s = t - days * 86400;
-    int y, m, d;
-    civil_from_days(days, &y, &m, &d);
-    snprintf(buf, len, "%04d-%02d-%02dT%02d:%02d:%02dZ", y, m, d, (int)(s / 3600),
+    int64_t y;
+    int m, d;
+    civil_date(days, &y, &m, &d);
+    snprintf(buf, len, "%04lld-%02d-%02dT%02d:%02d:%02dZ", (long long)y, m, d, (int)(s / 3600),
              (int)(s / 60 % 60), (int)(s % 60));
 }
 
@@ -47,9 +24,10 @@ static int parse_time(const char *s, long long *t)
         n != (int)strlen(s) || n != 20 || y < 1970 || mo < 1 || mo > 12 || d < 1 || d > 31 ||
         h > 23 || mi > 59 || se > 59 || h < 0 || mi < 0 || se < 0)
         return -1;
-    int yy, mm, dd;
-    long long days = days_from_civil(y, mo, d);
-    civil_from_days(days, &yy, &mm, &dd);
+    int64_t yy;
+    int mm, dd;
+    long long days = civil_days(y, mo, d);
+    civil_date(days, &yy, &mm, &dd);
     if (dd != d) /* 31 April and the like */
         return -1;
     *t = days * 86400 + h * 3600 + mi * 60 + se;

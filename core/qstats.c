@@ -6,6 +6,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "civil.h"
+
 /* ---- p-chart ---- */
 
 int qstats_pchart(const uint64_t *d, const uint64_t *n, size_t m, double *pbar,
@@ -379,18 +381,6 @@ int qstats_counts_add(struct qstats_counts *c, int64_t t, enum qstats_verdict v,
     return ST_OK;
 }
 
-/* Days since the epoch of a proleptic Gregorian date (the well-known
- * era/day-of-era arithmetic, here from memory). */
-static int64_t days_from_civil(int64_t y, int m, int d)
-{
-    y -= m <= 2;
-    int64_t era = floor_div(y, 400);
-    int64_t yoe = y - era * 400;
-    int64_t doy = (153 * (m + (m > 2 ? -3 : 9)) + 2) / 5 + d - 1;
-    int64_t doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    return era * 146097 + doe - 719468;
-}
-
 static int digits(const char *s, int n, int *v)
 {
     *v = 0;
@@ -434,7 +424,7 @@ int qstats_parse_time(const char *iso, int64_t *t, struct err *e)
     }
     if (*p)
         goto bad;
-    *t = days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + s -
+    *t = civil_days(y, mo, d) * 86400 + h * 3600 + mi * 60 + s -
          sign * (oh * 3600 + om * 60);
     return ST_OK;
 bad:
@@ -443,15 +433,8 @@ bad:
 
 void qstats_format_day(int64_t day, char *buf, size_t len)
 {
-    /* inverse of days_from_civil */
-    int64_t z = day + 719468;
-    int64_t era = floor_div(z, 146097);
-    int64_t doe = z - era * 146097;
-    int64_t yoe = (doe - doe / 1460 + doe / 36524 - doe / 146096) / 365;
-    int64_t doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    int64_t mp = (5 * doy + 2) / 153;
-    int d = (int)(doy - (153 * mp + 2) / 5 + 1);
-    int m = (int)(mp < 10 ? mp + 3 : mp - 9);
-    int64_t y = yoe + era * 400 + (m <= 2);
+    int64_t y;
+    int m, d;
+    civil_date(day, &y, &m, &d);
     snprintf(buf, len, "%04lld-%02d-%02d", (long long)y, m, d);
 }

@@ -9,15 +9,12 @@
 #include "core/judge.h"
 #include "core/log.h"
 #include "core/pngio.h"
+#include "core/qstats.h"
 #include "report.h"
 
-static int run_one(const struct recipe *r, const struct recipe_master *m,
+static int run_one(struct inspector *in, const struct recipe_master *m,
                    struct verify_master *out, struct err *e)
 {
-    struct inspector *in = NULL;
-    int rc = inspector_new(r, &in, e);
-    if (rc)
-        return rc;
     struct image *img = NULL;
     struct judgement j;
     struct inspect_times t = {0};
@@ -32,7 +29,6 @@ static int run_one(const struct recipe *r, const struct recipe_master *m,
     }
     out->match = out->verdict == m->expect;
     image_free(img);
-    inspector_free(in);
     return out->report ? ST_OK : err_set(e, ST_ENOMEM, "out of memory reporting %s", m->image);
 }
 
@@ -41,16 +37,20 @@ int verify_run(const struct recipe *r, struct verify_outcome *out, struct err *e
     memset(out, 0, sizeof *out);
     if (r->nmasters == 0)
         return err_set(e, ST_EINVAL, "%s: no [master NAME] sections to verify with", r->path);
-    for (int i = 0; i < r->nmasters; i++) {
-        int rc = run_one(r, &r->masters[i], &out->m[i], e);
-        if (rc) {
-            verify_clear(out);
-            return rc;
-        }
+    struct inspector *in = NULL;
+    int rc = inspector_new(r, &in, e);
+    for (int i = 0; i < r->nmasters && !rc; i++) {
+        /* masters are separate parts, not a camera's consecutive frames */
+        inspector_forget_last_frame(in);
+        if ((rc = run_one(in, &r->masters[i], &out->m[i], e)))
+            break;
         out->n++;
         out->matched += out->m[i].match;
     }
-    return ST_OK;
+    inspector_free(in);
+    if (rc)
+        verify_clear(out);
+    return rc;
 }
 
 void verify_clear(struct verify_outcome *o)
@@ -89,25 +89,6 @@ int verify_record(struct logbook *lb, const struct recipe *r, const struct verif
     return rc;
 }
 
-/* Seconds since 1970 of "YYYY-MM-DDTHH:MM:SS[.mmm]Z" (the log's UTC), by
- * the civil-from-days arithmetic of the proleptic Gregorian calendar; -1
- * when it does not parse. */
-static double utc_seconds(const char *utc)
-{
-    int y, mo, d, h, mi;
-    double sec;
-    if (sscanf(utc, "%4d-%2d-%2dT%2d:%2d:%lfZ", &y, &mo, &d, &h, &mi, &sec) != 6 || mo < 1 ||
-        mo > 12)
-        return -1;
-    y -= mo <= 2;
-    long era = (y >= 0 ? y : y - 399) / 400;
-    long yoe = y - era * 400;
-    long doy = (153 * (mo + (mo > 2 ? -3 : 9)) + 2) / 5 + d - 1;
-    long doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    long days = era * 146097 + doe - 719468;
-    return days * 86400.0 + h * 3600.0 + mi * 60.0 + sec;
-}
-
 int verify_hours_since(struct logbook *lb, const struct recipe *r, double *hours, struct err *e)
 {
     struct log_verification lv;
@@ -119,9 +100,11 @@ int verify_hours_since(struct logbook *lb, const struct recipe *r, double *hours
         return rc;
     struct timespec now;
     clock_gettime(CLOCK_REALTIME, &now);
-    double then = utc_seconds(lv.utc);
-    if (then >= 0) {
-        double h = (now.tv_sec + now.tv_nsec / 1e9 - then) / 3600.0;
+    int64_t then;
+    struct err pe;
+    /* a time that does not parse proves nothing either: the gate stays shut */
+    if (qstats_parse_time(lv.utc, &then, &pe) == ST_OK) {
+        double h = (now.tv_sec + now.tv_nsec / 1e9 - (double)then) / 3600.0;
         /* a record from the future (a clock set back) proves nothing */
         *hours = h >= 0 && h < JUDGE_NEVER_VERIFIED_H ? h : JUDGE_NEVER_VERIFIED_H;
     }
