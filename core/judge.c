@@ -66,6 +66,11 @@ void judge_describe_reason(const struct recipe *r, const struct reason *x, char 
                  x->zone >= 0 && x->zone < r->nzones ? r->zones[x->zone].name : "");
     if (x->region > 0)
         snprintf(region, sizeof region, "region %d ", x->region);
+    if (!strcmp(x->rule, "verification_due") && x->measured >= JUDGE_NEVER_VERIFIED_H) {
+        snprintf(buf, len, "verification due: no passing one on record (needed every %.3g h)",
+                 x->limit);
+        return;
+    }
     const char *u = unit_words(x->unit);
     snprintf(buf, len, "%s%s%s %.3g%s %s %.3g%s", who, region, rule_words(x->rule), x->measured, u,
              x->below ? "<" : ">", x->limit, u);

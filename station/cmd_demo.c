@@ -220,7 +220,7 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
             goto next;
         json_t *rep = report_json(ip, in, &got, &t);
         int64_t seq;
-        rc = logbook_record(b->lb, rep, in, img, &got, NULL, NULL, &seq, e);
+        rc = logbook_record(b->lb, rep, in, img, &got, NULL, NULL, &seq, &ov, e);
         json_decref(rep);
         if (rc)
             goto next;
@@ -245,7 +245,8 @@ static int inspect_batch(struct inspector *in, const char *dir, int first, int n
             b->over_ratio = worst_excess(&want);
         }
         if (got.verdict != VERDICT_PASS || want.verdict != VERDICT_PASS) {
-            ov = report_overlay(in, img, &got, e);
+            if (!ov) /* the log keeps none for a PASS */
+                ov = report_overlay(in, img, &got, e);
             snprintf(op, sizeof op, "%s/part-%04d-%s.png", odir, first + i,
                      judge_verdict_name(got.verdict));
             rc = ov ? pngio_save(op, ov, 3, e) : e->code;

@@ -35,8 +35,10 @@ static void usage(FILE *f)
             LOGBOOK_DEFAULT_STATION, CLI_CAUTION);
 }
 
+/* ov is the overlay the log kept as evidence, or NULL: drawn here then. */
 static int write_overlay(const char *dir, const char *image, const struct image *img,
-                         const struct inspector *in, const struct judgement *j, struct err *e)
+                         const struct inspector *in, const struct judgement *j,
+                         const struct image *ov, struct err *e)
 {
     char copy[PATH_MAX], path[PATH_MAX];
     snprintf(copy, sizeof copy, "%s", image);
@@ -45,9 +47,10 @@ static int write_overlay(const char *dir, const char *image, const struct image 
     if (dot)
         *dot = '\0';
     snprintf(path, sizeof path, "%s/%s-overlay.png", dir, base);
-    struct image *o = report_overlay(in, img, j, e);
+    struct image *drawn = ov ? NULL : report_overlay(in, img, j, e);
+    const struct image *o = ov ? ov : drawn;
     int rc = o ? pngio_save(path, o, 3, e) : e->code;
-    image_free(o);
+    image_free(drawn);
     return rc;
 }
 
@@ -129,7 +132,8 @@ int cmd_inspect(int argc, char **argv)
             /* fail closed: anything that stops the pipeline is NO VERDICT */
             json_t *o = report_json_error(path, &e);
             fprintf(stderr, "%s: NO VERDICT — %s\n", path, e.msg);
-            stopped = logbook_record(&lb, o, in, NULL, NULL, operator_id, serial, &seq, &e);
+            stopped =
+                logbook_record(&lb, o, in, NULL, NULL, operator_id, serial, &seq, NULL, &e);
             cli_emit(o);
             counts[VERDICT_NONE]++;
             image_free(img);
@@ -139,7 +143,9 @@ int cmd_inspect(int argc, char **argv)
         }
         /* shown only once recorded: a verdict the log lost is no verdict */
         json_t *o = report_json(path, in, &j, &t);
-        stopped = logbook_record(&lb, o, in, img, &j, operator_id, serial, &seq, &e);
+        struct image *ov = NULL;
+        stopped = logbook_record(&lb, o, in, img, &j, operator_id, serial, &seq,
+                                 overlay ? &ov : NULL, &e);
         cli_emit(o);
         if (stopped) {
             fprintf(stderr, "%s: NO VERDICT — not recorded: %s\n", path, e.msg);
@@ -150,8 +156,9 @@ int cmd_inspect(int argc, char **argv)
         }
         report_print(stderr, path, &r, &j);
         counts[j.verdict]++;
-        if (overlay && write_overlay(overlay, path, img, in, &j, &e))
+        if (overlay && write_overlay(overlay, path, img, in, &j, ov, &e))
             fprintf(stderr, "station: %s\n", e.msg);
+        image_free(ov);
         image_free(img);
     }
     inspector_free(in);

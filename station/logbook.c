@@ -117,7 +117,7 @@ static char *dump_array(json_t *report, const char *key)
 
 int logbook_record(struct logbook *lb, json_t *report, const struct inspector *in,
                    const struct image *frame, const struct judgement *j, const char *operator_id,
-                   const char *serial, int64_t *seq, struct err *e)
+                   const char *serial, int64_t *seq, struct image **overlay, struct err *e)
 {
     const struct recipe *r = lb->r;
     struct log_entry en = {
@@ -147,7 +147,10 @@ int logbook_record(struct logbook *lb, json_t *report, const struct inspector *i
         fail_closed(report, e);
     else
         json_object_set_new(report, "log_seq", json_integer((json_int_t)*seq));
-    image_free(ov);
+    if (overlay && !rc)
+        *overlay = ov;
+    else
+        image_free(ov);
     free(reasons);
     free(regions);
     return rc;

@@ -44,9 +44,12 @@ void logbook_close(struct logbook *lb);
 
 /* Records one report (j NULL and frame NULL when the image could not be
  * inspected).  On failure the report is already NO_VERDICT with the reason
- * and e says why; *seq is set on success. */
+ * and e says why; *seq is set on success.  overlay (may be NULL) receives
+ * the overlay made for the evidence, NULL when none was kept, so a caller
+ * that shows or saves the overlay too need not draw it again; the caller
+ * frees it. */
 int logbook_record(struct logbook *lb, json_t *report, const struct inspector *in,
                    const struct image *frame, const struct judgement *j, const char *operator_id,
-                   const char *serial, int64_t *seq, struct err *e);
+                   const char *serial, int64_t *seq, struct image **overlay, struct err *e);
 
 #endif

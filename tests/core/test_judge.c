@@ -135,6 +135,8 @@ static void test_verification_due(void **state)
     judge_part(&r, &at, &good_q, &none, &rs, &j);
     assert_int_equal(j.verdict, VERDICT_NONE);
     assert_string_equal(j.reasons[0].rule, "verification_due");
+    judge_describe_reason(&r, &j.reasons[0], text, sizeof text);
+    assert_string_equal(text, "verification due: no passing one on record (needed every 8 h)");
     /* a recipe without masters has no interval */
     load_recipe(&r, "");
     judge_part(&r, &at, &good_q, &good_pose, &rs, &j);
