@@ -104,7 +104,7 @@ static const char *const stmt_sql[S_COUNT] = {
                      " ORDER BY r.verdict <> 'PASS', e.record_seq LIMIT ?",
     [S_INS_PURGE] = "INSERT INTO evidence_purged VALUES(?,?,?,?)",
     [S_LAST_DISP] = "SELECT dseq, hash FROM dispositions ORDER BY dseq DESC LIMIT 1",
-    [S_REC_HASH] = "SELECT hash, verdict FROM records WHERE seq = ?",
+    [S_REC_HASH] = "SELECT hash FROM records WHERE seq = ?",
     [S_INS_DISP] = "INSERT INTO dispositions VALUES(?,?,?,?,?,?,?,?)",
     [S_GET] = "SELECT " REC_COLS " FROM records r WHERE r.seq = ?",
     [S_EV] = "SELECT kind, name, sha256, bytes,"
@@ -928,6 +928,19 @@ int log_dispositions_get(struct log_db *db, int64_t seq, struct log_disposition 
     return ST_OK;
 }
 
+int log_record_hash(struct log_db *db, int64_t seq, char hex[SHA256_HEX_LEN], struct err *e)
+{
+    hex[0] = '\0';
+    sqlite3_stmt *s = db->st[S_REC_HASH];
+    sqlite3_bind_int64(s, 1, seq);
+    if (sqlite3_step(s) == SQLITE_ROW)
+        col_copy(s, 0, hex, SHA256_HEX_LEN);
+    int rc = step_done(db, s, e, "cannot read the record");
+    if (!rc && !hex[0])
+        rc = err_set(e, ST_ERANGE, "%s: no record %" PRId64, db->path, seq);
+    return rc;
+}
+
 int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
                 const char *comment, int64_t *dseq, struct err *e)
 {
@@ -948,14 +961,9 @@ int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
     rc = step_done(db, db->st[S_BEGIN], e, "cannot lock the log");
     if (rc)
         return rc;
-    char record_hash[SHA256_HEX_LEN] = "";
-    sqlite3_stmt *s = db->st[S_REC_HASH];
-    sqlite3_bind_int64(s, 1, seq);
-    if (sqlite3_step(s) == SQLITE_ROW)
-        col_copy(s, 0, record_hash, sizeof record_hash);
-    rc = step_done(db, s, e, "cannot read the record");
-    if (!rc && !record_hash[0])
-        rc = err_set(e, ST_ERANGE, "%s: no record %" PRId64, db->path, seq);
+    char record_hash[SHA256_HEX_LEN];
+    rc = log_record_hash(db, seq, record_hash, e);
+    sqlite3_stmt *s;
     int64_t last = 0;
     if (!rc)
         rc = chain_tail(db, S_LAST_DISP, &last, d.prev_hash, e);

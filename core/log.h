@@ -205,6 +205,9 @@ int log_dispositions_get(struct log_db *db, int64_t seq, struct log_disposition 
                          struct err *e);
 void log_dispositions_free(struct log_disposition *d, int n);
 
+/* The stored hash of record seq (ST_ERANGE: no such record). */
+int log_record_hash(struct log_db *db, int64_t seq, char hex[SHA256_HEX_LEN], struct err *e);
+
 /* Appends a disposition (auditor required, comment may be NULL) to the
  * disposition chain; the record must exist.  *dseq gets its number. */
 int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,

@@ -110,8 +110,7 @@ static int walk_dispositions(struct log_db *db, struct log_verify_result *res, s
         return rc;
     char prev[SHA256_HEX_LEN] = LOGCANON_GENESIS, hash[SHA256_HEX_LEN];
     int broken = !res->ok;
-    struct log_record r;
-    log_record_init(&r);
+    char record_hash[SHA256_HEX_LEN];
     for (int i = 0; i < n && !rc; i++) {
         res->dispositions++;
         if (broken) {
@@ -120,12 +119,12 @@ static int walk_dispositions(struct log_db *db, struct log_verify_result *res, s
             continue;
         }
         struct err sub;
-        if (log_get(db, d[i].record_seq, &r, &sub)) {
+        if (log_record_hash(db, d[i].record_seq, record_hash, &sub)) {
             char what[600];
             snprintf(what, sizeof what, "disposition %" PRId64 ": %s", d[i].dseq, sub.msg);
             brk(res, "disposition", d[i].dseq, what);
         } else {
-            rc = logcanon_disposition_hash(&d[i], r.hash, hash, e);
+            rc = logcanon_disposition_hash(&d[i], record_hash, hash, e);
             if (!rc)
                 check_link(res, "disposition", d[i].dseq, i + 1, d[i].prev_hash, prev,
                            d[i].hash, hash);
@@ -133,7 +132,6 @@ static int walk_dispositions(struct log_db *db, struct log_verify_result *res, s
         broken = !res->ok;
         snprintf(prev, sizeof prev, "%s", d[i].hash);
     }
-    log_record_clear(&r);
     log_dispositions_free(d, n);
     return rc;
 }
