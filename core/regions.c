@@ -510,19 +510,23 @@ static void local_scale(const double *h, double x, double y, double *sx, double 
 
 /* Areas through the homography: |det J| at each pixel's centre, which for
  * a projective map is |det H| / |w|^3 (w = h6 x + h7 y + h8). */
-static void plane_areas(struct region_set *rs, const double *h, int w, int hgt)
+static void plane_areas(struct region_set *rs, const double *h, int w)
 {
     double det = h[0] * (h[4] * h[8] - h[5] * h[7]) - h[1] * (h[3] * h[8] - h[5] * h[6]) +
                  h[2] * (h[3] * h[7] - h[4] * h[6]);
-    for (int i = 0; i < rs->n; i++)
-        rs->r[i].area_mm2 = 0;
-    for (int y = 0; y < hgt; y++) {
-        const int32_t *l = rs->labels + (size_t)y * w;
-        for (int x = 0; x < w; x++)
-            if (l[x] >= 0) {
-                double q = h[6] * x + h[7] * y + h[8];
-                rs->r[l[x]].area_mm2 += fabs(det / (q * q * q));
-            }
+    /* each region's own box, in raster order: the frame's background is
+     * never visited and the sums come out as a whole-frame pass would */
+    for (int i = 0; i < rs->n; i++) {
+        struct region *g = &rs->r[i];
+        g->area_mm2 = 0;
+        for (int y = g->y0; y <= g->y1; y++) {
+            const int32_t *l = rs->labels + (size_t)y * w;
+            for (int x = g->x0; x <= g->x1; x++)
+                if (l[x] == i) {
+                    double q = h[6] * x + h[7] * y + h[8];
+                    g->area_mm2 += fabs(det / (q * q * q));
+                }
+        }
     }
 }
 
@@ -676,6 +680,6 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
         (rc = finish(rs, o, w, h, nreg, merged)))
         return err_set(e, rc, "out of memory measuring %d regions", nreg);
     if (o->image_to_plane)
-        plane_areas(rs, o->image_to_plane, w, h);
+        plane_areas(rs, o->image_to_plane, w);
     return ST_OK;
 }
