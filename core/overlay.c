@@ -204,8 +204,9 @@ static int text_block(struct image *img, int x, int y, int width, const char *s,
     }
 }
 
-/* Draws the banner into out when it is not NULL; returns its height. */
-static int banner(struct image *out, int w, int s, const struct recipe *r,
+/* Draws the banner, height rows tall (what a first call with out NULL
+ * returned), into out when it is not NULL; returns its height. */
+static int banner(struct image *out, int height, int w, int s, const struct recipe *r,
                   const struct judgement *j)
 {
     static const uint8_t pass[3] = OVERLAY_PASS_RGB, fail[3] = OVERLAY_FAIL_RGB,
@@ -226,7 +227,7 @@ static int banner(struct image *out, int w, int s, const struct recipe *r,
         const uint8_t *bg = j->verdict == VERDICT_PASS   ? pass
                             : j->verdict == VERDICT_FAIL ? fail
                                                          : none;
-        fill_rect(out, 0, 0, w, banner(NULL, w, s, r, j), bg);
+        fill_rect(out, 0, 0, w, height, bg);
         const char *word = j->verdict == VERDICT_NONE ? "NO VERDICT" : judge_verdict_name(j->verdict);
         int big = 2 * s;
         while (big > 1 && font_text_width(word, big) > width)
@@ -247,7 +248,7 @@ struct image *overlay_inspection(const struct image *frame, const struct image *
     if (same_size(frame, classes, "class map", e) || (zones && same_size(frame, zones, "zone map", e)))
         return NULL;
     const int w = frame->w, h = frame->h, s = overlay_text_scale(w);
-    const int top = j ? banner(NULL, w, s, r, j) : 0;
+    const int top = j ? banner(NULL, 0, w, s, r, j) : 0;
     struct image *out = image_new(w, h + top, 3, e);
     if (!out)
         return NULL;
@@ -259,6 +260,6 @@ struct image *overlay_inspection(const struct image *frame, const struct image *
         draw_region_ids(out, top, rs, r, w, h, s);
     }
     if (j)
-        banner(out, w, s, r, j);
+        banner(out, top, w, s, r, j);
     return out;
 }
