@@ -23,6 +23,7 @@
 #include <unistd.h>
 
 #include "core/judge.h"
+#include "tests/testkit.h"
 
 static const char recipe_text[] =
     "[product]\nformat = 1\nid = judge-test\nversion = 1\n"
@@ -46,20 +47,7 @@ static const char recipe_text[] =
 
 static void load_recipe(struct recipe *r, const char *extra)
 {
-    char path[] = "/tmp/test_judge_XXXXXX";
-    int fd = mkstemp(path);
-    assert_true(fd >= 0);
-    FILE *f = fdopen(fd, "w");
-    fputs(recipe_text, f);
-    fputs(extra, f);
-    fclose(f);
-    struct err e;
-    err_clear(&e);
-    int rc = recipe_load(path, r, &e);
-    if (rc)
-        fprintf(stderr, "%s\n", e.msg);
-    assert_int_equal(rc, ST_OK);
-    unlink(path);
+    testkit_load_recipe(recipe_text, extra, r);
 }
 
 /* A well-lit, sharp, whole part in the middle of the frame. */

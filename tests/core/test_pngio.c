@@ -13,31 +13,18 @@
 #include <unistd.h>
 
 #include "core/pngio.h"
-
-static char dir[64];
-static char paths[16][128];
-static int npaths;
-
-static const char *tmp_path(const char *name)
-{
-    assert_true(npaths < 16);
-    snprintf(paths[npaths], sizeof paths[npaths], "%s/%s", dir, name);
-    return paths[npaths++];
-}
+#include "tests/testkit.h"
 
 static int setup(void **state)
 {
     (void)state;
-    snprintf(dir, sizeof dir, "/tmp/test_pngio.XXXXXX");
-    return mkdtemp(dir) ? 0 : -1;
+    return testkit_scratch_setup("test_pngio");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    for (int i = 0; i < npaths; i++)
-        unlink(paths[i]);
-    return rmdir(dir);
+    return testkit_scratch_teardown();
 }
 
 static void write_bytes(const char *path, const void *data, size_t n)
@@ -82,7 +69,7 @@ static void test_rgb_round_trip(void **state)
     for (size_t i = 0; i < sizeof levels / sizeof levels[0]; i++) {
         char name[32];
         snprintf(name, sizeof name, "f_%d.png", levels[i]);
-        const char *path = tmp_path(name);
+        const char *path = testkit_path(name);
         struct err e;
         err_clear(&e);
         assert_int_equal(pngio_save(path, img, levels[i], &e), ST_OK);
@@ -113,7 +100,7 @@ static void test_reads_pil_file(void **state)
     (void)state;
     static const uint8_t want[] = { 255, 0, 0, 0, 255, 0, 0, 0, 255,
                                     10, 20, 30, 200, 100, 50, 255, 255, 255 };
-    const char *path = tmp_path("pil.png");
+    const char *path = testkit_path("pil.png");
     write_bytes(path, pil_png, sizeof pil_png);
     struct image *img = NULL;
     struct err e;
@@ -132,7 +119,7 @@ static void test_grey_round_trip(void **state)
     assert_non_null(img);
     for (int i = 0; i < 35; i++)
         img->px[i] = (uint8_t)(i * 7 + (i % 3) * 50);
-    const char *path = tmp_path("grey.png");
+    const char *path = testkit_path("grey.png");
     assert_int_equal(pngio_save(path, img, 1, &e), ST_OK);
 
     struct image *label = NULL, *rgb = NULL;
@@ -167,8 +154,8 @@ static void test_truncated(void **state)
     (void)state;
     struct image *img = make_f();
     struct err e;
-    const char *half = tmp_path("half.png");
-    const char *noend = tmp_path("noend.png");
+    const char *half = testkit_path("half.png");
+    const char *noend = testkit_path("noend.png");
     assert_int_equal(pngio_save(half, img, 0, &e), ST_OK);
     assert_int_equal(pngio_save(noend, img, 0, &e), ST_OK);
     long n = file_size(half);
@@ -191,7 +178,7 @@ static void test_truncated(void **state)
 static void test_missing_file(void **state)
 {
     (void)state;
-    const char *path = tmp_path("does-not-exist.png");
+    const char *path = testkit_path("does-not-exist.png");
     struct image *out = NULL;
     struct err e;
     char want[256];
@@ -206,11 +193,11 @@ static void test_missing_file(void **state)
 static void test_not_png(void **state)
 {
     (void)state;
-    const char *text = tmp_path("text.png");
-    const char *empty = tmp_path("empty.png");
+    const char *text = testkit_path("text.png");
+    const char *empty = testkit_path("empty.png");
     write_bytes(text, "P6\n3 2\n255\nnot a png at all\n", 28);
     write_bytes(empty, "", 0);
-    const char *files[] = { text, empty, dir };
+    const char *files[] = { text, empty, testkit_dir };
     for (int i = 0; i < 3; i++) {
         struct image *out = NULL;
         struct err e;
@@ -239,7 +226,7 @@ static void test_label_range(void **state)
         img->px[i] = (uint8_t)(i % 3);
     img->px[0] = 255;            /* unlabelled: always accepted */
     img->px[2 * 5 + 3] = 9;      /* (x=3, y=2) */
-    const char *path = tmp_path("label.png");
+    const char *path = testkit_path("label.png");
     assert_int_equal(pngio_save(path, img, 9, &e), ST_OK);
 
     struct image *out = NULL;
@@ -255,7 +242,7 @@ static void test_label_range(void **state)
 
     /* RGB cannot be a mask: colour conversion would invent class indices */
     struct image *f = make_f();
-    const char *rgb = tmp_path("label_rgb.png");
+    const char *rgb = testkit_path("label_rgb.png");
     assert_int_equal(pngio_save(rgb, f, 1, &e), ST_OK);
     out = NULL;
     assert_int_equal(pngio_load_label(rgb, 3, &out, &e), ST_EFORMAT);
@@ -326,7 +313,7 @@ static void test_huge_dimensions(void **state)
         { IMAGE_MAX_SIDE + 1, 1, ST_EFORMAT },
         { IMAGE_MAX_SIDE, IMAGE_MAX_SIDE, ST_ERANGE },  /* sides fit, pixel count does not */
     };
-    const char *path = tmp_path("huge.png");
+    const char *path = testkit_path("huge.png");
     for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
         write_ihdr_only(path, cases[i].w, cases[i].h);
         struct image *out = NULL;
@@ -352,7 +339,7 @@ static void test_save_refusals(void **state)
     (void)state;
     struct err e;
     struct image *f = make_f();
-    const char *path = tmp_path("refused.png");
+    const char *path = testkit_path("refused.png");
     assert_int_equal(pngio_save(path, f, 10, &e), ST_EINVAL);
     assert_msg_names(&e, path);
     assert_int_equal(pngio_save(path, f, -1, &e), ST_EINVAL);
@@ -363,7 +350,7 @@ static void test_save_refusals(void **state)
     assert_int_equal(access(path, F_OK), -1);  /* nothing written for bad arguments */
 
     char nodir[128];
-    snprintf(nodir, sizeof nodir, "%s/no/such/folder.png", dir);
+    snprintf(nodir, sizeof nodir, "%s/no/such/folder.png", testkit_dir);
     assert_int_equal(pngio_save(nodir, f, 1, &e), ST_EIO);
     assert_msg_names(&e, nodir);
     assert_non_null(strstr(e.msg, "cannot create"));

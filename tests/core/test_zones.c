@@ -18,31 +18,18 @@
 #include "core/font.h"
 #include "core/pngio.h"
 #include "core/zones.h"
-
-static char dir[64];
-static char paths[8][128];
-static int npaths;
-
-static const char *tmp_path(const char *name)
-{
-    assert_true(npaths < 8);
-    snprintf(paths[npaths], sizeof paths[npaths], "%s/%s", dir, name);
-    return paths[npaths++];
-}
+#include "tests/testkit.h"
 
 static int setup(void **state)
 {
     (void)state;
-    snprintf(dir, sizeof dir, "/tmp/test_zones.XXXXXX");
-    return mkdtemp(dir) ? 0 : -1;
+    return testkit_scratch_setup("test_zones");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    for (int i = 0; i < npaths; i++)
-        unlink(paths[i]);
-    return rmdir(dir);
+    return testkit_scratch_teardown();
 }
 
 static struct zone circle(const char *name, double cx, double cy, double r)
@@ -104,7 +91,7 @@ static void test_bad_masks_name_the_file(void **state)
 {
     (void)state;
     struct zone z = {.name = "logo", .shape = ZONE_MASK, .mask_mm_per_px = 0.5};
-    const char *missing = tmp_path("missing.png");
+    const char *missing = testkit_path("missing.png");
     snprintf(z.mask_path, sizeof z.mask_path, "%s", missing);
     struct zone_map *m;
     struct err e;
@@ -114,7 +101,7 @@ static void test_bad_masks_name_the_file(void **state)
     struct err e2;
     struct image *img = image_new(5, 3, 1, &e2);
     assert_non_null(img);
-    const char *empty = tmp_path("empty.png");
+    const char *empty = testkit_path("empty.png");
     assert_int_equal(pngio_save(empty, img, 1, &e2), ST_OK);
     snprintf(z.mask_path, sizeof z.mask_path, "%s", empty);
     assert_int_equal(zone_map_new(&z, 1, &m, &e), ST_EFORMAT);
@@ -125,7 +112,7 @@ static void test_bad_masks_name_the_file(void **state)
 
     /* an RGB PNG is not a mask: pngio refuses it, naming the file */
     img = image_new(4, 4, 3, &e2);
-    const char *rgb = tmp_path("rgb.png");
+    const char *rgb = testkit_path("rgb.png");
     assert_int_equal(pngio_save(rgb, img, 1, &e2), ST_OK);
     snprintf(z.mask_path, sizeof z.mask_path, "%s", rgb);
     assert_int_equal(zone_map_new(&z, 1, &m, &e), ST_EFORMAT);
@@ -143,7 +130,7 @@ static void test_mask_geometry_by_hand(void **state)
     struct err e;
     struct image *img = image_new(4, 2, 1, &e);
     img->px[0] = 1;
-    const char *path = tmp_path("corner.png");
+    const char *path = testkit_path("corner.png");
     assert_int_equal(pngio_save(path, img, 1, &e), ST_OK);
     image_free(img);
     struct zone z[2] = {{.name = "a", .shape = ZONE_MASK, .mask_mm_per_px = 1},

@@ -22,6 +22,7 @@
 #include "core/part.h"
 #include "core/regions.h"
 #include "core/zones.h"
+#include "tests/testkit.h"
 
 #define W 201
 #define H 163
@@ -45,19 +46,7 @@ static const char recipe_text[] =
 
 static void load_recipe(struct recipe *r)
 {
-    char path[] = "/tmp/test_zoning_XXXXXX";
-    int fd = mkstemp(path);
-    assert_true(fd >= 0);
-    FILE *f = fdopen(fd, "w");
-    fputs(recipe_text, f);
-    fclose(f);
-    struct err e;
-    err_clear(&e);
-    int rc = recipe_load(path, r, &e);
-    if (rc)
-        fprintf(stderr, "%s\n", e.msg);
-    assert_int_equal(rc, ST_OK);
-    unlink(path);
+    testkit_load_recipe(recipe_text, "", r);
 }
 
 /* Part coordinates (mm) of pixel (x, y) for a part centred at (cx, cy)
