@@ -892,40 +892,59 @@ void log_dispositions_free(struct log_disposition *d, int n)
     free(d);
 }
 
+/* Steps s to its end, reading each row with read into the next element of
+ * a growing array of elem-byte items (read returns nonzero when out of
+ * memory); s is reset.  On failure *out still holds the *n elements read, for
+ * the caller's own free. */
+static int read_rows(struct log_db *db, sqlite3_stmt *s, size_t elem,
+                     int (*read)(sqlite3_stmt *, void *), const char *what, void **out, int *n,
+                     struct err *e)
+{
+    char *a = NULL;
+    int cap = 0, count = 0, oom = 0, step = SQLITE_DONE;
+    while (!oom && (step = sqlite3_step(s)) == SQLITE_ROW) {
+        if (count == cap) {
+            cap = cap ? 2 * cap : 16;
+            char *g = realloc(a, (size_t)cap * elem);
+            if (!g) {
+                oom = 1;
+                break;
+            }
+            a = g;
+        }
+        memset(a + (size_t)count * elem, 0, elem);
+        oom = read(s, a + (size_t)count++ * elem);
+    }
+    *out = a;
+    *n = count;
+    int rc = oom ? err_set(e, ST_ENOMEM, "%s: out of memory: %s", db->path, what)
+             : step != SQLITE_DONE ? db_fail(db, e, what)
+                                   : ST_OK;
+    sqlite3_reset(s);
+    return rc;
+}
+
+static int read_disposition_row(sqlite3_stmt *s, void *d)
+{
+    return read_disposition(s, d);
+}
+
 int log_dispositions_get(struct log_db *db, int64_t seq, struct log_disposition **out, int *n,
                          struct err *e)
 {
-    *out = NULL;
-    *n = 0;
     sqlite3_stmt *s = db->st[seq > 0 ? S_DISPS : S_DISPS_ALL];
     if (seq > 0)
         sqlite3_bind_int64(s, 1, seq);
-    struct log_disposition *d = NULL;
-    int cap = 0, count = 0, rc = ST_OK, step;
-    while (!rc && (step = sqlite3_step(s)) == SQLITE_ROW) {
-        if (count == cap) {
-            cap = cap ? 2 * cap : 8;
-            void *p = realloc(d, (size_t)cap * sizeof *d);
-            if (!p) {
-                rc = err_set(e, ST_ENOMEM, "%s: out of memory reading dispositions", db->path);
-                break;
-            }
-            d = p;
-        }
-        memset(&d[count], 0, sizeof d[count]);
-        if (read_disposition(s, &d[count++]))
-            rc = err_set(e, ST_ENOMEM, "%s: out of memory reading dispositions", db->path);
-    }
-    if (!rc && step != SQLITE_DONE)
-        rc = db_fail(db, e, "cannot read dispositions");
-    sqlite3_reset(s);
-    if (rc) {
-        log_dispositions_free(d, count);
-        return rc;
-    }
+    void *d;
+    int rc = read_rows(db, s, sizeof **out, read_disposition_row, "cannot read dispositions", &d,
+                       n, e);
     *out = d;
-    *n = count;
-    return ST_OK;
+    if (rc) {
+        log_dispositions_free(*out, *n);
+        *out = NULL;
+        *n = 0;
+    }
+    return rc;
 }
 
 int log_record_hash(struct log_db *db, int64_t seq, char hex[SHA256_HEX_LEN], struct err *e)
@@ -1070,37 +1089,24 @@ void log_verifications_free(struct log_verification *v, int n)
     free(v);
 }
 
+static int read_verification_row(sqlite3_stmt *s, void *v)
+{
+    return read_verification(s, v, 1);
+}
+
 int log_verifications_get(struct log_db *db, struct log_verification **out, int *n,
                           struct err *e)
 {
-    *out = NULL;
-    *n = 0;
-    sqlite3_stmt *s = db->st[S_VERS];
-    struct log_verification *v = NULL;
-    int count = 0, cap = 0, oom = 0;
-    while (!oom && sqlite3_step(s) == SQLITE_ROW) {
-        if (count == cap) {
-            cap = cap ? 2 * cap : 16;
-            struct log_verification *g = realloc(v, (size_t)cap * sizeof *v);
-            if (!g) {
-                oom = 1;
-                break;
-            }
-            v = g;
-        }
-        memset(&v[count], 0, sizeof v[count]);
-        oom = read_verification(s, &v[count++], 1);
-    }
-    int rc = step_done(db, s, e, "cannot read the verifications");
-    if (!rc && oom)
-        rc = err_set(e, ST_ENOMEM, "%s: out of memory reading verifications", db->path);
-    if (rc) {
-        log_verifications_free(v, count);
-        return rc;
-    }
+    void *v;
+    int rc = read_rows(db, db->st[S_VERS], sizeof **out, read_verification_row,
+                       "cannot read the verifications", &v, n, e);
     *out = v;
-    *n = count;
-    return ST_OK;
+    if (rc) {
+        log_verifications_free(*out, *n);
+        *out = NULL;
+        *n = 0;
+    }
+    return rc;
 }
 
 int log_check_integrity(struct log_db *db, struct err *e)
