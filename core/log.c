@@ -785,12 +785,30 @@ static void cond(char *sql, size_t len, const char *c)
     snprintf(sql + n, len - n, " AND %s", c);
 }
 
-#define JSON_HAS(key)                                                                       \
-    "(EXISTS(SELECT 1 FROM json_each(r.reasons) WHERE json_extract(value, '$." key "') = ?)" \
-    " OR EXISTS(SELECT 1 FROM json_each(r.regions) WHERE json_extract(value, '$." key "') = ?))"
+/* Named parameters pair each condition with its value: a parameter the
+ * query does not hold has index 0 and is not bound, so conditions and binds
+ * cannot drift apart. */
+#define JSON_HAS(key, param)                                                                  \
+    "(EXISTS(SELECT 1 FROM json_each(r.reasons) WHERE json_extract(value, '$." key "') = " param \
+    ") OR EXISTS(SELECT 1 FROM json_each(r.regions) WHERE json_extract(value, '$." key "') = "   \
+    param "))"
 #define LATEST_DISP                                                                      \
     "(SELECT disposition FROM dispositions d WHERE d.record_seq = r.seq ORDER BY dseq DESC" \
     " LIMIT 1)"
+
+static void bind_named_text(sqlite3_stmt *s, const char *name, const char *v)
+{
+    int i = sqlite3_bind_parameter_index(s, name);
+    if (i > 0)
+        bind_text(s, i, v);
+}
+
+static void bind_named_int64(sqlite3_stmt *s, const char *name, int64_t v)
+{
+    int i = sqlite3_bind_parameter_index(s, name);
+    if (i > 0)
+        sqlite3_bind_int64(s, i, v);
+}
 
 int log_iter_new(struct log_db *db, const struct log_filter *f, struct log_iter **out,
                  struct err *e)
@@ -803,29 +821,29 @@ int log_iter_new(struct log_db *db, const struct log_filter *f, struct log_iter 
     }
     char sql[2048] = "SELECT " REC_COLS " FROM records r WHERE 1";
     if (f->from_utc)
-        cond(sql, sizeof sql, "r.utc >= ?");
+        cond(sql, sizeof sql, "r.utc >= :from");
     if (f->to_utc)
-        cond(sql, sizeof sql, "r.utc < ?");
+        cond(sql, sizeof sql, "r.utc < :to");
     if (f->verdict >= 0)
-        cond(sql, sizeof sql, "r.verdict = ?");
+        cond(sql, sizeof sql, "r.verdict = :verdict");
     if (f->rejects)
         cond(sql, sizeof sql, "r.verdict <> 'PASS'");
     if (f->cls)
-        cond(sql, sizeof sql, JSON_HAS("class"));
+        cond(sql, sizeof sql, JSON_HAS("class", ":cls"));
     if (f->zone)
-        cond(sql, sizeof sql, JSON_HAS("zone"));
+        cond(sql, sizeof sql, JSON_HAS("zone", ":zone"));
     if (f->recipe_id)
-        cond(sql, sizeof sql, "r.recipe_id = ?");
+        cond(sql, sizeof sql, "r.recipe_id = :recipe");
     if (f->station)
-        cond(sql, sizeof sql, "r.station = ?");
+        cond(sql, sizeof sql, "r.station = :station");
     if (f->disp == LOG_DISP_NONE)
         cond(sql, sizeof sql, "NOT EXISTS(SELECT 1 FROM dispositions d WHERE d.record_seq = r.seq)");
     else if (f->disp > 0)
-        cond(sql, sizeof sql, LATEST_DISP " = ?");
+        cond(sql, sizeof sql, LATEST_DISP " = :disp");
     if (f->seq_from > 0)
-        cond(sql, sizeof sql, "r.seq >= ?");
+        cond(sql, sizeof sql, "r.seq >= :seq_from");
     if (f->seq_to > 0)
-        cond(sql, sizeof sql, "r.seq <= ?");
+        cond(sql, sizeof sql, "r.seq <= :seq_to");
     size_t n = strlen(sql);
     snprintf(sql + n, sizeof sql - n, " ORDER BY r.seq");
 
@@ -838,28 +856,19 @@ int log_iter_new(struct log_db *db, const struct log_filter *f, struct log_iter 
         log_iter_free(it);
         return rc;
     }
-    int k = 1;
     sqlite3_stmt *s = it->s;
-    if (f->from_utc)
-        bind_text(s, k++, f->from_utc);
-    if (f->to_utc)
-        bind_text(s, k++, f->to_utc);
+    bind_named_text(s, ":from", f->from_utc);
+    bind_named_text(s, ":to", f->to_utc);
     if (f->verdict >= 0)
-        bind_text(s, k++, judge_verdict_name(f->verdict));
-    for (int twice = 0; f->cls && twice < 2; twice++)
-        bind_text(s, k++, f->cls);
-    for (int twice = 0; f->zone && twice < 2; twice++)
-        bind_text(s, k++, f->zone);
-    if (f->recipe_id)
-        bind_text(s, k++, f->recipe_id);
-    if (f->station)
-        bind_text(s, k++, f->station);
+        bind_named_text(s, ":verdict", judge_verdict_name(f->verdict));
+    bind_named_text(s, ":cls", f->cls);
+    bind_named_text(s, ":zone", f->zone);
+    bind_named_text(s, ":recipe", f->recipe_id);
+    bind_named_text(s, ":station", f->station);
     if (f->disp > 0)
-        bind_text(s, k++, log_disp_name(f->disp));
-    if (f->seq_from > 0)
-        sqlite3_bind_int64(s, k++, f->seq_from);
-    if (f->seq_to > 0)
-        sqlite3_bind_int64(s, k++, f->seq_to);
+        bind_named_text(s, ":disp", log_disp_name(f->disp));
+    bind_named_int64(s, ":seq_from", f->seq_from);
+    bind_named_int64(s, ":seq_to", f->seq_to);
     *out = it;
     return ST_OK;
 }
