@@ -1,6 +1,7 @@
 #include "overlay.h"
 
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "font.h"
@@ -151,12 +152,52 @@ static void fill_rect(struct image *img, int x0, int y0, int x1, int y1, const u
             put(img, x, y, rgb);
 }
 
-/* Right of the bounding box, or left of it where the frame ends; the box
- * stays inside the frame rows. */
+struct box {
+    int x0, y0, x1, y1;
+};
+
+static int overlaps(const struct box *a, const struct box *b)
+{
+    return a->x0 < b->x1 && b->x0 < a->x1 && a->y0 < b->y1 && b->y0 < a->y1;
+}
+
+/* Where a label of bw x bh goes: right of the region's box, or left of it
+ * where the frame ends, moved down (then up) past labels already placed so
+ * that neighbouring defects' ids stay readable; inside the frame rows. */
+static struct box place_label(const struct region *g, int bw, int bh, int w, int h,
+                              const struct box *placed, int nplaced)
+{
+    struct box b;
+    b.x0 = g->x1 + 2 + bw <= w ? g->x1 + 2 : g->x0 - 2 - bw;
+    b.x1 = b.x0 + bw;
+    int start = g->y0 + bh <= h ? g->y0 : h - bh;
+    start = start < 0 ? 0 : start;
+    for (int step = 0; step <= 2 * nplaced; step++) {
+        /* 0, +1, -1, +2, -2 ... label heights from the region's top */
+        int k = (step + 1) / 2 * (step % 2 ? 1 : -1);
+        b.y0 = start + k * (bh + 1);
+        b.y1 = b.y0 + bh;
+        if (b.y0 < 0 || b.y1 > h)
+            continue;
+        int clear = 1;
+        for (int i = 0; clear && i < nplaced; i++)
+            clear = !overlaps(&b, &placed[i]);
+        if (clear)
+            return b;
+    }
+    b.y0 = start;
+    b.y1 = start + bh;
+    return b;
+}
+
 static void draw_region_ids(struct image *out, int y0, const struct region_set *rs,
                             const struct recipe *r, int w, int h, int scale)
 {
     static const uint8_t dark[3] = {16, 16, 16};
+    /* Without room to remember placements the labels are still drawn, only
+     * possibly on top of each other. */
+    struct box *placed = malloc((size_t)rs->n * sizeof *placed);
+    int nplaced = 0;
     for (int i = 0; i < rs->n; i++) {
         const struct region *g = &rs->r[i];
         if (!judge_region_counts(r, g))
@@ -164,12 +205,13 @@ static void draw_region_ids(struct image *out, int y0, const struct region_set *
         char id[16];
         snprintf(id, sizeof id, "%d", g->id);
         int bw = font_text_width(id, scale) + 2 * scale, bh = (FONT_CELL_H + 1) * scale;
-        int x = g->x1 + 2 + bw <= w ? g->x1 + 2 : g->x0 - 2 - bw;
-        int y = g->y0 + bh <= h ? g->y0 : h - bh;
-        y = y < 0 ? 0 : y;
-        fill_rect(out, x, y0 + y, x + bw, y0 + y + bh, dark);
-        font_draw_text(out, x + scale, y0 + y + scale, id, scale, class_rgb(r, g->cls));
+        struct box b = place_label(g, bw, bh, w, h, placed, nplaced);
+        if (placed)
+            placed[nplaced++] = b;
+        fill_rect(out, b.x0, y0 + b.y0, b.x1, y0 + b.y1, dark);
+        font_draw_text(out, b.x0 + scale, y0 + b.y0 + scale, id, scale, class_rgb(r, g->cls));
     }
+    free(placed);
 }
 
 /* Banner layout, in units of the text scale s: padding, the verdict at

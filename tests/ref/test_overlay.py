@@ -133,6 +133,18 @@ for i, g in enumerate(regs):
     dark, ink = colour_is(box, (16, 16, 16)).sum(), colour_is(box, rgb).sum()
     check(f"region {i + 1}: id {'drawn' if counts else 'not drawn (does not count)'} beside it",
           (dark > 0 and ink > 0) if counts else dark == 0, f"dark {dark} ink {ink}")
+# Neighbouring defects keep readable ids: two pits one above the other, 3 px
+# apart, would put their ids on the same rows; each id box must stand apart
+# (the dark boxes are separate 4-connected components: scipy.ndimage.label).
+cm2 = np.zeros((h, w), np.uint8)
+cm2[20:140, 20:190] = 1
+cm2[50:54, 100:104] = 3
+cm2[57:61, 101:105] = 3
+lab2, regs2 = regions_of(cm2)
+out2, top2 = overlay(frame, cm2, lab2, regs2, None, FAIL, tmp.name)
+boxes, nboxes = ndimage.label(colour_is(out2[top2:], (16, 16, 16)))
+check("ids of two pits 3 px apart do not overlap (two separate id boxes)",
+      len(regs2) == 2 and nboxes == 2, f"{len(regs2)} regions, {nboxes} id boxes")
 # tinted, not painted: a region's inside keeps the frame showing through
 inner = (lab >= 0) & ~find_boundaries(lab + 1, mode="inner")
 tint = body[inner].astype(int)
