@@ -8,7 +8,7 @@ static const struct screen_key table[] = {
     {"F5", "inspect now"},
     {"F2", "type into serial / operator (switch)"},
     {"Backspace", "delete the last typed character"},
-    {"F3", "show the last inspection's overlay or the live picture"},
+    {"F3", "last inspection's overlay / live picture"},
     {"F6", "learn the empty bench again (automatic trigger)"},
     {"F12", "save a snapshot of the screen"},
     {"F1", "show or hide these keys"},

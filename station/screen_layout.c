@@ -28,19 +28,20 @@ void screen_layout_compute(int w, int h, struct screen_layout *L)
     L->input = rect(0, L->caution.y - (body + 3 * pad), w, body + 3 * pad);
     int top = L->header.y + L->header.h, bottom = L->input.y;
     int col_x = w * 3 / 5 + pad;
-    L->picture = rect(0, top, col_x - pad, bottom - top);
+    L->picture = rect(pad, top, col_x - 2 * pad, bottom - top);
     int cw = w - col_x - pad;
     int y = top + pad;
     L->verdict = rect(col_x, y, cw, h * 22 / 100);
     int side = L->verdict.h - 2 * pad;
     if (side > cw * 3 / 10)
         side = cw * 3 / 10;
-    L->symbol = rect(col_x + pad, y + pad, side, side);
-    L->word = rect(L->symbol.x + side + 2 * pad, y + pad, cw - side - 4 * pad, L->verdict.h - 2 * pad);
+    L->symbol = rect(col_x + pad, y + (L->verdict.h - side) / 2, side, side);
+    L->word = rect(L->symbol.x + side + 2 * pad, L->symbol.y, cw - side - 4 * pad, side);
     y += L->verdict.h + pad;
-    int counters_h = 2 * (body + title) + 3 * pad;
+    /* one row of counters: a label over its number (line height ~1.2 em) */
+    int counters_h = (small + title) * 6 / 5 + 2 * pad;
     int rest = bottom - pad - counters_h - pad - y;
-    L->reasons = rect(col_x, y, cw, rest / 2);
+    L->reasons = rect(col_x, y, cw, rest * 11 / 20);
     y += L->reasons.h + pad;
     L->bars = rect(col_x, y, cw, rest - L->reasons.h - pad);
     L->counters = rect(col_x, bottom - pad - counters_h, cw, counters_h);

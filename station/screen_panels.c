@@ -137,16 +137,29 @@ void screen_panels_reasons(const struct screen_canvas *c, const struct screen_st
     }
 }
 
+/* v with at most two decimals and no trailing zeros, as the judge's words
+ * print their figures ("2.5 mm²", "0.93 mm²", "4 mm²") */
+static void figure(char *buf, size_t len, double v)
+{
+    snprintf(buf, len, "%.2f", v);
+    char *end = buf + strlen(buf) - 1;
+    while (end > buf && *end == '0')
+        *end-- = 0;
+    if (*end == '.')
+        *end = 0;
+}
+
 static void bar(const struct screen_canvas *c, const struct screen_bar *b, int x, int y, int w)
 {
     int over = b->limit >= 0 && b->value > b->limit;
-    char figures[96];
-    const char *fmt = b->value == (long)b->value && b->limit == (long)b->limit ? "%.0f of %.0f %s%s"
-                                                                               : "%.2f of %.2f %s%s";
+    char figures[96], value[32], limit[32];
+    figure(value, sizeof value, b->value);
+    figure(limit, sizeof limit, b->limit);
     if (b->limit < 0)
-        snprintf(figures, sizeof figures, "%.2f %s, no limit", b->value, b->unit);
+        snprintf(figures, sizeof figures, "%s %s, no limit", value, b->unit);
     else
-        snprintf(figures, sizeof figures, fmt, b->value, b->limit, b->unit, over ? " — OVER" : "");
+        snprintf(figures, sizeof figures, "%s of %s %s%s", value, limit, b->unit,
+                 over ? " — OVER" : "");
     draw(c, SCREEN_PX_BODY, b->name, TEXT, x, y, SCREEN_LEFT, w / 3, 0);
     draw(c, SCREEN_PX_BODY, figures, over ? VERMILION : TEXT, x + w, y, SCREEN_RIGHT,
          w * 2 / 3 - c->L->pad, 0);
@@ -158,7 +171,8 @@ static void bar(const struct screen_canvas *c, const struct screen_bar *b, int x
     /* the limit sits at 80 % of the track, so a value over it shows its excess */
     double f = b->limit > 0 ? 0.8 * b->value / b->limit : (b->value > 0 ? 1 : 0);
     int fill = (int)((f > 1 ? 1 : f) * w);
-    screen_paint_rect(c->ren, (struct screen_rect){x, by, fill, bh}, over ? VERMILION : SKY);
+    if (fill > 0)
+        screen_paint_rect(c->ren, (struct screen_rect){x, by, fill, bh}, over ? VERMILION : SKY);
     screen_paint_rect(c->ren, (struct screen_rect){x + w * 4 / 5 - 1, by - 3, 3, bh + 6}, TEXT);
 }
 
@@ -168,8 +182,10 @@ void screen_panels_bars(const struct screen_canvas *c, const struct screen_state
     int p = c->L->pad;
     int y = section(c, r, "Defects counted, against the part's tolerance");
     if (!st->nbars) {
-        draw(c, SCREEN_PX_BODY, "nothing measured yet", DIM, r.x + p, y, SCREEN_LEFT, r.w - 2 * p,
-             0);
+        const char *why = st->verdict == VERDICT_NONE && !st->halted[0]
+                              ? "not judged: no verdict"
+                              : "nothing measured yet";
+        draw(c, SCREEN_PX_BODY, why, DIM, r.x + p, y, SCREEN_LEFT, r.w - 2 * p, 0);
         return;
     }
     int step = line(c, SCREEN_PX_BODY) + 2 * p + 4;
@@ -187,8 +203,8 @@ static void counter(const struct screen_canvas *c, int x, int y, int w, const ch
 void screen_panels_counters(const struct screen_canvas *c, const struct screen_state *st)
 {
     struct screen_rect r = c->L->counters;
-    int p = c->L->pad, cw = (r.w - 2 * p) / 3, x = r.x + p;
-    int y = section(c, r, "This shift"), row = line(c, SCREEN_PX_SMALL) + line(c, SCREEN_PX_TITLE);
+    int p = c->L->pad, x = r.x + p, y = r.y + p;
+    screen_paint_rect(c->ren, r, PANEL);
     char v[5][32];
     snprintf(v[0], sizeof v[0], "%ld", st->inspected);
     snprintf(v[1], sizeof v[1], "%ld", st->passed);
@@ -198,11 +214,15 @@ void screen_panels_counters(const struct screen_canvas *c, const struct screen_s
         snprintf(v[4], sizeof v[4], "%.1f %%", 100.0 * (double)st->failed / (double)st->inspected);
     else
         snprintf(v[4], sizeof v[4], "–");
-    counter(c, x, y, cw, "Inspected", v[0]);
-    counter(c, x + cw, y, cw, "Passed", v[1]);
-    counter(c, x + 2 * cw, y, cw, "Failed", v[2]);
-    counter(c, x, y + row, cw, "No verdict", v[3]);
-    counter(c, x + cw, y + row, 2 * cw, "Reject rate (failed / inspected)", v[4]);
+    /* widths in fifths of the row: the labels' own lengths, roughly */
+    static const char *labels[5] = {"Inspected", "Passed", "Failed", "No verdict", "Reject rate"};
+    static const int share[5] = {22, 17, 16, 22, 23};
+    int w = r.w - 2 * p;
+    for (int i = 0; i < 5; i++) {
+        int cw = w * share[i] / 100;
+        counter(c, x, y, cw - p, labels[i], v[i]);
+        x += cw;
+    }
 }
 
 /* "Label: value" in a cell; the field being typed into is underlined. */
@@ -261,8 +281,8 @@ void screen_panels_halted(const struct screen_canvas *c, const struct screen_sta
     screen_paint_rect(c->ren, band, purple);
     screen_paint_symbol(c->ren, (struct screen_rect){band.x + p, band.y + p, title, title},
                         SCREEN_SYM_HALT, INK, purple);
-    draw(c, SCREEN_PX_TITLE, "INSPECTION HALTED — no verdicts until this is fixed", INK,
-         band.x + 2 * p + title, band.y + p, SCREEN_LEFT, band.w - 3 * p - title, 0);
+    draw(c, SCREEN_PX_TITLE, "INSPECTION HALTED: no verdicts", INK, band.x + 2 * p + title,
+         band.y + p, SCREEN_LEFT, band.w - 3 * p - title, 0);
     draw(c, SCREEN_PX_BODY, st->halted, INK, band.x + p, band.y + 2 * p + title, SCREEN_LEFT, 0,
          band.w - 2 * p);
 }
@@ -285,26 +305,31 @@ void screen_panels_camera_lost(const struct screen_canvas *c, const struct scree
     draw(c, SCREEN_PX_BODY, st->camera[0] ? st->camera : "no camera", TEXT, cx, y, SCREEN_CENTRE,
          box.w - 2 * p, 0);
     y += body + p;
-    draw(c, SCREEN_PX_BODY, "reconnecting; every inspection is NO VERDICT meanwhile", TEXT, cx, y,
+    draw(c, SCREEN_PX_BODY, "reconnecting; inspections are NO VERDICT", TEXT, cx, y,
          SCREEN_CENTRE, box.w - 2 * p, 0);
 }
 
 void screen_panels_help(const struct screen_canvas *c)
 {
-    const struct screen_rect *r = &c->L->help;
-    int p = c->L->pad, n;
+    static const char foot[] =
+        "Letters, digits and a barcode scanner type into the input line and never run a "
+        "command; Enter keeps the line for the serial or the operator.";
+    const struct screen_rect *area = &c->L->help;
+    int p = c->L->pad, n, body = line(c, SCREEN_PX_BODY);
     const struct screen_key *k = screen_keys_table(&n);
-    screen_paint_rect(c->ren, *r, BACK);
-    screen_paint_frame(c->ren, *r, 3, SKY);
-    int y = r->y + 2 * p, x = r->x + 3 * p, keyw = r->w / 5;
+    int wrap = area->w - 6 * p;
+    int foot_h = screen_text_measure(c->text, SCREEN_PX_BODY, foot, DIM, 0, wrap).h;
+    int h = 2 * p + line(c, SCREEN_PX_TITLE) + p + n * (body + p / 2) + p + foot_h + 2 * p;
+    struct screen_rect r = {area->x, area->y + (area->h > h ? (area->h - h) / 2 : 0), area->w,
+                            h < area->h ? h : area->h};
+    screen_paint_rect(c->ren, r, BACK);
+    screen_paint_frame(c->ren, r, 3, SKY);
+    int y = r.y + 2 * p, x = r.x + 3 * p, keyw = r.w / 5;
     draw(c, SCREEN_PX_TITLE, "Keys", TEXT, x, y, SCREEN_LEFT, 0, 0);
     y += line(c, SCREEN_PX_TITLE) + p;
-    for (int i = 0; i < n; i++, y += line(c, SCREEN_PX_BODY) + p / 2) {
+    for (int i = 0; i < n; i++, y += body + p / 2) {
         draw(c, SCREEN_PX_BODY, k[i].key, SKY, x, y, SCREEN_LEFT, keyw, 0);
-        draw(c, SCREEN_PX_BODY, k[i].what, TEXT, x + keyw, y, SCREEN_LEFT, r->w - keyw - 6 * p, 0);
+        draw(c, SCREEN_PX_BODY, k[i].what, TEXT, x + keyw, y, SCREEN_LEFT, r.w - keyw - 6 * p, 0);
     }
-    draw(c, SCREEN_PX_BODY,
-         "Letters, digits and a barcode scanner type into the input line and never run a "
-         "command; Enter keeps the line for the serial or the operator.",
-         DIM, x, y + p, SCREEN_LEFT, 0, r->w - 6 * p);
+    draw(c, SCREEN_PX_BODY, foot, DIM, x, y + p, SCREEN_LEFT, 0, wrap);
 }

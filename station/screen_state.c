@@ -93,5 +93,10 @@ void screen_state_set_report(struct screen_state *s, const struct recipe *r, con
     const json_t *seq = json_object_get(report, "log_seq");
     s->log_seq = json_is_integer(seq) ? (int64_t)json_integer_value(seq) : -1;
     set_reasons(s, report);
-    set_bars(s, r, report);
+    /* a frame that got no verdict was not judged: its measures are not
+     * shown as if they were */
+    if (s->verdict == VERDICT_NONE)
+        s->nbars = 0;
+    else
+        set_bars(s, r, report);
 }
