@@ -101,6 +101,22 @@ static int section(const struct screen_canvas *c, struct screen_rect r, const ch
     return r.y + c->L->pad / 2 + line(c, SCREEN_PX_SMALL);
 }
 
+/* "• " and the reason, a figure kept on one line with its unit: the space
+ * before "mm" becomes a no-break space, where SDL2_ttf does not wrap. */
+static void bullet(char *out, size_t len, const char *reason)
+{
+    size_t o = (size_t)snprintf(out, len, "• ");
+    for (const char *p = reason; *p && o + 3 < len; p++) {
+        if (p[0] == ' ' && p[1] == 'm' && p[2] == 'm') {
+            out[o++] = (char)0xC2;
+            out[o++] = (char)0xA0;
+        } else {
+            out[o++] = *p;
+        }
+    }
+    out[o] = 0;
+}
+
 void screen_panels_reasons(const struct screen_canvas *c, const struct screen_state *st)
 {
     struct screen_rect r = c->L->reasons;
@@ -118,8 +134,8 @@ void screen_panels_reasons(const struct screen_canvas *c, const struct screen_st
     }
     int shown = 0;
     for (; shown < st->nreasons; shown++) {
-        char words[SCREEN_TEXT + 8];
-        snprintf(words, sizeof words, "• %s", st->reasons[shown]);
+        char words[2 * SCREEN_TEXT];
+        bullet(words, sizeof words, st->reasons[shown]);
         /* a reason is left out rather than cut; the last line says so */
         int h = screen_text_measure(c->text, SCREEN_PX_BODY, words, TEXT, 0, wrap).h;
         int room = shown + 1 < st->nreasons || st->more_reasons ? body : 0;

@@ -26,6 +26,8 @@
 #include <sys/stat.h>
 
 #include "core/judge.h"
+#include "core/overlay.h"
+#include "core/regions.h"
 #include "core/pngio.h"
 #include "station/cli.h"
 #include "station/report.h"
@@ -233,6 +235,28 @@ static json_t *fail_report(void)
                      "bench-0007.png", "verdict", "FAIL", "reasons", reasons, "reasons_omitted",
                      2, "regions", regions, "recipe", "screen-test", "recipe_version", 3,
                      "log_seq", (json_int_t)1207);
+}
+
+/* The judge's own verdict on a simulated part's truth map
+ * (judge_tolerances, as the evaluation judges known truth), written with
+ * report.c's keys: reasons in judge_describe_reason's words, regions with
+ * judge_region_counts. */
+static json_t *truth_report(const struct region_set *rs, const struct judgement *j)
+{
+    json_t *reasons = json_array(), *regions = json_array();
+    for (int i = 0; i < j->nreasons; i++) {
+        const struct reason *x = &j->reasons[i];
+        json_array_append_new(reasons, reason(x->rule, x->cls, x->zone, x->region, x->measured,
+                                              x->limit, x->unit));
+    }
+    for (int i = 0; i < rs->n; i++)
+        json_array_append_new(regions, region(rs->r[i].id, recipe.cls[rs->r[i].cls].name,
+                                              rs->r[i].area_mm2,
+                                              judge_region_counts(&recipe, &rs->r[i])));
+    return json_pack("{s:i,s:s,s:s,s:o,s:i,s:o,s:I}", "schema", REPORT_SCHEMA, "image", "bench",
+                     "verdict", judge_verdict_name(j->verdict), "reasons", reasons,
+                     "reasons_omitted", j->omitted, "regions", regions, "log_seq",
+                     (json_int_t)1208);
 }
 
 /* ---- tests ---- */
@@ -519,6 +543,68 @@ static void test_verdict_states(void **state)
     image_free(bad);
 }
 
+/* A simulated part the judge fails: the bars are the judge's own totals,
+ * the reasons its own words; F3 shows the overlay core/overlay draws. */
+static void test_judged_bench_part(void **state)
+{
+    (void)state;
+    struct simbench_conditions cond;
+    simbench_conditions_nominal(&cond);
+    struct err e;
+    struct region_set rs;
+    regions_init(&rs);
+    struct regions_opts o;
+    judge_regions_opts(&recipe, NULL, &o);
+    struct judgement j;
+    struct image *frame = NULL, *truth = NULL;
+    int i;
+    for (i = 0; i < 60; i++) {
+        assert_int_equal(simbench_render(11, i, &cond, 480, 360, &frame, &truth, NULL, &e), ST_OK);
+        assert_int_equal(regions_find(&rs, truth, NULL, &o, &e), ST_OK);
+        judge_tolerances(&recipe, &rs, &j);
+        if (j.verdict == VERDICT_FAIL && j.nreasons >= 2)
+            break;
+        image_free(frame);
+        image_free(truth);
+    }
+    assert_true(i < 60);
+    json_t *rep = truth_report(&rs, &j);
+    struct screen_state st;
+    base_state(&st);
+    screen_state_set_report(&st, &recipe, rep);
+    json_decref(rep);
+    assert_int_equal(st.verdict, VERDICT_FAIL);
+    char words[200];
+    judge_describe_reason(&recipe, &j.reasons[0], words, sizeof words);
+    assert_string_equal(st.reasons[0], words);
+    for (int b = 0, c = 0; c < recipe.nclasses; c++) {
+        if (!recipe.cls[c].is_defect)
+            continue;
+        double want = recipe.tol[c].max_total_mm2 < 0 ? j.count[c] : j.total_mm2[c];
+        assert_true(fabs(st.bars[b++].value - want) < 1e-9);
+    }
+    struct image *ov = overlay_inspection(frame, truth, &rs, NULL, &recipe, &j, &e);
+    assert_non_null(ov);
+    st.frame = frame;
+    st.overlay = ov;
+    st.show_overlay = 1;
+    snprintf(st.camera, sizeof st.camera, "simulated bench 480 x 360");
+    snprintf(st.status, sizeof st.status, "remove the part");
+    struct image *img = shot(&st, "screen-fail-overlay");
+    check_panel(img, OI_VERMILION);
+    /* the overlay, taller than the frame by its banner, keeps its own aspect */
+    struct screen_rect f = screen_layout_fit(ov->w, ov->h, L.picture);
+    assert_true(f.w < L.picture.w && f.h == L.picture.h);
+    static const uint8_t black[3] = {0, 0, 0};
+    struct screen_rect left = {L.picture.x, L.picture.y, f.x - L.picture.x, L.picture.h};
+    assert_int_equal(count_rgb(img, left, black, 0), (long)left.w * left.h);
+    image_free(img);
+    image_free(ov);
+    image_free(frame);
+    image_free(truth);
+    regions_clear(&rs);
+}
+
 static void test_camera_lost_and_halted(void **state)
 {
     (void)state;
@@ -677,6 +763,7 @@ int main(int argc, char **argv)
         cmocka_unit_test(test_state_from_report),
         cmocka_unit_test(test_picture_letterboxed),
         cmocka_unit_test(test_verdict_states),
+        cmocka_unit_test(test_judged_bench_part),
         cmocka_unit_test(test_camera_lost_and_halted),
         cmocka_unit_test(test_keys),
     };
