@@ -48,9 +48,12 @@ void screen_panels_header(const struct screen_canvas *c, const struct screen_sta
          half, 0);
     draw(c, SCREEN_PX_TITLE, st->status, TEXT, r->w - p, p, SCREEN_RIGHT, half, 0);
     char cam[2 * SCREEN_TEXT + 128];
-    snprintf(cam, sizeof cam, "%s: %s · %.1f fps · trigger: %s",
-             st->camera_lost ? "CAMERA LOST" : "Camera", st->camera[0] ? st->camera : "none",
-             st->fps, st->trigger);
+    const char *what = st->camera[0] ? st->camera : "none";
+    if (st->camera_lost)   /* no frames: a frame rate would be stale */
+        snprintf(cam, sizeof cam, "CAMERA LOST: %s · trigger: %s", what, st->trigger);
+    else
+        snprintf(cam, sizeof cam, "Camera: %s · %.1f fps · trigger: %s", what, st->fps,
+                 st->trigger);
     int y = p + line(c, SCREEN_PX_TITLE) + p / 2;
     draw(c, SCREEN_PX_SMALL, cam, st->camera_lost ? ORANGE : DIM, p, y, SCREEN_LEFT, half, 0);
     char cal[SCREEN_TEXT + 32];

@@ -617,6 +617,8 @@ static void test_camera_lost_and_halted(void **state)
     st.camera_lost = 1;
     st.verdict = VERDICT_NONE;
     snprintf(st.camera, sizeof st.camera, "/dev/video2: device unplugged (ENODEV)");
+    snprintf(st.status, sizeof st.status, "reconnecting to the camera");
+    st.fps = 0;
     st.nreasons = 1;
     snprintf(st.reasons[0], SCREEN_TEXT, "camera lost: /dev/video2");
     struct image *lost = shot(&st, "screen-camera-lost");
