@@ -41,3 +41,5 @@ echo "bench: inspection log" >&2
 # The audit's readers: stats, report and export on 100 000 records.
 echo "bench: audit stats, report, export" >&2
 "$PYTHON" tests/bench/audit.py
+echo "bench: the operator screen" >&2
+"$BUILD/tests/bench/screen_bench" 60
