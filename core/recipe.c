@@ -1197,8 +1197,7 @@ static void set_defaults(struct recipe *r)
     r->part.border_margin_px = 2;
     r->part.field[0] = -1;
     r->verify_interval_hours = -1;
-    /* a few dozen frame periods at 30 fps: common practice, no source */
-    r->camera.stall_ms = 2000;
+    r->camera.stall_ms = RECIPE_CAM_STALL_MS;
 }
 
 static int set_paths(struct parse *p, const char *path)

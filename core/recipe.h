@@ -92,6 +92,7 @@ enum recipe_cam_setting {
     RCAM_FOCUS = 1u << 3,         /* autofocus off, then focus */
     RCAM_POWER_LINE = 1u << 4     /* anti-flicker filter */
 };
+#define RECIPE_CAM_STALL_MS 2000 /* default stall_ms: a few dozen frame periods, common practice */
 enum recipe_power_line { RCAM_PL_OFF = 0, RCAM_PL_50HZ, RCAM_PL_60HZ }; /* V4L2's own values */
 struct recipe_camera {
     int width, height;         /* asked size; 0: the camera's current one */
