@@ -386,6 +386,50 @@ static void test_not_a_camera(void **state)
     assert_memory_equal(e.msg, want, strlen(want));
 }
 
+/* libv4l's own software controls (LIBV4LCONTROL_CONTROLS turns them on
+ * for any camera: white balance 1, gamma 8, auto gain 32 are libv4lcontrol's
+ * bits in libv4l 1.22, found by listing the controls each value adds) on a camera without those controls of its own: left on by an
+ * earlier program (libv4l keeps them in shared memory), the source turns
+ * them off and gamma to its default, and reports them. */
+static void test_libv4l_software_controls(void **state)
+{
+    (void)state;
+    struct emucam_state st;
+    emucam_default(&st, EMUCAM_YUYV);
+    emucam_find(&st, V4L2_CID_AUTO_WHITE_BALANCE)->present = 0;
+    emucam_find(&st, V4L2_CID_AUTOGAIN)->present = 0;
+    cam_write(&st);
+    setenv("LIBV4LCONTROL_CONTROLS", "41", 1);
+    int fd = v4l2_open(cam_path, O_RDWR);
+    assert_true(fd >= 0);
+    struct v4l2_control c = {.id = V4L2_CID_AUTO_WHITE_BALANCE, .value = 1};
+    assert_int_equal(v4l2_ioctl(fd, VIDIOC_S_CTRL, &c), 0);
+    c = (struct v4l2_control){.id = V4L2_CID_GAMMA, .value = 1500};
+    assert_int_equal(v4l2_ioctl(fd, VIDIOC_S_CTRL, &c), 0);
+    v4l2_close(fd);
+    struct source *s;
+    struct err e;
+    int rc = open_cam(NULL, 160, 120, &s, &e);
+    /* libv4l reads it at open; later tests must not inherit it */
+    unsetenv("LIBV4LCONTROL_CONTROLS");
+    assert_int_equal(rc, ST_OK);
+    const char *j = s->ops->settings_json(s->impl);
+    print_message("settings: %s\n", j);
+    assert_non_null(j);
+    assert_non_null(strstr(j, "\"libv4l_white_balance\":0"));
+    assert_non_null(strstr(j, "\"libv4l_autogain\":0"));
+    assert_non_null(strstr(j, "\"libv4l_gamma\":1000"));
+    close_cam(s);
+    setenv("LIBV4LCONTROL_CONTROLS", "41", 1);
+    fd = v4l2_open(cam_path, O_RDWR);
+    unsetenv("LIBV4LCONTROL_CONTROLS");
+    assert_true(fd >= 0);
+    c = (struct v4l2_control){.id = V4L2_CID_AUTO_WHITE_BALANCE};
+    assert_int_equal(v4l2_ioctl(fd, VIDIOC_G_CTRL, &c), 0);
+    assert_int_equal(c.value, 0); /* kept in libv4l's shared memory */
+    v4l2_close(fd);
+}
+
 /* Root in a private mount namespace, or SKIP. */
 static int enter_namespace(const char *self)
 {
@@ -433,6 +477,7 @@ int main(int argc, char **argv)
         cmocka_unit_test(test_native_rgb),
         cmocka_unit_test(test_lock_order_and_clamp),
         cmocka_unit_test(test_lacking_control),
+        cmocka_unit_test(test_libv4l_software_controls),
         cmocka_unit_test(test_stall_restart),
         cmocka_unit_test(test_unplug_replug),
         cmocka_unit_test(test_bad_buffer_index),
