@@ -104,8 +104,9 @@ static int wait_for(struct source *s, int want, double limit_ms, struct source_f
     while (now_ms() < end) {
         double t0 = now_ms();
         assert_int_equal(s->ops->next(s->impl, 100, f, &st, &e), ST_OK);
-        /* next never blocks past its timeout (a few ms of scheduling slack) */
-        assert_true(now_ms() - t0 < 100 + 60);
+        /* next never blocks past its timeout (with scheduling slack on a
+         * loaded machine, still well under one open of the camera) */
+        assert_true(now_ms() - t0 < 100 + 100);
         if (st == want)
             return 1;
     }
@@ -338,9 +339,12 @@ static void test_unplug_replug(void **state)
         assert_int_equal(s->ops->next(s->impl, 100, &f, &st_code, &e), ST_OK);
         assert_int_equal(st_code, SOURCE_LOST);
     }
+    /* plugged back, slow to open: next still keeps to its timeout
+     * (wait_for checks every call) while a thread reopens */
     emucam_default(&st, EMUCAM_YUYV);
+    st.open_delay_ms = 400;
     cam_write(&st);
-    assert_true(wait_for(s, SOURCE_FRAME, 6000, &f));
+    assert_true(wait_for(s, SOURCE_FRAME, 8000, &f));
     assert_non_null(strstr(s->ops->describe(s->impl), " 160x120 RGB3"));
     cam_read(&st);
     assert_int_equal(emucam_find(&st, V4L2_CID_EXPOSURE_AUTO)->value, V4L2_EXPOSURE_MANUAL);
