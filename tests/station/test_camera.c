@@ -457,6 +457,10 @@ static int enter_namespace(const char *self)
     libdir[strcspn(libdir, "\n")] = '\0';
     char plugins[300], cmd[1200];
     snprintf(plugins, sizeof plugins, "%s/libv4l/plugins", libdir);
+    if (access(plugins, F_OK)) {
+        printf("SKIP: libv4l2's plugin folder %s is missing (package libv4l-0)\n", plugins);
+        return 77;
+    }
     const char *build = getenv("STATION_BUILD") ? getenv("STATION_BUILD") : "build";
     snprintf(cmd, sizeof cmd,
              "unshare -m sh -c 'mount --bind \"$1\" \"$2\" && mount -t tmpfs tmpfs /dev/shm && "
