@@ -41,7 +41,7 @@ struct cam {
     atomic_int attempt_done;
     int attempt_rc;
     struct err attempt_err;
-    char settings[sizeof(struct camctl_report){0}.json]; /* what settings_json shows */
+    char settings[sizeof((struct camctl_report *)0)->json]; /* what settings_json shows */
     int fd;                      /* -1 when closed */
     struct cam_buf buf[CAM_NBUF];
     unsigned nbuf;
