@@ -987,3 +987,39 @@ int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct
     ctx->out = NULL;
     return ST_OK;
 }
+
+/* Multiply-adds and pre-adds of a half-kernel pass of radius r (the
+ * symmetric one has a centre tap too). */
+static void pass_ops(int r, int sym, double n, double *ops)
+{
+    *ops += n * (2.0 * r + (sym ? 1.0 : 0.0));
+}
+
+double feat_pass_ops(const struct feat_ctx *ctx)
+{
+    double ops = 0;
+    if (ctx->sob_d) /* Sobel rows and columns: [-1 0 1] and [1 2 1], twice */
+        pass_ops(1, 0, 2, &ops), pass_ops(1, 1, 2, &ops);
+    for (int i = 0; i < ctx->nsig; i++) {
+        const struct feat_sigma *s = &ctx->sig[i];
+        int r = s->r;
+        /* rows: k0, k1, k2 of grey, k0 of J^2 and of the three products */
+        pass_ops(r, 1, (s->r0 != NULL) + (s->r2 != NULL) + (s->q0 != NULL) + 3.0 * (s->pr[0] != NULL), &ops);
+        pass_ops(r, 0, s->r1 != NULL, &ops);
+        /* columns: k0 of r0 (or gs), k1 and k2 of r0, k0 of r1, r2, q0, products */
+        pass_ops(r, 1, (s->r0 != NULL) + 2.0 * (s->r2 != NULL) + (s->r1 != NULL) + (s->q0 != NULL) +
+                           3.0 * (s->pr[0] != NULL), &ops);
+        pass_ops(r, 0, s->r1 != NULL, &ops);
+    }
+    for (int i = 0; i < ctx->ngab; i++) {
+        const struct feat_gabor *g = &ctx->gab[i];
+        if (g->shared)
+            continue;
+        int parts = 1 + (g->im != NULL); /* row passes, then each gets yre (and yim) */
+        pass_ops(g->r, 1, 1, &ops);
+        pass_ops(g->r, 0, g->im != NULL, &ops);
+        pass_ops(g->r, 1, parts, &ops);
+        pass_ops(g->r, 0, g->y_real ? 0 : parts, &ops);
+    }
+    return ops;
+}

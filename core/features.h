@@ -135,4 +135,10 @@ struct feat_box {
 int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct feat_box *box,
                      struct fstack *out, struct err *e);
 
+/* Vector arithmetic the filter passes do per pixel of the frame (each
+ * half-kernel tap is one add and one multiply-add, a symmetric kernel's
+ * centre one multiply), for the benchmark's floor: the element-wise steps
+ * (magnitudes, eigenvalues) come on top. */
+double feat_pass_ops(const struct feat_ctx *ctx);
+
 #endif
