@@ -88,7 +88,8 @@ $(BUILD)/tests/%: $(BUILD)/tests/%.o $(APP_LIBS)
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
              libsqlite3-dev libsdl2-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
-             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc
+             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc python3-torch \
+             valgrind
 deps:
 	@sh tests/deps.sh $(DEB_BUILD)
 deps-test:
