@@ -111,6 +111,11 @@ struct feat_ctx {
     int wx0, wx1;         /* columns of the Sobel row passes and products: box +- (rmax + 2) */
     int ry0, ry1;         /* rows of the row passes: box +- (rmax + 2) */
     int my0, my1;         /* rows of the middle phase: box +- rmax (Sobel column passes) */
+    /* The row-pass planes hold rows [ry0, ry1) and columns [wx0, wx1) only,
+     * packed with this stride, so a frame's pages touched (and the memory
+     * resident) follow the box's area, not the frame's.  grey and gs keep
+     * the frame's stride (grey is padded whole, gs read by whole rows). */
+    size_t ps;
     const struct image *img;
     struct fstack *out;
     float scale_rgb, scale_grey, mean_grey;
@@ -531,6 +536,19 @@ static float *frow(const struct feat_ctx *ctx, const struct feat_worker *wk, int
     return wk->fb + ((size_t)(y - wk->strip_y0) * (size_t)ctx->n + (size_t)k) * (size_t)ctx->w;
 }
 
+/* Pixel (x, y) of a packed row-pass plane. */
+static float *at(const struct feat_ctx *ctx, float *plane, int y, int x)
+{
+    return plane + (size_t)(y - ctx->ry0) * ctx->ps + (size_t)(x - ctx->wx0);
+}
+
+/* Column-pass sources of a packed plane for output columns from x0 on. */
+static void sources_col(const struct feat_ctx *ctx, float *plane, int y, int x0, int r, const float **src)
+{
+    for (int t = 0; t <= 2 * r; t++)
+        src[t] = at(ctx, plane, filt_reflect(y - r + t, ctx->h), x0);
+}
+
 /* Writes the n planar feature rows as one pixel-major output row, so the
  * stores run contiguously instead of one cache line per value; blocks of 16
  * pixels keep the n source lines in L1. */
@@ -648,22 +666,22 @@ static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int
         for (int i = 0; i < ctx->nsig; i++) {
             struct feat_sigma *s = &ctx->sig[i];
             sources_row_at(wk->pad, rmax, s->r, gx0, src);
-            sym_anti(src, s->k0, s->k1, s->r, gn, s->r0 ? s->r0 + off + gx0 : NULL,
-                     s->r1 ? s->r1 + off + gx0 : NULL);
+            sym_anti(src, s->k0, s->k1, s->r, gn, s->r0 ? at(ctx, s->r0, y, gx0) : NULL,
+                     s->r1 ? at(ctx, s->r1, y, gx0) : NULL);
             if (s->r2)
-                filt_sym(src, s->k2, s->r, gn, s->r2 + off + gx0);
+                filt_sym(src, s->k2, s->r, gn, at(ctx, s->r2, y, gx0));
         }
         if (ctx->sob_d) {
             sources_row_at(wk->pad, rmax, 1, ctx->wx0, src);
-            filt_anti(src, sobel_diff, 1, ctx->wx1 - ctx->wx0, ctx->sob_d + off + ctx->wx0);
-            filt_sym(src, sobel_smooth, 1, ctx->wx1 - ctx->wx0, ctx->sob_s + off + ctx->wx0);
+            filt_anti(src, sobel_diff, 1, ctx->wx1 - ctx->wx0, at(ctx, ctx->sob_d, y, ctx->wx0));
+            filt_sym(src, sobel_smooth, 1, ctx->wx1 - ctx->wx0, at(ctx, ctx->sob_s, y, ctx->wx0));
         }
         for (int i = 0; i < ctx->ngab; i++) {
             struct feat_gabor *gb = &ctx->gab[i];
             if (gb->shared)
                 continue;
             sources_row_at(wk->pad, rmax, gb->r, bx0, src);
-            sym_anti(src, gb->xre, gb->xim, gb->r, bn, gb->re + off + bx0, gb->im ? gb->im + off + bx0 : NULL);
+            sym_anti(src, gb->xre, gb->xim, gb->r, bn, at(ctx, gb->re, y, bx0), gb->im ? at(ctx, gb->im, y, bx0) : NULL);
         }
         if (ctx->spec.families & FEAT_LOCALSTD) {
             centred_square(g, ctx->mean_grey, w, wk->row[0]);
@@ -671,7 +689,7 @@ static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int
             for (int i = 0; i < ctx->nsig; i++) {
                 struct feat_sigma *s = &ctx->sig[i];
                 sources_row_at(wk->pad, rmax, s->r, bx0, src);
-                filt_sym(src, s->k0, s->r, bn, s->q0 + off + bx0);
+                filt_sym(src, s->k0, s->r, bn, at(ctx, s->q0, y, bx0));
             }
         }
     }
@@ -682,7 +700,7 @@ static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int
  * need the Sobel column pass first). */
 static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
 {
-    int w = ctx->w, h = ctx->h, rmax = ctx->rmax;
+    int w = ctx->w, rmax = ctx->rmax;
     const int gx0 = ctx->gx0, gn = ctx->gx1 - ctx->gx0, wx0 = ctx->wx0, wn = ctx->wx1 - ctx->wx0;
     const int bx0 = ctx->box.x0, bn = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
@@ -693,7 +711,7 @@ static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int 
             struct feat_sigma *s = &ctx->sig[i];
             if (!s->gs)
                 continue;
-            filt_sources_col(s->r0 + gx0, w, h, y, s->r, src);
+            sources_col(ctx, s->r0, y, gx0, s->r, src);
             filt_sym(src, s->k0, s->r, gn, s->gs + off + gx0);
         }
         if (!ctx->sob_d)
@@ -701,9 +719,9 @@ static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int 
         /* the products are valid on [wx0, wx1) only; the box's row passes
          * read no further, the frame's border reflecting inside it */
         float *dx = wk->row[0], *dy = wk->row[1], *prod = wk->row[2];
-        filt_sources_col(ctx->sob_d + wx0, w, h, y, 1, src);
+        sources_col(ctx, ctx->sob_d, y, wx0, 1, src);
         filt_sym(src, sobel_smooth, 1, wn, dx + wx0);
-        filt_sources_col(ctx->sob_s + wx0, w, h, y, 1, src);
+        sources_col(ctx, ctx->sob_s, y, wx0, 1, src);
         filt_anti(src, sobel_diff, 1, wn, dy + wx0);
         for (int c = 0; c < 3; c++) {
             sobel_product(dx + wx0, dy + wx0, c, wn, prod + wx0);
@@ -711,7 +729,7 @@ static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int 
             for (int i = 0; i < ctx->nsig; i++) {
                 struct feat_sigma *s = &ctx->sig[i];
                 sources_row_at(wk->pad, rmax, s->r, bx0, src);
-                filt_sym(src, s->k0, s->r, bn, s->pr[c] + off + bx0);
+                filt_sym(src, s->k0, s->r, bn, at(ctx, s->pr[c], y, bx0));
             }
         }
     }
@@ -732,29 +750,29 @@ static void colour_row(const struct feat_ctx *ctx, struct feat_worker *wk, int y
 /* gauss, gradient, laplace, localstd of one sigma at row y */
 static void cols_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_sigma *s, int y)
 {
-    int w = ctx->w, h = ctx->h, r = s->r, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
+    int w = ctx->w, r = s->r, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
     float *gy = wk->row[1] + x0, *lyy = wk->row[2] + x0, *tmp = wk->row[3] + x0;
     int kg = s->idx[SLOT_GAUSS];
     float *g = (kg >= 0 ? frow(ctx, wk, kg, y) : wk->row[0]) + x0;
-    filt_sources_col(s->r0 + x0, w, h, y, r, src);
+    sources_col(ctx, s->r0, y, x0, r, src);
     if (s->gs)
         memcpy(g, s->gs + (size_t)y * (size_t)w + x0, (size_t)n * sizeof *g);
     sym_anti(src, s->k0, s->k1, r, n, s->gs ? NULL : g, s->r1 ? gy : NULL);
     if (s->r2)
         filt_sym(src, s->k2, r, n, lyy);
     if (s->r1) {
-        filt_sources_col(s->r1 + x0, w, h, y, r, src);
+        sources_col(ctx, s->r1, y, x0, r, src);
         filt_sym(src, s->k0, r, n, tmp);
         magnitude(tmp, gy, n, frow(ctx, wk, s->idx[SLOT_GRADIENT], y) + x0);
     }
     if (s->r2) {
-        filt_sources_col(s->r2 + x0, w, h, y, r, src);
+        sources_col(ctx, s->r2, y, x0, r, src);
         filt_sym(src, s->k0, r, n, tmp);
         sum_rows(tmp, lyy, n, frow(ctx, wk, s->idx[SLOT_LAPLACE], y) + x0);
     }
     if (s->q0) {
-        filt_sources_col(s->q0 + x0, w, h, y, r, src);
+        sources_col(ctx, s->q0, y, x0, r, src);
         filt_sym(src, s->k0, r, n, tmp);
         local_std(tmp, g, ctx->mean_grey, n, frow(ctx, wk, s->idx[SLOT_LOCALSTD], y) + x0);
     }
@@ -836,7 +854,7 @@ static void hessian_row(struct feat_ctx *ctx, struct feat_worker *wk, const floa
 /* Hessian eigenvalues and the structure tensor's column passes of one sigma */
 static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_sigma *s, int y)
 {
-    int w = ctx->w, h = ctx->h, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
+    int x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
     if (s->gs) {
         hessian_row(ctx, wk, s->gs, y);
         eigen_2x2(wk->row[2] + x0, wk->row[3] + x0, wk->row[4] + x0, n,
@@ -844,7 +862,7 @@ static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const stru
     }
     if (s->pr[0]) {
         for (int c = 0; c < 3; c++) {
-            filt_sources_col(s->pr[c] + x0, w, h, y, s->r, wk->src);
+            sources_col(ctx, s->pr[c], y, x0, s->r, wk->src);
             filt_sym(wk->src, s->k0, s->r, n, wk->row[5 + c] + x0);
         }
         eigen_2x2(wk->row[5] + x0, wk->row[6] + x0, wk->row[7] + x0, n,
@@ -859,15 +877,15 @@ static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const stru
  * as (A + B) + i (C - D). */
 static void gabor_row(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_gabor *gb, int y)
 {
-    int w = ctx->w, h = ctx->h, r = gb->r, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
+    int r = gb->r, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
     float *a = wk->row[0] + x0, *b = ctx->zero, *c = ctx->zero, *d = ctx->zero;
-    filt_sources_col(gb->re + x0, w, h, y, r, src);
+    sources_col(ctx, gb->re, y, x0, r, src);
     if (!gb->y_real)
         d = wk->row[3] + x0;
     sym_anti(src, gb->yre, gb->yim, r, n, a, gb->y_real ? NULL : d);
     if (gb->im) {
-        filt_sources_col(gb->im + x0, w, h, y, r, src);
+        sources_col(ctx, gb->im, y, x0, r, src);
         c = wk->row[2] + x0;
         if (!gb->y_real)
             b = wk->row[1] + x0;
@@ -954,6 +972,7 @@ static void set_box(struct feat_ctx *ctx, const struct feat_box *b)
     ctx->ry1 = clamp(box.y1 + m, 0, h);
     ctx->my0 = clamp(box.y0 - ctx->rmax, 0, h);
     ctx->my1 = clamp(box.y1 + ctx->rmax, 0, h);
+    ctx->ps = (size_t)(ctx->wx1 - ctx->wx0);
 }
 
 int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
