@@ -61,8 +61,8 @@ if command -v valgrind >/dev/null && [ "${CALLGRIND:-1}" = 1 ]; then
     # inclusive counts inside inspector_run: feat_compute_box is the features
     # stage, forest_classify the classifier's share of the classify stage
     cg=$(callgrind_annotate --inclusive=yes --threshold=100 "$BUILD/bench-callgrind.out" 2>/dev/null |
-        awk '$2 ~ /^\(/ && $3 ~ /^core\/.*:(feat_compute_box|forest_classify|inspector_run)$/ {
-            gsub(",", "", $1); sub(".*:", "", $3); print $1, $3 }' | tr '\n' ';')
+        awk '$2 ~ /^\(/ && $3 ~ /(^|\/)core\/[a-z]+\.c:(feat_compute_box|forest_classify|inspector_run)$/ {
+            gsub(",", "", $1); sub(".*:", "", $3); if (!seen[$3]++) print $1, $3 }' | tr '\n' ';')
 fi
 echo "{\"memory\": $mem, \"train_s\": $train_s, \"callgrind\": \"$cg\"}" >"$BUILD/bench-extra.json"
 "$PYTHON" tests/bench/report.py "$results" "$BUILD/bench-extra.json"
