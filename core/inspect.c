@@ -43,7 +43,7 @@ struct inspector {
     int gw, gh;             /* grid of the locating pass */
     uint8_t *cell_cls, *need;
     float *cell_conf;
-    uint64_t *cell_sum;     /* one grid row of cell grey sums */
+    uint64_t *cell_sum;     /* per cell: sum of its integer grey */
     int cx0, cy0, cx1, cy1; /* the cells features were computed for */
     float *grid_rows;       /* per worker: one grid row of samples' features */
     struct region_set rs;
@@ -170,7 +170,7 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->cell_cls = malloc(cells);
     in->need = malloc(cells);
     in->cell_conf = malloc(cells * sizeof *in->cell_conf);
-    in->cell_sum = malloc((size_t)in->gw * sizeof *in->cell_sum);
+    in->cell_sum = malloc(cells * sizeof *in->cell_sum);
     in->grid_rows = malloc((size_t)workers(in) * in->gw * in->fs->n * sizeof *in->grid_rows);
     if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows || !in->cell_sum ||
         !in->grey || !in->last)
@@ -271,30 +271,31 @@ static int run_workers(struct inspector *in, int y0, int y1, void *(*fn)(void *)
     return ST_OK;
 }
 
-/* The cells [cx0, cx1) x [cy0, cy1) of the bright box (BOX_GROW). */
+/* The cells [cx0, cx1) x [cy0, cy1) of the bright box (BOX_GROW): one
+ * pass sums each cell's integer grey (299 R + 587 G + 114 B, as the
+ * features' brightness statistics), the frame's sum is theirs. */
 static void bright_cells(struct inspector *in, const struct image *img)
 {
     const int w = img->w, h = img->h, ch = img->channels, gw = in->gw, gh = in->gh;
-    uint64_t total = 0;
-    for (size_t i = 0, n = (size_t)w * h; i < n; i++) {
-        const uint8_t *p = img->px + i * ch;
-        total += ch == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
+    uint64_t *sum = in->cell_sum, total = 0;
+    memset(sum, 0, (size_t)gw * gh * sizeof *sum);
+    for (int y = 0; y < h; y++) {
+        const uint8_t *p = img->px + (size_t)y * w * ch;
+        uint64_t *row = sum + (size_t)(y / ROI_STEP) * gw;
+        for (int x = 0; x < w; x++, p += ch)
+            row[x / ROI_STEP] += ch == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
     }
+    for (size_t i = 0; i < (size_t)gw * gh; i++)
+        total += sum[i];
     const uint64_t npx = (uint64_t)w * h;
     int cx0 = gw, cx1 = 0, cy0 = gh, cy1 = 0;
     for (int gy = 0; gy < gh; gy++) {
-        memset(in->cell_sum, 0, (size_t)gw * sizeof *in->cell_sum);
         int ye = (gy + 1) * ROI_STEP < h ? (gy + 1) * ROI_STEP : h;
-        for (int y = gy * ROI_STEP; y < ye; y++) {
-            const uint8_t *p = img->px + (size_t)y * w * ch;
-            for (int x = 0; x < w; x++, p += ch)
-                in->cell_sum[x / ROI_STEP] += ch == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
-        }
         for (int gx = 0; gx < gw; gx++) {
             int xe = (gx + 1) * ROI_STEP < w ? (gx + 1) * ROI_STEP : w;
             uint64_t cell = (uint64_t)(xe - gx * ROI_STEP) * (uint64_t)(ye - gy * ROI_STEP);
             /* cell mean above the frame mean, in integers */
-            if (in->cell_sum[gx] * npx > total * cell) {
+            if (sum[(size_t)gy * gw + gx] * npx > total * cell) {
                 cx0 = gx < cx0 ? gx : cx0;
                 cx1 = gx + 1 > cx1 ? gx + 1 : cx1;
                 cy0 = gy < cy0 ? gy : cy0;
@@ -355,13 +356,14 @@ static int classify_located(struct inspector *in, double t0, struct inspect_time
 {
     const int gw = in->gw, gh = in->gh;
     bright_cells(in, in->frame);
-    double feat_ms = now_ms() - t0, start = now_ms();
-    int rc = sample_box(in, &feat_ms, e);
+    double feat_ms = now_ms() - t0; /* the box, then the features inside it */
+    double start = now_ms(), box_feat_ms = 0;
+    int rc = sample_box(in, &box_feat_ms, e);
     if (!rc && box_cut(in)) {
         in->cx0 = in->cy0 = 0;
         in->cx1 = gw;
         in->cy1 = gh;
-        rc = sample_box(in, &feat_ms, e);
+        rc = sample_box(in, &box_feat_ms, e);
     }
     if (rc)
         return rc;
@@ -377,8 +379,8 @@ static int classify_located(struct inspector *in, double t0, struct inspect_time
         }
     rc = run_workers(in, 0, in->h, full_pass, e);
     if (t) {
-        t->features_ms = feat_ms;
-        t->classify_ms = now_ms() - start - (feat_ms - (start - t0));
+        t->features_ms = feat_ms + box_feat_ms;
+        t->classify_ms = now_ms() - start - box_feat_ms;
     }
     return rc;
 }
