@@ -56,7 +56,7 @@ APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
 # libv4l2's plugin folder (tests/emucam/emucam.h).
 EMUCAM_SO   := $(BUILD)/tests/emucam/libv4l-emucam.so
 
-.PHONY: all check demo bench install uninstall clean deps deps-test
+.PHONY: all check demo bench install uninstall clean deps deps-test deps-bench
 all: $(STATION_BIN)
 
 $(BUILD)/obj/%.o: %.c
@@ -100,10 +100,14 @@ DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansso
              libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
              python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb
+# Only make bench needs these: the Python peer pipeline and callgrind's counts.
+DEB_BENCH := python3-torch valgrind
 deps:
 	@sh tests/deps.sh $(DEB_BUILD)
 deps-test:
 	@sh tests/deps.sh $(DEB_BUILD) $(DEB_TEST)
+deps-bench:
+	@sh tests/deps.sh $(DEB_BUILD) $(DEB_TEST) $(DEB_BENCH)
 
 check: deps-test
 	@$(MAKE) --no-print-directory test-programs
@@ -117,7 +121,7 @@ demo: deps
 	@$(MAKE) --no-print-directory $(STATION_BIN)
 	$(STATION_BIN) demo --out $(DEMO_OUT)
 
-bench: deps-test
+bench: deps-bench
 	@$(MAKE) --no-print-directory test-programs
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/bench/run.sh
 

@@ -106,6 +106,16 @@ struct feat_ctx {
     struct feat_job *jobs;
     pthread_t *tids;
     /* set per frame, read by the workers */
+    struct feat_box box;  /* the features asked for */
+    int gx0, gx1;         /* columns of the grey's row passes: box +-2 (the Hessian's differences) */
+    int wx0, wx1;         /* columns of the Sobel row passes and products: box +- (rmax + 2) */
+    int ry0, ry1;         /* rows of the row passes: box +- (rmax + 2) */
+    int my0, my1;         /* rows of the middle phase: box +- rmax (Sobel column passes) */
+    /* The row-pass planes hold rows [ry0, ry1) and columns [wx0, wx1) only,
+     * packed with this stride, so a frame's pages touched (and the memory
+     * resident) follow the box's area, not the frame's.  grey and gs keep
+     * the frame's stride (grey is padded whole, gs read by whole rows). */
+    size_t ps;
     const struct image *img;
     struct fstack *out;
     float scale_rgb, scale_grey, mean_grey;
@@ -526,6 +536,19 @@ static float *frow(const struct feat_ctx *ctx, const struct feat_worker *wk, int
     return wk->fb + ((size_t)(y - wk->strip_y0) * (size_t)ctx->n + (size_t)k) * (size_t)ctx->w;
 }
 
+/* Pixel (x, y) of a packed row-pass plane. */
+static float *at(const struct feat_ctx *ctx, float *plane, int y, int x)
+{
+    return plane + (size_t)(y - ctx->ry0) * ctx->ps + (size_t)(x - ctx->wx0);
+}
+
+/* Column-pass sources of a packed plane for output columns from x0 on. */
+static void sources_col(const struct feat_ctx *ctx, float *plane, int y, int x0, int r, const float **src)
+{
+    for (int t = 0; t <= 2 * r; t++)
+        src[t] = at(ctx, plane, filt_reflect(y - r + t, ctx->h), x0);
+}
+
 /* Writes the n planar feature rows as one pixel-major output row, so the
  * stores run contiguously instead of one cache line per value; blocks of 16
  * pixels keep the n source lines in L1. */
@@ -542,8 +565,9 @@ static void interleave_row(const struct feat_ctx *ctx, const struct feat_worker 
     size_t n = (size_t)ctx->n, w = (size_t)ctx->w;
     float *o = ctx->out->v + (size_t)y * w * n;
     const float *fb = frow(ctx, wk, 0, y);
-    for (size_t x0 = 0; x0 < w; x0 += 16)
-        interleave_block(fb, w, n, x0, w - x0 < 16 ? w - x0 : 16, o + x0 * n);
+    size_t x1 = (size_t)ctx->box.x1;
+    for (size_t x0 = (size_t)ctx->box.x0; x0 < x1; x0 += 16)
+        interleave_block(fb, w, n, x0, x1 - x0 < 16 ? x1 - x0 : 16, o + x0 * n);
 }
 
 FILT_HOT static void grey_row(const uint8_t *restrict px, int ch, int w, float scale, float *restrict g)
@@ -617,12 +641,21 @@ static void sym_anti(const float *const *src, const float *ks, const float *ka, 
         filt_anti(src, ka, r, w, oa);
 }
 
+/* Row-pass sources for output columns from x0 on: filt_sources_row shifted. */
+static void sources_row_at(const float *pad, int rpad, int r, int x0, const float **src)
+{
+    filt_sources_row(pad + x0, rpad, r, src);
+}
+
 /* Every pass that needs only its own row: grey, the row passes, the Sobel
- * row parts. */
+ * row parts.  Grey and its padded copy are whole rows (the reflection at the
+ * frame's border must see the frame's pixels); the passes cover only the
+ * columns a later phase reads. */
 static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
 {
     const struct image *img = ctx->img;
     int w = ctx->w, ch = img->channels, rmax = ctx->rmax;
+    const int gx0 = ctx->gx0, gn = ctx->gx1 - ctx->gx0, bx0 = ctx->box.x0, bn = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
     for (int y = y0; y < y1 && ctx->grey; y++) {
         const uint8_t *px = img->px + (size_t)y * (size_t)w * (size_t)ch;
@@ -632,30 +665,31 @@ static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int
         filt_pad_row(g, w, rmax, wk->pad);
         for (int i = 0; i < ctx->nsig; i++) {
             struct feat_sigma *s = &ctx->sig[i];
-            filt_sources_row(wk->pad, rmax, s->r, src);
-            sym_anti(src, s->k0, s->k1, s->r, w, s->r0 ? s->r0 + off : NULL, s->r1 ? s->r1 + off : NULL);
+            sources_row_at(wk->pad, rmax, s->r, gx0, src);
+            sym_anti(src, s->k0, s->k1, s->r, gn, s->r0 ? at(ctx, s->r0, y, gx0) : NULL,
+                     s->r1 ? at(ctx, s->r1, y, gx0) : NULL);
             if (s->r2)
-                filt_sym(src, s->k2, s->r, w, s->r2 + off);
+                filt_sym(src, s->k2, s->r, gn, at(ctx, s->r2, y, gx0));
         }
         if (ctx->sob_d) {
-            filt_sources_row(wk->pad, rmax, 1, src);
-            filt_anti(src, sobel_diff, 1, w, ctx->sob_d + off);
-            filt_sym(src, sobel_smooth, 1, w, ctx->sob_s + off);
+            sources_row_at(wk->pad, rmax, 1, ctx->wx0, src);
+            filt_anti(src, sobel_diff, 1, ctx->wx1 - ctx->wx0, at(ctx, ctx->sob_d, y, ctx->wx0));
+            filt_sym(src, sobel_smooth, 1, ctx->wx1 - ctx->wx0, at(ctx, ctx->sob_s, y, ctx->wx0));
         }
         for (int i = 0; i < ctx->ngab; i++) {
             struct feat_gabor *gb = &ctx->gab[i];
             if (gb->shared)
                 continue;
-            filt_sources_row(wk->pad, rmax, gb->r, src);
-            sym_anti(src, gb->xre, gb->xim, gb->r, w, gb->re + off, gb->im ? gb->im + off : NULL);
+            sources_row_at(wk->pad, rmax, gb->r, bx0, src);
+            sym_anti(src, gb->xre, gb->xim, gb->r, bn, at(ctx, gb->re, y, bx0), gb->im ? at(ctx, gb->im, y, bx0) : NULL);
         }
         if (ctx->spec.families & FEAT_LOCALSTD) {
             centred_square(g, ctx->mean_grey, w, wk->row[0]);
             filt_pad_row(wk->row[0], w, rmax, wk->pad);
             for (int i = 0; i < ctx->nsig; i++) {
                 struct feat_sigma *s = &ctx->sig[i];
-                filt_sources_row(wk->pad, rmax, s->r, src);
-                filt_sym(src, s->k0, s->r, w, s->q0 + off);
+                sources_row_at(wk->pad, rmax, s->r, bx0, src);
+                filt_sym(src, s->k0, s->r, bn, at(ctx, s->q0, y, bx0));
             }
         }
     }
@@ -666,31 +700,36 @@ static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int
  * need the Sobel column pass first). */
 static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
 {
-    int w = ctx->w, h = ctx->h, rmax = ctx->rmax;
+    int w = ctx->w, rmax = ctx->rmax;
+    const int gx0 = ctx->gx0, gn = ctx->gx1 - ctx->gx0, wx0 = ctx->wx0, wn = ctx->wx1 - ctx->wx0;
+    const int bx0 = ctx->box.x0, bn = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
     for (int y = y0; y < y1; y++) {
         size_t off = (size_t)y * (size_t)w;
-        for (int i = 0; i < ctx->nsig; i++) {
+        /* the Hessian's differences reach 2 rows beyond the box */
+        for (int i = 0; i < ctx->nsig && y >= ctx->box.y0 - 2 && y < ctx->box.y1 + 2; i++) {
             struct feat_sigma *s = &ctx->sig[i];
             if (!s->gs)
                 continue;
-            filt_sources_col(s->r0, w, h, y, s->r, src);
-            filt_sym(src, s->k0, s->r, w, s->gs + off);
+            sources_col(ctx, s->r0, y, gx0, s->r, src);
+            filt_sym(src, s->k0, s->r, gn, s->gs + off + gx0);
         }
         if (!ctx->sob_d)
             continue;
+        /* the products are valid on [wx0, wx1) only; the box's row passes
+         * read no further, the frame's border reflecting inside it */
         float *dx = wk->row[0], *dy = wk->row[1], *prod = wk->row[2];
-        filt_sources_col(ctx->sob_d, w, h, y, 1, src);
-        filt_sym(src, sobel_smooth, 1, w, dx);
-        filt_sources_col(ctx->sob_s, w, h, y, 1, src);
-        filt_anti(src, sobel_diff, 1, w, dy);
+        sources_col(ctx, ctx->sob_d, y, wx0, 1, src);
+        filt_sym(src, sobel_smooth, 1, wn, dx + wx0);
+        sources_col(ctx, ctx->sob_s, y, wx0, 1, src);
+        filt_anti(src, sobel_diff, 1, wn, dy + wx0);
         for (int c = 0; c < 3; c++) {
-            sobel_product(dx, dy, c, w, prod);
+            sobel_product(dx + wx0, dy + wx0, c, wn, prod + wx0);
             filt_pad_row(prod, w, rmax, wk->pad);
             for (int i = 0; i < ctx->nsig; i++) {
                 struct feat_sigma *s = &ctx->sig[i];
-                filt_sources_row(wk->pad, rmax, s->r, src);
-                filt_sym(src, s->k0, s->r, w, s->pr[c] + off);
+                sources_row_at(wk->pad, rmax, s->r, bx0, src);
+                filt_sym(src, s->k0, s->r, bn, at(ctx, s->pr[c], y, bx0));
             }
         }
     }
@@ -703,7 +742,7 @@ static void colour_row(const struct feat_ctx *ctx, struct feat_worker *wk, int y
     for (int c = 0; c < 3; c++) {
         const uint8_t *p = px + (ch == 3 ? c : 0);
         float *o = frow(ctx, wk, ctx->idx_colour + c, y);
-        for (int x = 0; x < ctx->w; x++)
+        for (int x = ctx->box.x0; x < ctx->box.x1; x++)
             o[x] = p[x * ch] * ctx->scale_rgb;
     }
 }
@@ -711,45 +750,48 @@ static void colour_row(const struct feat_ctx *ctx, struct feat_worker *wk, int y
 /* gauss, gradient, laplace, localstd of one sigma at row y */
 static void cols_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_sigma *s, int y)
 {
-    int w = ctx->w, h = ctx->h, r = s->r;
+    int w = ctx->w, r = s->r, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
-    float *gy = wk->row[1], *lyy = wk->row[2], *tmp = wk->row[3];
+    float *gy = wk->row[1] + x0, *lyy = wk->row[2] + x0, *tmp = wk->row[3] + x0;
     int kg = s->idx[SLOT_GAUSS];
-    float *g = kg >= 0 ? frow(ctx, wk, kg, y) : wk->row[0];
-    filt_sources_col(s->r0, w, h, y, r, src);
+    float *g = (kg >= 0 ? frow(ctx, wk, kg, y) : wk->row[0]) + x0;
+    sources_col(ctx, s->r0, y, x0, r, src);
     if (s->gs)
-        memcpy(g, s->gs + (size_t)y * (size_t)w, (size_t)w * sizeof *g);
-    sym_anti(src, s->k0, s->k1, r, w, s->gs ? NULL : g, s->r1 ? gy : NULL);
+        memcpy(g, s->gs + (size_t)y * (size_t)w + x0, (size_t)n * sizeof *g);
+    sym_anti(src, s->k0, s->k1, r, n, s->gs ? NULL : g, s->r1 ? gy : NULL);
     if (s->r2)
-        filt_sym(src, s->k2, r, w, lyy);
+        filt_sym(src, s->k2, r, n, lyy);
     if (s->r1) {
-        filt_sources_col(s->r1, w, h, y, r, src);
-        filt_sym(src, s->k0, r, w, tmp);
-        magnitude(tmp, gy, w, frow(ctx, wk, s->idx[SLOT_GRADIENT], y));
+        sources_col(ctx, s->r1, y, x0, r, src);
+        filt_sym(src, s->k0, r, n, tmp);
+        magnitude(tmp, gy, n, frow(ctx, wk, s->idx[SLOT_GRADIENT], y) + x0);
     }
     if (s->r2) {
-        filt_sources_col(s->r2, w, h, y, r, src);
-        filt_sym(src, s->k0, r, w, tmp);
-        sum_rows(tmp, lyy, w, frow(ctx, wk, s->idx[SLOT_LAPLACE], y));
+        sources_col(ctx, s->r2, y, x0, r, src);
+        filt_sym(src, s->k0, r, n, tmp);
+        sum_rows(tmp, lyy, n, frow(ctx, wk, s->idx[SLOT_LAPLACE], y) + x0);
     }
     if (s->q0) {
-        filt_sources_col(s->q0, w, h, y, r, src);
-        filt_sym(src, s->k0, r, w, tmp);
-        local_std(tmp, g, ctx->mean_grey, w, frow(ctx, wk, s->idx[SLOT_LOCALSTD], y));
+        sources_col(ctx, s->q0, y, x0, r, src);
+        filt_sym(src, s->k0, r, n, tmp);
+        local_std(tmp, g, ctx->mean_grey, n, frow(ctx, wk, s->idx[SLOT_LOCALSTD], y) + x0);
     }
 }
 
-/* numpy.gradient along x of one row (edge_order 1) */
-FILT_HOT static void grad_x(const float *restrict g, int w, float *restrict out)
+/* numpy.gradient along x of a row of width w (edge_order 1), at the
+ * columns [x0, x1) only; reads g on [x0 - 1, x1 + 1) within the row. */
+FILT_HOT static void grad_x(const float *restrict g, int w, int x0, int x1, float *restrict out)
 {
     if (w == 1) {
         out[0] = 0.0f;
         return;
     }
-    out[0] = g[1] - g[0];
-    for (int x = 1; x < w - 1; x++)
+    if (x0 == 0)
+        out[x0++] = g[1] - g[0];
+    if (x1 == w)
+        out[--x1] = g[w - 1] - g[w - 2];
+    for (int x = x0; x < x1; x++)
         out[x] = (g[x + 1] - g[x - 1]) * 0.5f;
-    out[w - 1] = g[w - 1] - g[w - 2];
 }
 
 /* numpy.gradient along y at one row from its neighbour rows hi and lo:
@@ -796,33 +838,35 @@ static void hessian_row(struct feat_ctx *ctx, struct feat_worker *wk, const floa
     const float *lo = gs + (size_t)y_lo(y) * (size_t)w, *hi = gs + (size_t)y_hi(y, h) * (size_t)w;
     float *t1 = wk->row[0], *t2 = wk->row[1], *hxx = wk->row[2], *hxy = wk->row[3], *hyy = wk->row[4];
     float inv = y_inv(y, h);
-    grad_x(row, w, t1);
-    grad_x(t1, w, hxx);
-    grad_x(hi, w, t1);
-    grad_x(lo, w, t2);
-    grad_y(t1, t2, inv, w, hxy);
+    const int x0 = ctx->box.x0, x1 = ctx->box.x1, n = x1 - x0;
+    /* d/dx twice: the first difference is needed one column beyond the box */
+    grad_x(row, w, x0 > 0 ? x0 - 1 : 0, x1 < w ? x1 + 1 : w, t1);
+    grad_x(t1, w, x0, x1, hxx);
+    grad_x(hi, w, x0, x1, t1);
+    grad_x(lo, w, x0, x1, t2);
+    grad_y(t1 + x0, t2 + x0, inv, n, hxy + x0);
     int yh = y_hi(y, h), yl = y_lo(y);
-    grad_y(gs + (size_t)y_hi(yh, h) * w, gs + (size_t)y_lo(yh) * w, y_inv(yh, h), w, t1);
-    grad_y(gs + (size_t)y_hi(yl, h) * w, gs + (size_t)y_lo(yl) * w, y_inv(yl, h), w, t2);
-    grad_y(t1, t2, inv, w, hyy);
+    grad_y(gs + (size_t)y_hi(yh, h) * w + x0, gs + (size_t)y_lo(yh) * w + x0, y_inv(yh, h), n, t1 + x0);
+    grad_y(gs + (size_t)y_hi(yl, h) * w + x0, gs + (size_t)y_lo(yl) * w + x0, y_inv(yl, h), n, t2 + x0);
+    grad_y(t1 + x0, t2 + x0, inv, n, hyy + x0);
 }
 
 /* Hessian eigenvalues and the structure tensor's column passes of one sigma */
 static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_sigma *s, int y)
 {
-    int w = ctx->w, h = ctx->h;
+    int x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
     if (s->gs) {
         hessian_row(ctx, wk, s->gs, y);
-        eigen_2x2(wk->row[2], wk->row[3], wk->row[4], w, frow(ctx, wk, s->idx[SLOT_HESS_HI], y),
-                  frow(ctx, wk, s->idx[SLOT_HESS_LO], y));
+        eigen_2x2(wk->row[2] + x0, wk->row[3] + x0, wk->row[4] + x0, n,
+                  frow(ctx, wk, s->idx[SLOT_HESS_HI], y) + x0, frow(ctx, wk, s->idx[SLOT_HESS_LO], y) + x0);
     }
     if (s->pr[0]) {
         for (int c = 0; c < 3; c++) {
-            filt_sources_col(s->pr[c], w, h, y, s->r, wk->src);
-            filt_sym(wk->src, s->k0, s->r, w, wk->row[5 + c]);
+            sources_col(ctx, s->pr[c], y, x0, s->r, wk->src);
+            filt_sym(wk->src, s->k0, s->r, n, wk->row[5 + c] + x0);
         }
-        eigen_2x2(wk->row[5], wk->row[6], wk->row[7], w, frow(ctx, wk, s->idx[SLOT_STRUCT_HI], y),
-                  frow(ctx, wk, s->idx[SLOT_STRUCT_LO], y));
+        eigen_2x2(wk->row[5] + x0, wk->row[6] + x0, wk->row[7] + x0, n,
+                  frow(ctx, wk, s->idx[SLOT_STRUCT_HI], y) + x0, frow(ctx, wk, s->idx[SLOT_STRUCT_LO], y) + x0);
     }
 }
 
@@ -833,23 +877,23 @@ static void final_sigma(struct feat_ctx *ctx, struct feat_worker *wk, const stru
  * as (A + B) + i (C - D). */
 static void gabor_row(struct feat_ctx *ctx, struct feat_worker *wk, const struct feat_gabor *gb, int y)
 {
-    int w = ctx->w, h = ctx->h, r = gb->r;
+    int r = gb->r, x0 = ctx->box.x0, n = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
-    float *a = wk->row[0], *b = ctx->zero, *c = ctx->zero, *d = ctx->zero;
-    filt_sources_col(gb->re, w, h, y, r, src);
+    float *a = wk->row[0] + x0, *b = ctx->zero, *c = ctx->zero, *d = ctx->zero;
+    sources_col(ctx, gb->re, y, x0, r, src);
     if (!gb->y_real)
-        d = wk->row[3];
-    sym_anti(src, gb->yre, gb->yim, r, w, a, gb->y_real ? NULL : d);
+        d = wk->row[3] + x0;
+    sym_anti(src, gb->yre, gb->yim, r, n, a, gb->y_real ? NULL : d);
     if (gb->im) {
-        filt_sources_col(gb->im, w, h, y, r, src);
-        c = wk->row[2];
+        sources_col(ctx, gb->im, y, x0, r, src);
+        c = wk->row[2] + x0;
         if (!gb->y_real)
-            b = wk->row[1];
-        sym_anti(src, gb->yre, gb->yim, r, w, c, gb->y_real ? NULL : b);
+            b = wk->row[1] + x0;
+        sym_anti(src, gb->yre, gb->yim, r, n, c, gb->y_real ? NULL : b);
     }
-    complex_magnitude(a, b, c, d, 1.0f, w, frow(ctx, wk, gb->idx, y));
+    complex_magnitude(a, b, c, d, 1.0f, n, frow(ctx, wk, gb->idx, y) + x0);
     if (gb->mirror >= 0)
-        complex_magnitude(a, b, c, d, -1.0f, w, frow(ctx, wk, ctx->gab[gb->mirror].idx, y));
+        complex_magnitude(a, b, c, d, -1.0f, n, frow(ctx, wk, ctx->gab[gb->mirror].idx, y) + x0);
 }
 
 /* Every feature of a strip into the planar buffer, one pass at a time over
@@ -887,12 +931,12 @@ static void *feat_job_run(void *arg)
 /* Splits the rows over the workers; joining them is the barrier between
  * phases.  A worker whose thread cannot start is run by the caller, which
  * costs time but not the frame. */
-static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn)
+static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn, int y0, int y1)
 {
-    int nt = ctx->nthreads;
+    int nt = ctx->nthreads < y1 - y0 ? ctx->nthreads : y1 - y0;
     char started[FEAT_MAX_THREADS] = {0};
     for (int t = 0; t < nt; t++)
-        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], ctx->h * t / nt, ctx->h * (t + 1) / nt};
+        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y0 + (y1 - y0) * t / nt, y0 + (y1 - y0) * (t + 1) / nt};
     for (int t = 1; t < nt; t++)
         started[t] = pthread_create(&ctx->tids[t], NULL, feat_job_run, &ctx->jobs[t]) == 0;
     feat_job_run(&ctx->jobs[0]);
@@ -904,7 +948,41 @@ static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn)
     }
 }
 
+static int clamp(int v, int lo, int hi)
+{
+    return v < lo ? lo : v > hi ? hi : v;
+}
+
+/* The rows and columns each phase covers for the box.  A pass of radius r
+ * at the box's edge reflects at the frame's border into rows within r of
+ * the box as long as r is below the frame's size; beyond that (a tiny
+ * frame) the whole frame is computed. */
+static void set_box(struct feat_ctx *ctx, const struct feat_box *b)
+{
+    int w = ctx->w, h = ctx->h, m = ctx->rmax + 2;
+    struct feat_box box = *b;
+    if (m >= w || m >= h)
+        box = (struct feat_box){0, 0, w, h};
+    ctx->box = box;
+    ctx->gx0 = clamp(box.x0 - 2, 0, w);
+    ctx->gx1 = clamp(box.x1 + 2, 0, w);
+    ctx->wx0 = clamp(box.x0 - m, 0, w);
+    ctx->wx1 = clamp(box.x1 + m, 0, w);
+    ctx->ry0 = clamp(box.y0 - m, 0, h);
+    ctx->ry1 = clamp(box.y1 + m, 0, h);
+    ctx->my0 = clamp(box.y0 - ctx->rmax, 0, h);
+    ctx->my1 = clamp(box.y1 + ctx->rmax, 0, h);
+    ctx->ps = (size_t)(ctx->wx1 - ctx->wx0);
+}
+
 int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
+{
+    struct feat_box all = {0, 0, ctx->w, ctx->h};
+    return feat_compute_box(ctx, img, &all, out, e);
+}
+
+int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct feat_box *box,
+                     struct fstack *out, struct err *e)
 {
     if (img->w != ctx->w || img->h != ctx->h || (img->channels != 1 && img->channels != 3))
         return err_set(e, ST_EINVAL, "features: frame %dx%dx%d does not fit a context for %dx%d (1 or 3 channels)",
@@ -912,14 +990,55 @@ int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *o
     if (out->w != ctx->w || out->h != ctx->h || out->n != ctx->n)
         return err_set(e, ST_EINVAL, "features: stack %dx%dx%d given for %dx%d frames with %d features", out->w,
                        out->h, out->n, ctx->w, ctx->h, ctx->n);
+    if (box->x0 < 0 || box->y0 < 0 || box->x1 > ctx->w || box->y1 > ctx->h || box->x0 >= box->x1 ||
+        box->y0 >= box->y1)
+        return err_set(e, ST_EINVAL, "features: box [%d, %d) x [%d, %d) is empty or outside the %dx%d frame",
+                       box->x0, box->x1, box->y0, box->y1, ctx->w, ctx->h);
     ctx->img = img;
     ctx->out = out;
+    set_box(ctx, box);
     frame_level(ctx, img);
-    feat_run_phase(ctx, phase_rows);
+    feat_run_phase(ctx, phase_rows, ctx->ry0, ctx->ry1);
     if (ctx->spec.families & (FEAT_HESSIAN | FEAT_STRUCTURE))
-        feat_run_phase(ctx, phase_mid);
-    feat_run_phase(ctx, phase_final);
+        feat_run_phase(ctx, phase_mid, ctx->my0, ctx->my1);
+    feat_run_phase(ctx, phase_final, ctx->box.y0, ctx->box.y1);
     ctx->img = NULL;
     ctx->out = NULL;
     return ST_OK;
+}
+
+/* Multiply-adds and pre-adds of a half-kernel pass of radius r (the
+ * symmetric one has a centre tap too). */
+static void pass_ops(int r, int sym, double n, double *ops)
+{
+    *ops += n * (2.0 * r + (sym ? 1.0 : 0.0));
+}
+
+double feat_pass_ops(const struct feat_ctx *ctx)
+{
+    double ops = 0;
+    if (ctx->sob_d) /* Sobel rows and columns: [-1 0 1] and [1 2 1], twice */
+        pass_ops(1, 0, 2, &ops), pass_ops(1, 1, 2, &ops);
+    for (int i = 0; i < ctx->nsig; i++) {
+        const struct feat_sigma *s = &ctx->sig[i];
+        int r = s->r;
+        /* rows: k0, k1, k2 of grey, k0 of J^2 and of the three products */
+        pass_ops(r, 1, (s->r0 != NULL) + (s->r2 != NULL) + (s->q0 != NULL) + 3.0 * (s->pr[0] != NULL), &ops);
+        pass_ops(r, 0, s->r1 != NULL, &ops);
+        /* columns: k0 of r0 (or gs), k1 and k2 of r0, k0 of r1, r2, q0, products */
+        pass_ops(r, 1, (s->r0 != NULL) + 2.0 * (s->r2 != NULL) + (s->r1 != NULL) + (s->q0 != NULL) +
+                           3.0 * (s->pr[0] != NULL), &ops);
+        pass_ops(r, 0, s->r1 != NULL, &ops);
+    }
+    for (int i = 0; i < ctx->ngab; i++) {
+        const struct feat_gabor *g = &ctx->gab[i];
+        if (g->shared)
+            continue;
+        int parts = 1 + (g->im != NULL); /* row passes, then each gets yre (and yim) */
+        pass_ops(g->r, 1, 1, &ops);
+        pass_ops(g->r, 0, g->im != NULL, &ops);
+        pass_ops(g->r, 1, parts, &ops);
+        pass_ops(g->r, 0, g->y_real ? 0 : parts, &ops);
+    }
+    return ops;
 }

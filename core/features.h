@@ -122,4 +122,23 @@ void feat_ctx_free(struct feat_ctx *ctx);
  * feat_ctx_new) into out (w, h, n = feat_count). */
 int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e);
 
+/* Pixels [x0, x1) x [y0, y1) of the frame. */
+struct feat_box {
+    int x0, y0, x1, y1;
+};
+/* feat_compute for the pixels of box only: there out holds the same bits
+ * feat_compute writes (the borders still reflect at the frame's edges, and
+ * the brightness level and mean grey are still the whole frame's); the rest
+ * of out is left as it was.  Work falls with the box's area plus a margin
+ * of the largest kernel radius.  ST_EINVAL for an empty box or one that
+ * leaves the frame. */
+int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct feat_box *box,
+                     struct fstack *out, struct err *e);
+
+/* Vector arithmetic the filter passes do per pixel of the frame (each
+ * half-kernel tap is one add and one multiply-add, a symmetric kernel's
+ * centre one multiply), for the benchmark's floor: the element-wise steps
+ * (magnitudes, eigenvalues) come on top. */
+double feat_pass_ops(const struct feat_ctx *ctx);
+
 #endif

@@ -54,15 +54,16 @@ FILT_TAPS void taps4(float *restrict out, const float *restrict a1, const float 
 {
     const float k1 = k[0], k2 = k[1], k3 = k[2], k4 = k[3];
     for (int x = 0; x < w; x++)
-        out[x] += (k1 * tap(a1[x], b1[x], anti) + k2 * tap(a2[x], b2[x], anti)) +
-                  (k3 * tap(a3[x], b3[x], anti) + k4 * tap(a4[x], b4[x], anti));
+        out[x] = fmaf(k4, tap(a4[x], b4[x], anti),
+                      fmaf(k3, tap(a3[x], b3[x], anti),
+                           fmaf(k2, tap(a2[x], b2[x], anti), fmaf(k1, tap(a1[x], b1[x], anti), out[x]))));
 }
 
 FILT_TAPS void taps1(float *restrict out, const float *restrict a, const float *restrict b, float k, int w,
                      int anti)
 {
     for (int x = 0; x < w; x++)
-        out[x] += k * tap(a[x], b[x], anti);
+        out[x] = fmaf(k, tap(a[x], b[x], anti), out[x]);
 }
 
 FILT_TAPS void taps_centre(float *restrict out, const float *restrict c, float k, int w)
@@ -93,8 +94,8 @@ FILT_TAPS void taps_pair4(float *restrict os, float *restrict oa, const float *r
     const float s1 = ks[0], s2 = ks[1], s3 = ks[2], s4 = ks[3];
     const float d1 = ka[0], d2 = ka[1], d3 = ka[2], d4 = ka[3];
     for (int x = 0; x < w; x++) {
-        os[x] += (s1 * (b1[x] + a1[x]) + s2 * (b2[x] + a2[x])) + (s3 * (b3[x] + a3[x]) + s4 * (b4[x] + a4[x]));
-        oa[x] += (d1 * (b1[x] - a1[x]) + d2 * (b2[x] - a2[x])) + (d3 * (b3[x] - a3[x]) + d4 * (b4[x] - a4[x]));
+        os[x] = fmaf(s4, b4[x] + a4[x], fmaf(s3, b3[x] + a3[x], fmaf(s2, b2[x] + a2[x], fmaf(s1, b1[x] + a1[x], os[x]))));
+        oa[x] = fmaf(d4, b4[x] - a4[x], fmaf(d3, b3[x] - a3[x], fmaf(d2, b2[x] - a2[x], fmaf(d1, b1[x] - a1[x], oa[x]))));
     }
 }
 

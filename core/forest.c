@@ -602,18 +602,17 @@ static void walk_tree(const struct forest *f, const struct tree *t, const uint32
         walk_group(f->node + b, f->left + b, f->val + b, t->depth, tab + r, m + r);
 }
 
-/* Tree t for the rows [0, nrows) of a filled table, 16 lanes at a time,
- * four registers interleaved so their gathers overlap. */
-__attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree *w, int depth,
-                                                         const uint32_t *tab, int nrows,
-                                                         float *m)
+/* Tree w for `groups` registers of 16 rows from row r of a filled table,
+ * interleaved so their gathers overlap.  Inlined with depth and groups
+ * constant where they are (wide_walk), so the positions stay in registers
+ * and every level's branches fold away. */
+__attribute__((target("avx512f"), always_inline)) static inline void
+wide_chunk(const struct wide_tree *w, const int depth, const uint32_t *tab, int r, const int groups,
+           float *m)
 {
     const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
     const __m512i one = _mm512_set1_epi32(1);
-    for (int r = 0; r < nrows; r += 4 * WIDE_LANES) {
-        int groups = (nrows - r + WIDE_LANES - 1) / WIDE_LANES;
-        if (groups > 4)
-            groups = 4;
+    {
         __m512i p[4] = {_mm512_setzero_si512(), _mm512_setzero_si512(), _mm512_setzero_si512(),
                         _mm512_setzero_si512()};
         /* Levels 0..3 hold 1, 2, 4 and 8 nodes: their inputs are the same row
@@ -621,9 +620,11 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
          * the position replace the gather (16 loads each); the deeper
          * levels gather. */
         int d = 0;
+#pragma GCC unroll 4
         for (; d < depth && d < 4; d++) {
             const uint32_t *off = w->off + 16 * d;
             const __m512i key = _mm512_load_si512(w->key + 16 * d);
+#pragma GCC unroll 4
             for (int g = 0; g < groups; g++) {
                 const uint32_t *base = tab + r + WIDE_LANES * g;
                 __m512i x = _mm512_loadu_si512(base + off[0]);
@@ -659,6 +660,7 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
                 p[g] = _mm512_mask_add_epi32(twice, right, twice, one);
             }
         }
+#pragma GCC unroll 2
         for (; d < depth; d++) {
             __m512i off, key;
             if (d < 5) {
@@ -670,6 +672,7 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
             }
             const __m512i off_hi = _mm512_load_si512(w->off + 96);
             const __m512i key_hi = _mm512_load_si512(w->key + 96);
+#pragma GCC unroll 4
             for (int g = 0; g < groups; g++) {
                 __m512i o = d < 5 ? _mm512_permutexvar_epi32(p[g], off)
                                   : _mm512_permutex2var_epi32(off, p[g], off_hi);
@@ -684,6 +687,7 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
         }
         const __m512 v0 = _mm512_load_ps(w->val), v1 = _mm512_load_ps(w->val + 16);
         const __m512 v2 = _mm512_load_ps(w->val + 32), v3 = _mm512_load_ps(w->val + 48);
+#pragma GCC unroll 4
         for (int g = 0; g < groups; g++) {
             __m512 lo = _mm512_permutex2var_ps(v0, p[g], v1);
             __m512 hi = _mm512_permutex2var_ps(v2, p[g], v3);
@@ -692,6 +696,29 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
             float *mg = m + r + WIDE_LANES * g;
             _mm512_storeu_ps(mg, _mm512_add_ps(_mm512_loadu_ps(mg), leaf));
         }
+    }
+}
+
+/* Tree w for the rows [0, nrows) of a filled table, 64 rows at a time;
+ * depth 6 (what a depth-6 model's trees mostly are) gets its own copies. */
+__attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree *w, int depth,
+                                                         const uint32_t *tab, int nrows,
+                                                         float *m)
+{
+    for (int r = 0; r < nrows; r += 4 * WIDE_LANES) {
+        int groups = (nrows - r + WIDE_LANES - 1) / WIDE_LANES;
+        if (groups > 4)
+            groups = 4;
+        if (depth == WIDE_DEPTH && groups == 4)
+            wide_chunk(w, WIDE_DEPTH, tab, r, 4, m);
+        else if (depth == WIDE_DEPTH && groups == 3)
+            wide_chunk(w, WIDE_DEPTH, tab, r, 3, m);
+        else if (depth == WIDE_DEPTH && groups == 2)
+            wide_chunk(w, WIDE_DEPTH, tab, r, 2, m);
+        else if (depth == WIDE_DEPTH)
+            wide_chunk(w, WIDE_DEPTH, tab, r, 1, m);
+        else
+            wide_chunk(w, depth, tab, r, groups, m);
     }
 }
 

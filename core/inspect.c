@@ -19,6 +19,14 @@
 #define ROI_STEP 8
 #define ROI_MARGIN 1
 #define MAX_WORKERS 64
+/* Before that, the box the features are computed in: the cells of the grid
+ * whose mean grey is above the frame's mean (the part is what is brighter
+ * than the mean, as the brightness level of core/features.h takes it),
+ * grown by BOX_GROW cells.  A sample that is not background in the box's
+ * outermost ring of cells means the box cut the part: the frame is then
+ * done again over the whole frame, so the box can cost time but never a
+ * pixel the locating pass alone would have found inside the part's reach. */
+#define BOX_GROW 2
 
 struct inspector {
     struct recipe r;
@@ -35,6 +43,8 @@ struct inspector {
     int gw, gh;             /* grid of the locating pass */
     uint8_t *cell_cls, *need;
     float *cell_conf;
+    uint64_t *cell_sum;     /* per cell: sum of its integer grey */
+    int cx0, cy0, cx1, cy1; /* the cells features were computed for */
     float *grid_rows;       /* per worker: one grid row of samples' features */
     struct region_set rs;
     struct quality q;
@@ -105,6 +115,8 @@ static void free_frame_buffers(struct inspector *in)
     free(in->cell_cls);
     free(in->need);
     free(in->cell_conf);
+    free(in->cell_sum);
+    in->cell_sum = NULL;
     free(in->grid_rows);
     free(in->grey);
     free(in->last);
@@ -158,8 +170,9 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->cell_cls = malloc(cells);
     in->need = malloc(cells);
     in->cell_conf = malloc(cells * sizeof *in->cell_conf);
+    in->cell_sum = malloc(cells * sizeof *in->cell_sum);
     in->grid_rows = malloc((size_t)workers(in) * in->gw * in->fs->n * sizeof *in->grid_rows);
-    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows ||
+    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows || !in->cell_sum ||
         !in->grey || !in->last)
         return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
     in->w = w;
@@ -169,9 +182,10 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
 
 struct worker {
     struct inspector *in;
-    /* rows index, index + step, ... of the grid (pass 1) or the frame (pass 2):
-     * interleaved, because the part, and so the work, sits in some rows only */
-    int index, step, nrows;
+    /* rows y0 + index, y0 + index + step, ... below y1 of the grid (pass 1)
+     * or the frame (pass 2): interleaved, because the part, and so the work,
+     * sits in some rows only */
+    int index, step, y0, y1;
     int rc;
     struct err e;
 };
@@ -183,15 +197,16 @@ static void *grid_pass(void *arg)
     struct worker *wk = arg;
     struct inspector *in = wk->in;
     const int nf = in->fs->n, gw = in->gw;
+    const int cx0 = in->cx0, cn = in->cx1 - in->cx0;
     float *rows = in->grid_rows + (size_t)wk->index * gw * nf;
-    for (int gy = wk->index; gy < wk->nrows && wk->rc == ST_OK; gy += wk->step) {
-        for (int gx = 0; gx < gw; gx++)
-            memcpy(rows + (size_t)gx * nf,
+    for (int gy = wk->y0 + wk->index; gy < wk->y1 && wk->rc == ST_OK; gy += wk->step) {
+        for (int gx = cx0; gx < cx0 + cn; gx++)
+            memcpy(rows + (size_t)(gx - cx0) * nf,
                    in->fs->v + ((size_t)gy * ROI_STEP * in->w + (size_t)gx * ROI_STEP) * nf,
                    (size_t)nf * sizeof *rows);
-        wk->rc = forest_classify(in->forest, rows, (size_t)gw, nf, 1,
-                                 in->cell_cls + (size_t)gy * gw, in->cell_conf + (size_t)gy * gw,
-                                 &wk->e);
+        wk->rc = forest_classify(in->forest, rows, (size_t)cn, nf, 1,
+                                 in->cell_cls + (size_t)gy * gw + cx0,
+                                 in->cell_conf + (size_t)gy * gw + cx0, &wk->e);
     }
     return NULL;
 }
@@ -203,7 +218,7 @@ static void *full_pass(void *arg)
     struct worker *wk = arg;
     struct inspector *in = wk->in;
     const int w = in->w, gw = in->gw, nf = in->fs->n;
-    for (int y = wk->index; y < wk->nrows && wk->rc == ST_OK; y += wk->step) {
+    for (int y = wk->y0 + wk->index; y < wk->y1 && wk->rc == ST_OK; y += wk->step) {
         const uint8_t *need = in->need + (size_t)(y / ROI_STEP) * gw;
         const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
         size_t row = (size_t)y * w;
@@ -227,15 +242,15 @@ static void *full_pass(void *arg)
     return NULL;
 }
 
-/* Runs fn over rows [0, nrows) shared between the inspector's threads. */
-static int run_workers(struct inspector *in, int nrows, void *(*fn)(void *), struct err *e)
+/* Runs fn over rows [y0, y1) shared between the inspector's threads. */
+static int run_workers(struct inspector *in, int y0, int y1, void *(*fn)(void *), struct err *e)
 {
-    int nt = workers(in) < nrows ? workers(in) : nrows;
+    int nt = workers(in) < y1 - y0 ? workers(in) : y1 - y0;
     struct worker wk[MAX_WORKERS];
     pthread_t tid[MAX_WORKERS];
     int started[MAX_WORKERS] = {0};
     for (int t = 0; t < nt; t++) {
-        wk[t] = (struct worker){in, t, nt, nrows, ST_OK, {0}};
+        wk[t] = (struct worker){in, t, nt, y0, y1, ST_OK, {0}};
         err_clear(&wk[t].e);
     }
     /* a thread that cannot start leaves its rows to the caller */
@@ -256,10 +271,100 @@ static int run_workers(struct inspector *in, int nrows, void *(*fn)(void *), str
     return ST_OK;
 }
 
-static int classify_located(struct inspector *in, struct err *e)
+/* The cells [cx0, cx1) x [cy0, cy1) of the bright box (BOX_GROW): one
+ * pass sums each cell's integer grey (299 R + 587 G + 114 B, as the
+ * features' brightness statistics), the frame's sum is theirs. */
+static void bright_cells(struct inspector *in, const struct image *img)
+{
+    const int w = img->w, h = img->h, ch = img->channels, gw = in->gw, gh = in->gh;
+    uint64_t *sum = in->cell_sum, total = 0;
+    memset(sum, 0, (size_t)gw * gh * sizeof *sum);
+    for (int y = 0; y < h; y++) {
+        const uint8_t *p = img->px + (size_t)y * w * ch;
+        uint64_t *row = sum + (size_t)(y / ROI_STEP) * gw;
+        for (int x = 0; x < w; x++, p += ch)
+            row[x / ROI_STEP] += ch == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
+    }
+    for (size_t i = 0; i < (size_t)gw * gh; i++)
+        total += sum[i];
+    const uint64_t npx = (uint64_t)w * h;
+    int cx0 = gw, cx1 = 0, cy0 = gh, cy1 = 0;
+    for (int gy = 0; gy < gh; gy++) {
+        int ye = (gy + 1) * ROI_STEP < h ? (gy + 1) * ROI_STEP : h;
+        for (int gx = 0; gx < gw; gx++) {
+            int xe = (gx + 1) * ROI_STEP < w ? (gx + 1) * ROI_STEP : w;
+            uint64_t cell = (uint64_t)(xe - gx * ROI_STEP) * (uint64_t)(ye - gy * ROI_STEP);
+            /* cell mean above the frame mean, in integers */
+            if (sum[(size_t)gy * gw + gx] * npx > total * cell) {
+                cx0 = gx < cx0 ? gx : cx0;
+                cx1 = gx + 1 > cx1 ? gx + 1 : cx1;
+                cy0 = gy < cy0 ? gy : cy0;
+                cy1 = gy + 1 > cy1 ? gy + 1 : cy1;
+            }
+        }
+    }
+    if (cx1 == 0) {
+        /* nothing brighter than the mean: a uniform frame, looked at whole */
+        cx0 = cy0 = 0;
+        cx1 = gw;
+        cy1 = gh;
+    }
+    in->cx0 = cx0 - BOX_GROW > 0 ? cx0 - BOX_GROW : 0;
+    in->cy0 = cy0 - BOX_GROW > 0 ? cy0 - BOX_GROW : 0;
+    in->cx1 = cx1 + BOX_GROW < gw ? cx1 + BOX_GROW : gw;
+    in->cy1 = cy1 + BOX_GROW < gh ? cy1 + BOX_GROW : gh;
+}
+
+/* Features of the cells [cx0, cx1) x [cy0, cy1), then their samples; the
+ * cells outside are background (confidence 1, never measured). */
+static int sample_box(struct inspector *in, double *features_ms, struct err *e)
+{
+    double t0 = now_ms();
+    const int w = in->w, h = in->h, gw = in->gw;
+    struct feat_box box = {in->cx0 * ROI_STEP, in->cy0 * ROI_STEP,
+                           in->cx1 * ROI_STEP < w ? in->cx1 * ROI_STEP : w,
+                           in->cy1 * ROI_STEP < h ? in->cy1 * ROI_STEP : h};
+    int rc = feat_compute_box(in->feat, in->frame, &box, in->fs, e);
+    *features_ms += now_ms() - t0;
+    if (rc)
+        return rc;
+    size_t cells = (size_t)gw * in->gh;
+    memset(in->cell_cls, 0, cells);
+    for (size_t i = 0; i < cells; i++)
+        in->cell_conf[i] = 1.0f;
+    return run_workers(in, in->cy0, in->cy1, grid_pass, e);
+}
+
+/* Whether a sample in the box's outermost ring of cells (where the ring is
+ * not the frame's edge) is not background: the part may reach past it. */
+static int box_cut(const struct inspector *in)
+{
+    const int gw = in->gw;
+    for (int gy = in->cy0; gy < in->cy1; gy++)
+        for (int gx = in->cx0; gx < in->cx1; gx++) {
+            int ring = (gx == in->cx0 && gx > 0) || (gx == in->cx1 - 1 && gx < gw - 1) ||
+                       (gy == in->cy0 && gy > 0) || (gy == in->cy1 - 1 && gy < in->gh - 1);
+            if (ring && in->cell_cls[(size_t)gy * gw + gx])
+                return 1;
+        }
+    return 0;
+}
+
+/* The locating pass from the frame to classes; t0 is when the frame came
+ * in, and the box's search counts as features time. */
+static int classify_located(struct inspector *in, double t0, struct inspect_times *t, struct err *e)
 {
     const int gw = in->gw, gh = in->gh;
-    int rc = run_workers(in, gh, grid_pass, e);
+    bright_cells(in, in->frame);
+    double feat_ms = now_ms() - t0; /* the box, then the features inside it */
+    double start = now_ms(), box_feat_ms = 0;
+    int rc = sample_box(in, &box_feat_ms, e);
+    if (!rc && box_cut(in)) {
+        in->cx0 = in->cy0 = 0;
+        in->cx1 = gw;
+        in->cy1 = gh;
+        rc = sample_box(in, &box_feat_ms, e);
+    }
     if (rc)
         return rc;
     for (int gy = 0; gy < gh; gy++)
@@ -272,7 +377,12 @@ static int classify_located(struct inspector *in, struct err *e)
                 }
             in->need[gy * gw + gx] = (uint8_t)near;
         }
-    return run_workers(in, in->h, full_pass, e);
+    rc = run_workers(in, 0, in->h, full_pass, e);
+    if (t) {
+        t->features_ms = feat_ms + box_feat_ms;
+        t->classify_ms = now_ms() - start - box_feat_ms;
+    }
+    return rc;
 }
 
 int inspector_classify(struct inspector *in, const struct image *img, struct inspect_times *t,
@@ -287,16 +397,16 @@ int inspector_classify(struct inspector *in, const struct image *img, struct ins
     if (in->flat && (rc = flatfield_apply(in->flat, img, in->evened, &fe)))
         return err_set(e, rc, "%s: %s", in->r.flat_field, fe.msg);
     in->frame = in->flat ? in->evened : img;
+    if (in->roi)
+        return classify_located(in, t0, t, e);
     if ((rc = feat_compute(in->feat, in->frame, in->fs, e)))
         return rc;
     double t1 = now_ms();
-    rc = in->roi ? classify_located(in, e)
-                 : forest_classify(in->forest, in->fs->v, (size_t)img->w * img->h, in->fs->n,
-                                   in->threads, in->classes->px, in->conf, e);
-    double t2 = now_ms();
+    rc = forest_classify(in->forest, in->fs->v, (size_t)img->w * img->h, in->fs->n, in->threads,
+                         in->classes->px, in->conf, e);
     if (t) {
         t->features_ms = t1 - t0;
-        t->classify_ms = t2 - t1;
+        t->classify_ms = now_ms() - t1;
     }
     return rc;
 }

@@ -53,6 +53,8 @@ const struct image *inspector_classes(const struct inspector *in);
 /* The frame the features saw: the flat-field corrected copy, or the
  * caller's own frame when the recipe has no flat field. */
 const struct image *inspector_frame(const struct inspector *in);
+/* With the locating pass on, only the box it computed features for holds
+ * this frame's features (core/inspect.c); with it off, the whole stack. */
 const struct fstack *inspector_features(const struct inspector *in);
 const struct forest *inspector_forest(const struct inspector *in);
 const float *inspector_confidence(const struct inspector *in);
@@ -69,8 +71,10 @@ int inspector_threads(const struct inspector *in);
 /* Hours since the last passing master-part verification (from the log; -1:
  * not checked, the default), for the verification_due gate (core/judge.h). */
 void inspector_set_verified(struct inspector *in, double hours_ago);
-/* The locating pass (on by default; see inspect.c): off classifies every
- * pixel in full, which the tests use to show the two agree. */
+/* The locating pass (on by default; see inspect.c): the part's box from
+ * the grey, features in that box only, a sampling pass, then the pixels near
+ * the part.  Off computes features over the whole frame and classifies
+ * every pixel in full, which the tests use to show the two agree. */
 void inspector_set_locating(struct inspector *in, int on);
 /* Classifier threads (1 = inline); features threads follow recipe.feat.threads. */
 void inspector_set_threads(struct inspector *in, int threads);

@@ -5,34 +5,139 @@
  * --xgboost option here) and an OpenCV filter bank (from Python). */
 #include <getopt.h>
 #include <math.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
+
+#include <immintrin.h>
 
 #include "cli.h"
 #include "core/booster.h"
 #include "core/features.h"
+#include "core/pngio.h"
 #include "report.h"
 #include "simbench.h"
 
 static void usage(FILE *f)
 {
-    fprintf(f, "usage: station bench RECIPE [--size WxH] [--threads N] [--repeat K] [--xgboost]\n\n"
+    fprintf(f, "usage: station bench RECIPE [--size WxH] [--threads N] [--repeat K] [--xgboost]\n"
+               "                    [--frames-only] [--save-frame DIR]\n\n"
                "Inspects K simulated-bench frames of the given size with N threads and prints\n"
                "one JSON line: median, min and max milliseconds of features, classify,\n"
-               "regions, verdict and the whole inspection. With --xgboost, also times\n"
-               "XGBoost's XGBoosterPredictFromDense on the same features and model, and our\n"
-               "evaluator on every pixel the same way (forest_all_pixels), and\n"
-               "reports max_abs_dp, the largest difference between its probabilities and\n"
-               "the station's evaluator on the first frame. locating_agreement is the share\n"
-               "of that frame's pixels whose class is the same with and without the\n"
-               "locating pass.\n");
+               "regions, verdict and the whole inspection, and the process's peak resident\n"
+               "memory. With --xgboost, each frame is also done without the locating pass:\n"
+               "the filter bank over the whole frame (filter_bank) and our evaluator on every\n"
+               "pixel (forest_all_pixels), then XGBoost's XGBoosterPredictFromDense on the\n"
+               "same features and model; max_abs_dp is the largest difference between its\n"
+               "probabilities and ours, class_mismatches the pixels whose most likely class\n"
+               "differs, both on the first frame; fma_peak the multiply-adds per second of a\n"
+               "register-only kernel on N threads and filter_floor the filter passes' own\n"
+               "arithmetic (filter_ops_per_px) at that rate. locating_agreement is the share\n"
+               "of the warm-up frame's pixels whose class is the same with and without the\n"
+               "locating pass (--frames-only skips it). --save-frame writes the first\n"
+               "frame and its true classes as DIR/frame.png and DIR/truth.png.\n");
 }
 
 static int cmp_double(const void *a, const void *b)
 {
     double x = *(const double *)a, y = *(const double *)b;
     return (x > y) - (x < y);
+}
+
+/* Float multiply-adds per second of one thread: 16 independent
+ * accumulators, so the loop runs at the units' throughput, not their
+ * latency.  AVX-512 or AVX2 as the CPU has them, chosen at run time. */
+#define PEAK_ITERS 4000000
+
+__attribute__((target("avx512f"))) static double fma_rate_avx512(void)
+{
+    __m512 a[16], m = _mm512_set1_ps(0.999999f), c = _mm512_set1_ps(1e-7f);
+#pragma GCC unroll 16
+    for (int i = 0; i < 16; i++)
+        a[i] = _mm512_set1_ps((float)i);
+    double t0 = cli_now_ms();
+    for (int it = 0; it < PEAK_ITERS; it++)
+#pragma GCC unroll 16
+        for (int i = 0; i < 16; i++)
+            a[i] = _mm512_fmadd_ps(a[i], m, c);
+    double ms = cli_now_ms() - t0;
+    float sink = 0;
+    for (int i = 0; i < 16; i++)
+        sink += _mm512_reduce_add_ps(a[i]);
+    /* the sum keeps the loop alive; it is never inf for these inputs */
+    return isfinite(sink) ? 16.0 * 16.0 * PEAK_ITERS / (ms * 1e-3) : 0;
+}
+
+__attribute__((target("avx2,fma"))) static double fma_rate_avx2(void)
+{
+    __m256 a[16], m = _mm256_set1_ps(0.999999f), c = _mm256_set1_ps(1e-7f);
+#pragma GCC unroll 16
+    for (int i = 0; i < 16; i++)
+        a[i] = _mm256_set1_ps((float)i);
+    double t0 = cli_now_ms();
+    for (int it = 0; it < PEAK_ITERS; it++)
+#pragma GCC unroll 16
+        for (int i = 0; i < 16; i++)
+            a[i] = _mm256_fmadd_ps(a[i], m, c);
+    double ms = cli_now_ms() - t0;
+    float lanes[8], sink = 0;
+    for (int i = 0; i < 16; i++) {
+        _mm256_storeu_ps(lanes, a[i]);
+        for (int k = 0; k < 8; k++)
+            sink += lanes[k];
+    }
+    return isfinite(sink) ? 16.0 * 8.0 * PEAK_ITERS / (ms * 1e-3) : 0;
+}
+
+static void *fma_thread(void *arg)
+{
+    double *rate = arg;
+    __builtin_cpu_init();
+    *rate = __builtin_cpu_supports("avx512f") ? fma_rate_avx512()
+            : __builtin_cpu_supports("avx2") && __builtin_cpu_supports("fma") ? fma_rate_avx2()
+                                                                               : 0;
+    return NULL;
+}
+
+/* Multiply-adds per second on `threads` threads at once (the best of 3). */
+static double fma_peak(int threads)
+{
+    double best = 0, rate[64];
+    pthread_t tid[64];
+    threads = threads < 64 ? threads : 64;
+    for (int rep = 0; rep < 3; rep++) {
+        int started = 0;
+        for (; started < threads; started++)
+            if (pthread_create(&tid[started], NULL, fma_thread, &rate[started]))
+                break;
+        double sum = 0;
+        for (int t = 0; t < started; t++) {
+            pthread_join(tid[t], NULL);
+            sum += rate[t];
+        }
+        best = sum > best ? sum : best;
+    }
+    return best;
+}
+
+static double peak_rss_mb(void)
+{
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    return ru.ru_maxrss / 1024.0; /* kilobytes on Linux */
+}
+
+/* The frame and its true classes, for the Python peer to run on. */
+static int save_frame(const char *dir, const struct image *img, const struct image *truth,
+                      struct err *e)
+{
+    char path[4096];
+    snprintf(path, sizeof path, "%s/frame.png", dir);
+    int rc = pngio_save(path, img, 1, e);
+    snprintf(path, sizeof path, "%s/truth.png", dir);
+    return rc ? rc : pngio_save(path, truth, 1, e);
 }
 
 static json_t *stat_json(double *v, int n)
@@ -52,8 +157,11 @@ int cmd_bench(int argc, char **argv)
                                          {"threads", required_argument, NULL, 't'},
                                          {"repeat", required_argument, NULL, 'r'},
                                          {"xgboost", no_argument, NULL, 'x'},
+                                         {"frames-only", no_argument, NULL, 'f'},
+                                         {"save-frame", required_argument, NULL, 'S'},
                                          {0, 0, 0, 0}};
-    int w = 640, h = 480, threads = 2, repeat = 15, xgb = 0, c;
+    int w = 640, h = 480, threads = 2, repeat = 20, xgb = 0, frames_only = 0, c;
+    const char *save_dir = NULL;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
@@ -66,6 +174,8 @@ int cmd_bench(int argc, char **argv)
         case 't': threads = atoi(optarg); break;
         case 'r': repeat = atoi(optarg); break;
         case 'x': xgb = 1; break;
+        case 'f': frames_only = 1; break;
+        case 'S': save_dir = optarg; break;
         default: usage(stderr); return EXIT_USAGE;
         }
     }
@@ -83,19 +193,24 @@ int cmd_bench(int argc, char **argv)
     struct inspector *in = NULL;
     struct booster *b = NULL;
     struct image *img = NULL, *truth = NULL;
-    float *prob = NULL, *ours = NULL, *every_conf = NULL;
-    uint8_t *every_cls = NULL;
-    double max_dp = 0, agreement = 0;
-    double *v = calloc((size_t)repeat * 7, sizeof *v);
+    float *prob = NULL, *ours = NULL;
+    uint8_t *located = NULL;
+    double max_dp = 0, agreement = -1;
+    size_t mismatches = 0;
+    enum { NSTAGES = 8 };
+    double *v = calloc((size_t)repeat * NSTAGES, sizeof *v);
     int status = EXIT_ERROR;
     struct simbench_conditions cond;
     simbench_conditions_nominal(&cond);
     if (!v || inspector_new(&r, &in, &e) || (xgb && booster_load(r.model_path, threads, &b, &e)))
         goto done;
     size_t npix = (size_t)w * h;
+    if (!(located = malloc(npix))) {
+        err_set(&e, ST_ENOMEM, "out of memory");
+        goto done;
+    }
     if (xgb && (!(prob = malloc(npix * r.nclasses * sizeof *prob)) ||
-                !(ours = malloc(npix * r.nclasses * sizeof *ours)) ||
-                !(every_cls = malloc(npix)) || !(every_conf = malloc(npix * sizeof *every_conf)))) {
+                !(ours = malloc(npix * r.nclasses * sizeof *ours)))) {
         err_set(&e, ST_ENOMEM, "out of memory");
         goto done;
     }
@@ -109,53 +224,59 @@ int cmd_bench(int argc, char **argv)
         if (simbench_render(7, k + 1, &cond, w, h, &img, &truth, NULL, &e) ||
             inspector_run(in, img, &j, &t, &e))
             goto done;
-        double x = 0, all = 0;
+        if (k == 0 && save_dir && save_frame(save_dir, img, truth, &e))
+            goto done;
+        int compare = k < 0 && !frames_only;
+        if (compare)
+            memcpy(located, inspector_classes(in)->px, npix);
+        double x = 0, all = 0, bank = 0;
         if (xgb) {
-            const struct fstack *fs = inspector_features(in);
-            double t1 = cli_now_ms();
-            if (forest_classify(inspector_forest(in), fs->v, npix, fs->n, threads, every_cls,
-                                every_conf, &e))
+            /* the same frame without the locating pass: the whole frame's
+             * features and every pixel classified, then XGBoost on them */
+            struct inspect_times full;
+            inspector_set_locating(in, 0);
+            int rc = inspector_classify(in, img, &full, &e);
+            inspector_set_locating(in, 1);
+            if (rc)
                 goto done;
-            all = cli_now_ms() - t1;
-        }
-        if (xgb) {
+            bank = full.features_ms;
+            all = full.classify_ms;
+            const struct fstack *fs = inspector_features(in);
             double t0 = cli_now_ms();
-            if (booster_predict(b, inspector_features(in)->v, npix, inspector_features(in)->n,
-                                r.nclasses, prob, &e))
+            if (booster_predict(b, fs->v, npix, fs->n, r.nclasses, prob, &e))
                 goto done;
             x = cli_now_ms() - t0;
             if (k < 0) {
                 /* the agreement of our evaluator with XGBoost's on this real model */
-                const struct fstack *fs = inspector_features(in);
                 forest_predict(inspector_forest(in), fs->v, npix, fs->n, ours);
-                for (size_t i = 0; i < npix * r.nclasses; i++) {
-                    double d = fabs((double)ours[i] - prob[i]);
-                    if (d > max_dp)
-                        max_dp = d;
+                int K = r.nclasses;
+                for (size_t i = 0; i < npix; i++) {
+                    int a = 0, bx = 0;
+                    for (int q = 0; q < K; q++) {
+                        double d = fabs((double)ours[i * K + q] - prob[i * K + q]);
+                        max_dp = d > max_dp ? d : max_dp;
+                        a = ours[i * K + q] > ours[i * K + a] ? q : a;
+                        bx = prob[i * K + q] > prob[i * K + bx] ? q : bx;
+                    }
+                    mismatches += a != bx;
                 }
             }
         }
-        if (k < 0) {
+        if (compare) {
             /* how far the locating pass changes the class map of this frame */
-            uint8_t *located = malloc(npix);
-            if (!located) {
-                err_set(&e, ST_ENOMEM, "out of memory");
-                goto done;
-            }
-            memcpy(located, inspector_classes(in)->px, npix);
             inspector_set_locating(in, 0);
-            int rc = inspector_classify(in, img, NULL, &e);
+            int rc = xgb ? ST_OK : inspector_classify(in, img, NULL, &e);
             inspector_set_locating(in, 1);
+            if (rc)
+                goto done;
             size_t same = 0;
             for (size_t i = 0; i < npix; i++)
                 same += located[i] == inspector_classes(in)->px[i];
-            free(located);
-            if (rc)
-                goto done;
             agreement = (double)same / (double)npix;
-            continue;
         }
-        double *row = v + (size_t)k * 7;
+        if (k < 0)
+            continue;
+        double *row = v + (size_t)k * NSTAGES;
         row[0] = t.features_ms;
         row[1] = t.classify_ms;
         row[2] = t.regions_ms;
@@ -163,24 +284,37 @@ int cmd_bench(int argc, char **argv)
         row[4] = t.features_ms + t.classify_ms + t.regions_ms + t.verdict_ms;
         row[5] = x;
         row[6] = all;
+        row[7] = bank;
     }
-    static const char *names[] = {"features", "classify", "regions", "verdict", "total",
-                                  "xgboost_predict", "forest_all_pixels"};
+    static const char *names[NSTAGES] = {"features", "classify", "regions", "verdict", "total",
+                                         "xgboost_predict", "forest_all_pixels", "filter_bank"};
     json_t *o = json_pack("{s:i,s:i,s:i,s:i,s:i,s:i,s:i,s:i}", "width", w, "height", h,
                           "threads", threads, "repeat", repeat, "feature_count",
                           feat_count(&r.feat), "trees", forest_ntrees(inspector_forest(in)),
                           "depth", forest_max_depth(inspector_forest(in)), "classes",
                           r.nclasses);
-    json_object_set_new(o, "locating_agreement", json_real(agreement));
-    if (xgb)
+    if (agreement >= 0)
+        json_object_set_new(o, "locating_agreement", json_real(agreement));
+    if (xgb) {
         json_object_set_new(o, "max_abs_dp", json_real(max_dp));
+        json_object_set_new(o, "class_mismatches", json_integer((json_int_t)mismatches));
+        struct feat_ctx *fc = feat_ctx_new(&r.feat, w, h, &e);
+        if (!fc)
+            goto done;
+        double ops = feat_pass_ops(fc), peak = fma_peak(threads);
+        feat_ctx_free(fc);
+        json_object_set_new(o, "filter_ops_per_px", json_real(ops));
+        json_object_set_new(o, "fma_peak", json_real(peak));
+        json_object_set_new(o, "filter_floor_ms", json_real(peak > 0 ? ops * (double)npix / peak * 1e3 : 0));
+    }
     double *col = malloc((size_t)repeat * sizeof *col);
-    for (int s = 0; s < (xgb ? 7 : 5) && col; s++) {
+    for (int s = 0; s < (xgb ? NSTAGES : 5) && col; s++) {
         for (int k = 0; k < repeat; k++)
-            col[k] = v[(size_t)k * 7 + s];
+            col[k] = v[(size_t)k * NSTAGES + s];
         json_object_set_new(o, names[s], stat_json(col, repeat));
     }
     free(col);
+    json_object_set_new(o, "peak_rss_mb", json_real(peak_rss_mb()));
     json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(5));
     fputc('\n', stdout);
     json_decref(o);
@@ -191,8 +325,7 @@ done:
     free(v);
     free(prob);
     free(ours);
-    free(every_cls);
-    free(every_conf);
+    free(located);
     image_free(img);
     image_free(truth);
     booster_free(b);

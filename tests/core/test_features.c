@@ -277,6 +277,54 @@ static void test_brightness_scaled(void **state)
 /* Splitting rows over threads must not change any value: each output is
  * computed by the same operations whichever worker does it.  A grey frame
  * equals the RGB frame with R = G = B (299 + 587 + 114 = 1000). */
+/* A box's features are the whole frame's features there, bit for bit
+ * (features.h: feat_compute_box), and nothing outside the box is written.
+ * Boxes inside, at each border and at a corner of an odd-sized frame; the
+ * outside comparison is feat_compute itself, the definition checked against
+ * scipy and skimage in tests/ref/test_features.py. */
+static void test_box_matches_whole_frame(void **state)
+{
+    (void)state;
+    struct err e = {0};
+    struct feat_spec spec;
+    feat_spec_default(&spec);
+    spec.threads = 3;
+    struct image *img = frame_new(101, 87, 3);
+    frame_fill_random(img, 255, 11);
+    struct fstack *whole = features_of(&spec, img);
+    struct feat_ctx *ctx = feat_ctx_new(&spec, img->w, img->h, &e);
+    struct fstack *fs = fstack_new(img->w, img->h, feat_count(&spec), &e);
+    assert_non_null(ctx);
+    assert_non_null(fs);
+    const struct feat_box boxes[] = {{23, 31, 64, 58}, {0, 0, 17, 87}, {90, 70, 101, 87}, {5, 0, 101, 9}};
+    for (size_t b = 0; b < sizeof boxes / sizeof boxes[0]; b++) {
+        const struct feat_box *bx = &boxes[b];
+        size_t total = (size_t)fs->w * fs->h * fs->n;
+        for (size_t i = 0; i < total; i++)
+            fs->v[i] = -12345.0f;
+        assert_int_equal(feat_compute_box(ctx, img, bx, fs, &e), ST_OK);
+        for (int y = 0; y < img->h; y++)
+            for (int x = 0; x < img->w; x++) {
+                size_t at = ((size_t)y * fs->w + x) * fs->n;
+                int inside = x >= bx->x0 && x < bx->x1 && y >= bx->y0 && y < bx->y1;
+                for (int k = 0; k < fs->n; k++) {
+                    if (inside && memcmp(&fs->v[at + k], &whole->v[at + k], sizeof(float)) != 0)
+                        fail_msg("box %zu: feature %d at (%d, %d) is %.9g, whole frame %.9g", b, k, x, y,
+                                 fs->v[at + k], whole->v[at + k]);
+                    if (!inside && fs->v[at + k] != -12345.0f)
+                        fail_msg("box %zu: (%d, %d) outside the box was written", b, x, y);
+                }
+            }
+    }
+    const struct feat_box empty = {10, 10, 10, 20}, out = {0, 0, 102, 87};
+    assert_int_equal(feat_compute_box(ctx, img, &empty, fs, &e), ST_EINVAL);
+    assert_int_equal(feat_compute_box(ctx, img, &out, fs, &e), ST_EINVAL);
+    fstack_free(fs);
+    fstack_free(whole);
+    feat_ctx_free(ctx);
+    image_free(img);
+}
+
 static void test_threads_and_grey_input(void **state)
 {
     (void)state;
@@ -311,6 +359,7 @@ int main(void)
         cmocka_unit_test(test_uniform_frame),
         cmocka_unit_test(test_brightness_scaled),
         cmocka_unit_test(test_threads_and_grey_input),
+        cmocka_unit_test(test_box_matches_whole_frame),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
