@@ -56,7 +56,8 @@ APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
 # libv4l2's plugin folder (tests/emucam/emucam.h).
 EMUCAM_SO   := $(BUILD)/tests/emucam/libv4l-emucam.so
 
-.PHONY: all check demo bench install uninstall clean deps deps-test deps-bench
+.PHONY: all check demo bench install uninstall clean deps deps-test deps-bench fuzz fuzz-smoke fuzz-programs \
+        deps-fuzz memcheck
 all: $(STATION_BIN)
 
 $(BUILD)/obj/%.o: %.c
@@ -108,6 +109,10 @@ deps-test:
 	@sh tests/deps.sh $(DEB_BUILD) $(DEB_TEST)
 deps-bench:
 	@sh tests/deps.sh $(DEB_BUILD) $(DEB_TEST) $(DEB_BENCH)
+# Only make fuzz and fuzz-smoke need these: clang and its libFuzzer runtime.
+DEB_FUZZ := clang libclang-rt-14-dev
+deps-fuzz:
+	@sh tests/deps.sh $(DEB_BUILD) $(DEB_FUZZ)
 
 check: deps-test
 	@$(MAKE) --no-print-directory test-programs
@@ -124,6 +129,38 @@ demo: deps
 bench: deps-bench
 	@$(MAKE) --no-print-directory test-programs
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/bench/run.sh
+
+# Fuzzing (tests/fuzz/, DEVELOPERS.md "Fuzzing"): every library source again
+# with clang, ASan, UBSan and libFuzzer's coverage, into $(BUILD)/fuzz/, and
+# one program per tests/fuzz/fuzz_*.c.  `make fuzz` runs each FUZZ_SECONDS,
+# `make fuzz-smoke` (CI) FUZZ_SMOKE_SECONDS; without clang both say SKIP.
+FUZZ_CC ?= clang
+FUZZ_SECONDS ?= 300
+FUZZ_SMOKE_SECONDS ?= 20
+FUZZ_DIR := $(BUILD)/fuzz
+FUZZ_SAN := -fsanitize=address,undefined -fno-sanitize-recover=undefined
+FUZZ_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L -O1 -g -fno-omit-frame-pointer -fno-math-errno \
+               $(FUZZ_SAN) -fsanitize=fuzzer-no-link $(PKG_CFLAGS) -I. -MMD -MP $(CFLAGS) $(WARN) \
+               -DSTATION_VERSION='"$(VERSION)"'
+FUZZ_SRC  := $(sort $(wildcard tests/fuzz/fuzz_*.c))
+FUZZ_BINS := $(patsubst tests/fuzz/%.c,$(FUZZ_DIR)/%,$(FUZZ_SRC))
+FUZZ_LIB  := $(FUZZ_DIR)/libfuzzstation.a
+$(FUZZ_DIR)/obj/%.o: %.c
+	@mkdir -p $(dir $@)
+	$(FUZZ_CC) $(FUZZ_CFLAGS) -c $< -o $@
+$(FUZZ_LIB): $(patsubst %.c,$(FUZZ_DIR)/obj/%.o,$(CORE_SRC) $(STATION_LIB_SRC))
+	$(AR) rcs $@ $^
+$(FUZZ_DIR)/fuzz_%: $(FUZZ_DIR)/obj/tests/fuzz/fuzz_%.o $(FUZZ_LIB)
+	$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer $(LDFLAGS) -o $@ $^ $(LIBS)
+fuzz-programs: $(FUZZ_BINS)
+fuzz:
+	@sh tests/deps.sh $(DEB_FUZZ) || true
+	@MAKE="$(MAKE)" FUZZ_CC=$(FUZZ_CC) sh tests/fuzz/run.sh $(BUILD) $(FUZZ_SECONDS) $(FUZZ_TARGETS); \
+	    rc=$$?; [ $$rc = 77 ] && exit 0; exit $$rc
+fuzz-smoke:
+	@sh tests/deps.sh $(DEB_FUZZ) || true
+	@MAKE="$(MAKE)" FUZZ_CC=$(FUZZ_CC) sh tests/fuzz/run.sh $(BUILD) $(FUZZ_SMOKE_SECONDS) $(FUZZ_TARGETS); \
+	    rc=$$?; [ $$rc = 77 ] && exit 0; exit $$rc
 
 install: $(STATION_BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/station/recipes
