@@ -1,3 +1,6 @@
+/* realpath(3) is XSI, beyond the POSIX base the Makefile selects. */
+#define _XOPEN_SOURCE 700
+
 #include "recipe.h"
 
 #include <errno.h>
@@ -7,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 
 #include <ini.h>
 
@@ -446,6 +450,42 @@ static int ends_with(const char *s, const char *suffix)
     return n > m && !strcmp(s + n - m, suffix);
 }
 
+static int has_dotdot(const char *s)
+{
+    for (const char *c = s; (c = strstr(c, "..")) != NULL; c += 2)
+        if ((c == s || c[-1] == '/') && (c[2] == '\0' || c[2] == '/'))
+            return 1;
+    return 0;
+}
+
+/* A symbolic link may still lead out of the folder: path's real location
+ * (or, for a file not made yet, that of its nearest existing folder) must
+ * lie inside the folder's.  A link whose target is missing is refused, since
+ * writing through it (training a model) would create the target. */
+static int check_inside(struct parse *p, const struct key_def *k, const char *path)
+{
+    char root[PATH_MAX], probe[PATH_MAX], real[PATH_MAX];
+    if (!realpath(p->r.dir, root))
+        return fail_at(p, p->line, ST_EIO, "%s: cannot resolve the recipe's folder %s: %s",
+                       k->name, p->r.dir, strerror(errno));
+    snprintf(probe, sizeof probe, "%s", path);
+    while (!realpath(probe, real)) {
+        int why = errno;
+        struct stat st;
+        char *slash = strrchr(probe, '/');
+        int dangling = (why == ENOENT || why == ENOTDIR) && lstat(probe, &st) == 0;
+        if ((why != ENOENT && why != ENOTDIR) || dangling || !slash || slash == probe)
+            return fail_at(p, p->line, ST_EFORMAT, "%s: cannot resolve %s: %s", k->name, probe,
+                           dangling ? "a link to nothing" : strerror(why));
+        *slash = '\0';
+    }
+    size_t n = strlen(root);
+    if (strcmp(root, "/") != 0 && (strncmp(real, root, n) != 0 || (real[n] && real[n] != '/')))
+        return fail_at(p, p->line, ST_EFORMAT, "%s: %s leads to %s, outside the recipe's folder %s",
+                       k->name, path, real, root);
+    return ST_OK;
+}
+
 static int store_path(struct parse *p, const struct key_def *k, char *base, const char *value)
 {
     char *dst = base + k->off;
@@ -456,11 +496,18 @@ static int store_path(struct parse *p, const struct key_def *k, char *base, cons
         return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .png", k->name, value);
     if (k->type == V_CALIB && !ends_with(value, ".json"))
         return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' must end in .json", k->name, value);
-    int n = value[0] == '/' ? snprintf(dst, PATH_MAX, "%s", value)
-                            : snprintf(dst, PATH_MAX, "%s/%s", p->r.dir, value);
+    if (value[0] == '/')
+        return fail_at(p, p->line, ST_EFORMAT,
+                       "%s: '%s' is an absolute path; a recipe's files lie in its folder", k->name,
+                       value);
+    if (has_dotdot(value))
+        return fail_at(p, p->line, ST_EFORMAT,
+                       "%s: '%s' contains '..'; a recipe's files lie in its folder", k->name,
+                       value);
+    int n = snprintf(dst, PATH_MAX, "%s/%s", p->r.dir, value);
     if (n < 0 || n >= PATH_MAX)
         return fail_at(p, p->line, ST_ERANGE, "%s: path too long", k->name);
-    return ST_OK;
+    return check_inside(p, k, dst);
 }
 
 /* Up to max numbers of value into out, each in k's range; *n gets the count. */

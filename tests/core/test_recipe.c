@@ -5,11 +5,13 @@
  * recipes are written to a fresh mkdtemp folder removed at the end.
  * Reference for the values: recipes/README.md and recipes/ostrel-cap38.ini.
  * Run from the repository root (tests/run.sh does). */
+#define _XOPEN_SOURCE 700 /* realpath(3) */
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
 #include <setjmp.h>
 #include <cmocka.h>
+
 
 #include <math.h>
 #include <stdio.h>
@@ -335,16 +337,65 @@ static void test_minimal_defaults(void **state)
     assert_int_equal(r.part.border_margin_px, 2);
 }
 
-static void test_absolute_model_and_no_gabor(void **state)
+static void test_subfolder_model_and_no_gabor(void **state)
 {
     (void)state;
     static struct recipe r;
     load_ok(PRODUCT CLASSES "[features]\nfamilies = colour\nsigmas = 0.5\n"
-            "[classifier]\nmodel = /srv/models/x.json\nrounds = 5\ndepth = 3\n" CLASSIFIER_TAIL
+            "[classifier]\nmodel = models/./x.json\nrounds = 5\ndepth = 3\n" CLASSIFIER_TAIL
             SCALE TOL,
             &r);
-    assert_string_equal(r.model_path, "/srv/models/x.json");
+    char want[PATH_MAX];
+    snprintf(want, sizeof want, "%s/models/./x.json", dir);
+    assert_string_equal(r.model_path, want);
     assert_int_equal(r.feat.ngabor_freqs, 0);
+}
+
+/* Every path a recipe names stays in its folder (recipes/README.md, "Paths"):
+ * absolute paths and '..' are refused as written, a symbolic link by where
+ * it leads (realpath(3)), a link to nothing because writing through it
+ * would create its target. */
+static void test_paths_stay_in_folder(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    char outside[] = "/tmp/test_recipe_out_XXXXXX", link_out[128], link_in[128], gone[128];
+    assert_non_null(mkdtemp(outside));
+    snprintf(link_out, sizeof link_out, "%s/out", dir);
+    snprintf(link_in, sizeof link_in, "%s/in", dir);
+    snprintf(gone, sizeof gone, "%s/gone.json", dir);
+    assert_int_equal(symlink(outside, link_out), 0);
+    assert_int_equal(symlink(".", link_in), 0);
+    assert_int_equal(symlink("/nonexistent/m.json", gone), 0);
+
+    static const char abs_model[] =
+        PRODUCT CLASSES FEATURES "[classifier]\nmodel = /srv/models/x.json\n";
+    load_bad(abs_model, ST_EFORMAT, line_of(abs_model, "model =", 1),
+             "model: '/srv/models/x.json' is an absolute path; a recipe's files lie in its folder");
+    static const char up[] = GOOD "[lighting]\nflat_field = a/../../bench.flat\n";
+    load_bad(up, ST_EFORMAT, line_of(up, "flat_field", 1),
+             "flat_field: 'a/../../bench.flat' contains '..'");
+    static const char via_link[] = GOOD "[verification]\ninterval_hours = 8\n"
+                                        "[master a]\nimage = out/a.png\nexpect = pass\n";
+    static char what[3 * PATH_MAX];
+    char real_out[PATH_MAX], real_dir[PATH_MAX];
+    assert_non_null(realpath(outside, real_out));
+    assert_non_null(realpath(dir, real_dir));
+    snprintf(what, sizeof what, "image: %s/out/a.png leads to %s, outside the recipe's folder %s",
+             dir, real_out, real_dir);
+    load_bad(via_link, ST_EFORMAT, line_of(via_link, "image =", 1), what);
+    static const char dangling[] =
+        PRODUCT CLASSES FEATURES "[classifier]\nmodel = gone.json\n";
+    snprintf(what, sizeof what, "model: cannot resolve %s: a link to nothing", gone);
+    load_bad(dangling, ST_EFORMAT, line_of(dangling, "model =", 1), what);
+    /* a link that stays inside, and a file not made yet in a missing folder */
+    load_ok(PRODUCT CLASSES FEATURES "[classifier]\nmodel = in/in/new/m.json\nrounds = 5\n"
+            "depth = 3\n" CLASSIFIER_TAIL SCALE TOL, &r);
+
+    unlink(link_out);
+    unlink(link_in);
+    unlink(gone);
+    rmdir(outside);
 }
 
 /* [lighting], [verification] and [master NAME] (recipes/README.md): paths
@@ -352,7 +403,7 @@ static void test_absolute_model_and_no_gabor(void **state)
 #define MASTERS                                                                                \
     "[verification]\ninterval_hours = 8\n"                                                     \
     "[master good-1]\nimage = masters/good.png\nexpect = pass\n"                               \
-    "[master over]\nimage = /srv/over.png\nexpect = fail\n"
+    "[master over]\nimage = over.png\nexpect = fail\n"
 
 static void test_lighting_and_masters(void **state)
 {
@@ -368,7 +419,8 @@ static void test_lighting_and_masters(void **state)
     assert_string_equal(r.masters[0].name, "good-1");
     assert_string_equal(r.masters[0].image, want);
     assert_int_equal(r.masters[0].expect, 0);   /* VERDICT_PASS */
-    assert_string_equal(r.masters[1].image, "/srv/over.png");
+    snprintf(want, sizeof want, "%s/over.png", dir);
+    assert_string_equal(r.masters[1].image, want);
     assert_int_equal(r.masters[1].expect, 1);   /* VERDICT_FAIL */
     load_ok(GOOD, &r);
     assert_string_equal(r.flat_field, "");
@@ -674,7 +726,8 @@ int main(void)
         cmocka_unit_test(test_grade_and_gates_errors),
         cmocka_unit_test(test_evidence_section),
         cmocka_unit_test(test_minimal_defaults),
-        cmocka_unit_test(test_absolute_model_and_no_gabor),
+        cmocka_unit_test(test_subfolder_model_and_no_gabor),
+        cmocka_unit_test(test_paths_stay_in_folder),
         cmocka_unit_test(test_lighting_and_masters),
         cmocka_unit_test(test_indented_line_is_a_key),
         cmocka_unit_test(test_unknown_section),
