@@ -24,10 +24,14 @@ static int sync_dir(const struct log_io *io, const char *dir, struct err *e)
     return rc;
 }
 
-static int make_dir(const struct log_io *io, const char *dir, const char *parent, struct err *e)
+static int make_dir(const struct log_io *io, const char *dir, const char *parent, unsigned mode,
+                    struct err *e)
 {
-    if (mkdir(dir, 0777) == 0)
+    if (mkdir(dir, mode) == 0) {
+        if (chmod(dir, mode) != 0)
+            return fail_errno(e, dir, "cannot set the folder's mode", errno);
         return parent ? sync_dir(io, parent, e) : ST_OK;
+    }
     if (errno != EEXIST)
         return fail_errno(e, dir, "cannot create folder", errno);
     return ST_OK;
@@ -49,7 +53,7 @@ static int write_all(const struct log_io *io, int fd, const char *path, const un
 }
 
 int evidence_write(const struct log_io *io, const char *root, const char *name,
-                   const void *data, size_t len, struct err *e)
+                   const void *data, size_t len, unsigned mode, struct err *e)
 {
     char path[PATH_MAX], tmp[PATH_MAX], dir[PATH_MAX];
     if ((size_t)snprintf(path, sizeof path, "%s/%s", root, name) >= sizeof path ||
@@ -64,15 +68,19 @@ int evidence_write(const struct log_io *io, const char *root, const char *name,
         *slash = '\0';
     else
         snprintf(parent, sizeof parent, "%s", slash ? "/" : ".");
-    int rc = make_dir(io, root, parent, e);
+    unsigned dmode = log_folder_mode(mode);
+    int rc = make_dir(io, root, parent, dmode, e);
     if (!rc && strcmp(dir, root) != 0)
-        rc = make_dir(io, dir, root, e);
+        rc = make_dir(io, dir, root, dmode, e);
     if (rc)
         return rc;
-    int fd = io->open(tmp, O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
+    int fd = io->open(tmp, O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, mode);
     if (fd < 0)
         return fail_errno(e, tmp, "cannot create", errno);
-    rc = write_all(io, fd, tmp, data, len, e);
+    if (fchmod(fd, mode) != 0)
+        rc = fail_errno(e, tmp, "cannot set the file's mode", errno);
+    if (!rc)
+        rc = write_all(io, fd, tmp, data, len, e);
     if (!rc && io->fsync(fd) != 0)
         rc = fail_errno(e, tmp, "cannot sync", errno);
     if (io->close(fd) != 0 && !rc)

@@ -11,9 +11,12 @@
 
 #include "log.h"
 
-/* Writes len bytes to ROOT/NAME (NAME may hold one folder: "DATE/FILE"). */
+/* Writes len bytes to ROOT/NAME (NAME may hold one folder: "DATE/FILE"),
+ * the file with permissions mode and new folders with log_folder_mode(mode),
+ * exactly (fchmod / chmod after creating, so the umask cannot widen or
+ * narrow them). */
 int evidence_write(const struct log_io *io, const char *root, const char *name,
-                   const void *data, size_t len, struct err *e);
+                   const void *data, size_t len, unsigned mode, struct err *e);
 
 /* Checks ROOT/NAME against its recorded SHA-256 and size: ST_OK, or ST_EIO
  * (missing, unreadable) / ST_EFORMAT (differs) with the reason in e. */

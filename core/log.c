@@ -9,6 +9,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
 
@@ -170,9 +171,15 @@ const struct log_io *log_io_default(void)
     return &io_default;
 }
 
+unsigned log_folder_mode(unsigned file_mode)
+{
+    return file_mode | (file_mode & 0444u) >> 2;
+}
+
 void log_options_init(struct log_options *o)
 {
     memset(o, 0, sizeof *o);
+    o->file_mode = LOG_FILE_MODE;
     o->png_level = 1;
 }
 
@@ -255,8 +262,32 @@ static int upgrade(struct log_db *db, struct err *e)
     return rc;
 }
 
+/* SQLite would create the database with 0644 less the umask; it is made
+ * here first with the log's mode, exactly (fchmod, whatever the umask), and
+ * SQLite gives its WAL and shared-memory files the database's mode.  An
+ * existing database keeps the mode it has. */
+static int create_db_file(struct log_db *db, struct err *e)
+{
+    int fd = open(db->path, O_WRONLY | O_CREAT | O_EXCL | O_CLOEXEC, db->opt.file_mode);
+    if (fd < 0)
+        return errno == EEXIST ? ST_OK
+                               : err_set(e, ST_EIO, "%s: cannot create the log: %s", db->path,
+                                         strerror(errno));
+    int rc = fchmod(fd, db->opt.file_mode) != 0
+                 ? err_set(e, ST_EIO, "%s: cannot set the log's mode %03o: %s", db->path,
+                           db->opt.file_mode, strerror(errno))
+                 : ST_OK;
+    close(fd);
+    return rc;
+}
+
 static int open_db(struct log_db *db, struct err *e)
 {
+    if (db->mode == LOG_OPEN_WRITE) {
+        int rc = create_db_file(db, e);
+        if (rc)
+            return rc;
+    }
     int flags = db->mode == LOG_OPEN_WRITE ? SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE
                                            : SQLITE_OPEN_READONLY;
     if (sqlite3_open_v2(db->path, &db->h, flags | SQLITE_OPEN_NOMUTEX, NULL) != SQLITE_OK)
@@ -299,6 +330,8 @@ int log_open(const char *path, int mode, const struct log_options *opt, struct l
         log_options_init(&db->opt);
     if (!db->opt.io)
         db->opt.io = log_io_default();
+    if (!db->opt.file_mode)
+        db->opt.file_mode = LOG_FILE_MODE;
     int rc = ST_OK;
     if ((size_t)snprintf(db->path, sizeof db->path, "%s", path) >= sizeof db->path)
         rc = err_set(e, ST_ERANGE, "%s: path too long", path);
@@ -513,7 +546,8 @@ static int write_evidence(struct log_db *db, struct log_record *r, struct append
     }
     int rc = make_room(db, need, r->utc, w, e);
     for (int i = 0; !rc && i < r->nevidence; i++) {
-        rc = evidence_write(db->opt.io, db->evdir, r->ev[i].name, w->png[i], w->png_len[i], e);
+        rc = evidence_write(db->opt.io, db->evdir, r->ev[i].name, w->png[i], w->png_len[i],
+                            db->opt.file_mode, e);
         if (!rc)
             w->written++;
     }

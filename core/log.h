@@ -87,8 +87,18 @@ struct log_options {
     uint64_t evidence_budget;      /* bytes; 0 = no limit */
     int png_level;                 /* zlib level of evidence PNGs (default 1) */
     const struct log_io *io;       /* NULL: log_io_default() */
+    unsigned file_mode;            /* permissions of what the log creates (database, its WAL
+                                      and evidence files): LOG_FILE_MODE by default; folders
+                                      get log_folder_mode() of it */
 };
 void log_options_init(struct log_options *o);
+
+/* Owner only: a log names operators and serials and holds the evidence; a
+ * site that shares it with a group says so (STATION_LOG_MODE, README.md). */
+#define LOG_FILE_MODE 0600u
+/* The folder mode for a file mode: search where read is allowed (0600 ->
+ * 0700, 0640 -> 0750). */
+unsigned log_folder_mode(unsigned file_mode);
 
 struct log_db;
 

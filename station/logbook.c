@@ -39,8 +39,26 @@ int logbook_default_path(const char *station, char *buf, size_t len, struct err 
     return ST_OK;
 }
 
-/* mkdir -p of the folder that holds path. */
-static int make_parent(const char *path, struct err *e)
+/* The log's file mode: LOG_FILE_MODE, or STATION_LOG_MODE for a site that
+ * shares the log with a group (0640: the group reads, 0660: it writes too);
+ * nothing for others, ever. */
+static int log_mode(unsigned *mode, struct err *e)
+{
+    const char *s = getenv("STATION_LOG_MODE");
+    *mode = LOG_FILE_MODE;
+    if (!s || !*s)
+        return ST_OK;
+    char *end;
+    unsigned long m = strtoul(s, &end, 8);
+    if (*end || (m != 0600 && m != 0640 && m != 0660))
+        return err_set(e, ST_EINVAL, "STATION_LOG_MODE '%s' must be 0600, 0640 or 0660", s);
+    *mode = (unsigned)m;
+    return ST_OK;
+}
+
+/* mkdir -p of the folder that holds path; folders it makes get mode
+ * exactly. */
+static int make_parent(const char *path, unsigned mode, struct err *e)
 {
     char dir[PATH_MAX];
     snprintf(dir, sizeof dir, "%s", path);
@@ -53,7 +71,7 @@ static int make_parent(const char *path, struct err *e)
             continue;
         char c = *p;
         *p = '\0';
-        if (mkdir(dir, 0777) != 0 && errno != EEXIST)
+        if (mkdir(dir, mode) == 0 ? chmod(dir, mode) != 0 : errno != EEXIST)
             return err_set(e, ST_EIO, "%s: cannot create folder: %s", dir, strerror(errno));
         *p = c;
         if (!c)
@@ -81,8 +99,11 @@ int logbook_open(struct logbook *lb, const char *db_path, const char *station,
         rc = sha256_hex_file(r->path, lb->recipe_sha256, e);
     if (!rc && !(rc = model_meta_load(r->model_path, &m, e)))
         snprintf(lb->model_sha256, sizeof lb->model_sha256, "%s", m.model_sha256);
+    unsigned mode = LOG_FILE_MODE;
     if (!rc)
-        rc = make_parent(db_path, e);
+        rc = log_mode(&mode, e);
+    if (!rc)
+        rc = make_parent(db_path, log_folder_mode(mode), e);
     if (rc)
         return rc;
     snprintf(lb->station, sizeof lb->station, "%s", station);
@@ -91,6 +112,7 @@ int logbook_open(struct logbook *lb, const char *db_path, const char *station,
     struct log_options o;
     log_options_init(&o);
     o.evidence_budget = budget_bytes;
+    o.file_mode = mode;
     return log_open(db_path, LOG_OPEN_WRITE, &o, &lb->db, e);
 }
 

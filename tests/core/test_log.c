@@ -539,6 +539,69 @@ static void test_verifications(void **state)
     verify_expect(p, "verification", 2, 0);
 }
 
+/* Permission bits of what the log creates, whatever the umask (POSIX
+ * open(2)/mkdir(2) apply the umask; the log sets the mode exactly with
+ * fchmod/chmod): owner only by default, a group mode when asked, folders
+ * searchable where readable.  SQLite gives the WAL the database's mode
+ * (its unix VFS, findCreateFileMode). */
+static void check_mode(const char *path, unsigned want)
+{
+    struct stat st;
+    if (stat(path, &st) != 0)
+        fail_msg("%s: %s", path, strerror(errno));
+    if ((st.st_mode & 07777) != want)
+        fail_msg("%s: mode %03o, want %03o", path, (unsigned)(st.st_mode & 07777), want);
+}
+
+static void modes_case(const char *name, mode_t mask, unsigned file_mode)
+{
+    mode_t old = umask(mask);
+    char sub[160], p[200], ev[PATH_MAX], evroot[PATH_MAX];
+    snprintf(sub, sizeof sub, "%s/%s", dir, name);
+    assert_int_equal(mkdir(sub, 0755), 0);
+    snprintf(p, sizeof p, "%s/log.db", sub);
+    struct log_options o;
+    log_options_init(&o);
+    assert_int_equal(o.file_mode, 0600);
+    if (file_mode)
+        o.file_mode = file_mode;
+    struct log_db *db = NULL;
+    struct err e;
+    err_clear(&e);
+    if (log_open(p, LOG_OPEN_WRITE, &o, &db, &e))
+        fail_msg("%s", e.msg);
+    struct image *f = frame(5, 4, 3);
+    struct log_entry en = entry(VERDICT_FAIL, "[]");
+    en.frame = f;
+    int64_t seq = append(db, en);
+    struct log_record r;
+    log_record_init(&r);
+    assert_int_equal(log_get(db, seq, &r, &e), ST_OK);
+    assert_int_equal(log_evidence_path(db, r.ev[0].name, ev, sizeof ev, &e), ST_OK);
+    unsigned want = file_mode ? file_mode : 0600;
+    unsigned want_dir = want | (want & 0444) >> 2;
+    check_mode(p, want);
+    snprintf(evroot, sizeof evroot, "%s-wal", p);
+    check_mode(evroot, want);
+    check_mode(ev, want);
+    *strrchr(ev, '/') = '\0';
+    check_mode(ev, want_dir);          /* evidence/DATE */
+    snprintf(evroot, sizeof evroot, "%s/evidence", sub);
+    check_mode(evroot, want_dir);
+    log_record_clear(&r);
+    log_close(db);
+    image_free(f);
+    umask(old);
+}
+
+static void test_file_modes(void **state)
+{
+    (void)state;
+    modes_case("modes-open-umask", 0, 0);      /* the umask would allow 0666 */
+    modes_case("modes-group", 077, 0640);      /* the umask would strip the group */
+    assert_int_equal(log_folder_mode(0660), 0770);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -550,6 +613,7 @@ int main(void)
         cmocka_unit_test(test_evidence_budget),
         cmocka_unit_test(test_tamper),
         cmocka_unit_test(test_verifications),
+        cmocka_unit_test(test_file_modes),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
