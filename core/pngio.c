@@ -104,7 +104,11 @@ static int pngio_decode(struct pngio_ctx *c, enum pngio_mode mode, struct err *e
     png_infop info = c->info;
     png_init_io(png, c->fp);
     png_set_sig_bytes(png, 8);
-    png_set_user_limits(png, IMAGE_MAX_SIDE, IMAGE_MAX_SIDE);
+    /* The size is judged by image_new below, before libpng allocates a row,
+     * so the message says what is wrong ("image size 20000x20000 outside
+     * 1..16384") instead of libpng's user-limit error; PNG's own bound keeps
+     * the casts to int exact. */
+    png_set_user_limits(png, PNG_UINT_31_MAX, PNG_UINT_31_MAX);
     png_set_chunk_malloc_max(png, PNGIO_CHUNK_MALLOC_MAX);
     png_read_info(png, info);
 
@@ -131,8 +135,8 @@ static int pngio_decode(struct pngio_ctx *c, enum pngio_mode mode, struct err *e
     }
     int passes = png_set_interlace_handling(png);
 
-    /* libpng's user limits bound each side to IMAGE_MAX_SIDE, so the casts
-     * are exact; image_new checks the pixel count before allocating. */
+    /* Each side is at most PNG_UINT_31_MAX, so the casts are exact; image_new
+     * checks the sides and the pixel count before allocating. */
     struct err sub;
     c->img = image_new((int)w, (int)h, channels, &sub);
     if (!c->img)
