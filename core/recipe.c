@@ -481,8 +481,9 @@ static int check_inside(struct parse *p, const struct key_def *k, const char *pa
     }
     size_t n = strlen(root);
     if (strcmp(root, "/") != 0 && (strncmp(real, root, n) != 0 || (real[n] && real[n] != '/')))
-        return fail_at(p, p->line, ST_EFORMAT, "%s: %s leads to %s, outside the recipe's folder %s",
-                       k->name, path, real, root);
+        return fail_at(p, p->line, ST_EFORMAT,
+                       "%s: %s leads to %s%s, outside the recipe's folder %s", k->name, path, real,
+                       path + strlen(probe), root);
     return ST_OK;
 }
 
