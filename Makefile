@@ -162,6 +162,13 @@ fuzz-smoke:
 	@MAKE="$(MAKE)" FUZZ_CC=$(FUZZ_CC) sh tests/fuzz/run.sh $(BUILD) $(FUZZ_SMOKE_SECONDS) $(FUZZ_TARGETS); \
 	    rc=$$?; [ $$rc = 77 ] && exit 0; exit $$rc
 
+# The demo, reduced, under valgrind memcheck (tests/memcheck.sh): no error,
+# nothing definitely lost.  Minutes; not part of check.
+memcheck:
+	@sh tests/deps.sh $(DEB_BUILD) valgrind
+	@$(MAKE) --no-print-directory $(STATION_BIN)
+	@sh tests/memcheck.sh $(BUILD); rc=$$?; [ $$rc = 77 ] && exit 0; exit $$rc
+
 install: $(STATION_BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/station/recipes
 	install -m 755 $(STATION_BIN) $(DESTDIR)$(PREFIX)/bin/station

@@ -49,11 +49,14 @@ fi
 for t in $(find "$BUILD/tests" -type f -name 'test_*' ! -name '*.o' ! -name '*.d' | sort); do
     run_one "${t#$BUILD/}" "$t"
 done
-# The sanitizer build runs the unit tests and the small end-to-end run; the
-# reference checks and the full demo compare figures, which the plain build
-# already covers.
+# The sanitizer build runs the unit tests and the end-to-end runs of the
+# command line that stay short under it (a tiny demo, inspect, train, recipe
+# check and the audit verbs on good and bad input); the reference checks and
+# the full demo compare figures, which the plain build already covers.
 if [ "$SAN" = 1 ]; then
-    run_one tests/e2e/test_smoke.sh sh tests/e2e/test_smoke.sh
+    for s in test_smoke.sh test_bad_input.sh test_no_shell.sh test_log_audit.sh; do
+        run_one "tests/e2e/$s" sh "tests/e2e/$s"
+    done
     echo
     [ -n "$failed" ] && echo "failed:$failed"
     echo "check: $pass passed, $fail failed, $skip skipped"
