@@ -14,8 +14,9 @@
  * characters always go to the input line; Enter commits a non-empty input
  * line to the field being edited (serial by default) and, on an empty
  * line, asks for an inspection (the key trigger); every command is on a
- * function key or Escape (see screen.c's key table, which the help overlay
- * prints). */
+ * function key or Escape, and Escape quits only from an empty input line
+ * with the help closed (station/screen_keys.c holds the key table the help
+ * overlay prints). */
 #ifndef ST_SCREEN_H
 #define ST_SCREEN_H
 
@@ -67,9 +68,11 @@ void screen_state_init(struct screen_state *s);
 
 /* Fills verdict, log_seq, reasons and bars from one report
  * (station/report.h, REPORT_SCHEMA 1) judged against recipe r: the reasons'
- * own words, and per defect class its counted total area against the
- * class's max_total_mm2 (count against max_count when it has no area
- * limit). */
+ * own words ("text", or report_json_error's "message"), and per defect
+ * class its counted total area against the class's max_total_mm2 (count
+ * against max_count when it has no area limit).  A NO_VERDICT report gets
+ * no bars: what was not judged is not shown as measured.  An unknown
+ * verdict word is NO_VERDICT; log_seq is -1 when the report has none. */
 void screen_state_set_report(struct screen_state *s, const struct recipe *r, const json_t *report);
 
 enum screen_action {
