@@ -20,7 +20,7 @@ OPT     ?= -O2 -g
 SANFLAGS :=
 endif
 
-PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf
+PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2
 TEST_PKGS := cmocka
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
@@ -52,6 +52,9 @@ TEST_BINS   := $(patsubst %.c,$(BUILD)/%,$(TEST_SRC))
 TOOL_BINS   := $(patsubst %.c,$(BUILD)/%,$(TOOL_SRC))
 BENCH_BINS  := $(patsubst %.c,$(BUILD)/%,$(BENCH_SRC))
 APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
+# The emulated camera: a libv4l2 plugin the camera tests bind-mount over
+# libv4l2's plugin folder (tests/emucam/emucam.h).
+EMUCAM_SO   := $(BUILD)/tests/emucam/libv4l-emucam.so
 
 .PHONY: all check demo bench install uninstall clean deps deps-test
 all: $(STATION_BIN)
@@ -83,10 +86,18 @@ $(BUILD)/tests/calib/%: $(BUILD)/tests/calib/%.o $(CALIB_LIB) $(CORE_LIB)
 $(BUILD)/tests/%: $(BUILD)/tests/%.o $(APP_LIBS)
 	$(CC) $(ST_LDFLAGS) -o $@ $^ $(LIBS) $(TEST_LIBS)
 
+# A plugin is loaded into the program under test, so it takes no sanitizer
+# runtime of its own.
+$(EMUCAM_SO): tests/emucam/emucam.c tests/emucam/emucam.h
+	@mkdir -p $(dir $@)
+	$(CC) -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fPIC -shared -fvisibility=hidden -I. \
+	    $(CFLAGS) $(WARN) -o $@ $<
+$(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
+
 # Debian packages: `make deps` installs what is missing when run as root,
 # otherwise prints the exact apt-get line and stops.
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
-             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core
+             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
              python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc
 deps:
@@ -99,7 +110,7 @@ check: deps-test
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) SAN=$(SAN) sh tests/run.sh
 
 .PHONY: test-programs
-test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS)
+test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO)
 
 DEMO_OUT ?= $(BUILD)/demo
 demo: deps

@@ -12,7 +12,7 @@
 
 enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
                 SEC_GATES, SEC_PART, SEC_ZONE, SEC_EVIDENCE,
-                SEC_LIGHTING, SEC_VERIFICATION, SEC_MASTER,
+                SEC_LIGHTING, SEC_VERIFICATION, SEC_MASTER, SEC_CAMERA,
                 SEC_TRIGGER,
                 SEC_KINDS };
 
@@ -35,7 +35,8 @@ enum val_type {
     V_GRADE,    /* "N x A": int N >= 1 at off, double A > 0 at count_off */
     V_FIELD,    /* int[4] x0 y0 x1 y1, x0 < x1, y0 < y1 */
     V_WORD,     /* int index into the section's word list (see word_lists) */
-    V_PASS      /* enum recipe_pass_evidence at off, N of "every N" at count_off */
+    V_PASS,     /* enum recipe_pass_evidence at off, N of "every N" at count_off */
+    V_SETTINGS  /* unsigned OR of enum recipe_cam_setting from setting key names */
 };
 
 enum {
@@ -45,7 +46,10 @@ enum {
 };
 
 #define MAX_KEYS 12
-#define MAX_SECTIONS (8 + (2 + ZONE_MAX) * RECIPE_MAX_CLASSES + ZONE_MAX)
+/* each single section once, the classes, their tolerances (also per zone),
+ * the zones and the master parts */
+#define MAX_SECTIONS                                                                               \
+    (SEC_KINDS + (2 + ZONE_MAX) * RECIPE_MAX_CLASSES + ZONE_MAX + RECIPE_MAX_MASTERS)
 #define NAME_MAX_LEN ((int)sizeof(((struct recipe_class *)0)->name) - 1)
 
 struct key_def {
@@ -204,6 +208,23 @@ static const struct key_def evidence_keys[] = {
     {"pass", V_PASS, R(evidence_pass), R(evidence_every), 1, INT_MAX, 0, K_OPTIONAL, NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
+/* [camera]: the settings keys come first, in enum recipe_cam_setting bit
+ * order, so key k's bit is 1 << k. */
+#define CAM(f) R(camera.f)
+static const char *const power_line_words[] = {"off", "50", "60", NULL};
+static const struct key_def camera_keys[] = {
+    {"exposure", V_INT, CAM(exposure), 0, 1, 10000000, 0, K_OPTIONAL, NULL},
+    {"gain", V_INT, CAM(gain), 0, 0, 1000000, 0, K_OPTIONAL, NULL},
+    {"white_balance_k", V_INT, CAM(white_balance_k), 0, 1000, 20000, 0, K_OPTIONAL, NULL},
+    {"focus", V_INT, CAM(focus), 0, 0, 1000000, 0, K_OPTIONAL, NULL},
+    {"power_line", V_WORD, CAM(power_line), 0, 0, 0, 0, K_OPTIONAL, power_line_words},
+    {"width", V_INT, CAM(width), 0, 16, 16384, 0, K_OPTIONAL, NULL},
+    {"height", V_INT, CAM(height), 0, 16, 16384, 0, K_OPTIONAL, NULL},
+    {"fps", V_REAL, CAM(fps), 0, 0, 1000, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"stall_ms", V_INT, CAM(stall_ms), 0, 100, 600000, 0, K_OPTIONAL, NULL},
+    {"required", V_SETTINGS, CAM(required), 0, 0, 0, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+#define CAM_NSETTINGS 5
 /* [trigger]: the live station's trigger (enum recipe_trigger_mode order) */
 static const char *const trigger_words[] = {"key", "auto", "continuous", NULL};
 #define TRIG(f) offsetof(struct recipe_trigger, f)
@@ -252,6 +273,7 @@ static const struct sec_def {
     [SEC_VERIFICATION] = {"verification", 0, 0, verification_keys},
     [SEC_MASTER] = {"master", 1, 0, master_keys},
     [SEC_EVIDENCE] = {"evidence", 0, 0, evidence_keys},
+    [SEC_CAMERA] = {"camera", 0, 0, camera_keys},
     [SEC_TRIGGER] = {"trigger", 0, 0, trigger_keys},
 };
 
@@ -609,6 +631,30 @@ static int store_pass(struct parse *p, const struct key_def *k, char *base, cons
     return ST_OK;
 }
 
+/* `required = exposure gain`: names of [camera]'s setting keys, each once. */
+static int store_settings(struct parse *p, const struct key_def *k, char *base, const char *value)
+{
+    unsigned mask = 0;
+    char word[32];
+    const char *cur = value;
+    int got;
+    while ((got = next_word(&cur, word, sizeof word)) != 0) {
+        int s = 0;
+        while (got > 0 && s < CAM_NSETTINGS && strcmp(word, camera_keys[s].name))
+            s++;
+        if (got < 0 || s == CAM_NSETTINGS)
+            return fail_at(p, p->line, ST_EFORMAT,
+                           "%s: '%s' is not one of: exposure gain white_balance_k focus "
+                           "power_line",
+                           k->name, got < 0 ? "(overlong word)" : word);
+        if (mask & (1u << s))
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' listed twice", k->name, word);
+        mask |= 1u << s;
+    }
+    *(unsigned *)(base + k->off) = mask;
+    return ST_OK;
+}
+
 static int store_value(struct parse *p, const struct key_def *k, char *base, const char *value)
 {
     long iv;
@@ -681,6 +727,8 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
         return store_word(p, k, base, value);
     case V_PASS:
         return store_pass(p, k, base, value);
+    case V_SETTINGS:
+        return store_settings(p, k, base, value);
     case V_MODEL:
     case V_MASK:
     case V_CALIB:
@@ -1136,6 +1184,28 @@ static int check_masters(struct parse *p)
     return ST_OK;
 }
 
+/* Which settings the recipe gives; a required one must be among them. */
+static int check_camera(struct parse *p)
+{
+    const struct section *s = find_section(p, SEC_CAMERA, "", "");
+    struct recipe_camera *c = &p->r.camera;
+    if (!s)
+        return ST_OK;
+    for (int k = 0; k < CAM_NSETTINGS; k++)
+        if (s->key_line[k])
+            c->set |= 1u << k;
+    for (int k = 0; k < CAM_NSETTINGS; k++)
+        if ((c->required & (1u << k)) && !(c->set & (1u << k)))
+            return fail_at(p, s->key_line[key_index(SEC_CAMERA, "required")], ST_EFORMAT,
+                           "required lists '%s' but [camera] gives no %s value",
+                           camera_keys[k].name, camera_keys[k].name);
+    int lw = s->key_line[key_index(SEC_CAMERA, "width")];
+    int lh = s->key_line[key_index(SEC_CAMERA, "height")];
+    if (!lw != !lh)
+        return fail_at(p, lw ? lw : lh, ST_EFORMAT, "[camera] needs width and height together");
+    return ST_OK;
+}
+
 static int check_trigger(struct parse *p)
 {
     const struct recipe_trigger *t = &p->r.trigger;
@@ -1171,6 +1241,7 @@ static void set_defaults(struct recipe *r)
     r->part.border_margin_px = 2;
     r->part.field[0] = -1;
     r->verify_interval_hours = -1;
+    r->camera.stall_ms = RECIPE_CAM_STALL_MS;
     set_trigger_defaults(&r->trigger);
 }
 
@@ -1223,7 +1294,8 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
     if ((rc = check_sections(p)) != ST_OK || (rc = check_classes(p)) != ST_OK ||
         (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
         (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK ||
-        (rc = check_masters(p)) != ST_OK || (rc = check_trigger(p)) != ST_OK)
+        (rc = check_masters(p)) != ST_OK || (rc = check_camera(p)) != ST_OK ||
+        (rc = check_trigger(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:

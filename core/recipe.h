@@ -95,6 +95,32 @@ struct recipe_trigger {
 /* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
 enum recipe_pass_evidence { RECIPE_PASS_NONE = 0, RECIPE_PASS_ALL, RECIPE_PASS_EVERY };
 
+/* [camera]: what a V4L2 camera is asked for and locked to
+ * (station/source_camera.h).  Every key is optional: a setting the recipe
+ * leaves out is left as the camera has it.  Bits of set and required, in
+ * the order the camera locks them. */
+enum recipe_cam_setting {
+    RCAM_EXPOSURE = 1u << 0,      /* auto exposure off, then exposure */
+    RCAM_GAIN = 1u << 1,          /* auto gain off, then gain */
+    RCAM_WHITE_BALANCE = 1u << 2, /* auto white balance off, then temperature */
+    RCAM_FOCUS = 1u << 3,         /* autofocus off, then focus */
+    RCAM_POWER_LINE = 1u << 4     /* anti-flicker filter */
+};
+#define RECIPE_CAM_STALL_MS 2000 /* default stall_ms: a few dozen frame periods, common practice */
+enum recipe_power_line { RCAM_PL_OFF = 0, RCAM_PL_50HZ, RCAM_PL_60HZ }; /* V4L2's own values */
+struct recipe_camera {
+    int width, height;         /* asked size; 0: the camera's current one */
+    double fps;                /* asked rate; 0: the camera's current one */
+    int stall_ms;              /* no frame for this long restarts the stream */
+    int exposure;              /* V4L2_CID_EXPOSURE_ABSOLUTE units: 100 microseconds */
+    int gain;                  /* the camera's own units */
+    int white_balance_k;       /* colour temperature, kelvin */
+    int focus;                 /* the camera's own units (V4L2_CID_FOCUS_ABSOLUTE) */
+    int power_line;            /* enum recipe_power_line */
+    unsigned set;              /* enum recipe_cam_setting bits the recipe gives */
+    unsigned required;         /* ... that the camera must have, else it is refused */
+};
+
 struct recipe {
     char path[PATH_MAX];
     char dir[PATH_MAX];
@@ -131,6 +157,7 @@ struct recipe {
     struct recipe_master masters[RECIPE_MAX_MASTERS];
     int evidence_pass;         /* enum recipe_pass_evidence, default none */
     int evidence_every;        /* N of "every N" */
+    struct recipe_camera camera;
     struct recipe_trigger trigger;
 };
 

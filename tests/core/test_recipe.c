@@ -618,6 +618,51 @@ static void test_evidence_section(void **state)
     load_bad(junk, ST_EFORMAT, line_of(junk, "every", 1), "is not none, all or every N");
 }
 
+/* [camera]: optional keys, the set and required masks, and the refusals
+ * (recipes/README.md, [camera]). */
+static void test_camera_section(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(GOOD, &r);
+    assert_int_equal(r.camera.set, 0);
+    assert_int_equal(r.camera.required, 0);
+    assert_int_equal(r.camera.width, 0);
+    assert_int_equal(r.camera.stall_ms, 2000);
+    load_ok(GOOD "[camera]\nwidth = 640\nheight = 480\nfps = 30\nexposure = 156\n"
+                 "power_line = 50\nfocus = 0\nrequired = power_line  exposure\nstall_ms = 500\n",
+            &r);
+    assert_int_equal(r.camera.width, 640);
+    assert_int_equal(r.camera.height, 480);
+    assert_true(r.camera.fps == 30.0);
+    assert_int_equal(r.camera.exposure, 156);
+    assert_int_equal(r.camera.power_line, RCAM_PL_50HZ);
+    assert_int_equal(r.camera.focus, 0);
+    assert_int_equal(r.camera.stall_ms, 500);
+    assert_int_equal(r.camera.set, RCAM_EXPOSURE | RCAM_FOCUS | RCAM_POWER_LINE);
+    assert_int_equal(r.camera.required, RCAM_EXPOSURE | RCAM_POWER_LINE);
+    load_ok(GOOD "[camera]\npower_line = off\ngain = 7\nwhite_balance_k = 4600\n", &r);
+    assert_int_equal(r.camera.power_line, RCAM_PL_OFF);
+    assert_int_equal(r.camera.set, RCAM_GAIN | RCAM_WHITE_BALANCE | RCAM_POWER_LINE);
+
+    const char *unset = GOOD "[camera]\ngain = 3\nrequired = gain focus\n";
+    load_bad(unset, ST_EFORMAT, line_of(unset, "required", 1),
+             "required lists 'focus' but [camera] gives no focus value");
+    const char *unknown = GOOD "[camera]\nrequired = gain zoom\n";
+    load_bad(unknown, ST_EFORMAT, line_of(unknown, "zoom", 1), "'zoom' is not one of");
+    const char *twice = GOOD "[camera]\ngain = 1\nrequired = gain gain\n";
+    load_bad(twice, ST_EFORMAT, line_of(twice, "required", 1), "'gain' listed twice");
+    const char *hz = GOOD "[camera]\npower_line = 55\n";
+    load_bad(hz, ST_EFORMAT, line_of(hz, "55", 1), "'55' is not one of: off 50 60");
+    const char *half = GOOD "[camera]\nwidth = 640\n";
+    load_bad(half, ST_EFORMAT, line_of(half, "width", 1), "needs width and height together");
+    const char *neg = GOOD "[camera]\nexposure = 0\n";
+    load_bad(neg, ST_ERANGE, line_of(neg, "exposure", 1), "exposure = 0 is out of range");
+    const char *slow = GOOD "[camera]\nfps = 0\n";
+    load_bad(slow, ST_ERANGE, line_of(slow, "fps", 1), "fps = 0 is out of range");
+    const char *dup = GOOD "[camera]\ngain = 1\n[camera]\n";
+    load_bad(dup, ST_EFORMAT, line_of(dup, "[camera]", 2), "duplicate section [camera]");
+}
 
 /* [trigger]: the defaults recipes/README.md states, every key read, the
  * word list and the hysteresis order refused when reversed. */
@@ -659,6 +704,7 @@ static void test_trigger_section(void **state)
 int main(void)
 {
     const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_camera_section),
         cmocka_unit_test(test_demo_recipe),
         cmocka_unit_test(test_zones_and_part),
         cmocka_unit_test(test_zone_errors),
