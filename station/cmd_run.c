@@ -14,7 +14,7 @@ static void usage(FILE *f)
     fprintf(f,
             "usage: station run RECIPE [--source camera:/dev/videoN | replay:DIR | bench]\n"
             "                  [--headless] [--trigger key|auto|continuous] [--fps F]\n"
-            "                  [--size WxH] [--seed N] [--loop] [--inspections N]\n"
+            "                  [--size WxH] [--seed N] [--loop] [--inspections N] [--frames N]\n"
             "                  [--log DB] [--station ID] [--operator ID] [--serial S]\n"
             "                  [--evidence-budget MB] [--snapshot FILE]\n\n"
             "The live station: a live picture, an inspection per part, every verdict\n"
@@ -33,6 +33,7 @@ static void usage(FILE *f)
             "  --seed N        bench series (default 1)\n"
             "  --loop          replay: start again after the last file\n"
             "  --inspections N stop after N inspections (a replay stops at its end)\n"
+            "  --frames N      stop after N frames from the source\n"
             "  --log DB        the inspection log (default $XDG_DATA_HOME/station/STATION/log.db)\n"
             "  --station ID    station id (default %s)\n"
             "  --operator ID   operator id recorded with each inspection (or typed: F2)\n"
@@ -69,6 +70,7 @@ int cmd_run(int argc, char **argv)
         {"trigger", required_argument, NULL, 't'},  {"fps", required_argument, NULL, 'f'},
         {"size", required_argument, NULL, 'z'},     {"seed", required_argument, NULL, 'd'},
         {"loop", no_argument, NULL, 'L'},           {"inspections", required_argument, NULL, 'i'},
+        {"frames", required_argument, NULL, 'F'},
         {"log", required_argument, NULL, 'l'},      {"station", required_argument, NULL, 's'},
         {"operator", required_argument, NULL, 'p'}, {"serial", required_argument, NULL, 'n'},
         {"evidence-budget", required_argument, NULL, 'b'},
@@ -114,6 +116,11 @@ int cmd_run(int argc, char **argv)
             if (positive("--inspections", optarg, &v, 0))
                 return EXIT_USAGE;
             o.inspections = (long)v;
+            break;
+        case 'F':
+            if (positive("--frames", optarg, &v, 0))
+                return EXIT_USAGE;
+            o.frames = (long)v;
             break;
         case 'l': o.db_path = optarg; break;
         case 's': o.station = optarg; break;

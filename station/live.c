@@ -242,6 +242,8 @@ static void on_frame(struct live *L, const struct source_frame *f)
         L->frames_window = 0;
         L->window_ms = now;
     }
+    if (L->o->frames > 0 && L->frames >= L->o->frames)
+        L->ended = 1; /* the last frame is still fed: a trigger on it is inspected */
     unsigned ev = 0;
     if (trigger_feed(L->trig, f->img, &ev, &e)) {
         cli_say("%s: %s", f->name, e.msg);

@@ -35,6 +35,7 @@ struct live_options {
     const char *db_path, *station, *operator_id, *serial;
     int trigger;                 /* enum recipe_trigger_mode; -1: the recipe's [trigger] mode */
     long inspections;            /* stop after this many results; 0: no limit */
+    long frames;                 /* stop after this many frames; 0: no limit */
     const char *snapshot;        /* PNG of the screen after each shown verdict (and F12) */
     int allow_offscreen;         /* tests: SDL's offscreen and dummy drivers are accepted */
     double budget_mb;
