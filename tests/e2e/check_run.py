@@ -1,0 +1,257 @@
+"""End-to-end checks of `station run` (the live station), headless and
+windowed under SDL's offscreen driver.
+
+usage: check_run.py STATION RECIPE IMAGES_DIR OUT
+
+References outside the code under test: `station inspect` on the same files
+(the replay must judge exactly as the offline command does), the bench
+source's own documented schedule (station/source_bench.h: a part every 84
+frames, 36 of them lying still), Python's sqlite3/hashlib reading of the log
+(logcheck.py), PIL for the snapshot PNG, and the kernel's ENOSPC on a full
+tmpfs for the log failure."""
+import glob
+import json
+import os
+import shutil
+import subprocess
+import sys
+import time
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import logcheck  # noqa: E402
+
+STATION, RECIPE, IMAGES, OUT = sys.argv[1:5]
+CYCLE, EMPTY, SLIDE, STILL = 84, 24, 12, 36   # station/source_bench.h
+ENV = dict(os.environ, LC_ALL="C")
+
+
+def fail(msg):
+    print("FAIL " + msg)
+    sys.exit(1)
+
+
+def lines(text):
+    return [json.loads(l) for l in text.splitlines() if l.strip()]
+
+
+def run(args, timeout=120, env=ENV):
+    p = subprocess.run([STATION] + args, stdin=subprocess.DEVNULL, capture_output=True, text=True,
+                       timeout=timeout, env=env)
+    return p.returncode, lines(p.stdout), p.stderr
+
+
+def reports(objs):
+    return [o for o in objs if "verdict" in o]
+
+
+def events(objs, name):
+    return [o for o in objs if o.get("event") == name]
+
+
+def key(reason):
+    return (reason["rule"], reason["class"], reason.get("zone"), reason.get("measured"),
+            reason.get("limit"), reason.get("message"))
+
+
+def check_replay():
+    """The replay, continuous and as fast as inspected, judges every file as
+    station inspect does, a truncated file included (NO_VERDICT unreadable)."""
+    folder = os.path.join(OUT, "replay")
+    os.makedirs(folder)
+    for f in sorted(glob.glob(os.path.join(IMAGES, "*.png"))):
+        shutil.copy(f, folder)
+    first = sorted(glob.glob(os.path.join(folder, "*.png")))[0]
+    with open(first, "rb") as f, open(os.path.join(folder, "part-cut.png"), "wb") as g:
+        g.write(f.read()[:300])
+    files = sorted(glob.glob(os.path.join(folder, "*.png")))
+    rc_i, ins, err_i = run(["inspect", RECIPE] + files + ["--log", os.path.join(OUT, "inspect.db")])
+    rc_r, out, err_r = run(["run", RECIPE, "--headless", "--source", "replay:" + folder,
+                            "--trigger", "continuous", "--fps", "0", "--log",
+                            os.path.join(OUT, "replay.db")])
+    live = reports(out)
+    if [o["image"] for o in live] != files:
+        fail("replay inspected %s, want every file once in name order %s" %
+             ([o["image"] for o in live], files))
+    for a, b in zip(ins, live):
+        if a["verdict"] != b["verdict"] or sorted(map(key, a["reasons"])) != sorted(map(key, b["reasons"])):
+            fail("%s: inspect %s %s, run %s %s" % (a["image"], a["verdict"], a["reasons"],
+                                                   b["verdict"], b["reasons"]))
+        if "log_seq" not in b:
+            fail("%s shown without a durable record" % b["image"])
+    if live[-1]["verdict"] != "NO_VERDICT" or live[-1]["reasons"][0]["rule"] != "unreadable":
+        fail("the truncated file is %s" % live[-1])
+    if rc_r != rc_i:
+        fail("exit status: run %d, inspect %d" % (rc_r, rc_i))
+    print("ok   replay: %d files judged as station inspect judges them (%s), exit %d" %
+          (len(files), ", ".join(o["verdict"] for o in live), rc_r))
+
+
+def bench(spec, frames, db, extra=()):
+    return run(["run", RECIPE, "--headless", "--source", spec, "--fps", "120", "--frames",
+                str(frames), "--log", db] + list(extra))
+
+
+def check_auto():
+    """The automatic trigger inspects each part the bench places exactly
+    once, in its still phase, and re-arms when it has left."""
+    parts = 3
+    db = os.path.join(OUT, "auto.db")
+    rc, out, err = bench("bench:parts=%d" % parts, parts * CYCLE + EMPTY, db,
+                         ["--operator", "ann", "--serial", "S-1"])
+    got = [o["image"] for o in reports(out)]
+    want = ["bench:1:%d" % i for i in range(parts)]
+    if got != want:
+        fail("auto trigger inspected %s, want one inspection per part %s (%s)" %
+             (got, want, err[-300:]))
+    if len(events(out, "empty_bench_learned")) != 1:
+        fail("the empty bench was learned %d times" % len(events(out, "empty_bench_learned")))
+    for o in reports(out):
+        if "log_seq" not in o:
+            fail("%s shown without log_seq" % o["image"])
+    con = logcheck.connect(db)
+    rows = con.execute("select operator, serial from records order by seq").fetchall()
+    con.close()
+    # the serial belongs to the first part only; the operator stays
+    if [tuple(r) for r in rows] != [("ann", "S-1"), ("ann", ""), ("ann", "")] and \
+       [tuple(r) for r in rows] != [("ann", "S-1"), ("ann", None), ("ann", None)]:
+        fail("operator and serial logged as %s" % [tuple(r) for r in rows])
+    bad = logcheck.problems(db)
+    if bad:
+        fail("log problems: %s" % bad)
+    print("ok   auto trigger: %d parts placed, %d inspections (%s), serial on the first only" %
+          (parts, len(got), ", ".join(o["verdict"] for o in reports(out))))
+
+
+def check_lost():
+    """Camera lost (the bench's scripted unplug) while part 1 lies still and
+    before it was inspected: NO_VERDICT camera_lost for that part, and
+    inspection resumes with part 2 when frames come back."""
+    start = CYCLE + EMPTY + SLIDE + 2
+    db = os.path.join(OUT, "lost.db")
+    rc, out, err = bench("bench:parts=3,lost=%d+30" % start, 3 * CYCLE, db)
+    got = [(o["image"], o["verdict"], o["reasons"][0]["rule"] if o["reasons"] else "")
+           for o in reports(out)]
+    if len(got) != 3 or got[1] != ("bench:1:1", "NO_VERDICT", "camera_lost") or \
+       got[0][0] != "bench:1:0" or got[2][0] != "bench:1:2" or "camera_lost" in (got[0][2], got[2][2]):
+        fail("with the camera lost during part 1: %s" % got)
+    order = [o.get("event") or o["image"] for o in out]
+    if order.index("camera_lost") > order.index("bench:1:1") or \
+       order.index("camera_back") > order.index("bench:1:2"):
+        fail("events out of order: %s" % order)
+    if rc != 2:
+        fail("exit %d with a NO_VERDICT, want 2" % rc)
+    print("ok   camera lost: part 1 recorded NO_VERDICT camera_lost (seq %d), part 2 judged after"
+          " camera_back" % reports(out)[1]["log_seq"])
+
+
+def check_halt():
+    """The log's disk fills (a 6 MB tmpfs, 4.8 MB of it taken, every PASS
+    keeping evidence too: about half a megabyte a record):
+    inspection halts with the reason, nothing is shown as judged without a
+    durable record, and once space is freed the station resumes; every
+    record before the fault is intact (logcheck, audit verify)."""
+    if os.geteuid() != 0:
+        print("skipped: halt and resume needs root (mounts a small tmpfs)")
+        return
+    small = os.path.join(OUT, "small")
+    os.makedirs(small)
+    subprocess.run(["mount", "-t", "tmpfs", "-o", "size=6m", "tmpfs", small], check=True)
+    p = None
+    try:
+        recipe = os.path.join(OUT, "all-evidence.ini")
+        shutil.copy(RECIPE, recipe)
+        for f in glob.glob(os.path.splitext(RECIPE)[0] + ".model.json*"):
+            shutil.copy(f, OUT)
+        with open(recipe, "a") as f:
+            f.write("\n[evidence]\npass = all\n")
+        filler = os.path.join(small, "filler")
+        with open(filler, "wb") as f:
+            f.write(b"\0" * (4800 * 1024))
+        db = os.path.join(small, "station.db")
+        p = subprocess.Popen([STATION, "run", recipe, "--headless", "--source", "bench", "--fps",
+                              "120", "--inspections", "6", "--log", db],
+                             stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+                             stderr=subprocess.PIPE, text=True, env=ENV)
+        out = []
+        deadline = time.time() + 90
+        for line in p.stdout:
+            o = json.loads(line)
+            out.append(o)
+            if o.get("event") == "halted" and os.path.exists(filler):
+                # while halted nothing is inspected: wait a little, then free the disk
+                time.sleep(1.5)
+                os.remove(filler)
+            if time.time() > deadline:
+                p.kill()
+                fail("no end after 90 s: %s" % out[-3:])
+        p.wait(timeout=30)
+        err = p.stderr.read()
+        names = [o.get("event") or o["verdict"] for o in out]
+        if "halted" not in names or "resumed" not in names:
+            fail("no halt and resume: %s (%s)" % (names, err[-300:]))
+        h, r = names.index("halted"), names.index("resumed")
+        if any("verdict" in o for o in out[h + 1:r]):
+            fail("inspected while halted: %s" % names[h:r])
+        refused = out[h - 1]
+        if refused.get("verdict") != "NO_VERDICT" or "log_seq" in refused or \
+           refused["reasons"][-1]["rule"] != "log_failed":
+            fail("the inspection the log failed on was shown as %s" % refused)
+        judged = [o for o in reports(out) if o is not refused]
+        if any("log_seq" not in o for o in judged):
+            fail("a verdict shown without a durable record")
+        present = logcheck.seqs(db)
+        shown = {o["log_seq"] for o in judged} | {out[r]["log_seq"]}
+        if not shown <= present:
+            fail("shown but not in the log: %s" % (shown - present))
+        bad = logcheck.problems(db)
+        if bad:
+            fail("log problems after the outage: %s" % bad)
+        v = subprocess.run([STATION, "audit", "verify", "--log", db], capture_output=True,
+                           text=True)
+        if v.returncode != 0:
+            fail("audit verify: %s" % v.stderr)
+        con = logcheck.connect(db)
+        msg = con.execute("select reasons from records where seq = ?",
+                          (out[r]["log_seq"],)).fetchone()[0]
+        con.close()
+        if "log_failed" not in msg:
+            fail("the outage record says %s" % msg)
+        print("ok   log failure: halted (%s), resumed with the outage recorded as seq %d, %d records"
+              " verified" % (out[h]["reason"][:60], out[r]["log_seq"], len(present)))
+    finally:
+        if p and p.poll() is None:
+            p.kill()
+            p.wait()
+        subprocess.run(["umount", small])
+
+
+def check_window():
+    """A windowed run under SDL's offscreen driver: refused without the
+    test flag, and with it a snapshot of the screen after the verdict."""
+    env = dict(ENV, SDL_VIDEODRIVER="offscreen")
+    db = os.path.join(OUT, "window.db")
+    rc, out, err = run(["run", RECIPE, "--source", "bench", "--fps", "120", "--inspections", "1",
+                        "--log", db], env=env)
+    if rc != 3 or "offscreen" not in err:
+        fail("offscreen driver without the test flag: exit %d, %s" % (rc, err[-200:]))
+    snap = os.path.join(OUT, "screen.png")
+    rc, out, err = run(["run", RECIPE, "--source", "bench", "--fps", "120", "--inspections", "1",
+                        "--log", db, "--allow-offscreen", "--snapshot", snap], env=env)
+    if len(reports(out)) != 1 or not os.path.exists(snap):
+        fail("windowed run: exit %d, %d reports, snapshot %s (%s)" %
+             (rc, len(reports(out)), os.path.exists(snap), err[-300:]))
+    from PIL import Image
+    im = Image.open(snap).convert("RGB")
+    colours = len(set(im.getdata()))
+    if im.size[0] < 640 or colours < 50:
+        fail("snapshot %s with %d colours" % (im.size, colours))
+    print("ok   windowed under SDL offscreen: refused without the flag; snapshot %dx%d, %d colours,"
+          " verdict %s" % (im.size[0], im.size[1], colours, reports(out)[0]["verdict"]))
+
+
+if os.path.exists(OUT):
+    shutil.rmtree(OUT)
+os.makedirs(OUT)
+which = sys.argv[5:] or ["replay", "auto", "lost", "halt", "window"]
+for name in which:
+    globals()["check_" + name]()
