@@ -337,7 +337,7 @@ static void describe_calibration(struct live *L)
     const struct recipe *r = &L->r;
     if (!r->has_calibration) {
         snprintf(L->st.calibration, sizeof L->st.calibration,
-                 "scale %.4g x %.4g mm/px from the recipe (no calibration file)", r->mm_per_px_x,
+                 "recipe scale %.4g x %.4g mm/px, not calibrated", r->mm_per_px_x,
                  r->mm_per_px_y);
         return;
     }

@@ -144,7 +144,10 @@ int trigger_feed(struct trigger *t, const struct image *img, unsigned *events, s
             sum += t->cur[i] > t->last[i] ? t->cur[i] - t->last[i] : t->last[i] - t->cur[i];
         t->v.stillness = sum / (double)n / BLOCK_VALUES;
         t->same_count = sum == 0 ? t->same_count + 1 : 0;
-        t->v.still_count = t->v.stillness <= t->p.still_level ? t->v.still_count + 1 : 0;
+        /* a repeated frame says nothing about stillness: a camera frozen
+         * while a part slides in must not look like a part lying still */
+        t->v.still_count =
+            sum > 0 && t->v.stillness <= t->p.still_level ? t->v.still_count + 1 : 0;
     }
     t->have_last = 1;
     int frozen = t->same_count + 1 >= t->p.frozen_frames;

@@ -10,7 +10,9 @@
  *   frozen     frozen_frames identical frames in a row (every block sum
  *              unchanged: with sensor noise a live camera never repeats
  *              all of them, a stuck one repeats all).
- * The empty bench is learned as soon as the view has been still for
+ * A frame identical to the last one does not count as still (a frozen
+ * camera is not a still part).  The empty bench is learned as soon as the
+ * view has been still for
  * still_frames frames (the station starts on an empty bench), and again
  * after trigger_relearn.  A part is present once the share exceeds
  * enter_share and has left once it stays below leave_share for

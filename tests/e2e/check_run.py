@@ -144,6 +144,24 @@ def check_lost():
           " camera_back" % reports(out)[1]["log_seq"])
 
 
+def check_frozen():
+    """The bench's camera freezes while part 1 slides in (frames repeat
+    byte for byte): no inspection of the half-placed part, camera_frozen
+    after frozen_frames (10) identical frames, the part in view recorded
+    NO_VERDICT (rule frozen); part 2 judged after the picture moves."""
+    start = CYCLE + EMPTY + 9
+    db = os.path.join(OUT, "frozen.db")
+    rc, out, err = bench("bench:parts=3,frozen=%d+30" % start, 3 * CYCLE, db)
+    got = [(o["image"], o["verdict"], o["reasons"][0]["rule"] if o["reasons"] else "")
+           for o in reports(out)]
+    if len(got) != 3 or got[1] != ("bench:1:1", "NO_VERDICT", "frozen") or \
+       got[0][0] != "bench:1:0" or got[2][0] != "bench:1:2":
+        fail("with the camera frozen during part 1: %s" % got)
+    if not events(out, "camera_frozen") or not events(out, "camera_moving"):
+        fail("no camera_frozen / camera_moving events: %s" % [o.get("event") for o in out])
+    print("ok   frozen camera: part 1 recorded NO_VERDICT frozen, part 2 judged after it moved")
+
+
 def check_halt():
     """The log's disk fills (a 6 MB tmpfs, 4.8 MB of it taken, every PASS
     keeping evidence too: about half a megabyte a record):
@@ -252,6 +270,6 @@ def check_window():
 if os.path.exists(OUT):
     shutil.rmtree(OUT)
 os.makedirs(OUT)
-which = sys.argv[5:] or ["replay", "auto", "lost", "halt", "window"]
+which = sys.argv[5:] or ["replay", "auto", "lost", "frozen", "halt", "window"]
 for name in which:
     globals()["check_" + name]()

@@ -184,6 +184,35 @@ static void test_frozen_camera(void **state)
     run_close(&r);
 }
 
+/* A camera that freezes while a part slides in: the repeated frames are not
+ * "still", so the auto trigger never fires on them; the 10th identical
+ * frame is the frozen camera. */
+static void test_frozen_mid_motion(void **state)
+{
+    (void)state;
+    struct run r;
+    run_open(&r, RECIPE_TRIGGER_AUTO);
+    for (int i = 0; i < 6; i++)
+        feed(&r, NOPART, 0, 0);
+    feed(&r, 0, 32, 24);
+    struct err e = {0};
+    unsigned ev, all = 0;
+    draw(r.img, 16, 32, 24, 999);
+    int frozen_at = -1;
+    for (int i = 1; i <= 20; i++) {
+        assert_int_equal(trigger_feed(r.t, r.img, &ev, &e), ST_OK);
+        all |= ev;
+        if (ev & TRIGGER_FROZEN)
+            frozen_at = i;
+    }
+    assert_false(all & TRIGGER_FIRE);
+    assert_int_equal(frozen_at, 10);
+    struct trigger_view v;
+    trigger_view(r.t, &v);
+    assert_true(v.frozen && v.present && v.armed && v.still_count == 0);
+    run_close(&r);
+}
+
 /* The measures by hand: every pixel 3 levels brighter is a stillness of
  * exactly 3; a block-aligned 16x16 square is 4 of 96 blocks. */
 static void test_measures(void **state)
@@ -202,10 +231,10 @@ static void test_measures(void **state)
     assert_int_equal(trigger_feed(r.t, r.img, &ev, &e), ST_OK);
     trigger_view(r.t, &v);
     assert_true(v.stillness == 3.0);
-    /* still frames of 43 (alternating 43/44 so they are not identical):
+    /* still frames alternating 44/43 (a change of 1 level, never identical):
      * learned at the 5th still frame; key mode never fires */
     for (int i = 0; i < 5; i++) {
-        memset(r.img->px, 43 + (i & 1), (size_t)W * H * 3);
+        memset(r.img->px, 44 - (i & 1), (size_t)W * H * 3);
         assert_int_equal(trigger_feed(r.t, r.img, &ev, &e), ST_OK);
         assert_false(ev & TRIGGER_FIRE);
     }
@@ -254,6 +283,7 @@ int main(void)
         cmocka_unit_test(test_auto_once_per_part),
         cmocka_unit_test(test_hysteresis),
         cmocka_unit_test(test_frozen_camera),
+        cmocka_unit_test(test_frozen_mid_motion),
         cmocka_unit_test(test_measures),
         cmocka_unit_test(test_relearn),
     };
