@@ -142,8 +142,9 @@ static void add_noise(struct bench *b, uint64_t t)
         for (size_t j = 0; j < rowlen; j++) {
             int v = p[j];
             int32_t d = b->sig256[v] * b->gtab[(off + j) & mask];
-            int n = d >= 0 ? (d + 32768) >> 16 : -((-d + 32768) >> 16);
-            v += n;
+            /* rounded d / 65536 without a branch on its sign (a coin toss
+             * per sample the branch predictor loses): offset into unsigned */
+            v += (int)((uint32_t)(d + (1 << 30) + 32768) >> 16) - (1 << 14);
             p[j] = (uint8_t)(v < 0 ? 0 : v > 255 ? 255 : v);
         }
     }
