@@ -99,7 +99,7 @@ $(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
              libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
-             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc
+             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb
 deps:
 	@sh tests/deps.sh $(DEB_BUILD)
 deps-test:

@@ -65,7 +65,10 @@ int screen_new(const struct screen_options *o, struct screen **out, struct err *
     s->win = SDL_CreateWindow("station", SDL_WINDOWPOS_CENTERED, SDL_WINDOWPOS_CENTERED, o->width,
                               o->height, SDL_WINDOW_RESIZABLE);
     /* a driver that draws nowhere gets the software renderer, which can
-     * always read back what it drew */
+     * always read back what it drew; its window surface then needs no GL
+     * (probing EGL for one loads and unloads Mesa for nothing) */
+    if (draws_nowhere(driver))
+        SDL_SetHintWithPriority(SDL_HINT_FRAMEBUFFER_ACCELERATION, "0", SDL_HINT_DEFAULT);
     if (s->win)
         s->ren = SDL_CreateRenderer(s->win, -1, draws_nowhere(driver) ? SDL_RENDERER_SOFTWARE : 0);
     if (!s->ren) {

@@ -7,7 +7,8 @@
  * own symbol (a tick for PASS, a cross for FAIL, a hatched square with a
  * question mark for NO VERDICT, a barred disc for an inspection halt).
  * Text on a verdict colour is black: WCAG 2.1's contrast ratio is 5.4:1 or
- * more on all four. */
+ * more on all four; text on the grey panels is light (7:1 or more), and the
+ * verdict colours appear there only as fills, never as text. */
 #ifndef ST_SCREEN_PAINT_H
 #define ST_SCREEN_PAINT_H
 
@@ -25,7 +26,7 @@
 #define SCREEN_RGB_SKY {86, 180, 233}       /* bars within limits, the field typed into */
 #define SCREEN_RGB_BLACK {0, 0, 0}
 /* our own greys for the frame around the colours */
-#define SCREEN_RGB_WAITING {96, 96, 96}     /* no verdict shown yet */
+#define SCREEN_RGB_WAITING {140, 140, 140}  /* no verdict shown yet (6.2:1 to black) */
 #define SCREEN_RGB_BACK {30, 30, 30}
 #define SCREEN_RGB_PANEL {48, 48, 48}
 #define SCREEN_RGB_TEXT {242, 242, 242}

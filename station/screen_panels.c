@@ -48,9 +48,12 @@ void screen_panels_header(const struct screen_canvas *c, const struct screen_sta
          half, 0);
     draw(c, SCREEN_PX_TITLE, st->status, TEXT, r->w - p, p, SCREEN_RIGHT, half, 0);
     char cam[2 * SCREEN_TEXT + 128];
-    snprintf(cam, sizeof cam, "%s: %s · %.1f fps · trigger: %s",
-             st->camera_lost ? "CAMERA LOST" : "Camera", st->camera[0] ? st->camera : "none",
-             st->fps, st->trigger);
+    const char *what = st->camera[0] ? st->camera : "none";
+    if (st->camera_lost)   /* no frames: a frame rate would be stale */
+        snprintf(cam, sizeof cam, "CAMERA LOST: %s · trigger: %s", what, st->trigger);
+    else
+        snprintf(cam, sizeof cam, "Camera: %s · %.1f fps · trigger: %s", what, st->fps,
+                 st->trigger);
     int y = p + line(c, SCREEN_PX_TITLE) + p / 2;
     draw(c, SCREEN_PX_SMALL, cam, st->camera_lost ? ORANGE : DIM, p, y, SCREEN_LEFT, half, 0);
     char cal[SCREEN_TEXT + 32];
@@ -101,6 +104,22 @@ static int section(const struct screen_canvas *c, struct screen_rect r, const ch
     return r.y + c->L->pad / 2 + line(c, SCREEN_PX_SMALL);
 }
 
+/* "• " and the reason, a figure kept on one line with its unit: the space
+ * before "mm" becomes a no-break space, where SDL2_ttf does not wrap. */
+static void bullet(char *out, size_t len, const char *reason)
+{
+    size_t o = (size_t)snprintf(out, len, "• ");
+    for (const char *p = reason; *p && o + 3 < len; p++) {
+        if (p[0] == ' ' && p[1] == 'm' && p[2] == 'm') {
+            out[o++] = (char)0xC2;
+            out[o++] = (char)0xA0;
+        } else {
+            out[o++] = *p;
+        }
+    }
+    out[o] = 0;
+}
+
 void screen_panels_reasons(const struct screen_canvas *c, const struct screen_state *st)
 {
     struct screen_rect r = c->L->reasons;
@@ -118,8 +137,8 @@ void screen_panels_reasons(const struct screen_canvas *c, const struct screen_st
     }
     int shown = 0;
     for (; shown < st->nreasons; shown++) {
-        char words[SCREEN_TEXT + 8];
-        snprintf(words, sizeof words, "• %s", st->reasons[shown]);
+        char words[2 * SCREEN_TEXT];
+        bullet(words, sizeof words, st->reasons[shown]);
         /* a reason is left out rather than cut; the last line says so */
         int h = screen_text_measure(c->text, SCREEN_PX_BODY, words, TEXT, 0, wrap).h;
         int room = shown + 1 < st->nreasons || st->more_reasons ? body : 0;
@@ -161,8 +180,9 @@ static void bar(const struct screen_canvas *c, const struct screen_bar *b, int x
         snprintf(figures, sizeof figures, "%s of %s %s%s", value, limit, b->unit,
                  over ? " — OVER" : "");
     draw(c, SCREEN_PX_BODY, b->name, TEXT, x, y, SCREEN_LEFT, w / 3, 0);
-    draw(c, SCREEN_PX_BODY, figures, over ? VERMILION : TEXT, x + w, y, SCREEN_RIGHT,
-         w * 2 / 3 - c->L->pad, 0);
+    /* the word OVER says it; vermilion text on the grey panel would be under
+     * WCAG's 4.5:1, so only the bar takes the colour */
+    draw(c, SCREEN_PX_BODY, figures, TEXT, x + w, y, SCREEN_RIGHT, w * 2 / 3 - c->L->pad, 0);
     int by = y + line(c, SCREEN_PX_BODY), bh = c->L->pad + 4;
     static const uint8_t track[3] = {80, 80, 80};
     screen_paint_rect(c->ren, (struct screen_rect){x, by, w, bh}, track);

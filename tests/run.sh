@@ -68,6 +68,12 @@ for s in tests/e2e/test_*.sh; do
     [ -e "$s" ] || continue
     run_one "$s" sh "$s"
 done
+# The operator screen once more through a real X server (Xvfb), beside the
+# offscreen driver the unit test uses alone.
+if command -v xvfb-run >/dev/null 2>&1; then
+    run_one tests/station/test_screen-xvfb xvfb-run -a env SCREEN_TEST_DRIVER=x11 \
+        "$BUILD/tests/station/test_screen"
+fi
 echo
 [ -n "$failed" ] && echo "failed:$failed"
 echo "check: $pass passed, $fail failed, $skip skipped"

@@ -44,3 +44,5 @@ echo "bench: audit stats, report, export" >&2
 # The live station: preview rate, trigger-to-verdict latency, idle CPU.
 echo "bench: live station" >&2
 BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/live_bench.sh
+echo "bench: the operator screen" >&2
+"$BUILD/tests/bench/screen_bench" 60

@@ -26,6 +26,8 @@
 #include <sys/stat.h>
 
 #include "core/judge.h"
+#include "core/overlay.h"
+#include "core/regions.h"
 #include "core/pngio.h"
 #include "station/cli.h"
 #include "station/report.h"
@@ -66,7 +68,9 @@ static struct screen_layout L;
 static int group_setup(void **state)
 {
     (void)state;
-    setenv("SDL_VIDEODRIVER", "offscreen", 1);
+    /* SCREEN_TEST_DRIVER=x11 under xvfb-run draws on a real X server */
+    const char *driver = getenv("SCREEN_TEST_DRIVER");
+    setenv("SDL_VIDEODRIVER", driver ? driver : "offscreen", 1);
     SDL_SetHint(SDL_HINT_RENDER_DRIVER, "software");
     struct screen_options o;
     screen_options_init(&o);
@@ -235,11 +239,35 @@ static json_t *fail_report(void)
                      "log_seq", (json_int_t)1207);
 }
 
+/* The judge's own verdict on a simulated part's truth map
+ * (judge_tolerances, as the evaluation judges known truth), written with
+ * report.c's keys: reasons in judge_describe_reason's words, regions with
+ * judge_region_counts. */
+static json_t *truth_report(const struct region_set *rs, const struct judgement *j)
+{
+    json_t *reasons = json_array(), *regions = json_array();
+    for (int i = 0; i < j->nreasons; i++) {
+        const struct reason *x = &j->reasons[i];
+        json_array_append_new(reasons, reason(x->rule, x->cls, x->zone, x->region, x->measured,
+                                              x->limit, x->unit));
+    }
+    for (int i = 0; i < rs->n; i++)
+        json_array_append_new(regions, region(rs->r[i].id, recipe.cls[rs->r[i].cls].name,
+                                              rs->r[i].area_mm2,
+                                              judge_region_counts(&recipe, &rs->r[i])));
+    return json_pack("{s:i,s:s,s:s,s:o,s:i,s:o,s:I}", "schema", REPORT_SCHEMA, "image", "bench",
+                     "verdict", judge_verdict_name(j->verdict), "reasons", reasons,
+                     "reasons_omitted", j->omitted, "regions", regions, "log_seq",
+                     (json_int_t)1208);
+}
+
 /* ---- tests ---- */
 
 static void test_refuses_offscreen_without_the_flag(void **state)
 {
     (void)state;
+    if (strcmp(SDL_GetCurrentVideoDriver(), "offscreen"))
+        skip();
     struct screen_options o;
     screen_options_init(&o);
     struct screen *s = (struct screen *)&o;
@@ -519,6 +547,68 @@ static void test_verdict_states(void **state)
     image_free(bad);
 }
 
+/* A simulated part the judge fails: the bars are the judge's own totals,
+ * the reasons its own words; F3 shows the overlay core/overlay draws. */
+static void test_judged_bench_part(void **state)
+{
+    (void)state;
+    struct simbench_conditions cond;
+    simbench_conditions_nominal(&cond);
+    struct err e;
+    struct region_set rs;
+    regions_init(&rs);
+    struct regions_opts o;
+    judge_regions_opts(&recipe, NULL, &o);
+    struct judgement j;
+    struct image *frame = NULL, *truth = NULL;
+    int i;
+    for (i = 0; i < 60; i++) {
+        assert_int_equal(simbench_render(11, i, &cond, 480, 360, &frame, &truth, NULL, &e), ST_OK);
+        assert_int_equal(regions_find(&rs, truth, NULL, &o, &e), ST_OK);
+        judge_tolerances(&recipe, &rs, &j);
+        if (j.verdict == VERDICT_FAIL && j.nreasons >= 2)
+            break;
+        image_free(frame);
+        image_free(truth);
+    }
+    assert_true(i < 60);
+    json_t *rep = truth_report(&rs, &j);
+    struct screen_state st;
+    base_state(&st);
+    screen_state_set_report(&st, &recipe, rep);
+    json_decref(rep);
+    assert_int_equal(st.verdict, VERDICT_FAIL);
+    char words[200];
+    judge_describe_reason(&recipe, &j.reasons[0], words, sizeof words);
+    assert_string_equal(st.reasons[0], words);
+    for (int b = 0, c = 0; c < recipe.nclasses; c++) {
+        if (!recipe.cls[c].is_defect)
+            continue;
+        double want = recipe.tol[c].max_total_mm2 < 0 ? j.count[c] : j.total_mm2[c];
+        assert_true(fabs(st.bars[b++].value - want) < 1e-9);
+    }
+    struct image *ov = overlay_inspection(frame, truth, &rs, NULL, &recipe, &j, &e);
+    assert_non_null(ov);
+    st.frame = frame;
+    st.overlay = ov;
+    st.show_overlay = 1;
+    snprintf(st.camera, sizeof st.camera, "simulated bench 480 x 360");
+    snprintf(st.status, sizeof st.status, "remove the part");
+    struct image *img = shot(&st, "screen-fail-overlay");
+    check_panel(img, OI_VERMILION);
+    /* the overlay, taller than the frame by its banner, keeps its own aspect */
+    struct screen_rect f = screen_layout_fit(ov->w, ov->h, L.picture);
+    assert_true(f.w < L.picture.w && f.h == L.picture.h);
+    static const uint8_t black[3] = {0, 0, 0};
+    struct screen_rect left = {L.picture.x, L.picture.y, f.x - L.picture.x, L.picture.h};
+    assert_int_equal(count_rgb(img, left, black, 0), (long)left.w * left.h);
+    image_free(img);
+    image_free(ov);
+    image_free(frame);
+    image_free(truth);
+    regions_clear(&rs);
+}
+
 static void test_camera_lost_and_halted(void **state)
 {
     (void)state;
@@ -527,6 +617,8 @@ static void test_camera_lost_and_halted(void **state)
     st.camera_lost = 1;
     st.verdict = VERDICT_NONE;
     snprintf(st.camera, sizeof st.camera, "/dev/video2: device unplugged (ENODEV)");
+    snprintf(st.status, sizeof st.status, "reconnecting to the camera");
+    st.fps = 0;
     st.nreasons = 1;
     snprintf(st.reasons[0], SCREEN_TEXT, "camera lost: /dev/video2");
     struct image *lost = shot(&st, "screen-camera-lost");
@@ -677,6 +769,7 @@ int main(int argc, char **argv)
         cmocka_unit_test(test_state_from_report),
         cmocka_unit_test(test_picture_letterboxed),
         cmocka_unit_test(test_verdict_states),
+        cmocka_unit_test(test_judged_bench_part),
         cmocka_unit_test(test_camera_lost_and_halted),
         cmocka_unit_test(test_keys),
     };
