@@ -3,6 +3,8 @@
 #include <errno.h>
 #include <fcntl.h>
 #include <poll.h>
+#include <pthread.h>
+#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -25,11 +27,22 @@ struct cam_buf {
     size_t len;
 };
 
+/* Reconnecting runs the whole open sequence, which a real camera can take
+ * half a second over, on a thread of its own, so next() keeps to its
+ * timeout; while it runs only that thread touches the device fields (fd
+ * to img), and the caller's thread reads them only once it has joined. */
 struct cam {
     char device[240];
     struct recipe_camera rc;
     int want_w, want_h;          /* 0: keep the camera's */
-    int fd;                      /* -1 while lost */
+    int live;                    /* streaming; 0 while lost (the caller's thread only) */
+    int attempting;              /* a reconnect thread runs */
+    pthread_t attempt;
+    atomic_int attempt_done;
+    int attempt_rc;
+    struct err attempt_err;
+    char settings[sizeof(struct camctl_report){0}.json]; /* what settings_json shows */
+    int fd;                      /* -1 when closed */
     struct cam_buf buf[CAM_NBUF];
     unsigned nbuf;
     int streaming;
@@ -267,6 +280,7 @@ out:
 static void lose(struct cam *c, const char *why)
 {
     snprintf(c->lost, sizeof c->lost, "%s", why);
+    c->live = 0;
     disconnect(c);
     c->retry_at_ms = now_ms() + c->backoff_ms;
 }
@@ -278,20 +292,52 @@ static void lose_errno(struct cam *c, const char *what)
     lose(c, why);
 }
 
-/* A reconnect attempt when one is due; ST_OK with c->fd >= 0 when back. */
+static void *attempt_main(void *arg)
+{
+    struct cam *c = arg;
+    c->attempt_rc = connect_cam(c, &c->attempt_err);
+    atomic_store(&c->attempt_done, 1);
+    return NULL;
+}
+
+static void went_live(struct cam *c)
+{
+    c->live = 1;
+    memcpy(c->settings, c->ctl.json, sizeof c->settings);
+}
+
+/* Starts a reconnect attempt when one is due and waits for it until the
+ * deadline; ST_OK with c->live set when the camera is back. */
 static int reconnect(struct cam *c, double deadline, struct err *e)
 {
-    double t = now_ms();
-    if (t < c->retry_at_ms) {
-        nap_ms((c->retry_at_ms < deadline ? c->retry_at_ms : deadline) - t);
+    if (!c->attempting) {
+        double t = now_ms();
+        if (t < c->retry_at_ms)
+            nap_ms((c->retry_at_ms < deadline ? c->retry_at_ms : deadline) - t);
         if (now_ms() < c->retry_at_ms)
             return ST_OK;
+        atomic_store(&c->attempt_done, 0);
+        err_clear(&c->attempt_err);
+        if (pthread_create(&c->attempt, NULL, attempt_main, c)) {
+            snprintf(c->lost, sizeof c->lost, "cannot start a thread to reconnect");
+            c->retry_at_ms = now_ms() + c->backoff_ms;
+            return ST_OK;
+        }
+        c->attempting = 1;
     }
-    struct err ce = {0};
-    int rc = connect_cam(c, &ce);
+    while (!atomic_load(&c->attempt_done) && now_ms() < deadline)
+        nap_ms(EAGAIN_NAP_MS);
+    if (!atomic_load(&c->attempt_done))
+        return ST_OK;
+    pthread_join(c->attempt, NULL);
+    c->attempting = 0;
+    struct err ce = c->attempt_err;
+    int rc = c->attempt_rc;
     if (rc == ST_EINVAL)
         return err_set(e, rc, "%s", ce.msg);
-    if (rc) {
+    if (!rc)
+        went_live(c);
+    else {
         /* the message opens "camera DEVICE: ", which describe() says already */
         const char *why = strstr(ce.msg, ": ");
         snprintf(c->lost, sizeof c->lost, "%.150s", why ? why + 2 : ce.msg);
@@ -363,9 +409,9 @@ static int cam_next(void *impl, int timeout_ms, struct source_frame *f, int *sta
     struct cam *c = impl;
     double deadline = now_ms() + (timeout_ms > 0 ? timeout_ms : 0);
     *status = SOURCE_LOST;
-    if (c->fd < 0) {
+    if (!c->live) {
         int rc = reconnect(c, deadline, e);
-        if (rc || c->fd < 0)
+        if (rc || !c->live)
             return rc;
     }
     for (;;) {
@@ -390,7 +436,7 @@ static int cam_next(void *impl, int timeout_ms, struct source_frame *f, int *sta
             return ST_OK;
         }
         check_stall(c);
-        if (c->fd < 0)
+        if (!c->live)
             return ST_OK;
         left = deadline - now_ms();
         if (left <= 0) {
@@ -405,7 +451,12 @@ static int cam_next(void *impl, int timeout_ms, struct source_frame *f, int *sta
 static const char *cam_describe(void *impl)
 {
     struct cam *c = impl;
-    if (c->fd < 0) {
+    if (!c->live) {
+        if (c->attempting) {
+            snprintf(c->desc, sizeof c->desc, "camera %s lost (%s), reconnecting", c->device,
+                     c->lost);
+            return c->desc;
+        }
         double wait = (c->retry_at_ms - now_ms()) / 1e3;
         snprintf(c->desc, sizeof c->desc, "camera %s lost (%s), retrying in %.2g s", c->device,
                  c->lost, wait > 0 ? wait : 0);
@@ -435,7 +486,7 @@ static const char *cam_describe(void *impl)
 static const char *cam_settings_json(void *impl)
 {
     struct cam *c = impl;
-    return c->ctl.json[0] ? c->ctl.json : NULL;
+    return c->settings[0] ? c->settings : NULL;
 }
 
 static void cam_free(void *impl)
@@ -443,6 +494,8 @@ static void cam_free(void *impl)
     struct cam *c = impl;
     if (!c)
         return;
+    if (c->attempting)
+        pthread_join(c->attempt, NULL);
     disconnect(c);
     image_free(c->img);
     free(c);
@@ -469,14 +522,16 @@ int source_camera_open(const char *device, const struct source_options *o, struc
     c->rc.stall_ms = RECIPE_CAM_STALL_MS;
     if (o && o->r)
         c->rc = o->r->camera;
-    c->want_w = o && o->width > 0 ? o->width : c->rc.width;
-    c->want_h = o && o->width > 0 ? o->height : c->rc.height;
+    int own = o && o->width > 0 && o->height > 0;
+    c->want_w = own ? o->width : c->rc.width;
+    c->want_h = own ? o->height : c->rc.height;
     int rc = connect_cam(c, e);
     if (rc) {
         cam_free(c);
         free(s);
         return rc;
     }
+    went_live(c);
     s->ops = &cam_ops;
     s->impl = c;
     *out = s;

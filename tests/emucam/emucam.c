@@ -72,6 +72,9 @@ static void *emucam_init(int fd)
     struct emucam probe = {.fd = fd};
     if (fstat(fd, &sb) || !S_ISREG(sb.st_mode) || load(&probe))
         return NULL;
+    struct timespec d = {(time_t)(probe.st.open_delay_ms / 1000),
+                         (long)(probe.st.open_delay_ms % 1000) * 1000000L};
+    nanosleep(&d, NULL);
     struct emucam *c = calloc(1, sizeof *c);
     if (c)
         *c = probe;

@@ -104,8 +104,9 @@ static int wait_for(struct source *s, int want, double limit_ms, struct source_f
     while (now_ms() < end) {
         double t0 = now_ms();
         assert_int_equal(s->ops->next(s->impl, 100, f, &st, &e), ST_OK);
-        /* next never blocks past its timeout (a few ms of scheduling slack) */
-        assert_true(now_ms() - t0 < 100 + 60);
+        /* next never blocks past its timeout (with scheduling slack on a
+         * loaded machine, still well under one open of the camera) */
+        assert_true(now_ms() - t0 < 100 + 100);
         if (st == want)
             return 1;
     }
@@ -338,9 +339,12 @@ static void test_unplug_replug(void **state)
         assert_int_equal(s->ops->next(s->impl, 100, &f, &st_code, &e), ST_OK);
         assert_int_equal(st_code, SOURCE_LOST);
     }
+    /* plugged back, slow to open: next still keeps to its timeout
+     * (wait_for checks every call) while a thread reopens */
     emucam_default(&st, EMUCAM_YUYV);
+    st.open_delay_ms = 400;
     cam_write(&st);
-    assert_true(wait_for(s, SOURCE_FRAME, 6000, &f));
+    assert_true(wait_for(s, SOURCE_FRAME, 8000, &f));
     assert_non_null(strstr(s->ops->describe(s->impl), " 160x120 RGB3"));
     cam_read(&st);
     assert_int_equal(emucam_find(&st, V4L2_CID_EXPOSURE_AUTO)->value, V4L2_EXPOSURE_MANUAL);
@@ -386,6 +390,50 @@ static void test_not_a_camera(void **state)
     assert_memory_equal(e.msg, want, strlen(want));
 }
 
+/* libv4l's own software controls (LIBV4LCONTROL_CONTROLS turns them on
+ * for any camera: white balance 1, gamma 8, auto gain 32 are libv4lcontrol's
+ * bits in libv4l 1.22, found by listing the controls each value adds) on a camera without those controls of its own: left on by an
+ * earlier program (libv4l keeps them in shared memory), the source turns
+ * them off and gamma to its default, and reports them. */
+static void test_libv4l_software_controls(void **state)
+{
+    (void)state;
+    struct emucam_state st;
+    emucam_default(&st, EMUCAM_YUYV);
+    emucam_find(&st, V4L2_CID_AUTO_WHITE_BALANCE)->present = 0;
+    emucam_find(&st, V4L2_CID_AUTOGAIN)->present = 0;
+    cam_write(&st);
+    setenv("LIBV4LCONTROL_CONTROLS", "41", 1);
+    int fd = v4l2_open(cam_path, O_RDWR);
+    assert_true(fd >= 0);
+    struct v4l2_control c = {.id = V4L2_CID_AUTO_WHITE_BALANCE, .value = 1};
+    assert_int_equal(v4l2_ioctl(fd, VIDIOC_S_CTRL, &c), 0);
+    c = (struct v4l2_control){.id = V4L2_CID_GAMMA, .value = 1500};
+    assert_int_equal(v4l2_ioctl(fd, VIDIOC_S_CTRL, &c), 0);
+    v4l2_close(fd);
+    struct source *s;
+    struct err e;
+    int rc = open_cam(NULL, 160, 120, &s, &e);
+    /* libv4l reads it at open; later tests must not inherit it */
+    unsetenv("LIBV4LCONTROL_CONTROLS");
+    assert_int_equal(rc, ST_OK);
+    const char *j = s->ops->settings_json(s->impl);
+    print_message("settings: %s\n", j);
+    assert_non_null(j);
+    assert_non_null(strstr(j, "\"libv4l_white_balance\":0"));
+    assert_non_null(strstr(j, "\"libv4l_autogain\":0"));
+    assert_non_null(strstr(j, "\"libv4l_gamma\":1000"));
+    close_cam(s);
+    setenv("LIBV4LCONTROL_CONTROLS", "41", 1);
+    fd = v4l2_open(cam_path, O_RDWR);
+    unsetenv("LIBV4LCONTROL_CONTROLS");
+    assert_true(fd >= 0);
+    c = (struct v4l2_control){.id = V4L2_CID_AUTO_WHITE_BALANCE};
+    assert_int_equal(v4l2_ioctl(fd, VIDIOC_G_CTRL, &c), 0);
+    assert_int_equal(c.value, 0); /* kept in libv4l's shared memory */
+    v4l2_close(fd);
+}
+
 /* Root in a private mount namespace, or SKIP. */
 static int enter_namespace(const char *self)
 {
@@ -409,6 +457,10 @@ static int enter_namespace(const char *self)
     libdir[strcspn(libdir, "\n")] = '\0';
     char plugins[300], cmd[1200];
     snprintf(plugins, sizeof plugins, "%s/libv4l/plugins", libdir);
+    if (access(plugins, F_OK)) {
+        printf("SKIP: libv4l2's plugin folder %s is missing (package libv4l-0)\n", plugins);
+        return 77;
+    }
     const char *build = getenv("STATION_BUILD") ? getenv("STATION_BUILD") : "build";
     snprintf(cmd, sizeof cmd,
              "unshare -m sh -c 'mount --bind \"$1\" \"$2\" && mount -t tmpfs tmpfs /dev/shm && "
@@ -433,6 +485,7 @@ int main(int argc, char **argv)
         cmocka_unit_test(test_native_rgb),
         cmocka_unit_test(test_lock_order_and_clamp),
         cmocka_unit_test(test_lacking_control),
+        cmocka_unit_test(test_libv4l_software_controls),
         cmocka_unit_test(test_stall_restart),
         cmocka_unit_test(test_unplug_replug),
         cmocka_unit_test(test_bad_buffer_index),
