@@ -71,8 +71,12 @@ static int copy_frame(struct image **dst, const struct image *src)
     return 0;
 }
 
+/* Who and with which camera settings: what the record carries besides the frame. */
 static void fill_people(struct live *L, struct job *j)
 {
+    const char *cam = source_settings_json(L->src);
+    free(j->camera_json);
+    j->camera_json = cam ? strdup(cam) : NULL;
     snprintf(j->operator_id, sizeof j->operator_id, "%s", L->st.operator_id);
     snprintf(j->serial, sizeof j->serial, "%s", L->st.serial);
 }
@@ -430,11 +434,9 @@ static int open_all(struct live *L, struct err *e)
     if (!rc)
         rc = trigger_new(&L->r.trigger, L->mode, &L->trig, e);
     struct worker_options wo = {o->db_path, o->station, (uint64_t)(o->budget_mb * 1e6),
-                                NULL, !o->headless, o->retry_ms};
-    if (!rc) {
-        wo.camera_json = source_settings_json(L->src);
+                                !o->headless, o->retry_ms};
+    if (!rc)
         rc = worker_start(&L->r, &wo, &L->w, e);
-    }
     if (!rc && !o->headless) {
         struct screen_options sopt;
         screen_options_init(&sopt);
@@ -500,6 +502,7 @@ int live_run(const struct live_options *o)
     if (L->src)
         summary(L);
     image_free(L->pending.frame);
+    free(L->pending.camera_json);
     image_free(L->last);
     image_free((struct image *)L->st.overlay);
     screen_free(L->scr);

@@ -26,7 +26,6 @@ struct worker {
     struct inspector *in;
     struct logbook lb;
     int want_overlay, retry_ms;
-    char *camera_json;
     double verified_ms;               /* when inspector_set_verified was last refreshed */
 
     pthread_t thread;
@@ -80,6 +79,7 @@ static void run_job(struct worker *w, struct job *jb, struct result *res)
     int64_t seq = 0;
     struct image *ov = NULL;
     err_clear(&e);
+    w->lb.camera_json = jb->camera_json;
     int rc = logbook_record(&w->lb, o, w->in, judged ? jb->frame : NULL, judged ? &j : NULL,
                             jb->operator_id, jb->serial, &seq, judged ? &ov : NULL, &e);
     res->report = o;
@@ -163,6 +163,8 @@ static void *worker_main(void *arg)
             struct result res;
             run_job(w, &jb, &res);
             image_free(jb.frame);
+            free(jb.camera_json);
+            w->lb.camera_json = NULL;
             pthread_mutex_lock(&w->mu);
             w->has_job = 0;
             w->halted = res.kind == RESULT_HALTED;
@@ -189,8 +191,6 @@ int worker_start(const struct recipe *r, const struct worker_options *o, struct 
     int rc = inspector_new(r, &w->in, e);
     if (!rc)
         rc = logbook_open(&w->lb, o->db_path, o->station, o->budget_bytes, r, e);
-    if (!rc && o->camera_json && !(w->camera_json = strdup(o->camera_json)))
-        rc = err_set(e, ST_ENOMEM, "worker: out of memory");
     if (rc) {
         inspector_free(w->in);
         if (w->lb.db)
@@ -198,7 +198,6 @@ int worker_start(const struct recipe *r, const struct worker_options *o, struct 
         free(w);
         return rc;
     }
-    w->lb.camera_json = w->camera_json;
     refresh_verified(w);
     pthread_mutex_init(&w->mu, NULL);
     pthread_cond_init(&w->cv, NULL);
@@ -236,7 +235,6 @@ void worker_stop(struct worker *w)
     pthread_cond_destroy(&w->cv);
     inspector_free(w->in);
     logbook_close(&w->lb);
-    free(w->camera_json);
     free(w);
 }
 
@@ -256,6 +254,7 @@ int worker_submit(struct worker *w, struct job *j)
         w->job = *j;
         w->has_job = 1;
         j->frame = NULL;
+        j->camera_json = NULL;
         pthread_cond_broadcast(&w->cv);
     }
     pthread_mutex_unlock(&w->mu);

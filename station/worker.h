@@ -33,6 +33,7 @@ struct job {
     char name[256];                  /* the report's "image" */
     char rule[32], message[256];     /* JOB_REFUSE */
     char operator_id[LOG_ID_MAX], serial[LOG_ID_MAX];
+    char *camera_json;               /* the camera's settings now (heap, the worker frees it); NULL: none */
     int forget_last;                 /* not a camera's next frame (replay) */
     double t_ms;                     /* when the frame was captured (latency) */
 };
@@ -53,7 +54,6 @@ struct result {
 struct worker_options {
     const char *db_path, *station;   /* as logbook_open */
     uint64_t budget_bytes;
-    const char *camera_json;         /* the source's settings, logged with every record; may be NULL */
     int want_overlay;                /* draw an overlay for every judged frame (the screen) */
     int retry_ms;                    /* log retries while halted (default 1000) */
 };
@@ -69,8 +69,10 @@ void worker_stop(struct worker *w);
 
 /* A job in hand, a result not yet taken, or halted. */
 int worker_busy(struct worker *w);
-/* Takes the job when the worker is free (returns 1; the frame is the
- * worker's now), else returns 0 and leaves the job to the caller. */
+/* Takes the job when the worker is free (returns 1; its frame and
+ * camera_json are the worker's now), else returns 0 and leaves the job to
+ * the caller.  The camera settings travel with each job because a camera
+ * that reconnected may hold other values than at the start. */
 int worker_submit(struct worker *w, struct job *j);
 /* Takes the next result: 1 when there was one. */
 int worker_poll(struct worker *w, struct result *r);
