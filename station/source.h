@@ -4,8 +4,8 @@
  * A source is opened from a spec string:
  *   camera:/dev/videoN   a V4L2 camera through libv4l2 (station/source_camera.h)
  *   replay:DIR           the PNG files of DIR in name order, paced at a rate
- *   bench                the simulated bench (station/simbench.h) with parts
- *                        placed on and taken off the bench
+ *   bench[:KEY=VALUE,...] the simulated bench (station/simbench.h) with parts
+ *                        placed on and taken off the bench (station/source_bench.h)
  * source_next waits at most timeout_ms for the next frame and says what
  * happened in *status: a frame, nothing yet (SOURCE_WAIT), the device lost
  * (SOURCE_LOST: later calls try to reconnect, with back-off, and give
