@@ -16,6 +16,7 @@
 #include "worker.h"
 
 #define FRAME_TIMEOUT_MS 20
+#define CLOSING_MS 10000
 
 static volatile sig_atomic_t stop_signal;
 
@@ -40,6 +41,8 @@ struct live {
     struct job pending;
     int has_pending;
     int lost, frozen, ended, halted, quit;
+    int closing, key_waiting;    /* closing: finish what was asked, then quit */
+    double closing_ms;
     long results, counts[3];
     long frames, frames_window;
     double window_ms, start_ms, first_frame_ms, last_frame_ms;
@@ -88,8 +91,10 @@ static void want_inspection(struct live *L)
         event("trigger_dropped", "reason", "inspection halted");
         return;
     }
-    if (!L->last)
+    if (!L->last) {
+        L->key_waiting = 1; /* asked before the first frame: inspect that one */
         return;
+    }
     if (L->has_pending && (L->pending.kind != JOB_INSPECT || L->mode != RECIPE_TRIGGER_CONTINUOUS)) {
         event("trigger_dropped", "reason", "an inspection is waiting already");
         return;
@@ -267,8 +272,9 @@ static void on_frame(struct live *L, const struct source_frame *f)
         L->frozen = 0;
         event("camera_moving", NULL, NULL);
     }
-    if (ev & TRIGGER_FIRE)
+    if ((ev & TRIGGER_FIRE) || L->key_waiting)
         want_inspection(L);
+    L->key_waiting = 0;
 }
 
 static void on_lost(struct live *L)
@@ -279,6 +285,14 @@ static void on_lost(struct live *L)
     L->st.camera_lost = 1;
     event("camera_lost", "camera", source_describe(L->src));
     part_in_view_refused(L, "camera_lost", "camera lost while the part was in view");
+}
+
+/* Quit once what was asked for is done (at most CLOSING_MS more). */
+static void close_down(struct live *L)
+{
+    if (!L->closing)
+        L->closing_ms = cli_now_ms();
+    L->closing = 1;
 }
 
 static void command(struct live *L, char *cmd)
@@ -295,7 +309,7 @@ static void command(struct live *L, char *cmd)
     else if (!strcmp(cmd, "relearn"))
         trigger_relearn(L->trig);
     else if (!strcmp(cmd, "quit"))
-        L->quit = 1;
+        close_down(L);
     else
         event("unknown_command", "line", cmd);
 }
@@ -311,7 +325,7 @@ static void read_stdin(struct live *L)
         if (got <= 0) {
             L->stdin_open = 0;
             if (L->mode == RECIPE_TRIGGER_KEY)
-                L->quit = 1; /* no one can ask for an inspection any more */
+                close_down(L); /* no one can ask for an inspection any more */
             return;
         }
         if (c == '\n') {
@@ -388,7 +402,10 @@ static int step(struct live *L, struct err *e)
         else if (status == SOURCE_END)
             L->ended = 1;
     }
-    if (L->ended && !L->has_pending && !worker_busy(L->w))
+    int idle = !L->has_pending && !L->key_waiting && !worker_busy(L->w);
+    if ((L->ended || L->closing) && idle)
+        L->quit = 1;
+    if (L->closing && cli_now_ms() - L->closing_ms > CLOSING_MS)
         L->quit = 1;
     set_status(L);
     if (L->scr) {
