@@ -21,7 +21,10 @@
  * belongs to one part).  Headless: JSON lines on stdout (each inspection's
  * report with log_seq and latency_ms; events {"event": ...}), commands on
  * stdin lines: "" or "inspect", "serial S", "operator ID", "relearn",
- * "quit" (end of input with the key trigger quits too). */
+ * "quit" (end of input with the key trigger quits too); quitting so first
+ * finishes the inspection asked for (one asked before the first frame takes
+ * that frame), for at most 10 s.  A signal (SIGINT, SIGTERM) finishes only
+ * the record in hand. */
 #ifndef ST_LIVE_H
 #define ST_LIVE_H
 
