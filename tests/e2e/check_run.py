@@ -162,6 +162,42 @@ def check_frozen():
     print("ok   frozen camera: part 1 recorded NO_VERDICT frozen, part 2 judged after it moved")
 
 
+def check_verify():
+    """A recipe with master parts and no passing verification in the log:
+    the live station refuses (NO_VERDICT verification_due) as station
+    inspect does; after station verify on the same log it judges."""
+    # masters this tiny model judges as expected (the replay check shows
+    # station inspect's verdicts on these files)
+    verdicts = {}
+    for f in sorted(glob.glob(os.path.join(IMAGES, "*.png"))):
+        rc, o, err = run(["inspect", RECIPE, f, "--log", os.path.join(OUT, "pick.db")])
+        verdicts.setdefault(o[0]["verdict"], os.path.abspath(f))
+    if "PASS" not in verdicts or "FAIL" not in verdicts:
+        print("skipped: the fixture's test parts give no PASS and FAIL pair (%s)" % verdicts)
+        return
+    full = os.path.join(os.path.dirname(RECIPE), "masters.ini")  # beside its model
+    with open(RECIPE) as f, open(full, "w") as g:
+        g.write(f.read() + "\n[verification]\ninterval_hours = 8\n\n[master good]\nimage = %s\n"
+                "expect = pass\n\n[master over]\nimage = %s\nexpect = fail\n" %
+                (verdicts["PASS"], verdicts["FAIL"]))
+    db = os.path.join(OUT, "verify.db")
+    args = ["run", full, "--headless", "--source", "bench", "--fps", "120", "--inspections", "1",
+            "--trigger", "auto", "--log", db]
+    rc, out, err = run(args)
+    before = [r["rule"] for r in reports(out)[0]["reasons"]]
+    if "verification_due" not in before:
+        fail("never verified, the live station gave %s" % before)
+    v = subprocess.run([STATION, "verify", full, "--log", db], capture_output=True, text=True)
+    if v.returncode != 0:
+        fail("station verify on the fixture: %s" % v.stderr[-300:])
+    rc, out, err = run(args)
+    after = [r["rule"] for r in reports(out)[0]["reasons"]]
+    if "verification_due" in after:
+        fail("verified, the live station still gave %s" % after)
+    print("ok   verification: refused before station verify (verification_due), judged after (%s)" %
+          reports(out)[0]["verdict"])
+
+
 def check_halt():
     """The log's disk fills (a 6 MB tmpfs, 4.8 MB of it taken, every PASS
     keeping evidence too: about half a megabyte a record):
@@ -376,7 +412,7 @@ def check_window():
           " verdict %s" % (im.size[0], im.size[1], colours, reports(out)[0]["verdict"]))
 
 
-which = sys.argv[5:] or ["replay", "auto", "lost", "frozen", "halt", "camera", "window"]
+which = sys.argv[5:] or ["replay", "auto", "lost", "frozen", "verify", "halt", "camera", "window"]
 if which == ["camera_keep"]:
     which = ["camera"]
 if os.path.exists(OUT):
