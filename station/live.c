@@ -494,6 +494,8 @@ int live_run(const struct live_options *o)
         struct sigaction sa;
         memset(&sa, 0, sizeof sa);
         sa.sa_handler = on_signal;
+        /* restarted, so a signal never cuts a JSON line short mid-write */
+        sa.sa_flags = SA_RESTART;
         sigaction(SIGINT, &sa, NULL);
         sigaction(SIGTERM, &sa, NULL);
         cli_say("%s; %s; trigger %s.  %s", L->st.recipe, L->st.camera, L->st.trigger,

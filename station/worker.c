@@ -1,12 +1,7 @@
-/* syscall(SYS_gettid): the nice value is a per-thread attribute on Linux */
-#define _DEFAULT_SOURCE
 #include "worker.h"
 
 #include <errno.h>
 #include <pthread.h>
-#include <sys/resource.h>
-#include <sys/syscall.h>
-#include <unistd.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -19,7 +14,6 @@
 #include "verify.h"
 
 #define VERIFY_REFRESH_MS 60000.0
-#define WORKER_NICE 5
 
 struct worker {
     const struct recipe *r;
@@ -136,10 +130,6 @@ static void timed_wait(struct worker *w, int ms)
 static void *worker_main(void *arg)
 {
     struct worker *w = arg;
-    /* below the display loop, so the preview keeps its rate while an
-     * inspection takes what the loop leaves; the stages' own threads are
-     * started from here and inherit it (setpriority(2), Linux) */
-    setpriority(PRIO_PROCESS, (id_t)syscall(SYS_gettid), WORKER_NICE);
     pthread_mutex_lock(&w->mu);
     while (!w->stop) {
         if (w->has_result) {

@@ -38,7 +38,10 @@ def run(size, fps, spec="bench", seconds=SECONDS):
         b = f.read().rsplit(")", 1)[1].split()
     wall = time.time() - t0
     p.terminate()
-    out, _ = p.communicate(timeout=60)
+    # the same buffered stream the loop above read from: communicate() would
+    # miss what its read-ahead holds and could split a line
+    out = p.stdout.read()
+    p.wait(timeout=60)
     # fields 14 and 15 of proc(5) (utime, stime) are 12 and 13 after the ")"
     cpu = (int(b[11]) + int(b[12]) - int(a[11]) - int(a[12])) / TICK
     lines = [json.loads(l) for l in out.splitlines() if l.strip()]
