@@ -75,7 +75,7 @@ static int copy_frame(struct image **dst, const struct image *src)
 }
 
 /* Who and with which camera settings: what the record carries besides the frame. */
-static void fill_people(struct live *L, struct job *j)
+static void fill_record_fields(struct live *L, struct job *j)
 {
     const char *cam = source_settings_json(L->src);
     free(j->camera_json);
@@ -110,7 +110,7 @@ static void want_inspection(struct live *L)
     snprintf(j->name, sizeof j->name, "%s", L->last_name);
     j->forget_last = L->forget_last;
     j->t_ms = L->last_t_ms;
-    fill_people(L, j);
+    fill_record_fields(L, j);
     L->has_pending = 1;
 }
 
@@ -128,7 +128,7 @@ static void want_refusal(struct live *L, const char *name, const char *rule, con
     snprintf(j->rule, sizeof j->rule, "%s", rule);
     snprintf(j->message, sizeof j->message, "%s", message);
     j->t_ms = cli_now_ms();
-    fill_people(L, j);
+    fill_record_fields(L, j);
     L->has_pending = 1;
 }
 
