@@ -68,13 +68,23 @@ static int xioctl(int fd, unsigned long req, void *arg)
     return r;
 }
 
-/* 1 when fd has the control (and it is not permanently disabled). */
+/* A camera unplugged halfway through is gone, not refusing. */
+static int gone(int err)
+{
+    return err == ENODEV || err == EIO;
+}
+
+/* 1 when fd has the control (and it is not permanently disabled), 0 when
+ * not, -1 with errno when the device is gone. */
 static int has_ctrl(int fd, uint32_t id, struct v4l2_queryctrl *q)
 {
     memset(q, 0, sizeof *q);
     q->id = id;
-    return fd >= 0 && xioctl(fd, VIDIOC_QUERYCTRL, q) == 0 && q->id == id &&
-           !(q->flags & V4L2_CTRL_FLAG_DISABLED);
+    if (fd < 0)
+        return 0;
+    if (xioctl(fd, VIDIOC_QUERYCTRL, q))
+        return gone(errno) ? -1 : 0;
+    return q->id == id && !(q->flags & V4L2_CTRL_FLAG_DISABLED);
 }
 
 static void warn(struct lock *l, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
@@ -105,6 +115,11 @@ static int set_read(struct lock *l, uint32_t id, int32_t want, int32_t *got)
     return 0;
 }
 
+static int lost(struct lock *l, int err)
+{
+    return err_set(l->e, ST_EIO, "camera %s: setting controls: %s", l->device, strerror(err));
+}
+
 static int refuse(struct lock *l, const struct lock_step *s, const char *what)
 {
     return err_set(l->e, ST_EINVAL, "camera %s: %s control '%s' (%s) the recipe requires",
@@ -116,15 +131,22 @@ static int lock_step(struct lock *l, const struct lock_step *s, const struct rec
     int required = (rc->required & s->bit) != 0;
     int32_t want = *(const int *)((const char *)rc + s->off), got;
     struct v4l2_queryctrl q;
-    if (!has_ctrl(l->fd, s->id, &q)) {
+    int has = has_ctrl(l->fd, s->id, &q), has_auto = 0;
+    if (s->auto_id && has > 0)
+        has_auto = has_ctrl(l->fd, s->auto_id, &q);
+    if (has < 0 || has_auto < 0)
+        return lost(l, errno);
+    if (!has) {
         if (required)
             return refuse(l, s, "lacks");
         warn(l, "%s absent", s->key);
         json_object_set_new(l->o, s->key, json_string("absent"));
         return ST_OK;
     }
-    if (s->auto_id && has_ctrl(l->fd, s->auto_id, &q)) {
+    if (has_auto) {
         int rc_auto = set_read(l, s->auto_id, s->auto_off, &got);
+        if (gone(rc_auto))
+            return lost(l, rc_auto);
         if (rc_auto || got != s->auto_off) {
             if (required)
                 return err_set(l->e, ST_EINVAL,
@@ -137,6 +159,8 @@ static int lock_step(struct lock *l, const struct lock_step *s, const struct rec
         json_object_set_new(l->o, s->auto_key, rc_auto ? json_string("refused") : json_integer(got));
     }
     int r = set_read(l, s->id, want, &got);
+    if (gone(r))
+        return lost(l, r);
     if (r) {
         if (required)
             return err_set(l->e, ST_EINVAL, "camera %s: refuses control '%s' (%s) = %d the "
@@ -161,8 +185,8 @@ static void lock_soft(struct lock *l)
 {
     struct v4l2_queryctrl q, raw;
     for (int i = 0; i < NSOFT; i++) {
-        if (l->raw_fd < 0 || !has_ctrl(l->fd, soft[i].id, &q) ||
-            has_ctrl(l->raw_fd, soft[i].id, &raw))
+        if (l->raw_fd < 0 || has_ctrl(l->fd, soft[i].id, &q) <= 0 ||
+            has_ctrl(l->raw_fd, soft[i].id, &raw) != 0)
             continue;
         int32_t got, want = soft[i].off < 0 ? q.default_value : soft[i].off;
         if (set_read(l, soft[i].id, want, &got) || got != want)

@@ -21,8 +21,9 @@
  * off and gamma to its default (no correction) whatever the recipe says.
  *
  * A setting the recipe lists as required that the camera lacks or refuses
- * is an error naming the device and the control; any other is a warning
- * and appears in the report as "absent" or "refused". */
+ * is ST_EINVAL naming the device and the control; any other is a warning
+ * and appears in the report as "absent" or "refused".  A camera that goes
+ * away meanwhile (ENODEV, EIO) is ST_EIO: not a refusal. */
 #ifndef ST_CAMCTL_H
 #define ST_CAMCTL_H
 

@@ -41,7 +41,7 @@ struct cam {
     atomic_int attempt_done;
     int attempt_rc;
     struct err attempt_err;
-    char settings[sizeof(struct camctl_report){0}.json]; /* what settings_json shows */
+    char settings[sizeof((struct camctl_report *)0)->json]; /* what settings_json shows */
     int fd;                      /* -1 when closed */
     struct cam_buf buf[CAM_NBUF];
     unsigned nbuf;
@@ -478,6 +478,9 @@ static const char *cam_describe(void *impl)
     if (c->restarts)
         n += snprintf(c->desc + n, sizeof c->desc - (size_t)n, "; stream restarted %u times",
                       c->restarts);
+    if (c->short_frames)
+        n += snprintf(c->desc + n, sizeof c->desc - (size_t)n, "; %u short frames skipped",
+                      c->short_frames);
     if (c->ctl.warn[0])
         snprintf(c->desc + n, sizeof c->desc - (size_t)n, "; %s", c->ctl.warn);
     return c->desc;

@@ -265,7 +265,7 @@ static int dqbuf(struct emucam *c, struct v4l2_buffer *b, int nonblock)
     describe_buf(c, b, i);
     if (pwrite(c->fd, c->frame, n, (off_t)b->m.offset) != (ssize_t)n)
         return fail(EIO);
-    b->bytesused = (uint32_t)n;
+    b->bytesused = (uint32_t)(c->st.short_frames ? n / 2 : n);
     b->sequence = c->st.frames++;
     b->flags = V4L2_BUF_FLAG_DONE | V4L2_BUF_FLAG_TIMESTAMP_MONOTONIC;
     b->timestamp.tv_sec = (time_t)(t / 1e3);

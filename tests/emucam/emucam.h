@@ -46,6 +46,7 @@ struct emucam_state {
     uint32_t stall;               /* DQBUF gives EAGAIN, no frame */
     uint32_t bad_index;           /* DQBUF gives an index past those REQBUFS made */
     uint32_t open_delay_ms;       /* opening takes this long, as a real camera's can */
+    uint32_t short_frames;        /* DQBUF reports half a frame in bytesused */
     /* counted by the plugin */
     uint32_t streamons;
     uint32_t frames;

@@ -372,6 +372,37 @@ static void test_bad_buffer_index(void **state)
     close_cam(s);
 }
 
+/* Buffers whose bytesused is short of a frame are requeued and skipped,
+ * never copied as if whole; frames flow again once they are whole. */
+static void test_short_frames(void **state)
+{
+    (void)state;
+    struct emucam_state st;
+    emucam_default(&st, EMUCAM_RGB24);
+    st.short_frames = 1;
+    cam_write(&st);
+    struct source *s;
+    struct err e;
+    assert_int_equal(open_cam(NULL, 160, 120, &s, &e), ST_OK);
+    struct source_frame f;
+    int code;
+    double end = now_ms() + 300;
+    while (now_ms() < end) {
+        assert_int_equal(s->ops->next(s->impl, 100, &f, &code, &e), ST_OK);
+        assert_int_equal(code, SOURCE_WAIT);
+    }
+    assert_non_null(strstr(s->ops->describe(s->impl), "short frames skipped"));
+    cam_read(&st);
+    assert_true(st.frames >= 5); /* the camera did deliver, at 30 fps */
+    st.short_frames = 0;
+    cam_write(&st);
+    assert_true(wait_for(s, SOURCE_FRAME, 2000, &f));
+    uint8_t want[160 * 120 * 3];
+    emucam_render(want, V4L2_PIX_FMT_RGB24, 160, 120, emucam_number(f.img->px));
+    assert_memory_equal(f.img->px, want, sizeof want);
+    close_cam(s);
+}
+
 /* Not a camera: a regular file without the magic is left to libv4l2,
  * which refuses it; the message names the device. */
 static void test_not_a_camera(void **state)
@@ -489,6 +520,7 @@ int main(int argc, char **argv)
         cmocka_unit_test(test_stall_restart),
         cmocka_unit_test(test_unplug_replug),
         cmocka_unit_test(test_bad_buffer_index),
+        cmocka_unit_test(test_short_frames),
         cmocka_unit_test(test_not_a_camera),
     };
     if (testkit_scratch_setup("test_camera"))
