@@ -228,6 +228,23 @@ static void take_result(struct live *L, struct result *res)
         L->quit = 1;
 }
 
+static void describe_calibration(struct live *L)
+{
+    const struct recipe *r = &L->r;
+    if (!r->has_calibration) {
+        snprintf(L->st.calibration, sizeof L->st.calibration,
+                 "recipe scale %.4g x %.4g mm/px, not calibrated", r->mm_per_px_x,
+                 r->mm_per_px_y);
+        return;
+    }
+    char made[32];
+    calfile_format_time(r->cal.created, made, sizeof made);
+    made[10] = '\0';
+    double left = r->cal.valid_days - calfile_age_days(&r->cal, time(NULL));
+    snprintf(L->st.calibration, sizeof L->st.calibration, "%.4g mm/px, made %s, %s %.0f days",
+             r->mm_per_px_x, made, left >= 0 ? "valid" : "EXPIRED", left >= 0 ? left : -left);
+}
+
 static void on_frame(struct live *L, const struct source_frame *f)
 {
     struct err e;
@@ -253,6 +270,7 @@ static void on_frame(struct live *L, const struct source_frame *f)
         L->st.fps = L->frames_window * 1000.0 / (now - L->window_ms);
         L->frames_window = 0;
         L->window_ms = now;
+        describe_calibration(L); /* its days left run down during a shift */
     }
     if (L->o->frames > 0 && L->frames >= L->o->frames)
         L->ended = 1; /* the last frame is still fed: a trigger on it is inspected */
@@ -351,23 +369,6 @@ static void poll_screen(struct live *L)
         else if (a == SCREEN_RELEARN)
             trigger_relearn(L->trig);
     }
-}
-
-static void describe_calibration(struct live *L)
-{
-    const struct recipe *r = &L->r;
-    if (!r->has_calibration) {
-        snprintf(L->st.calibration, sizeof L->st.calibration,
-                 "recipe scale %.4g x %.4g mm/px, not calibrated", r->mm_per_px_x,
-                 r->mm_per_px_y);
-        return;
-    }
-    char made[32];
-    calfile_format_time(r->cal.created, made, sizeof made);
-    made[10] = '\0';
-    double left = r->cal.valid_days - calfile_age_days(&r->cal, time(NULL));
-    snprintf(L->st.calibration, sizeof L->st.calibration, "%.4g mm/px, made %s, %s %.0f days",
-             r->mm_per_px_x, made, left >= 0 ? "valid" : "EXPIRED", left >= 0 ? left : -left);
 }
 
 static int step(struct live *L, struct err *e)
@@ -528,8 +529,9 @@ int live_run(const struct live_options *o)
     trigger_free(L->trig);
     source_free(L->src);
     long none = L->counts[VERDICT_NONE], fail = L->counts[VERDICT_FAIL];
-    fprintf(stderr, "%ld PASS, %ld FAIL, %ld NO VERDICT.  %s\n", L->counts[VERDICT_PASS], fail,
-            none, CLI_CAUTION);
+    if (L->results)
+        fprintf(stderr, "%ld PASS, %ld FAIL, %ld NO VERDICT.  %s\n", L->counts[VERDICT_PASS],
+                fail, none, CLI_CAUTION);
     free(L);
     return rc ? EXIT_ERROR : none ? EXIT_ANY_NONE : fail ? EXIT_ANY_FAIL : 0;
 }

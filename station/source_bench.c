@@ -265,6 +265,8 @@ static int parse_params(struct bench *b, const char *params, struct err *e)
                 bad = 1;
             }
         }
+        if (eq)
+            *eq = '=';
         if (bad)
             return err_set(e, ST_EINVAL,
                            "source bench:%s: '%s' is not seed=N, parts=N, lost=START+COUNT or "
