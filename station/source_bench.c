@@ -312,7 +312,6 @@ int source_bench_open(const char *params, const struct source_options *o, struct
     for (int v = 0; v < 256; v++)
         b->sig256[v] = (int)(noise * sqrt(0.6 + 0.4 * v / 128.0) * 256.0 + 0.5);
     snprintf(b->describe, sizeof b->describe,
-             "simulated bench %dx%d seed %llu, %g fps", b->w, b->h, (unsigned long long)b->seed,
-             b->fps);
+             "simulated bench %dx%d, seed %llu", b->w, b->h, (unsigned long long)b->seed);
     return source_wrap(&bench_ops, b, out, e);
 }
