@@ -16,7 +16,9 @@
 
 enum sec_kind { SEC_PRODUCT, SEC_CLASS, SEC_FEATURES, SEC_CLASSIFIER, SEC_SCALE, SEC_TOLERANCE,
                 SEC_GATES, SEC_PART, SEC_ZONE, SEC_EVIDENCE,
-                SEC_LIGHTING, SEC_VERIFICATION, SEC_MASTER, SEC_CAMERA, SEC_KINDS };
+                SEC_LIGHTING, SEC_VERIFICATION, SEC_MASTER, SEC_CAMERA,
+                SEC_TRIGGER,
+                SEC_KINDS };
 
 enum val_type {
     V_FORMAT,   /* int >= 1, refused when newer than RECIPE_FORMAT */
@@ -227,6 +229,34 @@ static const struct key_def camera_keys[] = {
     {"required", V_SETTINGS, CAM(required), 0, 0, 0, 0, K_OPTIONAL, NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 #define CAM_NSETTINGS 5
+/* [trigger]: the live station's trigger (enum recipe_trigger_mode order) */
+static const char *const trigger_words[] = {"key", "auto", "continuous", NULL};
+#define TRIG(f) offsetof(struct recipe_trigger, f)
+static const struct key_def trigger_keys[] = {
+    {"mode", V_WORD, TRIG(mode), 0, 0, 0, 0, K_OPTIONAL, trigger_words},
+    {"still_frames", V_INT, TRIG(still_frames), 0, 1, 1000, 0, K_OPTIONAL, NULL},
+    {"still_level", V_REAL, TRIG(still_level), 0, 0, 255, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"presence_level", V_REAL, TRIG(presence_level), 0, 0, 255, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"enter_share", V_REAL, TRIG(enter_share), 0, 0, 1, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"leave_share", V_REAL, TRIG(leave_share), 0, 0, 1, 0, K_OPTIONAL, NULL},
+    {"leave_frames", V_INT, TRIG(leave_frames), 0, 1, 1000, 0, K_OPTIONAL, NULL},
+    {"frozen_frames", V_INT, TRIG(frozen_frames), 0, 2, 10000, 0, K_OPTIONAL, NULL},
+    {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
+
+static void set_trigger_defaults(struct recipe_trigger *t)
+{
+    /* common practice for a noisy 8-bit camera, no source: block means of
+     * 64 pixels cut the noise eightfold, so 1.5 levels of mean change is
+     * motion, 24 levels a part against the mat; 5 frames is 1/6 s at 30 fps */
+    t->mode = RECIPE_TRIGGER_KEY;
+    t->still_frames = 5;
+    t->still_level = 1.5;
+    t->presence_level = 24;
+    t->enter_share = 0.05;
+    t->leave_share = 0.02;
+    t->leave_frames = 3;
+    t->frozen_frames = 10;
+}
 
 static const struct sec_def {
     const char *word;
@@ -248,6 +278,7 @@ static const struct sec_def {
     [SEC_MASTER] = {"master", 1, 0, master_keys},
     [SEC_EVIDENCE] = {"evidence", 0, 0, evidence_keys},
     [SEC_CAMERA] = {"camera", 0, 0, camera_keys},
+    [SEC_TRIGGER] = {"trigger", 0, 0, trigger_keys},
 };
 
 /* Same order as the bits of enum feat_family. */
@@ -782,6 +813,8 @@ static void *section_base(struct parse *p, struct section *s)
         return &p->r.zones[s->index];
     case SEC_MASTER:
         return &p->r.masters[s->index];
+    case SEC_TRIGGER:
+        return &p->r.trigger;
     default:
         return &p->r;
     }
@@ -1221,6 +1254,17 @@ static int check_camera(struct parse *p)
     return ST_OK;
 }
 
+static int check_trigger(struct parse *p)
+{
+    const struct recipe_trigger *t = &p->r.trigger;
+    const struct section *s = find_section(p, SEC_TRIGGER, "", "");
+    if (t->leave_share >= t->enter_share)
+        return fail_at(p, s ? s->line : 0, ST_ERANGE,
+                       "leave_share %g must be below enter_share %g", t->leave_share,
+                       t->enter_share);
+    return ST_OK;
+}
+
 static void set_defaults(struct recipe *r)
 {
     r->feat.gabor_orientations = 4;
@@ -1246,6 +1290,7 @@ static void set_defaults(struct recipe *r)
     r->part.field[0] = -1;
     r->verify_interval_hours = -1;
     r->camera.stall_ms = RECIPE_CAM_STALL_MS;
+    set_trigger_defaults(&r->trigger);
 }
 
 static int set_paths(struct parse *p, const char *path)
@@ -1297,7 +1342,8 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
     if ((rc = check_sections(p)) != ST_OK || (rc = check_classes(p)) != ST_OK ||
         (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
         (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK ||
-        (rc = check_masters(p)) != ST_OK || (rc = check_camera(p)) != ST_OK)
+        (rc = check_masters(p)) != ST_OK || (rc = check_camera(p)) != ST_OK ||
+        (rc = check_trigger(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:

@@ -78,6 +78,20 @@ struct recipe_master {
     char image[PATH_MAX];      /* resolved against dir */
     int expect;                /* enum verdict: VERDICT_PASS or VERDICT_FAIL */
 };
+/* [trigger]: when the live station (station/trigger.h) inspects.  The
+ * measures are taken on a grey thumbnail of 8x8-pixel block means. */
+enum recipe_trigger_mode { RECIPE_TRIGGER_KEY = 0, RECIPE_TRIGGER_AUTO, RECIPE_TRIGGER_CONTINUOUS };
+struct recipe_trigger {
+    int mode;                  /* enum recipe_trigger_mode, default key */
+    int still_frames;          /* auto: consecutive still frames before inspecting */
+    double still_level;        /* still: mean |grey change| between frames at or below */
+    double presence_level;     /* a block differs from the empty bench by more than this */
+    double enter_share;        /* part present: share of such blocks above this ... */
+    double leave_share;        /* ... and gone again below this (hysteresis) ... */
+    int leave_frames;          /* ... for this many frames: the trigger re-arms */
+    int frozen_frames;         /* this many identical frames in a row: camera frozen */
+};
+
 /* Which PASS inspections keep evidence ([evidence] pass); rejects always do. */
 enum recipe_pass_evidence { RECIPE_PASS_NONE = 0, RECIPE_PASS_ALL, RECIPE_PASS_EVERY };
 
@@ -144,6 +158,7 @@ struct recipe {
     int evidence_pass;         /* enum recipe_pass_evidence, default none */
     int evidence_every;        /* N of "every N" */
     struct recipe_camera camera;
+    struct recipe_trigger trigger;
 };
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);

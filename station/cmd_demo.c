@@ -436,8 +436,11 @@ static int run_demo(const struct demo_opts *o, struct err *e)
         json_decref(s);
         fprintf(stderr, "\ndemo: finished in %.0f s. Sheets of the worst images: %s/*/evaluation/;"
                         " overlays of failed parts: %s/*/overlays/; figures: %s\n"
-                        "inspection log with evidence: %s (try: station audit list --log %s)\n%s\n",
-                (cli_now_ms() - t0) / 1e3, o->out, o->out, dir, log_path, log_path, CLI_CAUTION);
+                        "inspection log with evidence: %s (try: station audit list --log %s)\n"
+                        "the live station on the simulated bench, on this verified log:\n"
+                        "  station run %s --log %s --station %s\n%s\n",
+                (cli_now_ms() - t0) / 1e3, o->out, o->out, dir, log_path, log_path, recipe_path,
+                log_path, o->station, CLI_CAUTION);
     }
     for (int k = 0; k < 2; k++)
         evaluate_clear(&b[k].eval);

@@ -147,6 +147,7 @@ int logbook_record(struct logbook *lb, json_t *report, const struct inspector *i
         .recipe_id = r->product, .recipe_version = r->version,
         .recipe_sha256 = lb->recipe_sha256, .model_sha256 = lb->model_sha256,
         .scale_id = lb->scale_id, .verdict = j ? j->verdict : VERDICT_NONE,
+        .camera_json = lb->camera_json,
     };
     char *reasons = dump_array(report, "reasons"), *regions = dump_array(report, "regions");
     en.reasons_json = reasons;

@@ -31,6 +31,9 @@ struct logbook {
     char recipe_sha256[SHA256_HEX_LEN];
     char model_sha256[SHA256_HEX_LEN];
     char scale_id[LOG_ID_MAX];
+    /* The live camera's settings as applied (source_settings_json), stored
+     * with every record while set; NULL (logbook_open's) off line. */
+    const char *camera_json;
 };
 
 /* The default database path of a station id (letters, digits, . _ -). */

@@ -77,12 +77,16 @@ json_t *report_json(const char *image, const struct inspector *in, const struct 
                      "recipe_version", r->version);
 }
 
-json_t *report_json_error(const char *image, const struct err *e)
+json_t *report_json_refused(const char *image, const char *rule, const char *message)
 {
     return json_pack("{s:i,s:s,s:s,s:[{s:s,s:s,s:s}],s:[]}", "schema", REPORT_SCHEMA, "image",
-                     image, "verdict",
-                     "NO_VERDICT", "reasons", "rule", "unreadable", "class", "image", "message",
-                     e->msg, "regions");
+                     image, "verdict", "NO_VERDICT", "reasons", "rule", rule, "class", "image",
+                     "message", message, "regions");
+}
+
+json_t *report_json_error(const char *image, const struct err *e)
+{
+    return report_json_refused(image, "unreadable", e->msg);
 }
 
 struct image *report_overlay(const struct inspector *in, const struct image *frame,

@@ -20,6 +20,10 @@ json_t *report_json(const char *image, const struct inspector *in, const struct 
                     const struct inspect_times *t);
 /* An image that could not be inspected: NO_VERDICT with the reason. */
 json_t *report_json_error(const char *image, const struct err *e);
+/* A frame refused before inspection (the live station: camera_lost,
+ * frozen, log_failed): NO_VERDICT with one reason {rule, class "image",
+ * message}, the same shape as report_json_error's. */
+json_t *report_json_refused(const char *image, const char *rule, const char *message);
 
 /* The overlay picture of a judged inspection (operator view and evidence);
  * the caller frees it. */

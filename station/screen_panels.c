@@ -52,13 +52,16 @@ void screen_panels_header(const struct screen_canvas *c, const struct screen_sta
     if (st->camera_lost)   /* no frames: a frame rate would be stale */
         snprintf(cam, sizeof cam, "CAMERA LOST: %s · trigger: %s", what, st->trigger);
     else
-        snprintf(cam, sizeof cam, "Camera: %s · %.1f fps · trigger: %s", what, st->fps,
+        snprintf(cam, sizeof cam, "Camera: %s · %.1f fps shown · trigger: %s", what, st->fps,
                  st->trigger);
     int y = p + line(c, SCREEN_PX_TITLE) + p / 2;
-    draw(c, SCREEN_PX_SMALL, cam, st->camera_lost ? ORANGE : DIM, p, y, SCREEN_LEFT, half, 0);
     char cal[SCREEN_TEXT + 32];
     snprintf(cal, sizeof cal, "Calibration: %s", st->calibration[0] ? st->calibration : "none");
-    draw(c, SCREEN_PX_SMALL, cal, DIM, r->w - p, y, SCREEN_RIGHT, half, 0);
+    /* the calibration line is short and the camera's can be long: the
+     * camera takes whatever width the calibration leaves */
+    struct screen_rect drawn = draw(c, SCREEN_PX_SMALL, cal, DIM, r->w - p, y, SCREEN_RIGHT, half, 0);
+    draw(c, SCREEN_PX_SMALL, cam, st->camera_lost ? ORANGE : DIM, p, y, SCREEN_LEFT,
+         r->w - 3 * p - drawn.w, 0);
 }
 
 void screen_panels_verdict(const struct screen_canvas *c, const struct screen_state *st)
@@ -230,8 +233,9 @@ void screen_panels_counters(const struct screen_canvas *c, const struct screen_s
     snprintf(v[1], sizeof v[1], "%ld", st->passed);
     snprintf(v[2], sizeof v[2], "%ld", st->failed);
     snprintf(v[3], sizeof v[3], "%ld", st->no_verdict);
-    if (st->inspected > 0)
-        snprintf(v[4], sizeof v[4], "%.1f %%", 100.0 * (double)st->failed / (double)st->inspected);
+    double rate = st->inspected > 0 ? 100.0 * (double)st->failed / (double)st->inspected : 0;
+    if (st->inspected > 0)   /* "100.0 %" is wider than the cell: whole percent from 99.95 */
+        snprintf(v[4], sizeof v[4], rate >= 99.95 ? "%.0f %%" : "%.1f %%", rate);
     else
         snprintf(v[4], sizeof v[4], "–");
     /* widths in fifths of the row: the labels' own lengths, roughly */

@@ -557,7 +557,7 @@ static void stain_draw(struct layers *L, const struct defect *d, int id)
 
 /* Mat, shadow and bore seen through it, then the shaded surface on top. */
 static void shade(float *plane[3], const struct layers *L, const struct part *p,
-                  const float *grainA, const float *grainS, float *mottle)
+                  const float *grainA, const float *grainS, float *mottle, int lifted)
 {
     int w = L->w, h = L->h;
     double hw = 0.5 * w, hh = 0.5 * h, corner2 = hw * hw + hh * hh;
@@ -579,7 +579,9 @@ static void shade(float *plane[3], const struct layers *L, const struct part *p,
             double sx = x - shx, sy = y - shy;
             double rs = sqrt(sx * sx + sy * sy);
             double t = clampd((rs - p->R) / (0.16 * p->R), 0.0, 1.0);
-            double shadow = r < 0.5 * (p->R + p->rb) ? 0.45 : 1.0 - 0.4 * (1.0 - t) * (1.0 - t);
+            double shadow = lifted                      ? 1.0
+                            : r < 0.5 * (p->R + p->rb) ? 0.45
+                                                       : 1.0 - 0.4 * (1.0 - t) * (1.0 - t);
             double bg[3];
             for (int c = 0; c < 3; c++)
                 bg[c] = p->mat[c] * mot[x] * shadow + 2.6 * grainA[i];
@@ -660,9 +662,11 @@ static int check_args(const struct simbench_conditions *cond, int w, int h, stru
     return ST_OK;
 }
 
-int simbench_render(uint64_t seed, int index, const struct simbench_conditions *cond, int w,
-                    int h, struct image **img, struct image **truth, struct simbench_truth *info,
-                    struct err *e)
+/* lifted: the same bench with the part taken off (no part, no shadow, no
+ * defects), drawn from the same random draws so mat, grain and light match. */
+static int render(uint64_t seed, int index, const struct simbench_conditions *cond, int w, int h,
+                  int lifted, struct image **img, struct image **truth,
+                  struct simbench_truth *info, struct err *e)
 {
     if (img)
         *img = NULL;
@@ -721,7 +725,7 @@ int simbench_render(uint64_t seed, int index, const struct simbench_conditions *
     part_make(&p, &prng, w, h);
     for (int y = 0; y < h; y++)
         for (int x = 0; x < w; x++)
-            sd[(size_t)y * w + x] = (float)part_sd(&p, x, y);
+            sd[(size_t)y * w + x] = lifted ? 1.0f : (float)part_sd(&p, x, y);
     for (size_t i = 0; i < n; i++) {
         plane[0][i] = plane[1][i] = plane[2][i] = 1.0f;
         add[i] = 0.0f;
@@ -734,7 +738,7 @@ int simbench_render(uint64_t seed, int index, const struct simbench_conditions *
      * small ones stay visible on top. */
     struct defect def[PART_DEFECTS_MAX];
     int nd = 0;
-    if (sim_uniform(&prng) < cond->defect_rate) {
+    if (sim_uniform(&prng) < cond->defect_rate && !lifted) {
         int want = rng_int(&prng, 1, PART_DEFECTS_MAX);
         double scale = (w < h ? w : h) / REF_SIDE;
         for (; nd < want; nd++)
@@ -757,7 +761,7 @@ int simbench_render(uint64_t seed, int index, const struct simbench_conditions *
     }
 
     /* shade reads the colour factors from plane[] and overwrites them */
-    shade(plane, &L, &p, grainA, grainS, work);
+    shade(plane, &L, &p, grainA, grainS, work, lifted);
 
     for (int c = 0; c < 3 && cond->blur > 0.0; c++)
         blur_plane(plane[c], w, h, cond->blur, work, row);
@@ -809,5 +813,21 @@ fail:
     free(owner);
     image_free(out);
     image_free(tr);
+    return rc;
+}
+
+int simbench_render(uint64_t seed, int index, const struct simbench_conditions *cond, int w,
+                    int h, struct image **img, struct image **truth, struct simbench_truth *info,
+                    struct err *e)
+{
+    return render(seed, index, cond, w, h, 0, img, truth, info, e);
+}
+
+int simbench_render_empty(uint64_t seed, int index, const struct simbench_conditions *cond, int w,
+                          int h, struct image **img, struct err *e)
+{
+    struct image *truth = NULL;
+    int rc = render(seed, index, cond, w, h, 1, img, &truth, NULL, e);
+    image_free(truth);
     return rc;
 }

@@ -79,4 +79,11 @@ int simbench_render(uint64_t seed, int index, const struct simbench_conditions *
                     int h, struct image **img, struct image **truth, struct simbench_truth *info,
                     struct err *e);
 
+/* The bench of part `index` with the part lifted off: the same mat, grain,
+ * vignetting, light and sensor noise, no part and no shadow.  Where
+ * simbench_render of the same arguments differs from it is the part's
+ * footprint (the live bench source slides it in and out over this). */
+int simbench_render_empty(uint64_t seed, int index, const struct simbench_conditions *cond, int w,
+                          int h, struct image **img, struct err *e);
+
 #endif

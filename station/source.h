@@ -4,8 +4,8 @@
  * A source is opened from a spec string:
  *   camera:/dev/videoN   a V4L2 camera through libv4l2 (station/source_camera.h)
  *   replay:DIR           the PNG files of DIR in name order, paced at a rate
- *   bench                the simulated bench (station/simbench.h) with parts
- *                        placed on and taken off the bench
+ *   bench[:KEY=VALUE,...] the simulated bench (station/simbench.h) with parts
+ *                        placed on and taken off the bench (station/source_bench.h)
  * source_next waits at most timeout_ms for the next frame and says what
  * happened in *status: a frame, nothing yet (SOURCE_WAIT), the device lost
  * (SOURCE_LOST: later calls try to reconnect, with back-off, and give
@@ -23,7 +23,9 @@
 #include "core/image.h"
 #include "core/recipe.h"
 
-enum source_status { SOURCE_FRAME = 0, SOURCE_WAIT, SOURCE_LOST, SOURCE_END };
+/* SOURCE_BAD: a frame that could not be read (a replay file, a corrupt
+ * buffer): f->name names it, e says why, and the next call goes on. */
+enum source_status { SOURCE_FRAME = 0, SOURCE_WAIT, SOURCE_LOST, SOURCE_END, SOURCE_BAD };
 
 struct source_options {
     double fps;            /* replay and bench pacing, frames per second; 0: as fast as asked */
@@ -62,5 +64,18 @@ int source_next(struct source *s, int timeout_ms, struct source_frame *f, int *s
 const char *source_describe(const struct source *s);
 const char *source_settings_json(const struct source *s);
 void source_free(struct source *s);
+
+/* For implementations: wraps impl in a new source (ops->free(impl) on
+ * failure); CLOCK_MONOTONIC milliseconds; pacing at fps frames per second:
+ * source_pace sleeps until the next frame is due and returns 1, or returns
+ * 0 after timeout_ms when it is not due yet (fps <= 0: always due).  A
+ * caller late by more than a frame period drops frames rather than
+ * catching up, as a camera does. */
+int source_wrap(const struct source_ops *ops, void *impl, struct source **out, struct err *e);
+double source_now_ms(void);
+struct source_pace {
+    double due_ms;
+};
+int source_pace(struct source_pace *p, double fps, int timeout_ms);
 
 #endif

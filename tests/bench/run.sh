@@ -78,5 +78,8 @@ echo "bench: inspection log" >&2
 # The audit's readers: stats, report and export on 100 000 records.
 echo "bench: audit stats, report, export" >&2
 "$PYTHON" tests/bench/audit.py
+# The live station: preview rate, trigger-to-verdict latency, idle CPU.
+echo "bench: live station" >&2
+BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/live_bench.sh
 echo "bench: the operator screen" >&2
 "$BUILD/tests/bench/screen_bench" 60

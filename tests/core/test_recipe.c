@@ -716,6 +716,43 @@ static void test_camera_section(void **state)
     load_bad(dup, ST_EFORMAT, line_of(dup, "[camera]", 2), "duplicate section [camera]");
 }
 
+/* [trigger]: the defaults recipes/README.md states, every key read, the
+ * word list and the hysteresis order refused when reversed. */
+static void test_trigger_section(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(GOOD, &r);
+    assert_int_equal(r.trigger.mode, RECIPE_TRIGGER_KEY);
+    assert_int_equal(r.trigger.still_frames, 5);
+    assert_true(r.trigger.still_level == 1.5 && r.trigger.presence_level == 24);
+    assert_true(r.trigger.enter_share == 0.05 && r.trigger.leave_share == 0.02);
+    assert_int_equal(r.trigger.leave_frames, 3);
+    assert_int_equal(r.trigger.frozen_frames, 10);
+    load_ok(GOOD "[trigger]\nmode = continuous\nstill_frames = 7\nstill_level = 2.5\n"
+                 "presence_level = 30\nenter_share = 0.1\nleave_share = 0\nleave_frames = 4\n"
+                 "frozen_frames = 3\n",
+            &r);
+    assert_int_equal(r.trigger.mode, RECIPE_TRIGGER_CONTINUOUS);
+    assert_int_equal(r.trigger.still_frames, 7);
+    assert_true(r.trigger.still_level == 2.5 && r.trigger.presence_level == 30);
+    assert_true(r.trigger.enter_share == 0.1 && r.trigger.leave_share == 0);
+    assert_int_equal(r.trigger.leave_frames, 4);
+    assert_int_equal(r.trigger.frozen_frames, 3);
+    load_ok(GOOD "[trigger]\nmode = auto\n", &r);
+    assert_int_equal(r.trigger.mode, RECIPE_TRIGGER_AUTO);
+    const char *text = GOOD "[trigger]\nmode = sometimes\n";
+    load_bad(text, ST_EFORMAT, line_of(text, "sometimes", 1),
+             "mode: 'sometimes' is not one of: key auto continuous");
+    text = GOOD "[trigger]\nenter_share = 0.02\nleave_share = 0.03\n";
+    load_bad(text, ST_ERANGE, line_of(text, "[trigger]", 1),
+             "leave_share 0.03 must be below enter_share 0.02");
+    text = GOOD "[trigger]\nfrozen_frames = 1\n";
+    load_bad(text, ST_ERANGE, line_of(text, "frozen_frames", 1), "frozen_frames = 1 is out of range");
+    text = GOOD "[trigger]\nstill_level = 0\n";
+    load_bad(text, ST_ERANGE, line_of(text, "still_level", 1), "still_level = 0 is out of range");
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -725,6 +762,7 @@ int main(void)
         cmocka_unit_test(test_zone_errors),
         cmocka_unit_test(test_grade_and_gates_errors),
         cmocka_unit_test(test_evidence_section),
+        cmocka_unit_test(test_trigger_section),
         cmocka_unit_test(test_minimal_defaults),
         cmocka_unit_test(test_subfolder_model_and_no_gabor),
         cmocka_unit_test(test_paths_stay_in_folder),

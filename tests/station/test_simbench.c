@@ -468,6 +468,53 @@ static void test_colour_does_not_separate_stains(void **state)
     assert_true(med_st[F_LOCALSTD] < 0.75 * med_su[F_LOCALSTD]);
 }
 
+
+/* The bench with the part lifted: by simbench's own shading model the part's
+ * shadow reaches 0.16 R beyond the rim (0.04 R offset), so beyond 1.25 R
+ * from the centre the two renders must be the same bytes (same mat, grain,
+ * vignetting and, with the same random draws, the same sensor noise); on the
+ * surface the empty bench must show the mat (34..52 grey levels +-10%, the
+ * brief's dark mat), never the part's ~172. */
+static void test_empty_bench(void **state)
+{
+    (void)state;
+    struct simbench_conditions c;
+    simbench_conditions_nominal(&c);
+    struct render r;
+    render(21, 3, &c, 211, 150, &r);
+    struct image *empty = NULL;
+    struct err e = {0};
+    assert_int_equal(simbench_render_empty(21, 3, &c, 211, 150, &empty, &e), ST_OK);
+    assert_int_equal(empty->w, 211);
+    assert_int_equal(empty->h, 150);
+    long far = 0, far_same = 0, surf = 0;
+    double surf_grey = 0;
+    for (int y = 0; y < 150; y++)
+        for (int x = 0; x < 211; x++) {
+            size_t i = (size_t)y * 211 + x;
+            double dx = x - r.info.cx, dy = y - r.info.cy;
+            const uint8_t *a = r.img->px + 3 * i, *b = empty->px + 3 * i;
+            if (sqrt(dx * dx + dy * dy) > 1.25 * r.info.radius) {
+                far++;
+                far_same += !memcmp(a, b, 3);
+            }
+            if (r.truth->px[i] == SIM_SURFACE) {
+                surf++;
+                surf_grey += (b[0] + b[1] + b[2]) / 3.0;
+            }
+        }
+    assert_true(far > 1000 && surf > 1000);
+    assert_int_equal(far_same, far);
+    surf_grey /= (double)surf;
+    assert_true(surf_grey > 20 && surf_grey < 70);
+    struct image *again = NULL;
+    assert_int_equal(simbench_render_empty(21, 3, &c, 211, 150, &again, &e), ST_OK);
+    assert_memory_equal(again->px, empty->px, (size_t)211 * 150 * 3);
+    image_free(again);
+    image_free(empty);
+    render_free(&r);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -479,6 +526,7 @@ int main(void)
         cmocka_unit_test(test_population),
         cmocka_unit_test(test_shifted_darker_and_noisier),
         cmocka_unit_test(test_colour_does_not_separate_stains),
+        cmocka_unit_test(test_empty_bench),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
