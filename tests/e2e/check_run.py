@@ -176,10 +176,15 @@ def check_verify():
         print("skipped: the fixture's test parts give no PASS and FAIL pair (%s)" % verdicts)
         return
     full = os.path.join(os.path.dirname(RECIPE), "masters.ini")  # beside its model
+    # copied into the recipe's folder: a recipe's paths may not lead out of it
+    masters = os.path.join(os.path.dirname(RECIPE), "run-masters")
+    os.makedirs(masters, exist_ok=True)
+    shutil.copy(verdicts["PASS"], os.path.join(masters, "good.png"))
+    shutil.copy(verdicts["FAIL"], os.path.join(masters, "over.png"))
     with open(RECIPE) as f, open(full, "w") as g:
-        g.write(f.read() + "\n[verification]\ninterval_hours = 8\n\n[master good]\nimage = %s\n"
-                "expect = pass\n\n[master over]\nimage = %s\nexpect = fail\n" %
-                (verdicts["PASS"], verdicts["FAIL"]))
+        g.write(f.read() + "\n[verification]\ninterval_hours = 8\n\n[master good]\n"
+                "image = run-masters/good.png\nexpect = pass\n\n[master over]\n"
+                "image = run-masters/over.png\nexpect = fail\n")
     db = os.path.join(OUT, "verify.db")
     args = ["run", full, "--headless", "--source", "bench", "--fps", "120", "--inspections", "1",
             "--trigger", "auto", "--log", db]
