@@ -29,6 +29,9 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         for (int i = 0; i < r.nmasters; i++)
             if (!inside(&r, r.masters[i].image))
                 abort();
+        for (int i = 0; i < r.nzones; i++)
+            if (!inside(&r, r.zones[i].mask_path))
+                abort();
     } else if (!strstr(e.msg, path)) {
         abort();
     }
