@@ -290,6 +290,32 @@ static int tree_add(struct forest *f, const char *path, const struct jtree *a, i
     return ST_OK;
 }
 
+/* A class's margin is base_score plus one leaf per tree of that class, summed
+ * in float: leaves that are each finite can still sum past FLT_MAX, and an
+ * infinite margin makes softmax NaN, a probability no gate can judge (found
+ * by the property tests/fuzz/fuzz_forest checks; its input is in
+ * tests/fuzz/regress/forest/).  Bounded by the sum of each tree's
+ * largest |leaf|, in double. */
+static int check_margins(const struct forest *f, const char *path, struct err *e)
+{
+    double bound[MAX_CLASSES];
+    for (int k = 0; k < f->nclasses; k++)
+        bound[k] = fabs((double)f->base_score);
+    for (int t = 0; t < f->ntrees; t++) {
+        size_t end = t + 1 < f->ntrees ? f->trees[t + 1].first : f->nnodes;
+        double most = 0;
+        for (size_t i = f->trees[t].first; i < end; i++)
+            if (is_leaf(f->node[i]) && fabs((double)f->val[i]) > most)
+                most = fabs((double)f->val[i]);
+        bound[f->trees[t].cls] += most;
+    }
+    for (int k = 0; k < f->nclasses; k++)
+        if (!(bound[k] <= FLT_MAX / 2))
+            return bad(e, path, "class %d: leaf values can sum to %g, beyond %g", k, bound[k],
+                       FLT_MAX / 2);
+    return ST_OK;
+}
+
 /* Numbers the (feature, default direction) pairs in feature order so the
  * per-block copy reads each row front to back, then turns the keys stored
  * by tree_add into table offsets. */
@@ -419,7 +445,7 @@ static int load_trees(struct forest *f, const char *path, json_t *jtrees, struct
         if (rc != ST_OK)
             goto fail;
     }
-    if ((rc = assign_slots(f, path, e)) == ST_OK)
+    if ((rc = check_margins(f, path, e)) == ST_OK && (rc = assign_slots(f, path, e)) == ST_OK)
         rc = wide_build(f, path, e);
     goto fail;
 nomem:

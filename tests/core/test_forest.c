@@ -338,6 +338,7 @@ enum breakage {
     BREAK_LEAF_VALUE,
     BREAK_TREE_INFO,
     BREAK_CATEGORICAL,
+    BREAK_LEAF_SUM,
     BREAK_COUNT
 };
 
@@ -410,6 +411,20 @@ static void write_broken(struct fixture *fx, enum breakage what)
     case BREAK_CATEGORICAL:
         set_int(t0, "split_type", 0, 1);
         break;
+    case BREAK_LEAF_SUM: {
+        /* every leaf 1e38, finite as a float (FLT_MAX is about 3.4e38, C11
+         * 5.2.4.2.2), but a class's trees sum beyond it: the margin would be
+         * infinite and softmax NaN */
+        json_t *trees = model_trees(root);
+        assert_true(json_array_size(trees) >= 6);  /* 2 or more trees per class */
+        for (size_t t = 0; t < json_array_size(trees); t++) {
+            json_t *tr = json_array_get(trees, t);
+            for (size_t i = 0; i < json_array_size(json_object_get(tr, "left_children")); i++)
+                if (get_int(tr, "left_children", i) == -1)
+                    json_array_set_new(json_object_get(tr, "split_conditions"), i, json_real(1e38));
+        }
+        break;
+    }
     case BREAK_COUNT:
         fail();
     }
