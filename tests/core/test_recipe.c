@@ -381,8 +381,9 @@ static void test_paths_stay_in_folder(void **state)
     char real_out[PATH_MAX], real_dir[PATH_MAX];
     assert_non_null(realpath(outside, real_out));
     assert_non_null(realpath(dir, real_dir));
-    snprintf(what, sizeof what, "image: %s/out/a.png leads to %s/a.png, outside the recipe's folder %s",
-             dir, real_out, real_dir);
+    snprintf(what, sizeof what,
+             "image: %s/out/a.png leads to %s/a.png, outside the recipe's folder %s", dir,
+             real_out, real_dir);
     load_bad(via_link, ST_EFORMAT, line_of(via_link, "image =", 1), what);
     static const char dangling[] =
         PRODUCT CLASSES FEATURES "[classifier]\nmodel = gone.json\n";
