@@ -420,28 +420,39 @@ static int out_of_range(struct parse *p, const struct key_def *k, const char *va
                    range, (k->flags & K_NONE) ? " or none" : "");
 }
 
-static int store_families(struct parse *p, const struct key_def *k, char *base, const char *value)
+/* A list of distinct words from a fixed set of n, name(i) the i-th, as a
+ * bit mask at k->off; an empty list only when allow_empty. */
+static int store_word_set(struct parse *p, const struct key_def *k, char *base, const char *value,
+                          const char *(*name)(int), int n, int allow_empty)
 {
-    unsigned fam = 0;
+    unsigned mask = 0;
     char word[32];
     int got;
     while ((got = next_word(&value, word, sizeof word)) != 0) {
         int f = 0;
-        while (got > 0 && f < NFAMILIES && strcmp(word, family_names[f]))
+        while (got > 0 && f < n && strcmp(word, name(f)))
             f++;
-        if (got < 0 || f == NFAMILIES)
-            return fail_at(p, p->line, ST_EFORMAT,
-                           "%s: unknown family '%s' (known: colour gauss gradient laplace "
-                           "hessian structure localstd gabor)",
-                           k->name, got < 0 ? "(overlong word)" : word);
-        if (fam & (1u << f))
+        if (got < 0 || f == n) {
+            char known[160] = "";
+            for (int m = 0; m < n; m++)
+                snprintf(known + strlen(known), sizeof known - strlen(known), "%s%s",
+                         m ? " " : "", name(m));
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not one of: %s", k->name,
+                           got < 0 ? "(overlong word)" : word, known);
+        }
+        if (mask & (1u << f))
             return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' listed twice", k->name, word);
-        fam |= 1u << f;
+        mask |= 1u << f;
     }
-    if (!fam)
-        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one family", k->name);
-    *(unsigned *)(base + k->off) = fam;
+    if (!mask && !allow_empty)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one of them", k->name);
+    *(unsigned *)(base + k->off) = mask;
     return ST_OK;
+}
+
+static const char *family_name(int i)
+{
+    return family_names[i];
 }
 
 static int hex_digit(int c)
@@ -632,27 +643,9 @@ static int store_pass(struct parse *p, const struct key_def *k, char *base, cons
 }
 
 /* `required = exposure gain`: names of [camera]'s setting keys, each once. */
-static int store_settings(struct parse *p, const struct key_def *k, char *base, const char *value)
+static const char *setting_name(int i)
 {
-    unsigned mask = 0;
-    char word[32];
-    const char *cur = value;
-    int got;
-    while ((got = next_word(&cur, word, sizeof word)) != 0) {
-        int s = 0;
-        while (got > 0 && s < CAM_NSETTINGS && strcmp(word, camera_keys[s].name))
-            s++;
-        if (got < 0 || s == CAM_NSETTINGS)
-            return fail_at(p, p->line, ST_EFORMAT,
-                           "%s: '%s' is not one of: exposure gain white_balance_k focus "
-                           "power_line",
-                           k->name, got < 0 ? "(overlong word)" : word);
-        if (mask & (1u << s))
-            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' listed twice", k->name, word);
-        mask |= 1u << s;
-    }
-    *(unsigned *)(base + k->off) = mask;
-    return ST_OK;
+    return camera_keys[i].name;
 }
 
 static int store_value(struct parse *p, const struct key_def *k, char *base, const char *value)
@@ -710,7 +703,7 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
     case V_REALS:
         return store_reals(p, k, base, value);
     case V_FAMILIES:
-        return store_families(p, k, base, value);
+        return store_word_set(p, k, base, value, family_name, NFAMILIES, 0);
     case V_GRADE:
         if (is_none) {
             *(int *)(base + k->off) = -1;
@@ -728,7 +721,7 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
     case V_PASS:
         return store_pass(p, k, base, value);
     case V_SETTINGS:
-        return store_settings(p, k, base, value);
+        return store_word_set(p, k, base, value, setting_name, CAM_NSETTINGS, 1);
     case V_MODEL:
     case V_MASK:
     case V_CALIB:

@@ -2,6 +2,7 @@
 
 #include "core/recipe.h"
 
+#include <errno.h>
 #include <stdarg.h>
 #include <string.h>
 #include <time.h>
@@ -30,6 +31,15 @@ double cli_now_ms(void)
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
     return ts.tv_sec * 1e3 + ts.tv_nsec / 1e6;
+}
+
+void cli_sleep_ms(double ms)
+{
+    if (ms <= 0)
+        return;
+    struct timespec ts = {(time_t)(ms / 1e3), (long)((ms - (double)(time_t)(ms / 1e3) * 1e3) * 1e6)};
+    while (nanosleep(&ts, &ts) != 0 && errno == EINTR)
+        ;
 }
 
 void progress_init(struct progress *p)

@@ -39,7 +39,10 @@ void progress_update(struct progress *p, int force, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 void progress_done(struct progress *p);
 
+/* CLOCK_MONOTONIC milliseconds. */
 double cli_now_ms(void);
+/* Sleeps ms milliseconds (none when ms <= 0), resumed after a signal. */
+void cli_sleep_ms(double ms);
 
 /* Subcommands: each returns an exit_status. */
 int cmd_train(int argc, char **argv);
