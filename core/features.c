@@ -109,6 +109,10 @@ struct feat_ctx {
     const struct image *img;
     struct fstack *out;
     float scale_rgb, scale_grey, mean_grey;
+    /* the network's features (NULL without one), after the bank's: the bank
+     * then fills its own stack and is copied in */
+    struct cnnfeat_ctx *cnn;
+    struct fstack *bank;
 };
 
 void feat_spec_default(struct feat_spec *spec)
@@ -143,7 +147,7 @@ static int check_list(const double *v, int n, double lo, double hi, const char *
 
 int feat_spec_check(const struct feat_spec *spec, struct err *e)
 {
-    if (spec->families == 0 || (spec->families & ~(unsigned)ALL_FAMILIES))
+    if ((spec->families == 0 && !spec->cnn.on) || (spec->families & ~(unsigned)ALL_FAMILIES))
         return err_set(e, ST_EINVAL, "feature spec: family set 0x%x is empty or has unknown bits",
                        spec->families);
     if (spec->families & SIGMA_FAMILIES) {
@@ -200,7 +204,7 @@ int feat_count(const struct feat_spec *spec)
     int colour, gabor, idx[FEAT_MAX_SIGMAS][NSLOTS];
     if (feat_spec_check(spec, NULL))
         return -1;
-    return feat_layout(spec, &colour, idx, &gabor);
+    return feat_layout(spec, &colour, idx, &gabor) + (spec->cnn.on ? spec->cnn.nch : 0);
 }
 
 int feat_name(const struct feat_spec *spec, int k, char *buf, size_t len)
@@ -209,6 +213,8 @@ int feat_name(const struct feat_spec *spec, int k, char *buf, size_t len)
     if (feat_spec_check(spec, NULL))
         return ST_EINVAL;
     int n = feat_layout(spec, &colour, idx, &gabor);
+    if (spec->cnn.on && k >= n)
+        return cnnfeat_name(&spec->cnn, k - n, buf, len);
     if (k < 0 || k >= n)
         return ST_ERANGE;
     int got = -1;
@@ -446,6 +452,11 @@ struct feat_ctx *feat_ctx_new(const struct feat_spec *spec, int w, int h, struct
             goto fail;
     }
     free(plan);
+    if (spec->cnn.on && (!(ctx->cnn = cnnfeat_ctx_new(&spec->cnn, w, h, spec->threads, e)) ||
+                         (ctx->n && !(ctx->bank = fstack_new(w, h, ctx->n, e))))) {
+        feat_ctx_free(ctx);
+        return NULL;
+    }
     return ctx;
 fail:
     err_set(e, ST_ENOMEM, "features: out of memory for the scratch planes of a %dx%d frame", w, h);
@@ -467,6 +478,8 @@ void feat_ctx_free(struct feat_ctx *ctx)
     free(ctx->wk);
     free(ctx->jobs);
     free(ctx->tids);
+    cnnfeat_ctx_free(ctx->cnn);
+    fstack_free(ctx->bank);
     free(ctx);
 }
 
@@ -904,14 +917,9 @@ static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn)
     }
 }
 
-int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
+/* The filter bank's features alone, into a stack of ctx->n. */
+static int bank_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out)
 {
-    if (img->w != ctx->w || img->h != ctx->h || (img->channels != 1 && img->channels != 3))
-        return err_set(e, ST_EINVAL, "features: frame %dx%dx%d does not fit a context for %dx%d (1 or 3 channels)",
-                       img->w, img->h, img->channels, ctx->w, ctx->h);
-    if (out->w != ctx->w || out->h != ctx->h || out->n != ctx->n)
-        return err_set(e, ST_EINVAL, "features: stack %dx%dx%d given for %dx%d frames with %d features", out->w,
-                       out->h, out->n, ctx->w, ctx->h, ctx->n);
     ctx->img = img;
     ctx->out = out;
     frame_level(ctx, img);
@@ -922,4 +930,24 @@ int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *o
     ctx->img = NULL;
     ctx->out = NULL;
     return ST_OK;
+}
+
+int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
+{
+    int n = ctx->n + (ctx->cnn ? ctx->spec.cnn.nch : 0);
+    if (img->w != ctx->w || img->h != ctx->h || (img->channels != 1 && img->channels != 3))
+        return err_set(e, ST_EINVAL, "features: frame %dx%dx%d does not fit a context for %dx%d (1 or 3 channels)",
+                       img->w, img->h, img->channels, ctx->w, ctx->h);
+    if (out->w != ctx->w || out->h != ctx->h || out->n != n)
+        return err_set(e, ST_EINVAL, "features: stack %dx%dx%d given for %dx%d frames with %d features", out->w,
+                       out->h, out->n, ctx->w, ctx->h, n);
+    if (!ctx->cnn)
+        return bank_compute(ctx, img, out);
+    if (ctx->n) {
+        bank_compute(ctx, img, ctx->bank);
+        size_t npx = (size_t)ctx->w * ctx->h, nb = (size_t)ctx->n;
+        for (size_t p = 0; p < npx; p++)
+            memcpy(out->v + p * (size_t)n, ctx->bank->v + p * nb, nb * sizeof *out->v);
+    }
+    return cnnfeat_compute(ctx->cnn, img, out, ctx->n, e);
 }

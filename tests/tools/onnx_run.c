@@ -11,7 +11,9 @@
  * Prints one line per data set; exit 0 when all are within tolerance, 1 when
  * any is not, 3 when the case cannot be run (the message says why).
  *
- *   onnx_run CASE_DIR [THREADS] */
+ * TENSOR cuts the graph there instead of at its first output.
+ *
+ *   onnx_run CASE_DIR [THREADS [TENSOR]] */
 #include <dirent.h>
 #include <jansson.h>
 #include <math.h>
@@ -65,7 +67,7 @@ static void tolerances(const char *dir, double *rtol, double *atol)
 }
 
 /* 0 within tolerance, 1 not, 3 cannot run. */
-static int run_set(const char *dir, const char *set, int threads, double rtol, double atol)
+static int run_set(const char *dir, const char *set, int threads, const char *cut, double rtol, double atol)
 {
     char path[4096];
     struct err e = {0};
@@ -87,7 +89,7 @@ static int run_set(const char *dir, const char *set, int threads, double rtol, d
         onnx_tensor_clear(&extra);
     }
     if (join(path, sizeof path, dir, set, "output_0.pb") || onnx_tensor_load(path, &want, &e) ||
-        !(g = onnx_graph_cut(m, "", &e)))
+        !(g = onnx_graph_cut(m, cut, &e)))
         goto done;
     int n, c, h, w, on, oc, oh, ow;
     if (nchw(&in, &n, &c, &h, &w) || nchw(&want, &on, &oc, &oh, &ow) || on != n) {
@@ -149,8 +151,8 @@ done:
 int main(int argc, char **argv)
 {
     int threads = 1;
-    if (argc < 2 || argc > 3 || (argc == 3 && parse_int(argv[2], &threads))) {
-        fprintf(stderr, "usage: onnx_run CASE_DIR [THREADS]\n");
+    if (argc < 2 || argc > 4 || (argc >= 3 && parse_int(argv[2], &threads))) {
+        fprintf(stderr, "usage: onnx_run CASE_DIR [THREADS [TENSOR]]\n");
         return 4;
     }
     double rtol, atol;
@@ -171,7 +173,7 @@ int main(int argc, char **argv)
     if (!nsets)
         printf("ERROR %s: no test_data_set_* folder\n", argv[1]);
     for (int i = 0; i < nsets; i++) {
-        int rc = run_set(argv[1], sets[i], threads, rtol, atol);
+        int rc = run_set(argv[1], sets[i], threads, argc == 4 ? argv[3] : "", rtol, atol);
         if (rc > worst)
             worst = rc;
     }
