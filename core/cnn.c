@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include <cblas.h>
+#include <immintrin.h>
 
 /* Per-thread stripe buffers aim at this many bytes for the widest value, so
  * a stripe's intermediates stay in the 2 MB L2 of the machines we target. */
@@ -45,6 +46,8 @@ struct cnn_net {
     size_t *cap;   /* floats per value buffer */
     size_t scap;
     int threads;
+    int avx512;    /* the direct kernel may run: AVX-512F present */
+    int identity;  /* channels 0..nch-1 in order */
     struct worker *wk;
     const float *in;
     float *dst;
@@ -244,8 +247,9 @@ static void taps(int in, int out, int *i0, int *i1, float *f)
 
 static size_t conv_scratch(const struct onnx_op *op, const struct shape *x, const struct shape *o, int rows)
 {
-    if (op->sh == 1 && op->sw == 1 && op->group == 1)
-        return (size_t)(rows + op->dh * (op->kh - 1)) * (o->w + op->dw * (op->kw - 1)) * x->c;
+    if (op->sh == 1 && op->sw == 1 && op->group == 1) /* the copy, and one row of patches */
+        return (size_t)(rows + op->dh * (op->kh - 1)) * (o->w + op->dw * (op->kw - 1)) * x->c +
+               (size_t)o->w * op->kh * op->kw * x->c;
     return (size_t)o->w * op->kh * op->kw * (x->c / op->group);
 }
 
@@ -320,9 +324,129 @@ static void bias_rows(float *o, size_t pixels, const float *b, int c)
         memcpy(o + p * c, b, (size_t)c * sizeof *o);
 }
 
-/* Stride 1, one group: a zero-bordered copy of the input rows, then per
- * output row one GEMM per tap, the tap being a shift of the copy. */
-static void conv_shifted(struct worker *wk, int s, int i, int a, int b, float *out)
+/* The direct kernel: 6 pixels x 64 output channels held in 24 registers,
+ * one broadcast per pixel and input channel against 4 weight vectors, over
+ * every tap; then one pixel at a time for a row's remainder.  Input
+ * channels go in blocks of CI_BLOCK so that block's weights for all taps
+ * (9 x 16 x 64 floats for a 3x3 kernel, 36 KB) stay in L1 while the row is
+ * swept; the accumulators go back to the output between blocks.  Pixels
+ * x0.. of output row ry (relative to the stripe); p is the zero-bordered
+ * copy of the input rows with pitch wp pixels.  Named accumulators, not an
+ * array, so the compiler keeps them all in registers. */
+#define KX 6
+#define CI_BLOCK 16
+#define ACC4(q, o)                                                                                                  \
+    __m512 q##0 = first ? z0 : _mm512_loadu_ps(o), q##1 = first ? z1 : _mm512_loadu_ps((o) + 16),                  \
+           q##2 = first ? z2 : _mm512_loadu_ps((o) + 32), q##3 = first ? z3 : _mm512_loadu_ps((o) + 48)
+#define FMA4(q, v)                                                                                                  \
+    do {                                                                                                            \
+        q##0 = _mm512_fmadd_ps(v, w0, q##0);                                                                        \
+        q##1 = _mm512_fmadd_ps(v, w1, q##1);                                                                        \
+        q##2 = _mm512_fmadd_ps(v, w2, q##2);                                                                        \
+        q##3 = _mm512_fmadd_ps(v, w3, q##3);                                                                        \
+    } while (0)
+#define STORE4(q, dst)                                                                                              \
+    do {                                                                                                            \
+        _mm512_storeu_ps((dst), _mm512_min_ps(_mm512_max_ps(q##0, lo), hi));                                        \
+        _mm512_storeu_ps((dst) + 16, _mm512_min_ps(_mm512_max_ps(q##1, lo), hi));                                   \
+        _mm512_storeu_ps((dst) + 32, _mm512_min_ps(_mm512_max_ps(q##2, lo), hi));                                   \
+        _mm512_storeu_ps((dst) + 48, _mm512_min_ps(_mm512_max_ps(q##3, lo), hi));                                   \
+    } while (0)
+
+struct dblock {
+    const float *p;   /* zero-bordered input rows */
+    int wp, cin, cout;
+    const struct onnx_op *op;
+    int ci0, nci, first, last;
+};
+
+__attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, int ry, int x0, int cb, float *o)
+{
+    const struct onnx_op *op = k->op;
+    int cin = k->cin, cout = k->cout, first = k->first;
+    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
+    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
+    float *oa = o + cb, *ob = oa + cout, *oc = ob + cout, *od = oc + cout, *oe = od + cout, *of = oe + cout;
+    ACC4(a, oa);
+    ACC4(b, ob);
+    ACC4(c, oc);
+    ACC4(d, od);
+    ACC4(e, oe);
+    ACC4(f, of);
+    for (int ky = 0; ky < op->kh; ky++)
+        for (int kx = 0; kx < op->kw; kx++) {
+            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
+            for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
+                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
+                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
+                __m512 v = _mm512_set1_ps(x[0]);
+                FMA4(a, v);
+                v = _mm512_set1_ps(x[cin]);
+                FMA4(b, v);
+                v = _mm512_set1_ps(x[2 * cin]);
+                FMA4(c, v);
+                v = _mm512_set1_ps(x[3 * cin]);
+                FMA4(d, v);
+                v = _mm512_set1_ps(x[4 * cin]);
+                FMA4(e, v);
+                v = _mm512_set1_ps(x[5 * cin]);
+                FMA4(f, v);
+            }
+        }
+    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
+    STORE4(a, oa);
+    STORE4(b, ob);
+    STORE4(c, oc);
+    STORE4(d, od);
+    STORE4(e, oe);
+    STORE4(f, of);
+}
+
+__attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, int ry, int x0, int cb, float *o)
+{
+    const struct onnx_op *op = k->op;
+    int cin = k->cin, cout = k->cout, first = k->first;
+    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
+    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
+    float *oa = o + cb;
+    ACC4(a, oa);
+    for (int ky = 0; ky < op->kh; ky++)
+        for (int kx = 0; kx < op->kw; kx++) {
+            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
+            for (int ci = 0; ci < k->nci; ci++, wt += cout) {
+                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
+                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
+                __m512 v = _mm512_set1_ps(x[ci]);
+                FMA4(a, v);
+            }
+        }
+    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
+    STORE4(a, oa);
+}
+
+static void direct_row(const float *p, int wp, int cin, int cout, const struct onnx_op *op, int ry, int w,
+                       float *o)
+{
+    struct dblock k = {.p = p, .wp = wp, .cin = cin, .cout = cout, .op = op};
+    for (int cb = 0; cb < cout; cb += 64)
+        for (k.ci0 = 0; k.ci0 < cin; k.ci0 += CI_BLOCK) {
+            k.nci = cin - k.ci0 < CI_BLOCK ? cin - k.ci0 : CI_BLOCK;
+            k.first = k.ci0 == 0;
+            k.last = k.ci0 + k.nci == cin;
+            int x0 = 0;
+            for (; x0 + KX <= w; x0 += KX)
+                direct_6(&k, ry, x0, cb, o + (size_t)x0 * cout);
+            for (; x0 < w; x0++)
+                direct_1(&k, ry, x0, cb, o + (size_t)x0 * cout);
+        }
+}
+
+/* Stride 1, one group: a zero-bordered copy of the input rows, then either
+ * the direct kernel or, per output row, one GEMM per tap, the tap being a
+ * shift of the copy. */
+static int conv_shifted(struct worker *wk, int s, int i, int a, int b, float *out)
 {
     const struct cnn_net *n = wk->net;
     const struct onnx_op *op = &n->g->ops[i];
@@ -345,6 +469,29 @@ static void conv_shifted(struct worker *wk, int s, int i, int a, int b, float *o
         memcpy(pr + (size_t)x0 * cin, src, (size_t)(x1 - x0) * cin * sizeof *pr);
         memset(pr + (size_t)x1 * cin, 0, (size_t)(wp - x1) * cin * sizeof *pr);
     }
+    int kk = op->kh * op->kw * cin;
+    if (n->avx512 && cout % 64 == 0 && cin < CI_BLOCK && kk <= 4 * CI_BLOCK) {
+        /* few input channels (an RGB stem): gather each pixel's patch and
+         * run the kernel as a 1x1 convolution over kk channels, whose
+         * weights are the same rows */
+        struct onnx_op one = *op;
+        one.kh = one.kw = one.dh = one.dw = 1;
+        float *q = p + (size_t)rr * wp * cin;
+        for (int y = a; y < b; y++) {
+            for (int xo = 0; xo < o->w; xo++)
+                for (int ky = 0; ky < op->kh; ky++)
+                    memcpy(q + (size_t)xo * kk + (size_t)ky * op->kw * cin,
+                           p + ((size_t)(y - a + ky * op->dh) * wp + xo) * cin,
+                           (size_t)op->kw * cin * sizeof *q);
+            direct_row(q, o->w, kk, cout, &one, 0, o->w, out + (size_t)(y - a) * o->w * cout);
+        }
+        return 1;
+    }
+    if (n->avx512 && cout % 64 == 0) {
+        for (int y = a; y < b; y++)
+            direct_row(p, wp, cin, cout, op, y - a, o->w, out + (size_t)(y - a) * o->w * cout);
+        return 1;
+    }
     bias_rows(out, (size_t)(b - a) * o->w, op->b, cout);
     for (int y = a; y < b; y++) {
         float *orow = out + (size_t)(y - a) * o->w * cout;
@@ -356,6 +503,7 @@ static void conv_shifted(struct worker *wk, int s, int i, int a, int b, float *o
                             1.0f, orow, cout);
             }
     }
+    return 0;
 }
 
 /* Any stride or group: im2col of one output row per group, then GEMM. */
@@ -478,6 +626,12 @@ static void write_dest(struct worker *wk, int s, int y0, int y1)
     int f = n->nv - 1, c = n->v[f].c;
     for (int y = y0; y < y1; y++) {
         float *d = n->dst + (size_t)y * n->dw * n->stride;
+        if (!n->resample && n->identity) {
+            const float *src = row_of(wk, s, f, y);
+            for (int x = 0; x < n->dw; x++, d += n->stride)
+                memcpy(d, src + (size_t)x * c, (size_t)n->nch * sizeof *d);
+            continue;
+        }
         if (!n->resample) {
             const float *src = row_of(wk, s, f, y);
             for (int x = 0; x < n->dw; x++, d += n->stride)
@@ -510,11 +664,13 @@ static void run_stripe(struct worker *wk, int s)
         const struct onnx_op *op = &n->g->ops[i];
         float *out = wk->buf[i + 1];
         if (op->kind == ONNX_CONV) {
+            int clamped = 0;
             if (op->sh == 1 && op->sw == 1 && op->group == 1)
-                conv_shifted(wk, s, i, r[0], r[1], out);
+                clamped = conv_shifted(wk, s, i, r[0], r[1], out);
             else
                 conv_im2col(wk, s, i, r[0], r[1], out);
-            clamp_rows(out, (size_t)(r[1] - r[0]) * n->v[i + 1].w * n->v[i + 1].c, op->lo, op->hi);
+            if (!clamped) /* the direct kernel clamps as it stores */
+                clamp_rows(out, (size_t)(r[1] - r[0]) * n->v[i + 1].w * n->v[i + 1].c, op->lo, op->hi);
         } else if (op->kind == ONNX_MAXPOOL || op->kind == ONNX_AVGPOOL) {
             pool(wk, s, i, r[0], r[1], out);
         } else {
@@ -596,6 +752,9 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
             goto fail;
         }
     }
+    n->identity = 1;
+    for (int k = 0; k < n->nch; k++)
+        n->identity &= n->ch[k] == k;
     n->resample = n->dw != f->w || n->dh != f->h;
     if (n->resample) {
         n->rx0 = malloc((size_t)n->dw * sizeof *n->rx0);
@@ -610,6 +769,7 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
         taps(f->h, n->dh, n->ry0, n->ry1, n->fy);
     }
     n->threads = threads < n->dh ? threads : n->dh;
+    n->avx512 = __builtin_cpu_supports("avx512f");
     if (plan(n, n->threads, e))
         goto fail;
     n->wk = calloc((size_t)n->threads, sizeof *n->wk);

@@ -576,7 +576,9 @@ static int conv_weights(struct cut *c, const Onnx__NodeProto *n, struct onnx_op 
     op->kw = ks[1];
     c->g->params += (long long)w.n;
     int coutg = op->cout / op->group, kk = op->kh * op->kw * cing;
-    op->w = malloc(w.n * sizeof *op->w);
+    /* cache-line aligned: the direct kernel loads 64 bytes per input channel */
+    void *wbuf = NULL;
+    op->w = posix_memalign(&wbuf, 64, w.n * sizeof *op->w) ? NULL : wbuf;
     op->b = calloc((size_t)op->cout, sizeof *op->b);
     if (!op->w || !op->b) {
         rc = err_set(c->e, ST_ENOMEM, "%s: out of memory", file);

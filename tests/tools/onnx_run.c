@@ -11,9 +11,11 @@
  * Prints one line per data set; exit 0 when all are within tolerance, 1 when
  * any is not, 3 when the case cannot be run (the message says why).
  *
- * TENSOR cuts the graph there instead of at its first output.
+ * TENSOR cuts the graph there instead of at its first output ("" keeps it);
+ * "full" brings the output back to the input's size (core/cnn.h's bilinear
+ * resampling) before comparing.
  *
- *   onnx_run CASE_DIR [THREADS [TENSOR]] */
+ *   onnx_run CASE_DIR [THREADS [TENSOR [full]]] */
 #include <dirent.h>
 #include <jansson.h>
 #include <math.h>
@@ -67,7 +69,8 @@ static void tolerances(const char *dir, double *rtol, double *atol)
 }
 
 /* 0 within tolerance, 1 not, 3 cannot run. */
-static int run_set(const char *dir, const char *set, int threads, const char *cut, double rtol, double atol)
+static int run_set(const char *dir, const char *set, int threads, const char *cut, int full, double rtol,
+                   double atol)
 {
     char path[4096];
     struct err e = {0};
@@ -99,12 +102,16 @@ static int run_set(const char *dir, const char *set, int threads, const char *cu
     int gc, gh, gw;
     if (cnn_shape(g, c, h, w, &gc, &gh, &gw, &e))
         goto done;
+    struct cnn_dest dest = {0};
+    if (full) {
+        dest.w = gw = w;
+        dest.h = gh = h;
+    }
     if (gc != oc || gh != oh || gw != ow) {
         printf("FAIL %s %s: shape %dx%dx%d, stored %dx%dx%d\n", dir, set, gc, gh, gw, oc, oh, ow);
         rc = 1;
         goto done;
     }
-    struct cnn_dest dest = {0};
     hwc = malloc((size_t)c * h * w * sizeof *hwc);
     out = malloc((size_t)oc * oh * ow * sizeof *out);
     if (!hwc || !out || !(net = cnn_net_new(g, c, h, w, &dest, threads, &e)))
@@ -151,8 +158,9 @@ done:
 int main(int argc, char **argv)
 {
     int threads = 1;
-    if (argc < 2 || argc > 4 || (argc >= 3 && parse_int(argv[2], &threads))) {
-        fprintf(stderr, "usage: onnx_run CASE_DIR [THREADS [TENSOR]]\n");
+    if (argc < 2 || argc > 5 || (argc >= 3 && parse_int(argv[2], &threads)) ||
+        (argc == 5 && strcmp(argv[4], "full") != 0)) {
+        fprintf(stderr, "usage: onnx_run CASE_DIR [THREADS [TENSOR [full]]]\n");
         return 4;
     }
     double rtol, atol;
@@ -173,7 +181,7 @@ int main(int argc, char **argv)
     if (!nsets)
         printf("ERROR %s: no test_data_set_* folder\n", argv[1]);
     for (int i = 0; i < nsets; i++) {
-        int rc = run_set(argv[1], sets[i], threads, argc == 4 ? argv[3] : "", rtol, atol);
+        int rc = run_set(argv[1], sets[i], threads, argc >= 4 ? argv[3] : "", argc == 5, rtol, atol);
         if (rc > worst)
             worst = rc;
     }

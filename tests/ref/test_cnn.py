@@ -1,0 +1,174 @@
+"""The CNN feature path against torch (Debian's python3-torch) on a
+VGG16-architecture network written with python3-onnx (random weights, fixed
+seed; tests/ref/vggonnx.py), and its refusals.
+
+- block-1 output (relu1_2) and the whole convolutional part (pool5) of our
+  executor (tests/tools/onnx_run) against torch.nn.functional's conv2d, relu
+  and max_pool2d on the same input and weights; tolerance rtol 1e-3 as ONNX's
+  backend tests, atol 1e-5 x the output's largest value (float32 sums in
+  another order over up to 4608 terms; common practice, no source).
+- a strided cut (pool1) brought back to full size, against
+  torch.nn.functional.interpolate(mode='bilinear', align_corners=False).
+- parameter counts printed by `station recipe check`: VGG16's convolutional
+  part has 14,714,688 and its first block 38,720 = 1,792 + 36,928 (facts of
+  the trade: 3*3*3*64 + 64 and 3*3*64*64 + 64).
+- weights in an external data file beside the model are read; a location
+  that leaves the folder ('../x', an absolute path, a symlink) is refused;
+  so are a truncated file, random bytes, and an operator we do not run."""
+import os
+import subprocess
+import sys
+import tempfile
+
+import numpy as np
+import onnx
+from onnx import TensorProto, helper, numpy_helper
+
+import vggonnx
+from refcheck import BUILD, check, status, tool
+
+STATION = os.path.join(BUILD, "station")
+
+
+def write_case(folder, model, x, y, rtol=1e-3, atol=None):
+    os.makedirs(os.path.join(folder, "test_data_set_0"), exist_ok=True)
+    onnx.save(model, os.path.join(folder, "model.onnx"))
+    for name, arr in (("input_0.pb", x), ("output_0.pb", y)):
+        with open(os.path.join(folder, "test_data_set_0", name), "wb") as f:
+            f.write(numpy_helper.from_array(np.ascontiguousarray(arr, dtype=np.float32)).SerializeToString())
+    if atol is None:
+        atol = 1e-5 * float(np.abs(y).max())
+    with open(os.path.join(folder, "data.json"), "w") as f:
+        f.write('{"rtol": %g, "atol": %g}' % (rtol, atol))
+
+
+def run(folder, *args):
+    r = subprocess.run([tool("onnx_run"), folder] + list(args), capture_output=True, text=True)
+    return r.returncode, (r.stdout + r.stderr).strip()
+
+
+def against_torch(tmp, model, ws):
+    import torch
+    import torch.nn.functional as F
+    rng = np.random.default_rng(11)
+    x = rng.standard_normal((1, 3, 29, 37)).astype(np.float32)  # odd, asymmetric
+    y = vggonnx.torch_forward(x, ws, "relu1_2")
+    write_case(os.path.join(tmp, "block1"), model, x, y)
+    for threads in ("1", "2"):
+        rc, out = run(os.path.join(tmp, "block1"), threads, "relu1_2")
+        check("VGG16 block 1 (relu1_2, 37x29) vs torch, %s thread(s): %s" % (threads, out), rc == 0)
+    x = rng.standard_normal((1, 3, 64, 96)).astype(np.float32)
+    y = vggonnx.torch_forward(x, ws, "pool5")
+    write_case(os.path.join(tmp, "pool5"), model, x, y)
+    rc, out = run(os.path.join(tmp, "pool5"), "2", "pool5")
+    check("VGG16 convolutional part (pool5, 96x64) vs torch: %s" % out, rc == 0)
+    x = rng.standard_normal((1, 3, 23, 31)).astype(np.float32)
+    low = torch.from_numpy(vggonnx.torch_forward(x, ws, "pool1"))
+    y = F.interpolate(low, size=(23, 31), mode="bilinear", align_corners=False).numpy()
+    write_case(os.path.join(tmp, "pool1full"), model, x, y)
+    rc, out = run(os.path.join(tmp, "pool1full"), "2", "pool1", "full")
+    check("pool1 (stride 2) back to 31x23 vs torch bilinear, align_corners=False: %s" % out, rc == 0)
+
+
+def params(tmp):
+    recipe = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "recipes", "ostrel-cap38.ini")
+    base = open(recipe).read()
+    for cut, want in (("relu1_2", 38720), ("conv1_1", 1792), ("pool5", 14714688)):
+        text = base.replace("families = colour", "cnn_model = vgg16.onnx\ncnn_output = %s\nfamilies = colour" % cut)
+        path = os.path.join(tmp, "r_%s.ini" % cut)
+        with open(path, "w") as f:
+            f.write(text)
+        r = subprocess.run([STATION, "recipe", "check", path], capture_output=True, text=True)
+        line = [l for l in r.stderr.splitlines() if "parameters" in l]
+        got = int(line[0].split(" parameters")[0].split()[-1]) if line else -1
+        check("parameters of the cut at %s: %d (want %d)" % (cut, got, want), r.returncode == 0 and got == want,
+              r.stderr.strip())
+    c2 = 38720 - 1792
+    check("conv1_2 alone is 3*3*64*64 + 64 = 36928", c2 == 3 * 3 * 64 * 64 + 64 == 36928)
+
+
+def conv_model(weight, ext=None):
+    """One 3x3 Conv 3->64; with ext, W lives in external data at ext."""
+    w = numpy_helper.from_array(weight, "w")
+    if ext is not None:
+        w.ClearField("raw_data")
+        w.data_location = TensorProto.EXTERNAL
+        for k, v in (("location", ext), ("offset", "0"), ("length", str(weight.nbytes))):
+            e = w.external_data.add()
+            e.key, e.value = k, v
+    node = helper.make_node("Conv", ["x", "w"], ["y"], name="c", pads=[1, 1, 1, 1])
+    g = helper.make_graph([node], "g", [helper.make_tensor_value_info("x", TensorProto.FLOAT, [1, 3, 5, 7])],
+                          [helper.make_tensor_value_info("y", TensorProto.FLOAT, [1, 64, 5, 7])], [w])
+    return helper.make_model(g, opset_imports=[helper.make_opsetid("", 13)])
+
+
+def external(tmp):
+    import torch
+    import torch.nn.functional as F
+    rng = np.random.default_rng(5)
+    wt = rng.standard_normal((64, 3, 3, 3)).astype(np.float32)
+    x = rng.standard_normal((1, 3, 5, 7)).astype(np.float32)
+    y = F.conv2d(torch.from_numpy(x), torch.from_numpy(wt), padding=1).numpy()
+    good = os.path.join(tmp, "ext_ok")
+    write_case(good, conv_model(wt, "weights/w.bin"), x, y)
+    os.makedirs(os.path.join(good, "weights"), exist_ok=True)
+    wt.tofile(os.path.join(good, "weights", "w.bin"))
+    rc, out = run(good)
+    check("external data beside the model is read: %s" % out, rc == 0)
+    outside = os.path.join(tmp, "outside.bin")
+    wt.tofile(outside)
+    for label, loc in (("'../x'", "../outside.bin"), ("absolute", outside), ("symlink", "link.bin"),
+                       ("symlinked folder", "linkdir/outside.bin")):
+        d = os.path.join(tmp, "ext_" + label.strip("'./ ").replace(" ", "_"))
+        write_case(d, conv_model(wt, loc), x, y)
+        if label == "symlink":
+            os.symlink(outside, os.path.join(d, "link.bin"))
+        if label == "symlinked folder":
+            os.symlink(tmp, os.path.join(d, "linkdir"))
+        rc, out = run(d)
+        check("external data %s refused: %s" % (label, out),
+              rc == 3 and "model.onnx" in out and ("folder" in out or "symbolic link" in out))
+    d = os.path.join(tmp, "ext_short")
+    write_case(d, conv_model(wt, "w.bin"), x, y)
+    wt[:2].tofile(os.path.join(d, "w.bin"))
+    rc, out = run(d)
+    check("external data shorter than its offset + length refused: %s" % out, rc == 3 and "past its end" in out)
+
+
+def broken(tmp, model_path):
+    data = open(model_path, "rb").read()
+    rng = np.random.default_rng(3)
+    x = rng.standard_normal((1, 3, 8, 8)).astype(np.float32)
+    for label, blob in (("truncated to half", data[: len(data) // 2]),
+                        ("truncated to 1000 bytes", data[:1000]),
+                        ("random bytes", rng.integers(0, 256, 5000, dtype=np.uint8).tobytes())):
+        d = os.path.join(tmp, "bad_" + label.replace(" ", "_"))
+        write_case(d, vggonnx.model(blocks=1), x, x)
+        with open(os.path.join(d, "model.onnx"), "wb") as f:
+            f.write(blob)
+        rc, out = run(d, "1", "relu1_2")
+        check("%s model refused: %s" % (label, out), rc == 3 and "model.onnx" in out and
+              ("corrupt" in out or "truncated" in out or "no graph" in out or "no node" in out))
+    node = helper.make_node("Sigmoid", ["x"], ["y"], name="squash")
+    g = helper.make_graph([node], "g", [helper.make_tensor_value_info("x", TensorProto.FLOAT, [1, 3, 8, 8])],
+                          [helper.make_tensor_value_info("y", TensorProto.FLOAT, [1, 3, 8, 8])])
+    d = os.path.join(tmp, "bad_op")
+    write_case(d, helper.make_model(g, opset_imports=[helper.make_opsetid("", 13)]), x, x)
+    rc, out = run(d)
+    check("unsupported operator refused: %s" % out, rc == 3 and "node squash: operator Sigmoid is not supported" in out)
+
+
+def main():
+    with tempfile.TemporaryDirectory() as tmp:
+        model = vggonnx.model()
+        path = os.path.join(tmp, "vgg16.onnx")
+        onnx.save(model, path)
+        against_torch(tmp, model, vggonnx.weights())
+        params(tmp)
+        external(tmp)
+        broken(tmp, path)
+    return status()
+
+
+if __name__ == "__main__":
+    sys.exit(main())
