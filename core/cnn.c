@@ -12,7 +12,7 @@
 
 /* Per-thread stripe buffers aim at this many bytes for the widest value, so
  * a stripe's intermediates stay in the 2 MB L2 of the machines we target. */
-#define STRIPE_BYTES (512u * 1024u)
+#define STRIPE_BYTES (1024u * 1024u)
 
 struct shape {
     int c, h, w;

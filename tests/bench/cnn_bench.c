@@ -48,7 +48,10 @@ static int cmp_double(const void *a, const void *b)
 __attribute__((target("avx512f"))) static float fma_loop512(void)
 {
     __m512 m = _mm512_set1_ps(0.999999f), c = _mm512_set1_ps(1e-7f);
-    __m512 a0 = m, a1 = c, a2 = m, a3 = c, a4 = m, a5 = c, a6 = m, a7 = c, a8 = m, a9 = c, a10 = m, a11 = c;
+    /* distinct starts, or the compiler merges equal chains */
+    __m512 a0 = _mm512_set1_ps(1), a1 = _mm512_set1_ps(2), a2 = _mm512_set1_ps(3), a3 = _mm512_set1_ps(4);
+    __m512 a4 = _mm512_set1_ps(5), a5 = _mm512_set1_ps(6), a6 = _mm512_set1_ps(7), a7 = _mm512_set1_ps(8);
+    __m512 a8 = _mm512_set1_ps(9), a9 = _mm512_set1_ps(10), a10 = _mm512_set1_ps(11), a11 = _mm512_set1_ps(12);
     for (long it = 0; it < PEAK_ITERS; it++)
         FMA12(_mm512_fmadd_ps);
     __m512 s = _mm512_add_ps(_mm512_add_ps(_mm512_add_ps(a0, a1), _mm512_add_ps(a2, a3)),
@@ -60,7 +63,9 @@ __attribute__((target("avx512f"))) static float fma_loop512(void)
 __attribute__((target("avx2,fma"))) static float fma_loop256(void)
 {
     __m256 m = _mm256_set1_ps(0.999999f), c = _mm256_set1_ps(1e-7f);
-    __m256 a0 = m, a1 = c, a2 = m, a3 = c, a4 = m, a5 = c, a6 = m, a7 = c, a8 = m, a9 = c, a10 = m, a11 = c;
+    __m256 a0 = _mm256_set1_ps(1), a1 = _mm256_set1_ps(2), a2 = _mm256_set1_ps(3), a3 = _mm256_set1_ps(4);
+    __m256 a4 = _mm256_set1_ps(5), a5 = _mm256_set1_ps(6), a6 = _mm256_set1_ps(7), a7 = _mm256_set1_ps(8);
+    __m256 a8 = _mm256_set1_ps(9), a9 = _mm256_set1_ps(10), a10 = _mm256_set1_ps(11), a11 = _mm256_set1_ps(12);
     for (long it = 0; it < PEAK_ITERS; it++)
         FMA12(_mm256_fmadd_ps);
     __m256 s = _mm256_add_ps(_mm256_add_ps(_mm256_add_ps(a0, a1), _mm256_add_ps(a2, a3)),
