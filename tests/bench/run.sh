@@ -41,3 +41,6 @@ echo "bench: inspection log" >&2
 # The audit's readers: stats, report and export on 100 000 records.
 echo "bench: audit stats, report, export" >&2
 "$PYTHON" tests/bench/audit.py
+# A cut network as the feature extractor: VGG16 block 1 beside torch.
+echo "bench: CNN features (VGG16 block 1) beside torch" >&2
+"$PYTHON" tests/bench/cnn_bench.py "$BUILD" "${CNN_REPEAT:-7}"

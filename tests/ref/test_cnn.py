@@ -70,6 +70,28 @@ def against_torch(tmp, model, ws):
     check("pool1 (stride 2) back to 31x23 vs torch bilinear, align_corners=False: %s" % out, rc == 0)
 
 
+def torch_export(tmp):
+    """A file written by torch's own ONNX exporter (as the README tells users
+    to make one), cut at the block's second ReLU by the name torch gives it."""
+    import torch
+    torch.manual_seed(3)
+    net = torch.nn.Sequential(torch.nn.Conv2d(3, 64, 3, padding=1), torch.nn.ReLU(inplace=True),
+                              torch.nn.Conv2d(64, 64, 3, padding=1), torch.nn.ReLU(inplace=True),
+                              torch.nn.MaxPool2d(2, 2)).eval()
+    folder = os.path.join(tmp, "torch_export")
+    os.makedirs(os.path.join(folder, "test_data_set_0"))
+    torch.onnx.export(net, torch.zeros(1, 3, 32, 32), os.path.join(folder, "model.onnx"), input_names=["image"],
+                      dynamic_axes={"image": {2: "H", 3: "W"}}, opset_version=13)
+    model = onnx.load(os.path.join(folder, "model.onnx"))
+    cut = [n.output[0] for n in model.graph.node if n.op_type == "Relu"][-1]
+    x = np.random.default_rng(4).standard_normal((1, 3, 27, 33)).astype(np.float32)
+    with torch.no_grad():
+        y = net[:4](torch.from_numpy(x)).numpy()
+    write_case(folder, model, x, y)
+    rc, out = run(folder, "2", cut)
+    check("torch.onnx.export file cut at %s vs torch: %s" % (cut, out), rc == 0)
+
+
 def params(tmp):
     recipe = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "recipes", "ostrel-cap38.ini")
     base = open(recipe).read()
@@ -164,6 +186,7 @@ def main():
         path = os.path.join(tmp, "vgg16.onnx")
         onnx.save(model, path)
         against_torch(tmp, model, vggonnx.weights())
+        torch_export(tmp)
         params(tmp)
         external(tmp)
         broken(tmp, path)
