@@ -9,6 +9,9 @@ seed; tests/ref/vggonnx.py), and its refusals.
   another order over up to 4608 terms; common practice, no source).
 - a strided cut (pool1) brought back to full size, against
   torch.nn.functional.interpolate(mode='bilinear', align_corners=False).
+- a file from torch.onnx.export, and a small graph with two branches (Add,
+  Concat), BatchNormalization after a Conv, Clip, Identity, AveragePool and a
+  strided Conv with asymmetric pads, against the same ops in torch.
 - parameter counts printed by `station recipe check`: VGG16's convolutional
   part has 14,714,688 and its first block 38,720 = 1,792 + 36,928 (facts of
   the trade: 3*3*3*64 + 64 and 3*3*64*64 + 64).
@@ -90,6 +93,55 @@ def torch_export(tmp):
     write_case(folder, model, x, y)
     rc, out = run(folder, "2", cut)
     check("torch.onnx.export file cut at %s vs torch: %s" % (cut, out), rc == 0)
+
+
+def branches(tmp):
+    """A small graph with two branches joined by Add and Concat, a Conv with
+    BatchNormalization after it (folded), Clip with opset-13 min/max inputs,
+    Identity, a strided Conv and an AveragePool, against torch."""
+    import torch
+    import torch.nn.functional as F
+    rng = np.random.default_rng(9)
+    def arr(*shape, scale=0.3):
+        return (rng.standard_normal(shape) * scale).astype(np.float32)
+    p = {"w1": arr(8, 3, 3, 3), "b1": arr(8), "w2": arr(8, 8, 1, 1), "b2": arr(8), "w3": arr(8, 8, 3, 3),
+         "b3": arr(8), "g": (1 + arr(8)).astype(np.float32), "beta": arr(8), "mean": arr(8),
+         "var": (0.5 + np.abs(arr(8))).astype(np.float32), "lo": np.array(0.0, np.float32),
+         "hi": np.array(0.6, np.float32)}
+    N = helper.make_node
+    nodes = [N("Conv", ["x", "w1", "b1"], ["c1"], name="c1", pads=[1, 1, 1, 1]),
+             N("BatchNormalization", ["c1", "g", "beta", "mean", "var"], ["bn"], name="bn", epsilon=1e-3),
+             N("Clip", ["bn", "lo", "hi"], ["a"], name="clip"),
+             N("Identity", ["a"], ["a2"], name="id"),
+             N("Conv", ["a2", "w2", "b2"], ["c2"], name="c2"),
+             N("Relu", ["c2"], ["r2"], name="r2"),
+             N("Conv", ["a2", "w3", "b3"], ["c3"], name="c3", pads=[1, 1, 1, 1], dilations=[1, 1]),
+             N("Add", ["r2", "c3"], ["s"], name="add"),
+             N("Concat", ["s", "a2"], ["cat"], name="cat", axis=1),
+             N("AveragePool", ["cat"], ["pool"], name="pool", kernel_shape=[3, 3], strides=[2, 2],
+               pads=[1, 1, 1, 1], count_include_pad=1),
+             N("Conv", ["pool", "w4", "b4"], ["out"], name="c4", strides=[2, 1], pads=[0, 1, 1, 0])]
+    p["w4"], p["b4"] = arr(4, 16, 2, 3), arr(4)
+    inits = [numpy_helper.from_array(v, k) for k, v in p.items()]
+    g = helper.make_graph(nodes, "branches", [helper.make_tensor_value_info("x", TensorProto.FLOAT, [1, 3, "H", "W"])],
+                          [helper.make_tensor_value_info("out", TensorProto.FLOAT, None)], inits)
+    model = helper.make_model(g, opset_imports=[helper.make_opsetid("", 13)])
+    x = rng.standard_normal((1, 3, 19, 26)).astype(np.float32)
+    t = {k: torch.from_numpy(v) for k, v in p.items()}
+    with torch.no_grad():
+        xt = torch.from_numpy(x)
+        bn = F.batch_norm(F.conv2d(xt, t["w1"], t["b1"], padding=1), t["mean"], t["var"], t["g"], t["beta"],
+                          training=False, eps=1e-3)
+        a = torch.clamp(bn, 0.0, 0.6)
+        s = F.relu(F.conv2d(a, t["w2"], t["b2"])) + F.conv2d(a, t["w3"], t["b3"], padding=1)
+        pool = F.avg_pool2d(torch.cat([s, a], 1), 3, 2, padding=1, count_include_pad=True)
+        y = F.conv2d(F.pad(pool, (1, 0, 0, 1)), t["w4"], t["b4"], stride=(2, 1)).numpy()
+    folder = os.path.join(tmp, "branches")
+    write_case(folder, model, x, y)
+    for threads in ("1", "2"):
+        rc, out = run(folder, threads)
+        check("branches (BN folded, Clip, Identity, Add, Concat, AveragePool, strided Conv) vs torch, %s "
+              "thread(s): %s" % (threads, out), rc == 0)
 
 
 def params(tmp):
@@ -187,6 +239,7 @@ def main():
         onnx.save(model, path)
         against_torch(tmp, model, vggonnx.weights())
         torch_export(tmp)
+        branches(tmp)
         params(tmp)
         external(tmp)
         broken(tmp, path)
