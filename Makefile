@@ -75,7 +75,7 @@ $(ONNX_GEN): $(ONNX_PROTO)
 $(ONNX_GEN_O): $(ONNX_GEN)
 	@mkdir -p $(dir $@)
 	$(CC) -std=c11 $(OPT) $(SANFLAGS) $(PKG_CFLAGS) -I$(BUILD)/gen -c $< -o $@
-$(call obj,core/onnx.c): $(ONNX_GEN)
+$(call obj,core/onnx.c) $(BUILD)/tests/core/test_cnnfeat.o: $(ONNX_GEN)
 
 $(CORE_LIB): $(call obj,$(CORE_SRC)) $(ONNX_GEN_O)
 	$(AR) rcs $@ $^
