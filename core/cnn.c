@@ -326,7 +326,7 @@ static void bias_rows(float *o, size_t pixels, const float *b, int c)
 
 /* The direct kernel: 6 pixels x 64 output channels held in 24 registers,
  * one broadcast per pixel and input channel against 4 weight vectors, over
- * every tap; then one pixel at a time for a row's remainder.  Input
+ * every tap; a row's remainder in 4 pixels, then one at a time.  Input
  * channels go in blocks of CI_BLOCK so that block's weights for all taps
  * (9 x 16 x 64 floats for a 3x3 kernel, 36 KB) stay in L1 while the row is
  * swept; the accumulators go back to the output between blocks.  Pixels
@@ -426,6 +426,42 @@ __attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, 
     STORE4(a, oa);
 }
 
+/* Four pixels: a row's remainder of 4 or 5 (640 = 6 x 106 + 4). */
+__attribute__((target("avx512f"))) static void direct_4(const struct dblock *k, int ry, int x0, int cb, float *o)
+{
+    const struct onnx_op *op = k->op;
+    int cin = k->cin, cout = k->cout, first = k->first;
+    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
+    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
+    float *oa = o + cb, *ob = oa + cout, *oc = ob + cout, *od = oc + cout;
+    ACC4(a, oa);
+    ACC4(b, ob);
+    ACC4(c, oc);
+    ACC4(d, od);
+    for (int ky = 0; ky < op->kh; ky++)
+        for (int kx = 0; kx < op->kw; kx++) {
+            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
+            for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
+                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
+                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
+                __m512 v = _mm512_set1_ps(x[0]);
+                FMA4(a, v);
+                v = _mm512_set1_ps(x[cin]);
+                FMA4(b, v);
+                v = _mm512_set1_ps(x[2 * cin]);
+                FMA4(c, v);
+                v = _mm512_set1_ps(x[3 * cin]);
+                FMA4(d, v);
+            }
+        }
+    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
+    STORE4(a, oa);
+    STORE4(b, ob);
+    STORE4(c, oc);
+    STORE4(d, od);
+}
+
 static void direct_row(const float *p, int wp, int cin, int cout, const struct onnx_op *op, int ry, int w,
                        float *o)
 {
@@ -438,6 +474,10 @@ static void direct_row(const float *p, int wp, int cin, int cout, const struct o
             int x0 = 0;
             for (; x0 + KX <= w; x0 += KX)
                 direct_6(&k, ry, x0, cb, o + (size_t)x0 * cout);
+            if (x0 + 4 <= w) {
+                direct_4(&k, ry, x0, cb, o + (size_t)x0 * cout);
+                x0 += 4;
+            }
             for (; x0 < w; x0++)
                 direct_1(&k, ry, x0, cb, o + (size_t)x0 * cout);
         }

@@ -54,12 +54,13 @@ def against_torch(tmp, model, ws):
     import torch
     import torch.nn.functional as F
     rng = np.random.default_rng(11)
-    x = rng.standard_normal((1, 3, 29, 37)).astype(np.float32)  # odd, asymmetric
+    # asymmetric; 40 = 6 x 6 + 4 and 41 leave each remainder path of the kernel some pixels
+    x = rng.standard_normal((1, 3, 29, 40)).astype(np.float32)
     y = vggonnx.torch_forward(x, ws, "relu1_2")
     write_case(os.path.join(tmp, "block1"), model, x, y)
     for threads in ("1", "2"):
         rc, out = run(os.path.join(tmp, "block1"), threads, "relu1_2")
-        check("VGG16 block 1 (relu1_2, 37x29) vs torch, %s thread(s): %s" % (threads, out), rc == 0)
+        check("VGG16 block 1 (relu1_2, 40x29) vs torch, %s thread(s): %s" % (threads, out), rc == 0)
     x = rng.standard_normal((1, 3, 64, 96)).astype(np.float32)
     y = vggonnx.torch_forward(x, ws, "pool5")
     write_case(os.path.join(tmp, "pool5"), model, x, y)
@@ -87,7 +88,7 @@ def torch_export(tmp):
                       dynamic_axes={"image": {2: "H", 3: "W"}}, opset_version=13)
     model = onnx.load(os.path.join(folder, "model.onnx"))
     cut = [n.output[0] for n in model.graph.node if n.op_type == "Relu"][-1]
-    x = np.random.default_rng(4).standard_normal((1, 3, 27, 33)).astype(np.float32)
+    x = np.random.default_rng(4).standard_normal((1, 3, 27, 41)).astype(np.float32)
     with torch.no_grad():
         y = net[:4](torch.from_numpy(x)).numpy()
     write_case(folder, model, x, y)
