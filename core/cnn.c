@@ -510,19 +510,22 @@ static int conv_shifted(struct worker *wk, int s, int i, int a, int b, float *ou
         memset(pr + (size_t)x1 * cin, 0, (size_t)(wp - x1) * cin * sizeof *pr);
     }
     int kk = op->kh * op->kw * cin;
-    if (n->avx512 && cout % 64 == 0 && cin < CI_BLOCK && kk <= 4 * CI_BLOCK) {
+    if (n->avx512 && cout % 64 == 0 && cin < CI_BLOCK && kk <= 4 * CI_BLOCK && op->dw == 1) {
         /* few input channels (an RGB stem): gather each pixel's patch and
          * run the kernel as a 1x1 convolution over kk channels, whose
          * weights are the same rows */
         struct onnx_op one = *op;
         one.kh = one.kw = one.dh = one.dw = 1;
         float *q = p + (size_t)rr * wp * cin;
+        int run = op->kw * cin; /* a patch row: kw pixels side by side (dw is 1 here) */
         for (int y = a; y < b; y++) {
             for (int xo = 0; xo < o->w; xo++)
-                for (int ky = 0; ky < op->kh; ky++)
-                    memcpy(q + (size_t)xo * kk + (size_t)ky * op->kw * cin,
-                           p + ((size_t)(y - a + ky * op->dh) * wp + xo) * cin,
-                           (size_t)op->kw * cin * sizeof *q);
+                for (int ky = 0; ky < op->kh; ky++) {
+                    const float *src = p + ((size_t)(y - a + ky * op->dh) * wp + xo) * cin;
+                    float *dst = q + (size_t)xo * kk + (size_t)ky * run;
+                    for (int t = 0; t < run; t++) /* a few floats: a loop beats a memcpy call */
+                        dst[t] = src[t];
+                }
             direct_row(q, o->w, kk, cout, &one, 0, o->w, out + (size_t)(y - a) * o->w * cout);
         }
         return 1;
@@ -666,6 +669,10 @@ static void write_dest(struct worker *wk, int s, int y0, int y1)
     int f = n->nv - 1, c = n->v[f].c;
     for (int y = y0; y < y1; y++) {
         float *d = n->dst + (size_t)y * n->dw * n->stride;
+        if (!n->resample && n->identity && n->stride == c) {
+            memcpy(d, row_of(wk, s, f, y), (size_t)n->dw * c * sizeof *d);
+            continue;
+        }
         if (!n->resample && n->identity) {
             const float *src = row_of(wk, s, f, y);
             for (int x = 0; x < n->dw; x++, d += n->stride)
