@@ -1,5 +1,8 @@
+/* syscall() and SYS_arch_prctl, for the AMX permission */
+#define _DEFAULT_SOURCE
 #include "cnn.h"
 
+#include <cpuid.h>
 #include <limits.h>
 #include <math.h>
 #include <pthread.h>
@@ -9,6 +12,8 @@
 
 #include <cblas.h>
 #include <immintrin.h>
+#include <sys/syscall.h>
+#include <unistd.h>
 
 /* Per-thread stripe buffers aim at this many bytes for the widest value, so
  * a stripe's intermediates stay in the 2 MB L2 of the machines we target. */
@@ -28,6 +33,7 @@ struct worker {
     int id;
     float **buf;   /* per value: the stripe's rows (value 0 is the input) */
     float *scratch;
+    uint16_t *sbf;  /* the scratch rows in bfloat16 (AMX runs) */
     int rc;
 };
 
@@ -48,6 +54,7 @@ struct cnn_net {
     int threads;
     int avx512;    /* the direct kernel may run: AVX-512F present */
     int identity;  /* channels 0..nch-1 in order */
+    uint16_t **wamx; /* per op: weights in AMX tile order (see pack_amx), or NULL */
     struct worker *wk;
     const float *in;
     float *dst;
@@ -483,6 +490,132 @@ static void direct_row(const float *p, int wp, int cin, int cout, const struct o
         }
 }
 
+/* ---- bfloat16 on AMX tiles ---------------------------------------------
+ * Tiles 0-3 hold a 32 pixel x 32 channel float32 block of the output (2 x 2
+ * tiles of 16 x 16), tiles 4-5 two 16-pixel rows of 32 input channels,
+ * tiles 6-7 the weights of 32 input channels for 2 x 16 output channels in
+ * the pair-interleaved layout TDPBF16PS wants (16 rows of channel pairs, 16
+ * outputs x 2).  Each step over a tap and 32 input channels is 4 tile loads
+ * and 4 TDPBF16PS. */
+struct amx_cfg {
+    uint8_t palette, start;
+    uint8_t reserved[14];
+    uint16_t colsb[16];
+    uint8_t rows[16];
+};
+
+static int amx_available(void)
+{
+    unsigned a, b, c, d;
+    if (!__get_cpuid_count(7, 0, &a, &b, &c, &d) || !(d & (1u << 22)) || !(d & (1u << 24)))
+        return 0;
+    /* Linux hands out the tile state only on request: ARCH_REQ_XCOMP_PERM, XFEATURE_XTILEDATA */
+    return syscall(SYS_arch_prctl, 0x1023, 18) == 0;
+}
+
+static uint16_t bf16_of(float f)
+{
+    uint32_t u;
+    memcpy(&u, &f, sizeof u);
+    u += 0x7fffu + ((u >> 16) & 1u); /* round to nearest, ties to even */
+    return (uint16_t)(u >> 16);
+}
+
+__attribute__((target("avx512f,avx512bf16"))) static void bf16_convert(const float *src, uint16_t *dst, size_t n)
+{
+    size_t i = 0;
+    for (; i + 32 <= n; i += 32) {
+        __m512bh v = _mm512_cvtne2ps_pbh(_mm512_loadu_ps(src + i + 16), _mm512_loadu_ps(src + i));
+        _mm512_storeu_si512((void *)(dst + i), (__m512i)v);
+    }
+    for (; i < n; i++)
+        dst[i] = bf16_of(src[i]);
+}
+
+/* [tap][32-channel block][16-output block][16 pairs][16 outputs][2] */
+static uint16_t *pack_amx(const struct onnx_op *op, int cin)
+{
+    int taps = op->kh * op->kw, nkb = cin / 32, ncb = op->cout / 16;
+    uint16_t *w = malloc((size_t)taps * cin * op->cout * sizeof *w);
+    if (!w)
+        return NULL;
+    for (int t = 0; t < taps; t++)
+        for (int kb = 0; kb < nkb; kb++)
+            for (int cb = 0; cb < ncb; cb++)
+                for (int r = 0; r < 16; r++)
+                    for (int co = 0; co < 16; co++)
+                        for (int e = 0; e < 2; e++)
+                            w[((((size_t)t * nkb + kb) * ncb + cb) * 16 + r) * 32 + co * 2 + e] = bf16_of(
+                                op->w[((size_t)t * cin + kb * 32 + 2 * r + e) * op->cout + cb * 16 + co]);
+    return w;
+}
+
+__attribute__((target("amx-tile"))) static void amx_begin(void)
+{
+    struct amx_cfg cfg;
+    memset(&cfg, 0, sizeof cfg);
+    cfg.palette = 1;
+    for (int t = 0; t < 8; t++) {
+        cfg.colsb[t] = 64;
+        cfg.rows[t] = 16;
+    }
+    /* GCC 12's _tile_loadconfig tells the compiler it reads 8 bytes only, so
+     * without this the other 56 are dead stores to it */
+    __asm__ volatile("" : : "r"(&cfg) : "memory");
+    _tile_loadconfig(&cfg);
+}
+
+__attribute__((target("amx-tile"))) static void amx_end(void)
+{
+    _tile_release();
+}
+
+/* Output row ry of the stripe: 32-pixel blocks (the last one shifted left
+ * to end at the row's end, recomputing a few pixels), 32 outputs at a time. */
+__attribute__((target("avx512f,amx-tile,amx-bf16"))) static void amx_row(const uint16_t *x, const uint16_t *wq, int wp,
+                                                                int cin, int cout, const struct onnx_op *op, int ry,
+                                                                int w, float *o)
+{
+    int nkb = cin / 32, ncb = cout / 16;
+    size_t xs = (size_t)cin * sizeof *x, os = (size_t)cout * sizeof *o;
+    for (int x0 = 0; x0 < w; x0 += 32) {
+        int xb = x0 + 32 <= w ? x0 : w - 32;
+        for (int cb = 0; cb < ncb; cb += 2) {
+            _tile_zero(0);
+            _tile_zero(1);
+            _tile_zero(2);
+            _tile_zero(3);
+            for (int ky = 0; ky < op->kh; ky++)
+                for (int kx = 0; kx < op->kw; kx++) {
+                    const uint16_t *a = x + ((size_t)(ry + ky * op->dh) * wp + xb + (size_t)kx * op->dw) * cin;
+                    const uint16_t *b = wq + (((size_t)(ky * op->kw + kx) * nkb) * ncb + cb) * 512;
+                    for (int kb = 0; kb < nkb; kb++, a += 32, b += (size_t)ncb * 512) {
+                        _tile_loadd(4, a, xs);
+                        _tile_loadd(5, a + 16 * (size_t)cin, xs);
+                        _tile_loadd(6, b, 64);
+                        _tile_loadd(7, b + 512, 64);
+                        _tile_dpbf16ps(0, 4, 6);
+                        _tile_dpbf16ps(1, 4, 7);
+                        _tile_dpbf16ps(2, 5, 6);
+                        _tile_dpbf16ps(3, 5, 7);
+                    }
+                }
+            float *c = o + (size_t)xb * cout + cb * 16;
+            _tile_stored(0, c, os);
+            _tile_stored(1, c + 16, os);
+            _tile_stored(2, c + 16 * (size_t)cout, os);
+            _tile_stored(3, c + 16 * (size_t)cout + 16, os);
+        }
+    }
+    __m512 lo = _mm512_set1_ps(op->lo), hi = _mm512_set1_ps(op->hi);
+    for (int p = 0; p < w; p++)
+        for (int co = 0; co < cout; co += 16) {
+            float *v = o + (size_t)p * cout + co;
+            __m512 r = _mm512_add_ps(_mm512_loadu_ps(v), _mm512_loadu_ps(op->b + co));
+            _mm512_storeu_ps(v, _mm512_min_ps(_mm512_max_ps(r, lo), hi));
+        }
+}
+
 /* Stride 1, one group: a zero-bordered copy of the input rows, then either
  * the direct kernel or, per output row, one GEMM per tap, the tap being a
  * shift of the copy. */
@@ -528,6 +661,12 @@ static int conv_shifted(struct worker *wk, int s, int i, int a, int b, float *ou
                 }
             direct_row(q, o->w, kk, cout, &one, 0, o->w, out + (size_t)(y - a) * o->w * cout);
         }
+        return 1;
+    }
+    if (n->wamx && n->wamx[i]) {
+        bf16_convert(p, wk->sbf, (size_t)rr * wp * cin);
+        for (int y = a; y < b; y++)
+            amx_row(wk->sbf, n->wamx[i], wp, cin, cout, op, y - a, o->w, out + (size_t)(y - a) * o->w * cout);
         return 1;
     }
     if (n->avx512 && cout % 64 == 0) {
@@ -731,8 +870,12 @@ static void run_stripe(struct worker *wk, int s)
 static void *worker_run(void *arg)
 {
     struct worker *wk = arg;
+    if (wk->net->wamx) /* tile configuration is per thread */
+        amx_begin();
     for (int s = wk->id; s < wk->net->nstripes; s += wk->net->threads)
         run_stripe(wk, s);
+    if (wk->net->wamx)
+        amx_end();
     return NULL;
 }
 
@@ -817,6 +960,19 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
     }
     n->threads = threads < n->dh ? threads : n->dh;
     n->avx512 = __builtin_cpu_supports("avx512f");
+    if (dest->bf16 && n->avx512 && __builtin_cpu_supports("avx512bf16") && amx_available()) {
+        if (!(n->wamx = calloc((size_t)g->nops, sizeof *n->wamx)))
+            goto oom;
+        for (int i = 0; i < g->nops; i++) {
+            const struct onnx_op *op = &g->ops[i];
+            int cin = n->v[op->in[0]].c;
+            if (op->kind != ONNX_CONV || op->sh != 1 || op->sw != 1 || op->group != 1 || op->cout % 32 ||
+                cin % 32 || n->v[i + 1].w < 32)
+                continue;
+            if (!(n->wamx[i] = pack_amx(op, cin)))
+                goto oom;
+        }
+    }
     if (plan(n, n->threads, e))
         goto fail;
     n->wk = calloc((size_t)n->threads, sizeof *n->wk);
@@ -828,7 +984,8 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
         wk->id = t;
         wk->buf = calloc((size_t)n->nv, sizeof *wk->buf);
         wk->scratch = malloc((n->scap ? n->scap : 1) * sizeof *wk->scratch);
-        if (!wk->buf || !wk->scratch)
+        wk->sbf = n->wamx ? malloc((n->scap ? n->scap : 1) * sizeof *wk->sbf) : NULL;
+        if (!wk->buf || !wk->scratch || (n->wamx && !wk->sbf))
             goto oom;
         for (int v = 1; v < n->nv; v++)
             if (!(wk->buf[v] = malloc((n->cap[v] ? n->cap[v] : 1) * sizeof(float))))
@@ -854,8 +1011,12 @@ void cnn_net_free(struct cnn_net *n)
             free(n->wk[t].buf[v]);
         free(n->wk[t].buf);
         free(n->wk[t].scratch);
+        free(n->wk[t].sbf);
     }
     free(n->wk);
+    for (int i = 0; n->wamx && i < n->g->nops; i++)
+        free(n->wamx[i]);
+    free(n->wamx);
     free(n->v);
     free(n->pd);
     free(n->ch);

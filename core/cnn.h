@@ -25,7 +25,15 @@
  * the output is resampled bilinearly with half-pixel centres: source
  * coordinate (x + 0.5) * in / out - 0.5, clamped to the edge, which is
  * torch.nn.functional.interpolate(mode='bilinear', align_corners=False) and
- * OpenCV's INTER_LINEAR resize. */
+ * OpenCV's INTER_LINEAR resize.
+ *
+ * With dest->bf16, on a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted
+ * to the process by arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide
+ * setting), the stride-1 single-group convolutions with input and output
+ * channels in multiples of 32 round their inputs and weights to bfloat16
+ * (nearest even) and multiply on the tiles, summing in float32; the others,
+ * and every convolution elsewhere, stay float32.  Off by default: results
+ * move by a few tenths of a percent of the output's scale. */
 #ifndef ST_CNN_H
 #define ST_CNN_H
 
@@ -38,6 +46,7 @@ struct cnn_dest {
     int stride;      /* floats per destination pixel (0: nch) */
     int nch;         /* channels written (0: all) */
     const int *ch;   /* nch channel indices, or NULL for 0..nch-1 */
+    int bf16;        /* 1: bfloat16 convolutions on AMX tiles where the CPU has them */
 };
 
 /* Output shape of g for an input of c x h x w, without allocating. */

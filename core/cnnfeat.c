@@ -243,7 +243,8 @@ int cnnfeat_compute(struct cnnfeat_ctx *ctx, const struct image *img, struct fst
         ctx->net = NULL;
     }
     if (!ctx->net) {
-        struct cnn_dest d = {.w = ctx->w, .h = ctx->h, .stride = out->n, .nch = s->nch, .ch = ctx->ch};
+        struct cnn_dest d = {.w = ctx->w, .h = ctx->h, .stride = out->n, .nch = s->nch, .ch = ctx->ch,
+                             .bf16 = s->bf16};
         if (!(ctx->net = cnn_net_new(ctx->graph, s->in_channels, ctx->h, ctx->w, &d, ctx->threads, e)))
             return e ? e->code : ST_ENOMEM;
         ctx->stride = out->n;

@@ -63,6 +63,7 @@ static const char *const shape_words[] = {"rect", "circle", "ring", "polygon", "
 static const char *const expect_words[] = {"pass", "fail", NULL};
 /* cnn_input: channel order the network was trained on */
 static const char *const cnn_input_words[] = {"rgb", "bgr", NULL};
+static const char *const cnn_precision_words[] = {"fp32", "bf16", NULL};
 
 #define R(f) offsetof(struct recipe, f)
 #define CLS(f) offsetof(struct recipe_class, f)
@@ -102,6 +103,7 @@ static const struct key_def features_keys[] = {
     {"cnn_channels", V_TEXT, FEAT(cnn.channels), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->channels),
      K_OPTIONAL, NULL},
     {"cnn_input", V_WORD, FEAT(cnn.bgr), 0, 0, 0, 0, K_OPTIONAL, cnn_input_words},
+    {"cnn_precision", V_WORD, FEAT(cnn.bf16), 0, 0, 0, 0, K_OPTIONAL, cnn_precision_words},
     {"cnn_scale", V_REAL, FEAT(cnn.scale), 0, 0, 1e6, 0, K_OPTIONAL | K_LO_OPEN, NULL},
     {"cnn_mean", V_TEXT, FEAT(cnn.mean_text), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->mean_text), K_OPTIONAL,
      NULL},

@@ -1,7 +1,7 @@
 /* cnn_bench: times core/cnn on a cut ONNX graph, and measures the machine's
  * FP32 FMA peak with a small kernel of independent fused multiply-adds.
  *
- *   cnn_bench MODEL.onnx TENSOR WIDTH HEIGHT THREADS REPS
+ *   cnn_bench MODEL.onnx TENSOR WIDTH HEIGHT THREADS REPS [bf16]
  *   cnn_bench --peak THREADS
  *
  * The first prints one line "cnn w=.. h=.. threads=.. gflop=.. ms_median=..
@@ -110,9 +110,10 @@ int main(int argc, char **argv)
     if (argc == 3 && strcmp(argv[1], "--peak") == 0 && !parse_int(argv[2], &threads) && threads >= 1 &&
         threads <= 64)
         return peak(threads);
-    if (argc != 7 || parse_int(argv[3], &w) || parse_int(argv[4], &h) || parse_int(argv[5], &threads) ||
+    int bf16 = argc == 8 && strcmp(argv[7], "bf16") == 0;
+    if ((argc != 7 && !bf16) || parse_int(argv[3], &w) || parse_int(argv[4], &h) || parse_int(argv[5], &threads) ||
         parse_int(argv[6], &reps) || reps < 1 || reps > 1000) {
-        fprintf(stderr, "usage: cnn_bench MODEL.onnx TENSOR WIDTH HEIGHT THREADS REPS | --peak THREADS\n");
+        fprintf(stderr, "usage: cnn_bench MODEL.onnx TENSOR WIDTH HEIGHT THREADS REPS [bf16] | --peak THREADS\n");
         return 4;
     }
     struct err e = {0};
@@ -123,7 +124,7 @@ int main(int argc, char **argv)
         fprintf(stderr, "cnn_bench: %s\n", e.msg);
         return 3;
     }
-    struct cnn_dest d = {.w = w, .h = h};
+    struct cnn_dest d = {.w = w, .h = h, .bf16 = bf16};
     struct cnn_net *net = cnn_net_new(g, 3, h, w, &d, threads, &e);
     float *in = malloc((size_t)w * h * 3 * sizeof *in), *out = malloc((size_t)w * h * oc * sizeof *out);
     double *ms = malloc((size_t)reps * sizeof *ms);

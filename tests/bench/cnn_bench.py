@@ -2,7 +2,7 @@
 resolution) at 640x480 and 1280x960 on 1 and 2 threads: our executor
 (tests/bench/cnn_bench, core/cnn) beside torch from Debian's python3-torch in
 its default NCHW layout and in channels_last, on the same weights, in one
-run.  Prints GFLOP, median ms over REPS runs, the share of the FP32 FMA peak
+run; and our bfloat16 path (cnn_precision = bf16: AMX tiles where present).  Prints GFLOP, median ms over REPS runs, the share of the FP32 FMA peak
 (measured by cnn_bench --peak on as many threads, and the 425 GFLOP/s for 2
 cores the issue states), and the ratio to torch's better layout.
 
@@ -62,20 +62,23 @@ def main():
     with tempfile.TemporaryDirectory() as tmp:
         model = os.path.join(tmp, "vgg16_block1.onnx")
         onnx.save(vggonnx.model(blocks=1), model)
-        print("%-9s %3s %6s %9s %7s %7s %9s %9s %7s" % ("size", "thr", "GFLOP", "ours ms", "%meas", "%425",
-                                                        "nchw ms", "cl ms", "speedup"))
+        print("%-9s %3s %6s %9s %7s %7s %9s %9s %7s %9s" % ("size", "thr", "GFLOP", "ours ms", "%meas", "%425",
+                                                            "nchw ms", "cl ms", "speedup", "bf16 ms"))
         for w, h in ((640, 480), (1280, 960)):
             for t in (1, 2):
                 out = subprocess.run([exe, model, "relu1_2", str(w), str(h), str(t), str(reps)],
                                      capture_output=True, text=True).stdout
                 m = re.search(r"gflop=([0-9.]+) ms_median=([0-9.]+)", out)
                 gflop, ms = float(m.group(1)), float(m.group(2))
+                out16 = subprocess.run([exe, model, "relu1_2", str(w), str(h), str(t), str(reps), "bf16"],
+                                       capture_output=True, text=True).stdout
+                ms16 = float(re.search(r"ms_median=([0-9.]+)", out16).group(1))
                 nchw = torch_ms(ws, w, h, t, "nchw", reps)
                 cl = torch_ms(ws, w, h, t, "channels_last", reps)
                 rate = gflop / ms * 1e3
-                print("%-9s %3d %6.1f %9.1f %6.0f%% %6.0f%% %9.1f %9.1f %6.2fx" % (
+                print("%-9s %3d %6.1f %9.1f %6.0f%% %6.0f%% %9.1f %9.1f %6.2fx %9.1f" % (
                     "%dx%d" % (w, h), t, gflop, ms, 100 * rate / peaks[t], 100 * rate / (STATED_PEAK_2 * t / 2),
-                    nchw, cl, min(nchw, cl) / ms))
+                    nchw, cl, min(nchw, cl) / ms, ms16))
     return 0
 
 

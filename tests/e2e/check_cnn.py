@@ -87,7 +87,26 @@ def main():
         check("network features: %s IoU %.3f >= 0.9" % (c, ec["iou"][c]), ec["iou"][c] >= 0.9)
     check("network pixel accuracy %.4f within 0.02 of the bank's %.4f" % (ec["pixel_accuracy"], eb["pixel_accuracy"]),
           ec["pixel_accuracy"] >= eb["pixel_accuracy"] - 0.02)
-    img = os.path.join(OUT, "test", "images", sorted(os.listdir(os.path.join(OUT, "test", "images")))[0])
+    # the same model on bfloat16 features (cnn_precision = bf16): its effect, printed
+    bf = os.path.join(OUT, "cnn_bf16.ini")
+    with open(bf, "w") as f:
+        f.write(open(cnn).read().replace("cnn_channels = 0-23", "cnn_channels = 0-23\ncnn_precision = bf16"))
+    e16 = evaluate(bf)
+    if "error" in e16:
+        check("evaluate with cnn_precision = bf16", False, e16["error"])
+    else:
+        print("     bfloat16:    pixel accuracy %.4f mean IoU %.3f %s" % (e16["pixel_accuracy"], e16["mean_iou"],
+                                                                          e16["iou"]))
+        check("bfloat16 features: pixel accuracy %.4f within 0.005 of float32's %.4f" % (
+            e16["pixel_accuracy"], ec["pixel_accuracy"]), abs(e16["pixel_accuracy"] - ec["pixel_accuracy"]) <= 0.005)
+    imgs = sorted(os.listdir(os.path.join(OUT, "test", "images")))
+    verdicts = {}
+    for recipe in (cnn, bf):
+        r = run(STATION, "inspect", recipe, *[os.path.join(OUT, "test", "images", i) for i in imgs])
+        verdicts[recipe] = [json.loads(l).get("verdict") for l in r.stdout.splitlines()]
+    print("     verdicts float32 %s, bfloat16 %s" % (verdicts[cnn], verdicts[bf]))
+    check("bfloat16 features give the same verdicts", verdicts[cnn] == verdicts[bf] and len(verdicts[bf]) == len(imgs))
+    img = os.path.join(OUT, "test", "images", imgs[0])
     r = run(STATION, "inspect", cnn, img)
     verdict = json.loads(r.stdout.splitlines()[0]).get("verdict") if r.stdout else None
     check("inspect with the network recipe gives a verdict (%s)" % verdict, r.returncode in (0, 1, 2) and

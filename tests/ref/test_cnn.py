@@ -61,6 +61,12 @@ def against_torch(tmp, model, ws):
     for threads in ("1", "2"):
         rc, out = run(os.path.join(tmp, "block1"), threads, "relu1_2")
         check("VGG16 block 1 (relu1_2, 40x29) vs torch, %s thread(s): %s" % (threads, out), rc == 0)
+    # bfloat16 (AMX where the CPU has it): inputs and weights rounded to 8
+    # significant bits, so 2% of the output's scale (a bound from bfloat16's
+    # 2^-8 relative rounding summed over 576 terms, not a source)
+    write_case(os.path.join(tmp, "block1bf16"), model, x, y, rtol=0.02, atol=0.02 * float(np.abs(y).max()))
+    rc, out = run(os.path.join(tmp, "block1bf16"), "2", "relu1_2", "bf16")
+    check("VGG16 block 1 in bfloat16 vs torch float32, within 2%%: %s" % out, rc == 0)
     x = rng.standard_normal((1, 3, 64, 96)).astype(np.float32)
     y = vggonnx.torch_forward(x, ws, "pool5")
     write_case(os.path.join(tmp, "pool5"), model, x, y)

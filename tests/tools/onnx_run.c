@@ -13,9 +13,9 @@
  *
  * TENSOR cuts the graph there instead of at its first output ("" keeps it);
  * "full" brings the output back to the input's size (core/cnn.h's bilinear
- * resampling) before comparing.
+ * resampling) before comparing; "bf16" runs the bfloat16 convolutions.
  *
- *   onnx_run CASE_DIR [THREADS [TENSOR [full]]] */
+ *   onnx_run CASE_DIR [THREADS [TENSOR [full|bf16]]] */
 #include <dirent.h>
 #include <jansson.h>
 #include <math.h>
@@ -69,7 +69,7 @@ static void tolerances(const char *dir, double *rtol, double *atol)
 }
 
 /* 0 within tolerance, 1 not, 3 cannot run. */
-static int run_set(const char *dir, const char *set, int threads, const char *cut, int full, double rtol,
+static int run_set(const char *dir, const char *set, int threads, const char *cut, const char *mode, double rtol,
                    double atol)
 {
     char path[4096];
@@ -102,8 +102,8 @@ static int run_set(const char *dir, const char *set, int threads, const char *cu
     int gc, gh, gw;
     if (cnn_shape(g, c, h, w, &gc, &gh, &gw, &e))
         goto done;
-    struct cnn_dest dest = {0};
-    if (full) {
+    struct cnn_dest dest = {.bf16 = strcmp(mode, "bf16") == 0};
+    if (strcmp(mode, "full") == 0) {
         dest.w = gw = w;
         dest.h = gh = h;
     }
@@ -159,8 +159,8 @@ int main(int argc, char **argv)
 {
     int threads = 1;
     if (argc < 2 || argc > 5 || (argc >= 3 && parse_int(argv[2], &threads)) ||
-        (argc == 5 && strcmp(argv[4], "full") != 0)) {
-        fprintf(stderr, "usage: onnx_run CASE_DIR [THREADS [TENSOR [full]]]\n");
+        (argc == 5 && strcmp(argv[4], "full") != 0 && strcmp(argv[4], "bf16") != 0)) {
+        fprintf(stderr, "usage: onnx_run CASE_DIR [THREADS [TENSOR [full|bf16]]]\n");
         return 4;
     }
     double rtol, atol;
@@ -181,7 +181,8 @@ int main(int argc, char **argv)
     if (!nsets)
         printf("ERROR %s: no test_data_set_* folder\n", argv[1]);
     for (int i = 0; i < nsets; i++) {
-        int rc = run_set(argv[1], sets[i], threads, argc >= 4 ? argv[3] : "", argc == 5, rtol, atol);
+        int rc = run_set(argv[1], sets[i], threads, argc >= 4 ? argv[3] : "", argc == 5 ? argv[4] : "", rtol,
+                         atol);
         if (rc > worst)
             worst = rc;
     }
