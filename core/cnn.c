@@ -532,11 +532,13 @@ __attribute__((target("avx512f,avx512bf16"))) static void bf16_convert(const flo
         dst[i] = bf16_of(src[i]);
 }
 
-/* [tap][32-channel block][16-output block][16 pairs][16 outputs][2] */
-static uint16_t *pack_amx(const struct onnx_op *op, int cin)
+/* [tap][32-channel block][16-output block][16 pairs][16 outputs][2] over
+ * k channels per tap, zero from k up to kp (a multiple of 32): kp = k = cin
+ * for a convolution, taps 1 and k the patch size for an RGB stem. */
+static uint16_t *pack_amx(const struct onnx_op *op, int taps, int k, int kp)
 {
-    int taps = op->kh * op->kw, nkb = cin / 32, ncb = op->cout / 16;
-    uint16_t *w = malloc((size_t)taps * cin * op->cout * sizeof *w);
+    int nkb = kp / 32, ncb = op->cout / 16;
+    uint16_t *w = malloc((size_t)taps * kp * op->cout * sizeof *w);
     if (!w)
         return NULL;
     for (int t = 0; t < taps; t++)
@@ -544,9 +546,11 @@ static uint16_t *pack_amx(const struct onnx_op *op, int cin)
             for (int cb = 0; cb < ncb; cb++)
                 for (int r = 0; r < 16; r++)
                     for (int co = 0; co < 16; co++)
-                        for (int e = 0; e < 2; e++)
-                            w[((((size_t)t * nkb + kb) * ncb + cb) * 16 + r) * 32 + co * 2 + e] = bf16_of(
-                                op->w[((size_t)t * cin + kb * 32 + 2 * r + e) * op->cout + cb * 16 + co]);
+                        for (int e = 0; e < 2; e++) {
+                            int c = kb * 32 + 2 * r + e;
+                            w[((((size_t)t * nkb + kb) * ncb + cb) * 16 + r) * 32 + co * 2 + e] =
+                                c < k ? bf16_of(op->w[((size_t)t * k + c) * op->cout + cb * 16 + co]) : 0;
+                        }
     return w;
 }
 
@@ -651,6 +655,7 @@ static int conv_shifted(struct worker *wk, int s, int i, int a, int b, float *ou
         one.kh = one.kw = one.dh = one.dw = 1;
         float *q = p + (size_t)rr * wp * cin;
         int run = op->kw * cin; /* a patch row: kw pixels side by side (dw is 1 here) */
+        const uint16_t *wq = n->wamx ? n->wamx[i] : NULL;
         for (int y = a; y < b; y++) {
             for (int xo = 0; xo < o->w; xo++)
                 for (int ky = 0; ky < op->kh; ky++) {
@@ -659,6 +664,13 @@ static int conv_shifted(struct worker *wk, int s, int i, int a, int b, float *ou
                     for (int t = 0; t < run; t++) /* a few floats: a loop beats a memcpy call */
                         dst[t] = src[t];
                 }
+            if (wq) { /* patches of kk padded to 32 channels, on the tiles */
+                for (int xo = 0; xo < o->w; xo++)
+                    for (int t = 0; t < 32; t++)
+                        wk->sbf[(size_t)xo * 32 + t] = t < kk ? bf16_of(q[(size_t)xo * kk + t]) : 0;
+                amx_row(wk->sbf, wq, o->w, 32, cout, &one, 0, o->w, out + (size_t)(y - a) * o->w * cout);
+                continue;
+            }
             direct_row(q, o->w, kk, cout, &one, 0, o->w, out + (size_t)(y - a) * o->w * cout);
         }
         return 1;
@@ -965,11 +977,14 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
             goto oom;
         for (int i = 0; i < g->nops; i++) {
             const struct onnx_op *op = &g->ops[i];
-            int cin = n->v[op->in[0]].c;
-            if (op->kind != ONNX_CONV || op->sh != 1 || op->sw != 1 || op->group != 1 || op->cout % 32 ||
-                cin % 32 || n->v[i + 1].w < 32)
+            int cin = n->v[op->in[0]].c, kk = op->kh * op->kw * cin;
+            if (op->kind != ONNX_CONV || op->sh != 1 || op->sw != 1 || op->group != 1 || n->v[i + 1].w < 32)
                 continue;
-            if (!(n->wamx[i] = pack_amx(op, cin)))
+            /* the two shapes conv_shifted hands over: an RGB stem's patches, or 32k channels */
+            int patch = op->cout % 64 == 0 && cin < CI_BLOCK && kk <= 32 && op->dw == 1;
+            if (!patch && (op->cout % 32 || cin % 32))
+                continue;
+            if (!(n->wamx[i] = patch ? pack_amx(op, 1, kk, 32) : pack_amx(op, op->kh * op->kw, cin, cin)))
                 goto oom;
         }
     }
