@@ -30,7 +30,8 @@
  * With dest->bf16, on a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted
  * to the process by arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide
  * setting), the stride-1 single-group convolutions with input and output
- * channels in multiples of 32 round their inputs and weights to bfloat16
+ * channels in multiples of 32, and an RGB stem's patches of up to 32 values,
+ * round their inputs and weights to bfloat16
  * (nearest even) and multiply on the tiles, summing in float32; the others,
  * and every convolution elsewhere, stay float32.  Off by default: results
  * move by a few tenths of a percent of the output's scale. */
