@@ -20,7 +20,7 @@ OPT     ?= -O2 -g
 SANFLAGS :=
 endif
 
-PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2
+PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2 libprotobuf-c openblas
 TEST_PKGS := cmocka
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
@@ -31,7 +31,7 @@ TEST_LIBS   := $(shell pkg-config --libs $(TEST_PKGS) 2>/dev/null)
 # last so no CFLAGS from outside can drop them.
 WARN := -Wall -Wextra -Werror
 ST_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fno-math-errno $(SANFLAGS) $(PKG_CFLAGS) \
-             -I. -MMD -MP $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
+             -I. -I$(BUILD)/gen -MMD -MP $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
 ST_LDFLAGS := $(SANFLAGS) $(LDFLAGS)
 LIBS := $(PKG_LIBS) -lpthread -lm
 
@@ -67,7 +67,20 @@ $(BUILD)/tests/%.o: tests/%.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ST_CFLAGS) $(TEST_CFLAGS) -c $< -o $@
 
-$(CORE_LIB): $(call obj,$(CORE_SRC))
+# The ONNX reader's protobuf-c code is generated from Debian's onnx.proto into
+# the build folder, never committed; core/onnx.c needs its header first.
+ONNX_PROTO := /usr/include/onnx/onnx.proto
+ONNX_GEN   := $(BUILD)/gen/onnx/onnx.pb-c.c
+ONNX_GEN_O := $(BUILD)/obj/gen/onnx.pb-c.o
+$(ONNX_GEN): $(ONNX_PROTO)
+	@mkdir -p $(BUILD)/gen
+	protoc-c --proto_path=$(dir $(ONNX_PROTO)).. --c_out=$(BUILD)/gen onnx/onnx.proto
+$(ONNX_GEN_O): $(ONNX_GEN)
+	@mkdir -p $(dir $@)
+	$(CC) -std=c11 $(OPT) $(SANFLAGS) $(PKG_CFLAGS) -I$(BUILD)/gen -c $< -o $@
+$(call obj,core/onnx.c) $(BUILD)/tests/core/test_cnnfeat.o: $(ONNX_GEN)
+
+$(CORE_LIB): $(call obj,$(CORE_SRC)) $(ONNX_GEN_O)
 	$(AR) rcs $@ $^
 $(CALIB_LIB): $(call obj,$(CALIB_SRC))
 	$(AR) rcs $@ $^
@@ -97,11 +110,13 @@ $(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
 # Debian packages: `make deps` installs what is missing when run as root,
 # otherwise prints the exact apt-get line and stops.
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
-             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev
+             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev \
+             libonnx-dev protobuf-c-compiler libprotobuf-c-dev libopenblas-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
-             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb
-# Only make bench needs these: the Python peer pipeline and callgrind's counts.
-DEB_BENCH := python3-torch valgrind
+             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb \
+             libonnx-testdata python3-onnx python3-torch
+# Only make bench needs this: callgrind's instruction counts.
+DEB_BENCH := valgrind
 deps:
 	@sh tests/deps.sh $(DEB_BUILD)
 deps-test:

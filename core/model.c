@@ -2,6 +2,7 @@
 
 #include <jansson.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 int model_meta_path(const char *model_path, char *buf, size_t len, struct err *e)
@@ -16,16 +17,21 @@ static int features_signature(const struct feat_spec *spec, char hex[SHA256_HEX_
                               struct err *e)
 {
     int n = feat_count(spec);
-    size_t cap = (size_t)n * 40 + 1, len = 0;
-    char buf[64 * 40 + 1];
-    if (cap > sizeof buf)
-        return err_set(e, ST_ERANGE, "too many features (%d)", n);
+    /* a network's names carry its tensor's name, so allow long ones */
+    size_t cap = (size_t)(n > 0 ? n : 0) * 192 + 1, len = 0;
+    char *buf = malloc(cap);
+    if (!buf)
+        return err_set(e, ST_ENOMEM, "out of memory for %d feature names", n);
     for (int k = 0; k < n; k++) {
-        char name[40];
-        feat_name(spec, k, name, sizeof name);
-        len += (size_t)snprintf(buf + len, sizeof buf - len, "%s\n", name);
+        char name[192];
+        if (feat_name(spec, k, name, sizeof name)) {
+            free(buf);
+            return err_set(e, ST_ERANGE, "feature %d has no name of under %zu characters", k, sizeof name);
+        }
+        len += (size_t)snprintf(buf + len, cap - len, "%s\n", name);
     }
     sha256_hex_buffer(buf, len, hex);
+    free(buf);
     return ST_OK;
 }
 
@@ -41,6 +47,8 @@ int model_meta_from_recipe(const struct recipe *r, struct model_meta *m, struct 
         snprintf(m->classes[c], sizeof m->classes[c], "%s", r->cls[c].name);
     m->nfeatures = feat_count(&r->feat);
     m->depth = r->train.depth;
+    if (r->feat.cnn.on)
+        snprintf(m->cnn_sha256, sizeof m->cnn_sha256, "%s", r->feat.cnn.sha256);
     return features_signature(&r->feat, m->features_sha256, e);
 }
 
@@ -68,6 +76,8 @@ int model_meta_save(const char *model_path, const struct model_meta *m, struct e
                           "part_area_mm2", m->ref_part_area_mm2, "frames", m->ref_frames);
     if (!o)
         return err_set(e, ST_ENOMEM, "%s: cannot build metadata", path);
+    if (m->cnn_sha256[0])
+        json_object_set_new(o, "cnn_sha256", json_string(m->cnn_sha256));
     if (json_dump_file(o, path, JSON_INDENT(2) | JSON_SORT_KEYS) != 0)
         rc = err_set(e, ST_EIO, "%s: cannot write model metadata", path);
     json_decref(o);
@@ -132,6 +142,13 @@ int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
         m->samples[c] = (size_t)json_integer_value(json_object_get(sc, "pixels"));
         m->images[c] = (int)json_integer_value(json_object_get(sc, "images"));
     }
+    const char *cs = json_string_value(json_object_get(o, "cnn_sha256"));
+    if (cs && strlen(cs) != SHA256_HEX_LEN - 1) {
+        rc = err_set(e, ST_EFORMAT, "%s: 'cnn_sha256' is not a SHA-256", path);
+        goto done;
+    }
+    if (cs)
+        memcpy(m->cnn_sha256, cs, SHA256_HEX_LEN);
     m->recipe_version = (int)json_integer_value(json_object_get(o, "recipe_version"));
     m->nfeatures = (int)json_integer_value(json_object_get(o, "features"));
     m->best_round = (int)json_integer_value(json_object_get(o, "best_round"));
@@ -173,6 +190,11 @@ int model_check(const struct recipe *r, struct model_meta *m, struct err *e)
         return err_set(e, ST_EFORMAT,
                        "%s: model was trained on other features than recipe %s selects; retrain",
                        r->model_path, r->path);
+    if (strcmp(m->cnn_sha256, want.cnn_sha256) != 0)
+        return err_set(e, ST_EFORMAT, "%s: trained with network %s of SHA-256 %.12s..., recipe %s now reads "
+                       "%.12s...; the network changed, retrain", r->model_path, r->feat.cnn.model,
+                       m->cnn_sha256[0] ? m->cnn_sha256 : "(none)", r->path,
+                       want.cnn_sha256[0] ? want.cnn_sha256 : "(none)");
     char hex[SHA256_HEX_LEN];
     if ((rc = sha256_hex_file(r->model_path, hex, e)))
         return rc;

@@ -4,7 +4,8 @@
  * XGBoost's own file holds only trees; MODEL.meta.json (format 1, JSON)
  * records what the trees mean: the product, the class names in order, the
  * feature names in order, the model file's SHA-256, the training sample
- * counts, the validation result and the image references the gates use
+ * counts, the validation result, the image references the gates use
+ * and, with a network as feature extractor, its ONNX file's SHA-256
  * (sharpness and part area over the training frames).  model_check refuses a model whose file
  * changed since training (hash), whose classes or features differ from the
  * recipe's, or that was trained for another product — each with a one-line
@@ -25,6 +26,7 @@ struct model_meta {
     int recipe_version;
     char model_sha256[SHA256_HEX_LEN];
     char features_sha256[SHA256_HEX_LEN];   /* over the feature names joined by '\n' */
+    char cnn_sha256[SHA256_HEX_LEN];        /* of the recipe's ONNX network, "" without one */
     int nfeatures;
     int nclasses;
     char classes[RECIPE_MAX_CLASSES][32];

@@ -45,7 +45,7 @@ enum {
     K_NONE = 1u << 2      /* accepts "none", stored as -1 */
 };
 
-#define MAX_KEYS 12
+#define MAX_KEYS 16
 /* each single section once, the classes, their tolerances (also per zone),
  * the zones and the master parts */
 #define MAX_SECTIONS                                                                               \
@@ -67,6 +67,9 @@ static const char *const orient_words[] = {"fixed", "moments", NULL};
 static const char *const shape_words[] = {"rect", "circle", "ring", "polygon", "mask", NULL};
 /* enum verdict order */
 static const char *const expect_words[] = {"pass", "fail", NULL};
+/* cnn_input: channel order the network was trained on */
+static const char *const cnn_input_words[] = {"rgb", "bgr", NULL};
+static const char *const cnn_precision_words[] = {"fp32", "bf16", NULL};
 
 #define R(f) offsetof(struct recipe, f)
 #define CLS(f) offsetof(struct recipe_class, f)
@@ -91,7 +94,8 @@ static const struct key_def class_keys[] = {
 
 static const struct key_def features_keys[] = {
     {"families", V_FAMILIES, FEAT(families), 0, 0, 0, 0, 0, NULL},
-    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, 0, NULL},
+    /* required only with a per-sigma family: checked after parsing */
+    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, K_OPTIONAL, NULL},
     {"gabor_orientations", V_INT, FEAT(gabor_orientations), 0, 1, FEAT_MAX_ORIENT, 0,
      K_OPTIONAL, NULL},
     /* required only with family gabor: checked after parsing */
@@ -99,6 +103,18 @@ static const struct key_def features_keys[] = {
      FEAT_MAX_GABOR_FREQS, K_OPTIONAL | K_LO_OPEN, NULL},
     {"normalise", V_YESNO, FEAT(normalise), 0, 0, 0, 0, K_OPTIONAL, NULL},
     {"threads", V_INT, FEAT(threads), 0, 1, 64, 0, K_OPTIONAL, NULL},
+    /* a cut pretrained network (core/cnnfeat.h); read by check_cnn */
+    {"cnn_model", V_FILE, FEAT(cnn.model), 0, 0, 0, 0, K_OPTIONAL, NULL},
+    {"cnn_output", V_TEXT, FEAT(cnn.output), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->output), K_OPTIONAL, NULL},
+    {"cnn_channels", V_TEXT, FEAT(cnn.channels), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->channels),
+     K_OPTIONAL, NULL},
+    {"cnn_input", V_WORD, FEAT(cnn.bgr), 0, 0, 0, 0, K_OPTIONAL, cnn_input_words},
+    {"cnn_precision", V_WORD, FEAT(cnn.bf16), 0, 0, 0, 0, K_OPTIONAL, cnn_precision_words},
+    {"cnn_scale", V_REAL, FEAT(cnn.scale), 0, 0, 1e6, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"cnn_mean", V_TEXT, FEAT(cnn.mean_text), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->mean_text), K_OPTIONAL,
+     NULL},
+    {"cnn_std", V_TEXT, FEAT(cnn.std_text), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->std_text), K_OPTIONAL,
+     NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def classifier_keys[] = {
@@ -703,6 +719,10 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
     case V_REALS:
         return store_reals(p, k, base, value);
     case V_FAMILIES:
+        if (!strcmp(value, "none")) { /* a network's features only: check_cnn insists on one */
+            *(unsigned *)(base + k->off) = 0;
+            return ST_OK;
+        }
         return store_word_set(p, k, base, value, family_name, NFAMILIES, 0);
     case V_GRADE:
         if (is_none) {
@@ -965,6 +985,9 @@ static int check_sections(struct parse *p)
             return fail_at(p, s->line, ST_EFORMAT,
                            "[%s] lacks key 'gabor_frequencies' (required with family gabor)",
                            s->title);
+        if (s->kind == SEC_FEATURES && (p->r.feat.families & ~(unsigned)(FEAT_COLOUR | FEAT_GABOR)) &&
+            !s->key_line[key_index(SEC_FEATURES, "sigmas")])
+            return fail_at(p, s->line, ST_EFORMAT, "[%s] lacks key 'sigmas'", s->title);
     }
     return ST_OK;
 }
@@ -1128,6 +1151,19 @@ static int check_gates(struct parse *p)
 
 /* The scale comes one way only: the two mm_per_px keys, or a calibration
  * file whose scale (at the target's centre) fills them. */
+/* A network named by cnn_model is read now, so feature counts, names and
+ * the file's digest are known from here on. */
+static int check_cnn(struct parse *p)
+{
+    struct cnnfeat_spec *c = &p->r.feat.cnn;
+    c->on = c->model[0] != 0;
+    if (!c->on && p->r.feat.families == 0)
+        return fail_at(p, 0, ST_EFORMAT, "[features] families = none needs cnn_model");
+    if (!c->on && (c->output[0] || c->channels[0] || c->mean_text[0] || c->std_text[0]))
+        return fail_at(p, 0, ST_EFORMAT, "[features] cnn_* keys need cnn_model");
+    return cnnfeat_resolve(c, p->path, p->e);
+}
+
 static int check_scale(struct parse *p)
 {
     const struct section *s = NULL;
@@ -1212,6 +1248,7 @@ static int check_trigger(struct parse *p)
 
 static void set_defaults(struct recipe *r)
 {
+    cnnfeat_spec_default(&r->feat.cnn);
     r->feat.gabor_orientations = 4;
     r->feat.normalise = 1;
     r->feat.threads = 2;
@@ -1288,7 +1325,7 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
         (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
         (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK ||
         (rc = check_masters(p)) != ST_OK || (rc = check_camera(p)) != ST_OK ||
-        (rc = check_trigger(p)) != ST_OK)
+        (rc = check_trigger(p)) != ST_OK || (rc = check_cnn(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:

@@ -34,5 +34,18 @@ int cmd_recipe(int argc, char **argv)
                     "model %s\n",
             argv[2], r.product, r.version, r.nclasses, defects, r.nzones, feat_count(&r.feat),
             r.model_path);
+    if (r.feat.cnn.on) {
+        const struct cnnfeat_spec *c = &r.feat.cnn;
+        int oc, oh, ow;
+        struct err e = {0};
+        if (cnnfeat_shape(c, 640, 480, &oc, &oh, &ow, &e)) {
+            fprintf(stderr, "%s\n", e.msg);
+            return EXIT_ERROR;
+        }
+        fprintf(stderr, "%s: network %s cut at %s: %lld parameters, output %d x %d x %d (C x H x W) for a "
+                        "640x480 frame%s; %d of its channels used\n",
+                argv[2], c->model, c->output[0] ? c->output : "(graph output)", c->params, oc, oh, ow,
+                oh != 480 || ow != 640 ? ", brought back to full size bilinearly" : "", c->nch);
+    }
     return 0;
 }
