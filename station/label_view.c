@@ -129,7 +129,7 @@ int label_view_new(const struct label_view_options *o, struct label_view **out, 
         goto fail;
     v->pad = screen_layout_text_px(o->height, SCREEN_PX_SMALL) / 2;
     int status_h = screen_text_line(v->text, SCREEN_PX_BODY) + 2 * v->pad;
-    int panel_w = o->width / 4 < 320 ? 320 : o->width / 4;
+    int panel_w = o->width * 3 / 10 < 360 ? 360 : o->width * 3 / 10;
     v->picture = rect(0, 0, o->width - panel_w, o->height - status_h);
     v->panel = rect(o->width - panel_w, 0, panel_w, o->height - status_h);
     v->status = rect(0, o->height - status_h, o->width, status_h);
@@ -358,20 +358,20 @@ static void panel(struct label_view *v, const struct label_app *a)
     y = image_list(v, a, x, y + small + pad / 2, w) + pad;
     y = legend(v, a, x, y, w) + pad / 2;
     if (a->tool == LABEL_FILL)
-        snprintf(s, sizeof s, "fill %s, colour tolerance %d", a->names[a->cls], a->tol);
+        snprintf(s, sizeof s, "fill: %s, tolerance %d", a->names[a->cls], a->tol);
     else
-        snprintf(s, sizeof s, "%s, radius %d px", a->tool == LABEL_ERASER ? "eraser" : "brush",
+        snprintf(s, sizeof s, "%s: radius %d px", a->tool == LABEL_ERASER ? "eraser" : "brush",
                  a->radius);
     screen_text_draw(v->text, SCREEN_PX_BODY, s, text, x, y, SCREEN_LEFT, w, 0);
     y += screen_text_line(v->text, SCREEN_PX_BODY);
     snprintf(s, sizeof s, "%s",
              !a->has_recipe ? "quick model: needs --recipe"
              : !a->model    ? "quick model: not trained (T)"
-             : a->show_pred ? "prediction shown under the labels (O hides)"
+             : a->show_pred ? "prediction shown (O hides it)"
                             : "prediction hidden (O shows)");
     screen_text_draw(v->text, SCREEN_PX_SMALL, s, dim, x, y, SCREEN_LEFT, w, 0);
     y += small + pad;
-    int col = w * 9 / 20;
+    int col = w * 2 / 5;
     for (int i = 0; i < label_nkeys && y + small <= p->y + p->h; i++, y += small) {
         screen_text_draw(v->text, SCREEN_PX_SMALL, label_keys[i].keys, text, x, y, SCREEN_LEFT,
                          col - pad, 0);
