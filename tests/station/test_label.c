@@ -363,9 +363,16 @@ static void paint_from_truth(struct label_app *a, const struct image *truth)
             len += (size_t)snprintf(script + len, sizeof script - len, "key [\n");
         for (int k = 0; k < r; k++)
             len += (size_t)snprintf(script + len, sizeof script - len, "key ]\n");
-        for (int i = 0; i < n; i++)
-            len += (size_t)snprintf(script + len, sizeof script - len, "down %d %d\nup %d %d\n",
-                                    xs[i], ys[i], xs[i], ys[i]);
+        /* a stroke along the row while the disc stays inside the class, at
+         * most 40 px, as an engineer drags the brush along a region */
+        for (int i = 0; i < n; i++) {
+            int x1 = xs[i];
+            while (x1 + 1 < truth->w - r && x1 - xs[i] < 40 && deep(truth, c, r, x1 + 1, ys[i]))
+                x1++;
+            len += (size_t)snprintf(script + len, sizeof script - len,
+                                    "down %d %d\nmove %d %d\nup %d %d\n", xs[i], ys[i], x1,
+                                    ys[i], x1, ys[i]);
+        }
     }
     run_script(a, script);
 }
@@ -421,6 +428,8 @@ static void test_quick_retrain_improves_the_overlay(void **state)
         best_const = m > best_const ? m : best_const;
     }
     free(flat);
+    /* the pointer over the part with a brush of radius 6, for the picture */
+    run_script(a, "key 1\nkey ]\nkey ]\nkey ]\nkey ]\nkey ]\nmove 140 150\n");
     shot(a, "label-painted");
     if (label_app_retrain(a, &e))
         fail_msg("%s", e.msg);
