@@ -79,7 +79,8 @@ static void set_classes(struct label_app *a)
     if (a->has_recipe) {
         a->nclasses = a->r.nclasses;
         for (int c = 0; c < a->nclasses; c++) {
-            snprintf(a->names[c], sizeof a->names[c], "%s", a->r.cls[c].name);
+            _Static_assert(sizeof a->names[c] == sizeof a->r.cls[c].name, "class name sizes");
+            memcpy(a->names[c], a->r.cls[c].name, sizeof a->names[c]);
             memcpy(a->rgb[c], a->r.cls[c].rgb, 3);
         }
         return;
