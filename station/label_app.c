@@ -13,14 +13,14 @@
 #include "label_quick.h"
 
 const struct label_key label_keys[] = {
-    {"0 … 9", "class to paint"},
+    {"0 to 9", "class to paint"},
     {"left button", "use the tool"},
     {"right button", "erase"},
     {"B  E  F", "brush, eraser, fill"},
     {"[  ]", "brush size"},
     {"Shift+wheel", "brush size"},
     {",  .", "fill tolerance"},
-    {"wheel  +  −", "zoom at pointer"},
+    {"wheel  +  -", "zoom at pointer"},
     {"Z", "whole image"},
     {"arrows", "pan (middle drag)"},
     {"Ctrl+Z  Ctrl+Y", "undo, redo"},
