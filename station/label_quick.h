@@ -8,7 +8,7 @@
  * from the saved masks of the dataset's other images and from the mask
  * being edited for the current one.  Training is the recipe's booster
  * (core/booster.h) cut down: at most LABEL_QUICK_ROUNDS rounds of depth at
- * most LABEL_QUICK_DEPTH, no early stopping, a tenth of the sample held out
+ * most LABEL_QUICK_DEPTH on one thread, no early stopping, a tenth of the sample held out
  * only because XGBoost's training wants a validation set.  Classes nobody
  * has painted yet are simply never predicted.  The recipe's model file is
  * never read or written. */
