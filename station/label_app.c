@@ -304,10 +304,10 @@ static int key(struct label_app *a, const SDL_KeyboardEvent *k, struct err *e)
     if (a->stroke)   /* keys wait until the stroke is finished */
         return ST_OK;
     if (ctrl) {
-        if (sym == SDLK_z && !shift && !label_doc_undo(a->doc))
-            say(a, 0, "nothing to undo");
-        else if ((sym == SDLK_y || (sym == SDLK_z && shift)) && !label_doc_redo(a->doc))
-            say(a, 0, "nothing to redo");
+        if (sym == SDLK_z && !shift)
+            say(a, 0, "%s", label_doc_undo(a->doc) ? "undone" : "nothing to undo");
+        else if (sym == SDLK_y || (sym == SDLK_z && shift))
+            say(a, 0, "%s", label_doc_redo(a->doc) ? "redone" : "nothing to redo");
         else if (sym == SDLK_s)
             return label_app_save(a, e);
         return ST_OK;

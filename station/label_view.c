@@ -312,30 +312,36 @@ static int image_list(struct label_view *v, const struct label_app *a, int x, in
     return y;
 }
 
+/* The classes with their keys and colours, then the eraser; more than six
+ * classes go in two columns of smaller text, so the keys below still fit. */
 static int legend(struct label_view *v, const struct label_app *a, int x, int y, int w)
 {
     static const uint8_t text[3] = SCREEN_RGB_TEXT, dim[3] = SCREEN_RGB_DIM, sky[3] = SCREEN_RGB_SKY;
-    int line = screen_text_line(v->text, SCREEN_PX_BODY) + 4;
     int shown = a->nclasses < 10 ? a->nclasses : 10;
+    int cols = shown > 6 ? 2 : 1, rows = (shown + cols - 1) / cols;
+    enum screen_text_size size = cols > 1 ? SCREEN_PX_SMALL : SCREEN_PX_BODY;
+    int line = screen_text_line(v->text, size) + 4, cw = w / cols;
     for (int c = 0; c <= shown; c++) {
         int eraser = c == shown;
+        int cx = eraser ? x : x + c / rows * cw, cy = eraser ? y + rows * line : y + c % rows * line;
+        int colw = eraser ? w : cw;
         int selected = eraser ? a->tool == LABEL_ERASER : a->tool != LABEL_ERASER && c == a->cls;
         if (selected)
-            screen_paint_frame(v->ren, rect(x - 4, y, w + 8, line), 2, sky);
+            screen_paint_frame(v->ren, rect(cx - 4, cy, colw + (eraser || cols == 1 ? 8 : 0), line), 2,
+                               sky);
         char k[8], name[48];
         snprintf(k, sizeof k, "%s", eraser ? "E" : (char[]){(char)('0' + c), 0});
-        screen_text_draw(v->text, SCREEN_PX_BODY, k, text, x + 6, y + 2, SCREEN_LEFT, 0, 0);
-        struct screen_rect sw = rect(x + 32, y + 5, 2 * line - 10, line - 10);
+        screen_text_draw(v->text, size, k, text, cx + 6, cy + 2, SCREEN_LEFT, 0, 0);
+        struct screen_rect sw = rect(cx + 28, cy + 5, (cols > 1 ? 1 : 2) * line - 6, line - 10);
         if (eraser)
             screen_paint_frame(v->ren, sw, 2, dim);
         else
             screen_paint_rect(v->ren, sw, a->rgb[c]);
         snprintf(name, sizeof name, "%s", eraser ? "eraser (unlabelled)" : a->names[c]);
-        screen_text_draw(v->text, SCREEN_PX_BODY, name, selected ? text : dim,
-                         sw.x + sw.w + 10, y + 2, SCREEN_LEFT, w - (sw.x + sw.w + 10 - x), 0);
-        y += line;
+        screen_text_draw(v->text, size, name, selected ? text : dim, sw.x + sw.w + 8, cy + 2,
+                         SCREEN_LEFT, colw - (sw.x + sw.w + 12 - cx), 0);
     }
-    return y;
+    return y + (rows + 1) * line;
 }
 
 static void panel(struct label_view *v, const struct label_app *a)
