@@ -245,8 +245,17 @@ static void pointer_pixel(const struct label_app *a, int *ix, int *iy)
     label_zoom_to_image(&a->zoom, a->mouse_x, a->mouse_y, ix, iy);
 }
 
+static int in_picture(const struct label_app *a)
+{
+    const struct screen_rect *r = &a->zoom.area;
+    return a->mouse_x >= r->x && a->mouse_y >= r->y && a->mouse_x < r->x + r->w &&
+           a->mouse_y < r->y + r->h;
+}
+
 static int stroke_start(struct label_app *a, int button, struct err *e)
 {
+    if (!in_picture(a))   /* a click on the panel paints nothing hidden under it */
+        return ST_OK;
     int x, y;
     pointer_pixel(a, &x, &y);
     int erase = button == SDL_BUTTON_RIGHT || a->tool == LABEL_ERASER;
@@ -290,6 +299,20 @@ static int stroke_end(struct label_app *a, struct err *e)
 static void zoom_key(struct label_app *a, double factor)
 {
     label_zoom_at(&a->zoom, a->mouse_x, a->mouse_y, factor);
+}
+
+/* Saves first; a mask that cannot be saved keeps the window open once, with
+ * the reason on the status line, so the strokes are not lost unseen. */
+static int quit(struct label_app *a, struct err *e)
+{
+    int rc = label_app_save(a, e);
+    if (rc && !a->quit_refused) {
+        a->quit_refused = 1;
+        say(a, 1, "%s; quit again to leave without saving", e->msg);
+        return rc;
+    }
+    a->quit = 1;
+    return ST_OK;
 }
 
 static int clampi(int v, int lo, int hi)
@@ -357,7 +380,7 @@ static int key(struct label_app *a, const SDL_KeyboardEvent *k, struct err *e)
             return predict(a, e);
         break;
     case SDLK_q:
-    case SDLK_ESCAPE: a->quit = 1; break;
+    case SDLK_ESCAPE: return quit(a, e);
     default: break;
     }
     return ST_OK;
@@ -366,7 +389,7 @@ static int key(struct label_app *a, const SDL_KeyboardEvent *k, struct err *e)
 int label_app_event(struct label_app *a, const SDL_Event *ev, struct err *e)
 {
     switch (ev->type) {
-    case SDL_QUIT: a->quit = 1; return ST_OK;
+    case SDL_QUIT: return quit(a, e);
     case SDL_KEYDOWN: return key(a, &ev->key, e);
     case SDL_MOUSEBUTTONDOWN:
         a->mouse_x = ev->button.x;
@@ -397,7 +420,7 @@ int label_app_event(struct label_app *a, const SDL_Event *ev, struct err *e)
         if (SDL_GetModState() & KMOD_SHIFT)
             a->radius = clampi(a->radius + ev->wheel.y, 0, LABEL_APP_MAX_RADIUS);
         else if (ev->wheel.y)
-            zoom_key(a, ev->wheel.y > 0 ? LABEL_ZOOM_STEP : 1 / LABEL_ZOOM_STEP);
+            zoom_key(a, pow(LABEL_ZOOM_STEP, ev->wheel.y));   /* a step per click */
         return ST_OK;
     default: return ST_OK;
     }

@@ -5,7 +5,8 @@
  * Events come as SDL_Events (from the window, or made from a script), so the
  * tests drive exactly the code an engineer's mouse and keys drive.  The mask
  * is saved (station/label_file.h) on the save key, and before another image
- * is opened or the session ends when it changed.  At start every label file
+ * is opened or the session ends when it changed; a quit whose save fails
+ * keeps the window open once, with the reason.  At start every label file
  * present is checked against its picture and the class count (the recipe's,
  * or LABEL_APP_DEFAULT_CLASSES without one); the first bad one refuses the
  * session, naming the file.  The quick model (station/label_quick.h) is
@@ -58,6 +59,7 @@ struct label_app {
     char status[LABEL_APP_MSG];
     int status_error;
     int quit;
+    int quit_refused;         /* a quit found the mask unsavable once */
     struct label_view *view;
 };
 

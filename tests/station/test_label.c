@@ -26,6 +26,7 @@
 #include <SDL.h>
 #include <ftw.h>
 #include <libgen.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -238,6 +239,57 @@ static void test_strokes_erase_fill_undo_redo_save(void **state)
     assert_same_mask(label_doc_mask(a->doc), want);
     assert_false(label_doc_dirty(a->doc));
     label_app_free(a, &e);
+}
+
+static void test_panel_click_and_unsavable_quit(void **state)
+{
+    (void)state;
+    make_dataset();
+    /* a file where the labels folder should be: no mask can be saved */
+    char p[128];
+    snprintf(p, sizeof p, "%s/labels", dir);
+    FILE *f = fopen(p, "w");
+    assert_non_null(f);
+    fclose(f);
+    struct err e;
+    struct label_app *a = open_app(NULL, &e);
+    if (!a)
+        fail_msg("%s", e.msg);
+    /* zoomed in, image pixels lie under the panel too: a click there paints none */
+    double before = a->zoom.scale;
+    run_script(a, "move 90 30\nwheel 90 30 5\n");
+    int px, py;
+    label_zoom_to_image(&a->zoom, a->mouse_x, a->mouse_y, &px, &py);
+    assert_int_equal(px, 90);   /* zoomed around the pointer: the same pixel under it */
+    assert_int_equal(py, 30);
+    assert_true(fabs(a->zoom.scale / before - pow(LABEL_ZOOM_STEP, 5)) < 1e-9);
+    SDL_Event ev;
+    memset(&ev, 0, sizeof ev);
+    ev.type = SDL_MOUSEBUTTONDOWN;
+    ev.button.button = SDL_BUTTON_LEFT;
+    ev.button.x = a->zoom.area.x + a->zoom.area.w + 20;
+    ev.button.y = a->zoom.area.y + a->zoom.area.h / 2;
+    int ix, iy;
+    label_zoom_to_image(&a->zoom, ev.button.x, ev.button.y, &ix, &iy);
+    assert_true(ix >= 0 && ix < W && iy >= 0 && iy < H);   /* an image pixel is under it */
+    assert_int_equal(label_app_event(a, &ev, &e), ST_OK);
+    ev.type = SDL_MOUSEBUTTONUP;
+    assert_int_equal(label_app_event(a, &ev, &e), ST_OK);
+    assert_int_equal(label_doc_labelled(a->doc), 0);
+    /* a stroke that cannot be saved keeps the window open once */
+    run_script(a, "key z\ndown 10 10\nup 10 10\n");
+    assert_true(label_doc_dirty(a->doc));
+    memset(&ev, 0, sizeof ev);
+    ev.type = SDL_KEYDOWN;
+    ev.key.keysym.sym = SDLK_q;
+    assert_int_not_equal(label_app_event(a, &ev, &e), ST_OK);
+    assert_false(a->quit);
+    assert_non_null(strstr(a->status, "quit again to leave without saving"));
+    assert_non_null(strstr(e.msg, "/labels/a.png"));
+    assert_int_equal(label_app_event(a, &ev, &e), ST_OK);
+    assert_true(a->quit);
+    assert_int_not_equal(label_app_free(a, &e), ST_OK);   /* and says why at the end */
+    unlink(p);
 }
 
 static void test_undo_history_is_bounded(void **state)
@@ -482,6 +534,7 @@ int main(int argc, char **argv)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_offscreen_needs_the_flag),
         cmocka_unit_test(test_strokes_erase_fill_undo_redo_save),
+        cmocka_unit_test(test_panel_click_and_unsavable_quit),
         cmocka_unit_test(test_undo_history_is_bounded),
         cmocka_unit_test(test_bad_label_files_are_refused),
         cmocka_unit_test(test_quick_retrain_improves_the_overlay),
