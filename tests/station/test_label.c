@@ -483,6 +483,12 @@ static void test_quick_retrain_improves_the_overlay(void **state)
     /* the pointer over the part with a brush of radius 6, for the picture */
     run_script(a, "key 1\nkey ]\nkey ]\nkey ]\nkey ]\nkey ]\nmove 140 150\n");
     shot(a, "label-painted");
+    /* what the window shows while the quick model trains */
+    char tp[600];
+    snprintf(tp, sizeof tp, "%s/label-training.png", shot_dir);
+    if (label_view_draw(a->view, a, "training the quick model on the painted pixels…", &e) ||
+        label_view_snapshot(a->view, tp, &e))
+        fail_msg("%s", e.msg);
     if (label_app_retrain(a, &e))
         fail_msg("%s", e.msg);
     assert_non_null(a->model);
