@@ -55,6 +55,7 @@ int cmd_calibrate(int argc, char **argv);
 int cmd_verify(int argc, char **argv);
 int cmd_audit(int argc, char **argv);
 int cmd_run(int argc, char **argv);
+int cmd_label(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
 
 /* True when argv holds -h or --help; such commands print usage and return 0. */

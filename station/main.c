@@ -16,6 +16,7 @@ static const struct {
     {"recipe", cmd_recipe, "check a recipe file"},
     {"calibrate", cmd_calibrate, "measure the bench: pixel scale from a checkerboard target, flat field"},
     {"run", cmd_run, "the live station: camera, replay or simulated bench; trigger, screen, log"},
+    {"label", cmd_label, "paint class labels over a dataset's images; quick model preview"},
     {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
     {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify, stats, report, export, view"},
