@@ -189,6 +189,27 @@ static int compose(struct label_view *v, const struct label_app *a, struct err *
         if (mask[i] != LABEL_UNLABELLED)
             blend(p, a->rgb[mask[i]], LABEL_ALPHA);
     }
+    /* A class colour close to the picture's (the near-black background
+     * class over a dark bench mat) would hide its strokes: each painted
+     * region gets a one-pixel rim on the unlabelled pixels around it (its
+     * own pixels keep their colour, so a thin scratch stroke stays
+     * yellow), light for a dark class, dark for a light one. */
+    for (int y = 0; y < img->h; y++)
+        for (int x = 0; x < img->w; x++) {
+            size_t i = (size_t)y * img->w + x;
+            if (mask[i] != LABEL_UNLABELLED)
+                continue;
+            uint8_t m = x > 0 && mask[i - 1] != LABEL_UNLABELLED               ? mask[i - 1]
+                        : x + 1 < img->w && mask[i + 1] != LABEL_UNLABELLED     ? mask[i + 1]
+                        : y > 0 && mask[i - img->w] != LABEL_UNLABELLED         ? mask[i - img->w]
+                        : y + 1 < img->h && mask[i + img->w] != LABEL_UNLABELLED ? mask[i + img->w]
+                                                                                 : LABEL_UNLABELLED;
+            if (m == LABEL_UNLABELLED)
+                continue;
+            const uint8_t *c = a->rgb[m];
+            uint8_t ink = 0.299 * c[0] + 0.587 * c[1] + 0.114 * c[2] < 128 ? 235 : 20;
+            memset(&v->comp->px[i * 3], ink, 3);
+        }
     return ST_OK;
 }
 
