@@ -20,7 +20,7 @@ OPT     ?= -O2 -g
 SANFLAGS :=
 endif
 
-PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2
+PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2 libsodium
 TEST_PKGS := cmocka
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
@@ -97,9 +97,9 @@ $(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
 # Debian packages: `make deps` installs what is missing when run as root,
 # otherwise prints the exact apt-get line and stops.
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
-             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev
+             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev libsodium-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
-             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb
+             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb python3-nacl
 # Only make bench needs these: the Python peer pipeline and callgrind's counts.
 DEB_BENCH := python3-torch valgrind
 deps:
