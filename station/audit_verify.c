@@ -68,7 +68,7 @@ int audit_verify(int argc, char **argv)
         log_close(db);
         return EXIT_ERROR;
     }
-    cli_emit(json_pack("{s:b,s:s?,s:b,s:I,s:I,s:I,s:I,s:I,s:I,s:I,s:f,s:s?,s:I,s:b,s:s?}", "ok",
+    cli_emit(json_pack("{s:b,s:s?,s:b,s:I,s:I,s:I,s:I,s:I,s:I,s:f,s:s?,s:I,s:b,s:s?}", "ok",
                          v.ok, "public_key", v.public_key[0] ? v.public_key : NULL, "key_given",
                          v.key_given, "signed", (json_int_t)v.signed_links, "unsigned",
                          (json_int_t)v.unsigned_links, "records",
