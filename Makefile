@@ -93,6 +93,12 @@ $(EMUCAM_SO): tests/emucam/emucam.c tests/emucam/emucam.h
 	$(CC) -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fPIC -shared -fvisibility=hidden -I. \
 	    $(CFLAGS) $(WARN) -o $@ $<
 $(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
+# The log fault tests' LD_PRELOAD shim (tests/faultio/faultio.c): like the
+# plugin, no sanitizer runtime of its own.
+FAULTIO_SO  := $(BUILD)/tests/faultio/libfaultio.so
+$(FAULTIO_SO): tests/faultio/faultio.c
+	@mkdir -p $(dir $@)
+	$(CC) -std=c11 $(OPT) -fPIC -shared -fvisibility=hidden $(CFLAGS) $(WARN) -o $@ $< -ldl
 
 # Debian packages: `make deps` installs what is missing when run as root,
 # otherwise prints the exact apt-get line and stops.
@@ -114,7 +120,7 @@ check: deps-test
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) SAN=$(SAN) sh tests/run.sh
 
 .PHONY: test-programs
-test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO)
+test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO) $(FAULTIO_SO)
 
 DEMO_OUT ?= $(BUILD)/demo
 demo: deps
