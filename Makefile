@@ -56,7 +56,7 @@ APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
 # libv4l2's plugin folder (tests/emucam/emucam.h).
 EMUCAM_SO   := $(BUILD)/tests/emucam/libv4l-emucam.so
 
-.PHONY: all check demo bench install uninstall clean deps deps-test deps-bench
+.PHONY: all check demo bench soak install uninstall clean deps deps-test deps-bench
 all: $(STATION_BIN)
 
 $(BUILD)/obj/%.o: %.c
@@ -130,6 +130,12 @@ demo: deps
 bench: deps-bench
 	@$(MAKE) --no-print-directory test-programs
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/bench/run.sh
+
+# Not part of check: hours at the default 100000 inspections
+# (SOAK_INSPECTIONS=N for fewer); tests/soak/soak.sh says what it watches.
+soak: deps
+	@$(MAKE) --no-print-directory $(STATION_BIN)
+	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/soak/soak.sh
 
 install: $(STATION_BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/station/recipes

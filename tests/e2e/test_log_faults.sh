@@ -2,7 +2,8 @@
 # Injected faults on the log: the LD_PRELOAD shim tests/faultio fails the
 # N-th write or sync to the log's folder (database, WAL, evidence), for every
 # N from 1 to the number of such calls a clean run makes — `station inspect`
-# of the fixture's three parts onto a log that already holds one record,
+# of two of the fixture's parts (a FAIL with evidence, a PASS) onto a log
+# that already holds one record,
 # then `station run --headless` on the simulated bench.  After each run
 # (check_faults.py, reading the log with Python's own sqlite3, hashlib and
 # PyNaCl): PRAGMA integrity_check, chain and signatures intact, and
@@ -40,7 +41,8 @@ one() {
     set -- FAULTIO_DIR="$(realpath "$d/log")" FAULTIO_AT="$n" FAULTIO_REPORT="$d/shim" LD_PRELOAD="$SHIM"
     set +e
     if [ "$kind" = inspect ]; then
-        env "$@" "$S" inspect "$recipe" "$images/part-0004.png" "$images/part-0005.png" --log "$d/log/station.db" \
+        env "$@" "$S" inspect "$recipe" "$images/part-0004.png" "$images/part-0005.png" \
+            --log "$d/log/station.db" \
             >"$d/out.jsonl" 2>"$d/err"
     else
         env "$@" "$S" run "$recipe" --source bench:seed=3 --headless --trigger auto --fps 0 \
