@@ -220,7 +220,7 @@ static void test_wholesale_rewrite(void **state)
     log_close(db);
     r[1].verdict = VERDICT_PASS;
     for (int i = 1; i < 4; i++) {
-        snprintf(r[i].prev_hash, sizeof r[i].prev_hash, "%s", r[i - 1].hash);
+        memcpy(r[i].prev_hash, r[i - 1].hash, sizeof r[i].prev_hash);
         assert_int_equal(logcanon_record_hash(&r[i], r[i].hash, &e), ST_OK);
         char q2[600];
         snprintf(q2, sizeof q2,
