@@ -20,7 +20,8 @@ OPT     ?= -O2 -g
 SANFLAGS :=
 endif
 
-PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2 libprotobuf-c openblas
+PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2 libprotobuf-c openblas \
+             libsodium
 TEST_PKGS := cmocka
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
@@ -56,7 +57,7 @@ APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
 # libv4l2's plugin folder (tests/emucam/emucam.h).
 EMUCAM_SO   := $(BUILD)/tests/emucam/libv4l-emucam.so
 
-.PHONY: all check demo bench install uninstall clean deps deps-test deps-bench
+.PHONY: all check demo bench soak install uninstall clean deps deps-test deps-bench
 all: $(STATION_BIN)
 
 $(BUILD)/obj/%.o: %.c
@@ -106,15 +107,21 @@ $(EMUCAM_SO): tests/emucam/emucam.c tests/emucam/emucam.h
 	$(CC) -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fPIC -shared -fvisibility=hidden -I. \
 	    $(CFLAGS) $(WARN) -o $@ $<
 $(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
+# The log fault tests' LD_PRELOAD shim (tests/faultio/faultio.c): like the
+# plugin, no sanitizer runtime of its own.
+FAULTIO_SO  := $(BUILD)/tests/faultio/libfaultio.so
+$(FAULTIO_SO): tests/faultio/faultio.c
+	@mkdir -p $(dir $@)
+	$(CC) -std=c11 $(OPT) -fPIC -shared -fvisibility=hidden $(CFLAGS) $(WARN) -o $@ $< -ldl
 
 # Debian packages: `make deps` installs what is missing when run as root,
 # otherwise prints the exact apt-get line and stops.
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
              libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev \
-             libonnx-dev protobuf-c-compiler libprotobuf-c-dev libopenblas-dev
+             libonnx-dev protobuf-c-compiler libprotobuf-c-dev libopenblas-dev libsodium-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
              python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb \
-             libonnx-testdata python3-onnx python3-torch
+             libonnx-testdata python3-onnx python3-torch python3-nacl
 # Only make bench needs this: callgrind's instruction counts.
 DEB_BENCH := valgrind
 deps:
@@ -129,7 +136,7 @@ check: deps-test
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) SAN=$(SAN) sh tests/run.sh
 
 .PHONY: test-programs
-test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO)
+test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO) $(FAULTIO_SO)
 
 DEMO_OUT ?= $(BUILD)/demo
 demo: deps
@@ -139,6 +146,12 @@ demo: deps
 bench: deps-bench
 	@$(MAKE) --no-print-directory test-programs
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/bench/run.sh
+
+# Not part of check: hours at the default 100000 inspections
+# (SOAK_INSPECTIONS=N for fewer); tests/soak/soak.sh says what it watches.
+soak: deps
+	@$(MAKE) --no-print-directory $(STATION_BIN)
+	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/soak/soak.sh
 
 install: $(STATION_BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/station/recipes

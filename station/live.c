@@ -17,6 +17,12 @@
 
 #define FRAME_TIMEOUT_MS 20
 #define CLOSING_MS 10000
+/* No new frame for this long (or 5 frame periods at the rate measured, when
+ * longer) while the camera is not lost: stalled.  The camera source skips
+ * garbled buffers and restarts a stream after [camera] stall_ms, so without
+ * this a key trigger would inspect the last good picture, seconds old
+ * (found by tests/e2e/test_camera_faults.sh).  Common practice, no source. */
+#define STALE_MIN_MS 500.0
 
 static volatile sig_atomic_t stop_signal;
 
@@ -40,7 +46,7 @@ struct live {
     double last_t_ms;
     struct job pending;
     int has_pending;
-    int lost, frozen, ended, halted, quit;
+    int lost, frozen, stalled, ended, halted, quit;
     int closing, key_waiting;    /* closing: finish what was asked, then quit */
     double closing_ms;
     long results, counts[3];
@@ -138,6 +144,8 @@ static void key_trigger(struct live *L)
         want_refusal(L, "camera", "camera_lost", "camera lost: no picture to inspect");
     else if (L->frozen)
         want_refusal(L, L->last_name, "frozen", "camera frozen: the picture repeats unchanged");
+    else if (L->stalled)
+        want_refusal(L, "camera", "camera_stalled", "camera stalled: no new picture to inspect");
     else
         want_inspection(L);
 }
@@ -160,6 +168,7 @@ static void set_status(struct live *L)
     trigger_view(L->trig, &v);
     const char *s = L->halted                  ? "inspection halted"
                     : L->lost                  ? "camera lost"
+                    : L->stalled               ? "camera stalled"
                     : L->frozen                ? "camera frozen"
                     : L->has_pending           ? "inspecting"
                     : L->mode == RECIPE_TRIGGER_KEY ? "press Enter to inspect"
@@ -255,6 +264,10 @@ static void on_frame(struct live *L, const struct source_frame *f)
         trigger_restart(L->trig);
         event("camera_back", NULL, NULL);
     }
+    if (L->stalled) {
+        L->stalled = 0;
+        event("camera_streaming", NULL, NULL);
+    }
     if (copy_frame(&L->last, f->img))
         return;
     snprintf(L->last_name, sizeof L->last_name, "%s", f->name);
@@ -293,6 +306,19 @@ static void on_frame(struct live *L, const struct source_frame *f)
     if ((ev & TRIGGER_FIRE) || L->key_waiting)
         want_inspection(L);
     L->key_waiting = 0;
+}
+
+/* Called while the source has no frame: a stream that stopped is stalled. */
+static void check_stalled(struct live *L)
+{
+    if (L->lost || L->stalled || !L->frames)
+        return;
+    double stale = L->st.fps > 0 ? 5000.0 / L->st.fps : 0;
+    if (cli_now_ms() - L->last_frame_ms < (stale > STALE_MIN_MS ? stale : STALE_MIN_MS))
+        return;
+    L->stalled = 1;
+    event("camera_stalled", "camera", source_describe(L->src));
+    part_in_view_refused(L, "camera_stalled", "camera stalled while the part was in view");
 }
 
 static void on_lost(struct live *L)
@@ -402,6 +428,8 @@ static int step(struct live *L, struct err *e)
             want_refusal(L, f.name, "unreadable", e->msg);
         else if (status == SOURCE_END)
             L->ended = 1;
+        else if (status == SOURCE_WAIT)
+            check_stalled(L);
     }
     int idle = !L->has_pending && !L->key_waiting && !worker_busy(L->w);
     if ((L->ended || L->closing) && idle)

@@ -15,7 +15,10 @@
  * until the worker's retry succeeds.  Camera lost: the screen says so, and
  * the part in view (auto, continuous) or a key trigger meanwhile gets a
  * NO_VERDICT record with rule camera_lost; a frozen camera likewise gets
- * rule frozen.  Operator id and serial come from the options, the screen's
+ * rule frozen, and a stalled one (no new frame for 500 ms, or five frame
+ * periods when longer: a stream that stopped, or garbled buffers the camera
+ * source skips) rule camera_stalled, with events camera_stalled and
+ * camera_streaming.  Operator id and serial come from the options, the screen's
  * input line or stdin commands, and go into each record; the serial is
  * cleared once the inspection it was logged with has its result (a serial
  * belongs to one part).  Headless: JSON lines on stdout (each inspection's
