@@ -29,6 +29,34 @@ static int features_signature(const struct feat_spec *spec, char hex[SHA256_HEX_
     return ST_OK;
 }
 
+int model_basis(const struct recipe *r, char buf[MODEL_BASIS_MAX], char hex[SHA256_HEX_LEN],
+                struct err *e)
+{
+    char feats[SHA256_HEX_LEN], flat[SHA256_HEX_LEN] = "none";
+    int rc = features_signature(&r->feat, feats, e);
+    if (!rc && r->flat_field[0])
+        rc = sha256_hex_file(r->flat_field, flat, e);
+    if (rc)
+        return rc;
+    size_t n = (size_t)snprintf(buf, MODEL_BASIS_MAX, "product: %s\nclasses:", r->product);
+    for (int c = 0; c < r->nclasses && n < MODEL_BASIS_MAX; c++)
+        n += (size_t)snprintf(buf + n, MODEL_BASIS_MAX - n, " %s", r->cls[c].name);
+    if (n < MODEL_BASIS_MAX)
+        n += (size_t)snprintf(buf + n, MODEL_BASIS_MAX - n,
+                              "\nfeatures: %d, sha256 %s, normalise %s\n"
+                              "classifier: rounds %d, depth %d, learning rate %.17g, seed %d, "
+                              "early stop %d, samples per class %d, validation share %.17g\n"
+                              "flat field: %s\n",
+                              feat_count(&r->feat), feats, r->feat.normalise ? "yes" : "no",
+                              r->train.rounds, r->train.depth, r->train.eta, r->train.seed,
+                              r->train.early_stop, r->samples_per_class, r->validation_fraction,
+                              flat);
+    if (n >= MODEL_BASIS_MAX)
+        return err_set(e, ST_ERANGE, "%s: training basis too long", r->path);
+    sha256_hex_buffer(buf, n, hex);
+    return ST_OK;
+}
+
 int model_meta_from_recipe(const struct recipe *r, struct model_meta *m, struct err *e)
 {
     memset(m, 0, sizeof *m);
@@ -41,7 +69,12 @@ int model_meta_from_recipe(const struct recipe *r, struct model_meta *m, struct 
         snprintf(m->classes[c], sizeof m->classes[c], "%s", r->cls[c].name);
     m->nfeatures = feat_count(&r->feat);
     m->depth = r->train.depth;
-    return features_signature(&r->feat, m->features_sha256, e);
+    int rc = features_signature(&r->feat, m->features_sha256, e);
+    if (!rc)
+        rc = model_basis(r, m->basis, m->basis_sha256, e);
+    if (!rc)
+        rc = sha256_hex_file(r->path, m->recipe_sha256, e);
+    return rc;
 }
 
 int model_meta_save(const char *model_path, const struct model_meta *m, struct err *e)
@@ -68,6 +101,10 @@ int model_meta_save(const char *model_path, const struct model_meta *m, struct e
                           "part_area_mm2", m->ref_part_area_mm2, "frames", m->ref_frames);
     if (!o)
         return err_set(e, ST_ENOMEM, "%s: cannot build metadata", path);
+    if (m->format >= 3)
+        json_object_update_new(o, json_pack("{s:s,s:s,s:s,s:f}", "recipe_sha256", m->recipe_sha256,
+                                            "recipe_basis", m->basis, "recipe_basis_sha256",
+                                            m->basis_sha256, "holdout_fraction", m->holdout));
     if (json_dump_file(o, path, JSON_INDENT(2) | JSON_SORT_KEYS) != 0)
         rc = err_set(e, ST_EIO, "%s: cannot write model metadata", path);
     json_decref(o);
@@ -146,9 +183,32 @@ int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
         rc = err_set(e, ST_EFORMAT, "%s: 'references' missing or not numbers", path);
         goto done;
     }
+    if (m->format >= 3 &&
+        ((rc = copy_str(o, "recipe_sha256", m->recipe_sha256, sizeof m->recipe_sha256, path, e)) ||
+         (rc = copy_str(o, "recipe_basis", m->basis, sizeof m->basis, path, e)) ||
+         (rc = copy_str(o, "recipe_basis_sha256", m->basis_sha256, sizeof m->basis_sha256, path,
+                        e))))
+        goto done;
+    m->holdout = json_number_value(json_object_get(o, "holdout_fraction"));
 done:
     json_decref(o);
     return rc;
+}
+
+/* The first line where two basis texts differ, as "a' at training, recipe says 'b'". */
+static void basis_difference(const char *had, const char *want, char *out, size_t len)
+{
+    while (*had || *want) {
+        size_t a = strcspn(had, "\n"), b = strcspn(want, "\n");
+        if (a != b || strncmp(had, want, a) != 0) {
+            snprintf(out, len, "'%.*s' at training, the recipe now gives '%.*s'", (int)a, had,
+                     (int)b, want);
+            return;
+        }
+        had += a + (had[a] == '\n');
+        want += b + (want[b] == '\n');
+    }
+    snprintf(out, len, "the basis hashes differ");
 }
 
 int model_check(const struct recipe *r, struct model_meta *m, struct err *e)
@@ -173,6 +233,13 @@ int model_check(const struct recipe *r, struct model_meta *m, struct err *e)
         return err_set(e, ST_EFORMAT,
                        "%s: model was trained on other features than recipe %s selects; retrain",
                        r->model_path, r->path);
+    if (m->format >= 3 && strcmp(m->basis_sha256, want.basis_sha256) != 0) {
+        char why[400];
+        basis_difference(m->basis, want.basis, why, sizeof why);
+        return err_set(e, ST_EFORMAT,
+                       "%s does not belong to recipe %s: %s; train it again (station train)",
+                       r->model_path, r->path, why);
+    }
     char hex[SHA256_HEX_LEN];
     if ((rc = sha256_hex_file(r->model_path, hex, e)))
         return rc;
