@@ -87,8 +87,9 @@ int model_meta_save(const char *model_path, const struct model_meta *m, struct e
     for (int c = 0; c < m->nclasses; c++) {
         json_array_append_new(classes, json_string(m->classes[c]));
         json_object_set_new(samples, m->classes[c],
-                            json_pack("{s:I,s:i}", "pixels", (json_int_t)m->samples[c], "images",
-                                      m->images[c]));
+                            json_pack("{s:I,s:i,s:I}", "pixels", (json_int_t)m->samples[c],
+                                      "images", m->images[c], "labelled",
+                                      (json_int_t)m->labelled[c]));
     }
     json_t *o = json_pack("{s:i,s:s,s:i,s:s,s:s,s:i,s:o,s:o,s:i,s:i,s:f,s:s,s:{s:f,s:f,s:i}}",
                           "format",
@@ -168,6 +169,7 @@ int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
         json_t *sc = json_object_get(samples, s);
         m->samples[c] = (size_t)json_integer_value(json_object_get(sc, "pixels"));
         m->images[c] = (int)json_integer_value(json_object_get(sc, "images"));
+        m->labelled[c] = (size_t)json_integer_value(json_object_get(sc, "labelled"));
     }
     m->recipe_version = (int)json_integer_value(json_object_get(o, "recipe_version"));
     m->nfeatures = (int)json_integer_value(json_object_get(o, "features"));

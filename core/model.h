@@ -45,6 +45,7 @@ struct model_meta {
     char classes[RECIPE_MAX_CLASSES][32];
     size_t samples[RECIPE_MAX_CLASSES];     /* training rows per class */
     int images[RECIPE_MAX_CLASSES];         /* images contributing per class */
+    size_t labelled[RECIPE_MAX_CLASSES];    /* labelled pixels per class (format 3) */
     int best_round;
     int depth;
     double val_mlogloss;

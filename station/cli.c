@@ -102,3 +102,14 @@ int cli_size(const char *opt, const char *v, int *w, int *h)
     }
     return 0;
 }
+
+int cli_split(const char *opt, const char *v, double *out)
+{
+    char *end;
+    *out = strtod(v, &end);
+    if (*end || end == v || !(*out > 0 && *out <= 0.9)) {
+        cli_say("%s: '%s' is not a share of the images in (0, 0.9]", opt, v);
+        return -1;
+    }
+    return 0;
+}

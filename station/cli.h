@@ -59,6 +59,8 @@ int cmd_capture(int argc, char **argv);
  * return -1. */
 int cli_number(const char *opt, const char *v, double *out, int zero_ok);
 int cli_size(const char *opt, const char *v, int *w, int *h);
+/* A held-out share for --split, in (0, 0.9]. */
+int cli_split(const char *opt, const char *v, double *out);
 
 /* True when argv holds -h or --help; such commands print usage and return 0. */
 int cli_wants_help(int argc, char **argv);

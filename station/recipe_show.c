@@ -157,8 +157,9 @@ static json_t *model_json(const struct recipe *r)
     json_t *samples = json_object();
     for (int c = 0; c < m.nclasses; c++)
         json_object_set_new(samples, m.classes[c],
-                            json_pack("{s:I,s:i}", "pixels", (json_int_t)m.samples[c], "images",
-                                      m.images[c]));
+                            json_pack("{s:I,s:i,s:I}", "pixels", (json_int_t)m.samples[c],
+                                      "images", m.images[c], "labelled",
+                                      (json_int_t)m.labelled[c]));
     json_object_update_new(
         o, json_pack("{s:s,s:o,s:i,s:s,s:i,s:i,s:i,s:f,s:f,s:o,s:{s:f,s:f,s:i}}", "sha256",
                      m.model_sha256, "trained_basis_sha256",
@@ -315,12 +316,12 @@ static void print_model(const json_t *m, FILE *f)
         if (num(m, "holdout_fraction") > 0)
             fprintf(f, "  %.0f%% of the images held out of training (evaluate --split %g)\n",
                     100 * num(m, "holdout_fraction"), num(m, "holdout_fraction"));
-        fprintf(f, "  training data (labelled pixels sampled, images with the class):\n");
+        fprintf(f, "  training data (labelled pixels, pixels sampled, images with the class):\n");
         const char *k;
         json_t *v;
         json_object_foreach(json_object_get(m, "training_samples"), k, v)
-            fprintf(f, "    %-12s %9.0f pixels from %3.0f images\n", k, num(v, "pixels"),
-                    num(v, "images"));
+            fprintf(f, "    %-12s %9.0f labelled %8.0f sampled from %3.0f images\n", k,
+                    num(v, "labelled"), num(v, "pixels"), num(v, "images"));
         json_t *ref = json_object_get(m, "references");
         fprintf(f, "  image references over %d training frames: sharpness %.1f, part area %.1f mm²\n",
                 (int)num(ref, "frames"), num(ref, "sharpness"), num(ref, "part_area_mm2"));
