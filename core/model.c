@@ -44,8 +44,8 @@ int model_basis(const struct recipe *r, char buf[MODEL_BASIS_MAX], char hex[SHA2
     if (n < MODEL_BASIS_MAX)
         n += (size_t)snprintf(buf + n, MODEL_BASIS_MAX - n,
                               "\nfeatures: %d, sha256 %s, normalise %s\n"
-                              "classifier: rounds %d, depth %d, learning rate %.17g, seed %d, "
-                              "early stop %d, samples per class %d, validation share %.17g\n"
+                              "classifier: rounds %d, depth %d, learning rate %.10g, seed %d, "
+                              "early stop %d, samples per class %d, validation share %.10g\n"
                               "flat field: %s\n",
                               feat_count(&r->feat), feats, r->feat.normalise ? "yes" : "no",
                               r->train.rounds, r->train.depth, r->train.eta, r->train.seed,
