@@ -32,10 +32,8 @@ static int features_signature(const struct feat_spec *spec, char hex[SHA256_HEX_
 int model_basis(const struct recipe *r, char buf[MODEL_BASIS_MAX], char hex[SHA256_HEX_LEN],
                 struct err *e)
 {
-    char feats[SHA256_HEX_LEN], flat[SHA256_HEX_LEN] = "none";
+    char feats[SHA256_HEX_LEN];
     int rc = features_signature(&r->feat, feats, e);
-    if (!rc && r->flat_field[0])
-        rc = sha256_hex_file(r->flat_field, flat, e);
     if (rc)
         return rc;
     size_t n = (size_t)snprintf(buf, MODEL_BASIS_MAX, "product: %s\nclasses:", r->product);
@@ -45,12 +43,10 @@ int model_basis(const struct recipe *r, char buf[MODEL_BASIS_MAX], char hex[SHA2
         n += (size_t)snprintf(buf + n, MODEL_BASIS_MAX - n,
                               "\nfeatures: %d, sha256 %s, normalise %s\n"
                               "classifier: rounds %d, depth %d, learning rate %.10g, seed %d, "
-                              "early stop %d, samples per class %d, validation share %.10g\n"
-                              "flat field: %s\n",
+                              "early stop %d, samples per class %d, validation share %.10g\n",
                               feat_count(&r->feat), feats, r->feat.normalise ? "yes" : "no",
                               r->train.rounds, r->train.depth, r->train.eta, r->train.seed,
-                              r->train.early_stop, r->samples_per_class, r->validation_fraction,
-                              flat);
+                              r->train.early_stop, r->samples_per_class, r->validation_fraction);
     if (n >= MODEL_BASIS_MAX)
         return err_set(e, ST_ERANGE, "%s: training basis too long", r->path);
     sha256_hex_buffer(buf, n, hex);

@@ -14,10 +14,11 @@
  * trees depend on, as short "key: value" lines (product; class names in
  * order; feature names (their SHA-256) and normalisation; the classifier's
  * rounds, depth, learning rate, seed, early stop, samples per class and
- * validation share; the flat field file's SHA-256 or "none") and the SHA-256
- * of those lines.  Zones, tolerances, gates, scale, part, trigger, camera,
- * masters and evidence are not in it: editing them changes the recipe's
- * version (core/recipever.h) but not what the trees mean.  model_check
+ * validation share) and the SHA-256 of those lines.  Zones, tolerances,
+ * gates, scale, flat field, part, trigger, camera, masters and evidence are
+ * not in it: editing them changes the recipe's version (core/recipever.h)
+ * but not what the trees mean (a recalibrated scale or flat field of the
+ * same bench is what keeps frames looking as they did in training).  model_check
  * refuses a format-3 model whose basis differs, naming the first line that
  * differs; formats 1 and 2 are checked as before (product, classes,
  * features, model file hash).  Also stored: the whole recipe file's SHA-256

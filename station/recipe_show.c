@@ -4,6 +4,7 @@
 #include <stdarg.h>
 #include <string.h>
 #include <time.h>
+#include <unistd.h>
 
 #include "core/judge.h"
 #include "core/model.h"
@@ -148,12 +149,17 @@ static json_t *model_json(const struct recipe *r)
     err_clear(&we);
     char basis[MODEL_BASIS_MAX], basis_hex[SHA256_HEX_LEN] = "";
     model_basis(r, basis, basis_hex, &we);
+    char meta_path[PATH_MAX];
+    model_meta_path(r->model_path, meta_path, sizeof meta_path, &e);
+    if (access(meta_path, F_OK) != 0)
+        return json_pack("{s:s,s:s,s:s}", "path", r->model_path, "recipe_basis_sha256", basis_hex,
+                         "check", "not trained yet: station train RECIPE --data DIR");
     int ok = model_check(r, &m, &e) == ST_OK;
     json_t *o = json_pack("{s:s,s:s,s:s}", "path", r->model_path, "recipe_basis_sha256", basis_hex,
                           "check", ok ? "ok" : e.msg);
     struct err le;
     if (!ok && model_meta_load(r->model_path, &m, &le) != ST_OK)
-        return o;   /* no metadata: nothing was trained yet, or it is unreadable */
+        return o;   /* the metadata is unreadable: the check says why */
     json_t *samples = json_object();
     for (int c = 0; c < m.nclasses; c++)
         json_object_set_new(samples, m.classes[c],
@@ -326,7 +332,7 @@ static void print_model(const json_t *m, FILE *f)
         fprintf(f, "  image references over %d training frames: sharpness %.1f, part area %.1f mm²\n",
                 (int)num(ref, "frames"), num(ref, "sharpness"), num(ref, "part_area_mm2"));
     } else {
-        fprintf(f, "  not trained yet (no metadata beside it)\n");
+        fprintf(f, "  no training data on record\n");
     }
     fprintf(f, "  training basis SHA-256 %s (what the model depends on)\n",
             str(m, "recipe_basis_sha256"));
