@@ -228,6 +228,8 @@ int recipever_save(const char *path, struct recipever *v, int *changed, struct e
             goto done;
         v->version = next;
         *changed = 1;
+    } else {
+        v->first_save = 1;
     }
     rc = write_record(path, v, e);
 done:

@@ -29,6 +29,7 @@ struct recipever {
     int recorded_version;
     char recorded_sha256[SHA256_HEX_LEN];
     char saved_utc[32];
+    int first_save;                       /* recipever_save found no record and made one */
 };
 
 /* Reads FILE and its record into v (no change). */

@@ -54,8 +54,9 @@ int cmd_recipe(int argc, char **argv)
             cli_say("%s", e.msg);
             return EXIT_ERROR;
         }
-        fprintf(stderr, "%s: %s version %d (content SHA-256 %.12s...)\n", path,
-                changed ? "changed: now" : "unchanged:", v.version, v.content_sha256);
+        fprintf(stderr, "%s: %s version %d (content SHA-256 %.12s..., recorded in %s.version.json)\n",
+                path, changed ? "changed: now" : v.first_save ? "first save:" : "unchanged:",
+                v.version, v.content_sha256, path);
         cli_emit(json_pack("{s:s,s:i,s:b,s:s}", "recipe", path, "version", v.version, "changed",
                            changed, "content_sha256", v.content_sha256));
         return 0;

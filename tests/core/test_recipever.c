@@ -73,10 +73,12 @@ static void test_save_increments_on_change_only(void **state)
     int changed = -1;
     assert_int_equal(recipever_save(p, &v, &changed, &e), ST_OK);   /* first: records */
     assert_int_equal(changed, 0);
+    assert_true(v.first_save);
     assert_int_equal(v.version, 7);
     assert_string_equal(read_all(p), RECIPE_A);
     assert_int_equal(recipever_save(p, &v, &changed, &e), ST_OK);   /* unchanged */
     assert_int_equal(changed, 0);
+    assert_false(v.first_save);
     assert_string_equal(read_all(p), RECIPE_A);
     assert_int_equal(recipever_check(p, &e), ST_OK);
     /* an edit: refused until saved, then version 8 and nothing else rewritten */
