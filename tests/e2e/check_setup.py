@@ -270,6 +270,13 @@ def check_split():
             fail("class %s: metadata says %d labelled pixels in %d images, the %d training masks "
                  "hold %d in %d" % (name, ts["labelled"], ts["images"], len(kept), counts[c],
                                     images[c]))
+    # the thin-class warning (station/train.h: under 300 labelled pixels or 3 images)
+    ini = read_ini(small)
+    for c, name in enumerate(classes):
+        thin = ini["class " + name]["defect"] == "yes" and (counts[c] < 300 or images[c] < 3)
+        if thin != ("warning: defect class '%s'" % name in err):
+            fail("class %s (%d pixels in %d images): warning %s, want %s"
+                 % (name, counts[c], images[c], not thin, thin))
     if abs(meta["holdout_fraction"] - share) > 1e-12 or "held out of training: %d of %d" % (
             len(held), len(stems)) not in err:
         fail("holdout %s, report %s" % (meta["holdout_fraction"], err[-300:]))
@@ -283,7 +290,8 @@ def check_split():
         fail("evaluate with another share than trained: exit %d %s" % (rc, err[-200:]))
     print("ok   split %g: %d of %d images held out by name (hashlib), never read in training "
           "(unreadable there), labelled pixels per class in the metadata = numpy's count over "
-          "the %d training masks; evaluate --split measures exactly the held-out ones"
+          "the %d training masks, thin defect classes warned of; evaluate --split measures exactly "
+          "the held-out ones"
           % (share, len(held), len(stems), len(kept)))
 
 
