@@ -298,6 +298,11 @@ static const char *const family_names[] = {"colour",    "gauss",    "gradient", 
                                            "hessian",   "structure", "localstd", "gabor"};
 #define NFAMILIES ((int)(sizeof family_names / sizeof family_names[0]))
 
+const char *recipe_family_name(int bit)
+{
+    return bit >= 0 && bit < NFAMILIES ? family_names[bit] : NULL;
+}
+
 struct section {
     enum sec_kind kind;
     char name[32];

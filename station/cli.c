@@ -4,6 +4,7 @@
 
 #include <errno.h>
 #include <stdarg.h>
+#include <stdlib.h>
 #include <string.h>
 #include <time.h>
 #include <unistd.h>
@@ -88,6 +89,37 @@ int cli_load_recipe(const char *path, struct recipe *r)
     if (recipe_load(path, r, &e) != ST_OK) {
         cli_say("%s", e.msg);
         return EXIT_ERROR;
+    }
+    return 0;
+}
+
+int cli_number(const char *opt, const char *v, double *out, int zero_ok)
+{
+    char *end;
+    *out = strtod(v, &end);
+    if (*end || end == v || !(*out > 0 || (zero_ok && *out == 0))) {
+        cli_say("%s: '%s' is not a %s number", opt, v, zero_ok ? "non-negative" : "positive");
+        return -1;
+    }
+    return 0;
+}
+
+int cli_size(const char *opt, const char *v, int *w, int *h)
+{
+    if (sscanf(v, "%dx%d", w, h) != 2 || *w < 64 || *h < 64 || *w > 8192 || *h > 8192) {
+        cli_say("%s: '%s' is not WxH with sides 64..8192", opt, v);
+        return -1;
+    }
+    return 0;
+}
+
+int cli_split(const char *opt, const char *v, double *out)
+{
+    char *end;
+    *out = strtod(v, &end);
+    if (*end || end == v || !(*out > 0 && *out <= 0.9)) {
+        cli_say("%s: '%s' is not a share of the images in (0, 0.9]", opt, v);
+        return -1;
     }
     return 0;
 }

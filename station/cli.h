@@ -56,7 +56,15 @@ int cmd_verify(int argc, char **argv);
 int cmd_audit(int argc, char **argv);
 int cmd_run(int argc, char **argv);
 int cmd_label(int argc, char **argv);
-int cmd_calibrate(int argc, char **argv);
+int cmd_capture(int argc, char **argv);
+
+/* Option values: a positive (or, with zero_ok, non-negative) number, and
+ * WxH with sides 64..8192; on a bad value they say so naming opt and
+ * return -1. */
+int cli_number(const char *opt, const char *v, double *out, int zero_ok);
+int cli_size(const char *opt, const char *v, int *w, int *h);
+/* A held-out share for --split, in (0, 0.9]. */
+int cli_split(const char *opt, const char *v, double *out);
 
 /* True when argv holds -h or --help; such commands print usage and return 0. */
 int cli_wants_help(int argc, char **argv);

@@ -9,6 +9,7 @@
 #include <time.h>
 #include <unistd.h>
 
+#include "capture.h"
 #include "cli.h"
 #include "core/judge.h"
 #include "screen.h"
@@ -58,6 +59,8 @@ struct live {
     size_t line_len;
     int stdin_open;
     long snapshots;
+    struct capture cap;          /* capture mode (o->capture_dir) */
+    struct err cap_err;          /* a frame that could not be saved stops capture */
 };
 
 static void event(const char *name, const char *key, const char *value)
@@ -90,9 +93,34 @@ static void fill_record_fields(struct live *L, struct job *j)
     snprintf(j->serial, sizeof j->serial, "%s", L->st.serial);
 }
 
+static void snapshot(struct live *L);
+
+/* Capture mode: the triggered frame (the latest one) into the dataset. */
+static void save_frame(struct live *L)
+{
+    char path[PATH_MAX];
+    if (capture_save(&L->cap, L->last, path, sizeof path, &L->cap_err))
+        return;
+    L->results++;
+    L->st.inspected = L->cap.saved;
+    snprintf(L->st.saved, sizeof L->st.saved, "saved %s", path);
+    snprintf(L->st.status, sizeof L->st.status, "%s",
+             L->mode == RECIPE_TRIGGER_AUTO ? "saved: take the part off" : "saved");
+    cli_emit(json_pack("{s:s,s:s,s:I,s:s}", "event", "saved", "path", path, "count",
+                       (json_int_t)L->cap.saved, "frame", L->last_name));
+    if (L->scr && L->o->snapshot)
+        snapshot(L);
+    if (L->o->inspections > 0 && L->results >= L->o->inspections)
+        L->quit = 1;
+}
+
 /* A triggered frame (the latest one) for the worker. */
 static void want_inspection(struct live *L)
 {
+    if (L->o->capture_dir && L->last) {
+        save_frame(L);
+        return;
+    }
     if (L->halted) {
         event("trigger_dropped", "reason", "inspection halted");
         return;
@@ -123,6 +151,10 @@ static void want_inspection(struct live *L)
 /* A NO_VERDICT record without inspection (camera lost, frozen, unreadable). */
 static void want_refusal(struct live *L, const char *name, const char *rule, const char *message)
 {
+    if (L->o->capture_dir) {
+        event("trigger_dropped", "reason", message); /* nothing to save, nothing to log */
+        return;
+    }
     if (L->halted || L->has_pending) {
         event("trigger_dropped", "reason", L->halted ? "inspection halted" : "busy");
         return;
@@ -171,9 +203,11 @@ static void set_status(struct live *L)
                     : L->stalled               ? "camera stalled"
                     : L->frozen                ? "camera frozen"
                     : L->has_pending           ? "inspecting"
+                    : L->mode == RECIPE_TRIGGER_KEY && L->o->capture_dir ? "press Enter to save the frame"
                     : L->mode == RECIPE_TRIGGER_KEY ? "press Enter to inspect"
                     : !v.learned               ? "learning the empty bench"
                     : v.present && v.armed     ? "part present, waiting for it to lie still"
+                    : v.present && L->o->capture_dir ? "saved: take the part off"
                     : v.present                ? "inspected: take the part off"
                                                : "waiting for a part";
     snprintf(L->st.status, sizeof L->st.status, "%s", s);
@@ -400,17 +434,20 @@ static void poll_screen(struct live *L)
 static int step(struct live *L, struct err *e)
 {
     struct result res;
-    while (worker_poll(L->w, &res))
+    while (L->w && worker_poll(L->w, &res))
         take_result(L, &res);
     if (L->has_pending && !L->quit && worker_submit(L->w, &L->pending))
         L->has_pending = 0;
+    if (L->cap_err.code)
+        return err_set(e, L->cap_err.code, "%s", L->cap_err.msg);
     if (L->headless)
         read_stdin(L);
     else
         poll_screen(L);
     if (L->quit || stop_signal)
         return ST_OK;
-    int waiting = L->paced_by_worker && (L->has_pending || worker_busy(L->w));
+    int busy = L->w && worker_busy(L->w);
+    int waiting = L->paced_by_worker && (L->has_pending || busy);
     if (L->ended || waiting) {
         struct timespec ts = {0, 2000000};
         nanosleep(&ts, NULL);
@@ -431,7 +468,7 @@ static int step(struct live *L, struct err *e)
         else if (status == SOURCE_WAIT)
             check_stalled(L);
     }
-    int idle = !L->has_pending && !L->key_waiting && !worker_busy(L->w);
+    int idle = !L->has_pending && !L->key_waiting && !busy;
     if ((L->ended || L->closing) && idle)
         L->quit = 1;
     if (L->closing && cli_now_ms() - L->closing_ms > CLOSING_MS)
@@ -481,7 +518,9 @@ static int open_all(struct live *L, struct err *e)
         rc = trigger_new(&L->r.trigger, L->mode, &L->trig, e);
     struct worker_options wo = {o->db_path, o->station, (uint64_t)(o->budget_mb * 1e6),
                                 !o->headless, o->retry_ms};
-    if (!rc)
+    if (!rc && o->capture_dir)
+        rc = capture_open(&L->cap, o->capture_dir, e);
+    else if (!rc)
         rc = worker_start(&L->r, &wo, &L->w, e);
     if (!rc && !o->headless) {
         struct screen_options sopt;
@@ -510,6 +549,7 @@ int live_run(const struct live_options *o)
     snprintf(L->st.operator_id, sizeof L->st.operator_id, "%s", o->operator_id ? o->operator_id : "");
     snprintf(L->st.serial, sizeof L->st.serial, "%s", o->serial ? o->serial : "");
     snprintf(L->st.recipe, sizeof L->st.recipe, "%s version %d", L->r.product, L->r.version);
+    L->st.capture = o->capture_dir != NULL;
     describe_calibration(L);
     /* frames of a replay are files, not a camera's consecutive frames */
     L->forget_last = !strncmp(o->source, "replay:", 7);
@@ -557,7 +597,9 @@ int live_run(const struct live_options *o)
     trigger_free(L->trig);
     source_free(L->src);
     long none = L->counts[VERDICT_NONE], fail = L->counts[VERDICT_FAIL];
-    if (L->results)
+    if (o->capture_dir && L->src)
+        fprintf(stderr, "%ld frames saved in %s.\n", L->cap.saved, L->cap.images);
+    else if (L->results)
         fprintf(stderr, "%ld PASS, %ld FAIL, %ld NO VERDICT.  %s\n", L->counts[VERDICT_PASS],
                 fail, none, CLI_CAUTION);
     free(L);

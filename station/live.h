@@ -27,7 +27,14 @@
  * "quit" (end of input with the key trigger quits too); quitting so first
  * finishes the inspection asked for (one asked before the first frame takes
  * that frame), for at most 10 s.  A signal (SIGINT, SIGTERM) finishes only
- * the record in hand. */
+ * the record in hand.
+ *
+ * Capture mode (capture_dir set, `station capture`): the same source,
+ * trigger and screen, but no worker, no model and no log: each trigger
+ * (key, or the automatic part trigger) saves the frame into the dataset
+ * folder (station/capture.h) and prints {"event": "saved", "path", "count",
+ * "frame"}; the screen shows CAPTURE, the count and the last file.
+ * inspections then counts saved frames. */
 #ifndef ST_LIVE_H
 #define ST_LIVE_H
 
@@ -46,6 +53,7 @@ struct live_options {
     int allow_offscreen;         /* tests: SDL's offscreen and dummy drivers are accepted */
     double budget_mb;
     int retry_ms;                /* log retries while halted */
+    const char *capture_dir;     /* capture mode: save triggered frames here */
 };
 void live_options_init(struct live_options *o);
 
