@@ -20,7 +20,8 @@ OPT     ?= -O2 -g
 SANFLAGS :=
 endif
 
-PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2
+PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2 libprotobuf-c openblas \
+             libsodium
 TEST_PKGS := cmocka
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
@@ -31,7 +32,7 @@ TEST_LIBS   := $(shell pkg-config --libs $(TEST_PKGS) 2>/dev/null)
 # last so no CFLAGS from outside can drop them.
 WARN := -Wall -Wextra -Werror
 ST_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fno-math-errno $(SANFLAGS) $(PKG_CFLAGS) \
-             -I. -MMD -MP $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
+             -I. -I$(BUILD)/gen -MMD -MP $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
 ST_LDFLAGS := $(SANFLAGS) $(LDFLAGS)
 LIBS := $(PKG_LIBS) -lpthread -lm
 
@@ -56,8 +57,8 @@ APP_LIBS    := $(STATION_LIB) $(CALIB_LIB) $(CORE_LIB)
 # libv4l2's plugin folder (tests/emucam/emucam.h).
 EMUCAM_SO   := $(BUILD)/tests/emucam/libv4l-emucam.so
 
-.PHONY: all check demo bench install uninstall clean deps deps-test deps-bench fuzz fuzz-smoke fuzz-programs \
-        deps-fuzz memcheck
+.PHONY: all check demo bench soak install uninstall clean deps deps-test deps-bench fuzz fuzz-smoke \
+        fuzz-programs deps-fuzz memcheck
 all: $(STATION_BIN)
 
 $(BUILD)/obj/%.o: %.c
@@ -68,7 +69,20 @@ $(BUILD)/tests/%.o: tests/%.c
 	@mkdir -p $(dir $@)
 	$(CC) $(ST_CFLAGS) $(TEST_CFLAGS) -c $< -o $@
 
-$(CORE_LIB): $(call obj,$(CORE_SRC))
+# The ONNX reader's protobuf-c code is generated from Debian's onnx.proto into
+# the build folder, never committed; core/onnx.c needs its header first.
+ONNX_PROTO := /usr/include/onnx/onnx.proto
+ONNX_GEN   := $(BUILD)/gen/onnx/onnx.pb-c.c
+ONNX_GEN_O := $(BUILD)/obj/gen/onnx.pb-c.o
+$(ONNX_GEN): $(ONNX_PROTO)
+	@mkdir -p $(BUILD)/gen
+	protoc-c --proto_path=$(dir $(ONNX_PROTO)).. --c_out=$(BUILD)/gen onnx/onnx.proto
+$(ONNX_GEN_O): $(ONNX_GEN)
+	@mkdir -p $(dir $@)
+	$(CC) -std=c11 $(OPT) $(SANFLAGS) $(PKG_CFLAGS) -I$(BUILD)/gen -c $< -o $@
+$(call obj,core/onnx.c) $(BUILD)/tests/core/test_cnnfeat.o: $(ONNX_GEN)
+
+$(CORE_LIB): $(call obj,$(CORE_SRC)) $(ONNX_GEN_O)
 	$(AR) rcs $@ $^
 $(CALIB_LIB): $(call obj,$(CALIB_SRC))
 	$(AR) rcs $@ $^
@@ -94,15 +108,23 @@ $(EMUCAM_SO): tests/emucam/emucam.c tests/emucam/emucam.h
 	$(CC) -std=c11 -D_POSIX_C_SOURCE=200809L $(OPT) -fPIC -shared -fvisibility=hidden -I. \
 	    $(CFLAGS) $(WARN) -o $@ $<
 $(BUILD)/tests/station/test_camera: | $(EMUCAM_SO)
+# The log fault tests' LD_PRELOAD shim (tests/faultio/faultio.c): like the
+# plugin, no sanitizer runtime of its own.
+FAULTIO_SO  := $(BUILD)/tests/faultio/libfaultio.so
+$(FAULTIO_SO): tests/faultio/faultio.c
+	@mkdir -p $(dir $@)
+	$(CC) -std=c11 $(OPT) -fPIC -shared -fvisibility=hidden $(CFLAGS) $(WARN) -o $@ $< -ldl
 
 # Debian packages: `make deps` installs what is missing when run as root,
 # otherwise prints the exact apt-get line and stops.
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
-             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev
+             libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev \
+             libonnx-dev protobuf-c-compiler libprotobuf-c-dev libopenblas-dev libsodium-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
-             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb
-# Only make bench needs these: the Python peer pipeline and callgrind's counts.
-DEB_BENCH := python3-torch valgrind
+             python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb \
+             libonnx-testdata python3-onnx python3-torch python3-nacl
+# Only make bench needs this: callgrind's instruction counts.
+DEB_BENCH := valgrind
 deps:
 	@sh tests/deps.sh $(DEB_BUILD)
 deps-test:
@@ -119,7 +141,7 @@ check: deps-test
 	@BUILD=$(BUILD) PYTHON=$(PYTHON) SAN=$(SAN) sh tests/run.sh
 
 .PHONY: test-programs
-test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO)
+test-programs: $(STATION_BIN) $(TEST_BINS) $(TOOL_BINS) $(BENCH_BINS) $(EMUCAM_SO) $(FAULTIO_SO)
 
 DEMO_OUT ?= $(BUILD)/demo
 demo: deps
@@ -140,15 +162,22 @@ FUZZ_SMOKE_SECONDS ?= 20
 FUZZ_DIR := $(BUILD)/fuzz
 FUZZ_SAN := -fsanitize=address,undefined -fno-sanitize-recover=undefined
 FUZZ_CFLAGS := -std=c11 -D_POSIX_C_SOURCE=200809L -O1 -g -fno-omit-frame-pointer -fno-math-errno \
-               $(FUZZ_SAN) -fsanitize=fuzzer-no-link $(PKG_CFLAGS) -I. -MMD -MP $(CFLAGS) $(WARN) \
-               -DSTATION_VERSION='"$(VERSION)"'
+               $(FUZZ_SAN) -fsanitize=fuzzer-no-link $(PKG_CFLAGS) -I. -I$(BUILD)/gen -MMD -MP \
+               $(CFLAGS) $(WARN) -DSTATION_VERSION='"$(VERSION)"'
 FUZZ_SRC  := $(sort $(wildcard tests/fuzz/fuzz_*.c))
 FUZZ_BINS := $(patsubst tests/fuzz/%.c,$(FUZZ_DIR)/%,$(FUZZ_SRC))
 FUZZ_LIB  := $(FUZZ_DIR)/libfuzzstation.a
 $(FUZZ_DIR)/obj/%.o: %.c
 	@mkdir -p $(dir $@)
 	$(FUZZ_CC) $(FUZZ_CFLAGS) -c $< -o $@
-$(FUZZ_LIB): $(patsubst %.c,$(FUZZ_DIR)/obj/%.o,$(CORE_SRC) $(STATION_LIB_SRC))
+# protobuf-c's generated code is outside data's first reader: instrumented too
+$(FUZZ_DIR)/obj/gen/onnx.pb-c.o: $(ONNX_GEN)
+	@mkdir -p $(dir $@)
+	$(FUZZ_CC) -std=c11 -O1 -g $(FUZZ_SAN) -fsanitize=fuzzer-no-link $(PKG_CFLAGS) -I$(BUILD)/gen \
+	    -c $< -o $@
+$(FUZZ_DIR)/obj/core/onnx.o: $(ONNX_GEN)
+$(FUZZ_LIB): $(patsubst %.c,$(FUZZ_DIR)/obj/%.o,$(CORE_SRC) $(STATION_LIB_SRC)) \
+             $(FUZZ_DIR)/obj/gen/onnx.pb-c.o
 	$(AR) rcs $@ $^
 $(FUZZ_DIR)/fuzz_%: $(FUZZ_DIR)/obj/tests/fuzz/fuzz_%.o $(FUZZ_LIB)
 	$(FUZZ_CC) $(FUZZ_SAN) -fsanitize=fuzzer $(LDFLAGS) -o $@ $^ $(LIBS)
@@ -168,6 +197,12 @@ memcheck:
 	@sh tests/deps.sh $(DEB_BUILD) valgrind
 	@$(MAKE) --no-print-directory $(STATION_BIN)
 	@sh tests/memcheck.sh $(BUILD); rc=$$?; [ $$rc = 77 ] && exit 0; exit $$rc
+
+# Not part of check: hours at the default 100000 inspections
+# (SOAK_INSPECTIONS=N for fewer); tests/soak/soak.sh says what it watches.
+soak: deps
+	@$(MAKE) --no-print-directory $(STATION_BIN)
+	@BUILD=$(BUILD) PYTHON=$(PYTHON) sh tests/soak/soak.sh
 
 install: $(STATION_BIN)
 	install -d $(DESTDIR)$(PREFIX)/bin $(DESTDIR)$(PREFIX)/share/station/recipes

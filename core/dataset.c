@@ -1,5 +1,7 @@
 #include "dataset.h"
 
+#include <nettle/sha2.h>
+
 #include <dirent.h>
 #include <errno.h>
 #include <stdio.h>
@@ -110,4 +112,19 @@ void dataset_close(struct dataset *ds)
     ds->stems = NULL;
     ds->labelled = NULL;
     ds->n = 0;
+}
+
+int dataset_held_out(const struct dataset *ds, int i, double fraction)
+{
+    if (fraction <= 0)
+        return 0;
+    struct sha256_ctx c;
+    uint8_t d[SHA256_DIGEST_SIZE];
+    sha256_init(&c);
+    sha256_update(&c, strlen(ds->stems[i]), (const uint8_t *)ds->stems[i]);
+    sha256_digest(&c, sizeof d, d);
+    uint64_t v = 0;
+    for (int k = 0; k < 8; k++)
+        v = v << 8 | d[k];
+    return (double)v / 18446744073709551616.0 < fraction;
 }

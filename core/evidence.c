@@ -27,8 +27,8 @@ static int sync_dir(const struct log_io *io, const char *dir, struct err *e)
 static int make_dir(const struct log_io *io, const char *dir, const char *parent, unsigned mode,
                     struct err *e)
 {
-    if (mkdir(dir, mode) == 0) {
-        if (chmod(dir, mode) != 0)
+    if (mkdir(dir, mode ? mode : 0777) == 0) {
+        if (mode && chmod(dir, mode) != 0)
             return fail_errno(e, dir, "cannot set the folder's mode", errno);
         return parent ? sync_dir(io, parent, e) : ST_OK;
     }
@@ -68,16 +68,16 @@ int evidence_write(const struct log_io *io, const char *root, const char *name,
         *slash = '\0';
     else
         snprintf(parent, sizeof parent, "%s", slash ? "/" : ".");
-    unsigned dmode = log_folder_mode(mode);
+    unsigned dmode = mode ? log_folder_mode(mode) : 0;
     int rc = make_dir(io, root, parent, dmode, e);
     if (!rc && strcmp(dir, root) != 0)
         rc = make_dir(io, dir, root, dmode, e);
     if (rc)
         return rc;
-    int fd = io->open(tmp, O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, mode);
+    int fd = io->open(tmp, O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, mode ? mode : 0644);
     if (fd < 0)
         return fail_errno(e, tmp, "cannot create", errno);
-    if (fchmod(fd, mode) != 0)
+    if (mode && fchmod(fd, mode) != 0)
         rc = fail_errno(e, tmp, "cannot set the file's mode", errno);
     if (!rc)
         rc = write_all(io, fd, tmp, data, len, e);

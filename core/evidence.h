@@ -14,7 +14,8 @@
 /* Writes len bytes to ROOT/NAME (NAME may hold one folder: "DATE/FILE"),
  * the file with permissions mode and new folders with log_folder_mode(mode),
  * exactly (fchmod / chmod after creating, so the umask cannot widen or
- * narrow them). */
+ * narrow them); mode 0 leaves both to the umask (0644 and 0777 asked), for
+ * files that are not the log's (captured frames, recipe versions). */
 int evidence_write(const struct log_io *io, const char *root, const char *name,
                    const void *data, size_t len, unsigned mode, struct err *e);
 

@@ -119,6 +119,10 @@ struct feat_ctx {
     const struct image *img;
     struct fstack *out;
     float scale_rgb, scale_grey, mean_grey;
+    /* the network's features (NULL without one), after the bank's: the bank
+     * then fills its own stack and is copied in */
+    struct cnnfeat_ctx *cnn;
+    struct fstack *bank;
 };
 
 void feat_spec_default(struct feat_spec *spec)
@@ -153,7 +157,7 @@ static int check_list(const double *v, int n, double lo, double hi, const char *
 
 int feat_spec_check(const struct feat_spec *spec, struct err *e)
 {
-    if (spec->families == 0 || (spec->families & ~(unsigned)ALL_FAMILIES))
+    if ((spec->families == 0 && !spec->cnn.on) || (spec->families & ~(unsigned)ALL_FAMILIES))
         return err_set(e, ST_EINVAL, "feature spec: family set 0x%x is empty or has unknown bits",
                        spec->families);
     if (spec->families & SIGMA_FAMILIES) {
@@ -210,7 +214,7 @@ int feat_count(const struct feat_spec *spec)
     int colour, gabor, idx[FEAT_MAX_SIGMAS][NSLOTS];
     if (feat_spec_check(spec, NULL))
         return -1;
-    return feat_layout(spec, &colour, idx, &gabor);
+    return feat_layout(spec, &colour, idx, &gabor) + (spec->cnn.on ? spec->cnn.nch : 0);
 }
 
 int feat_name(const struct feat_spec *spec, int k, char *buf, size_t len)
@@ -219,6 +223,8 @@ int feat_name(const struct feat_spec *spec, int k, char *buf, size_t len)
     if (feat_spec_check(spec, NULL))
         return ST_EINVAL;
     int n = feat_layout(spec, &colour, idx, &gabor);
+    if (spec->cnn.on && k >= n)
+        return cnnfeat_name(&spec->cnn, k - n, buf, len);
     if (k < 0 || k >= n)
         return ST_ERANGE;
     int got = -1;
@@ -456,6 +462,11 @@ struct feat_ctx *feat_ctx_new(const struct feat_spec *spec, int w, int h, struct
             goto fail;
     }
     free(plan);
+    if (spec->cnn.on && (!(ctx->cnn = cnnfeat_ctx_new(&spec->cnn, w, h, spec->threads, e)) ||
+                         (ctx->n && !(ctx->bank = fstack_new(w, h, ctx->n, e))))) {
+        feat_ctx_free(ctx);
+        return NULL;
+    }
     return ctx;
 fail:
     err_set(e, ST_ENOMEM, "features: out of memory for the scratch planes of a %dx%d frame", w, h);
@@ -477,6 +488,8 @@ void feat_ctx_free(struct feat_ctx *ctx)
     free(ctx->wk);
     free(ctx->jobs);
     free(ctx->tids);
+    cnnfeat_ctx_free(ctx->cnn);
+    fstack_free(ctx->bank);
     free(ctx);
 }
 
@@ -975,25 +988,10 @@ static void set_box(struct feat_ctx *ctx, const struct feat_box *b)
     ctx->ps = (size_t)(ctx->wx1 - ctx->wx0);
 }
 
-int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
+/* The filter bank's features alone for the box, into a stack of ctx->n. */
+static int bank_compute(struct feat_ctx *ctx, const struct image *img, const struct feat_box *box,
+                        struct fstack *out)
 {
-    struct feat_box all = {0, 0, ctx->w, ctx->h};
-    return feat_compute_box(ctx, img, &all, out, e);
-}
-
-int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct feat_box *box,
-                     struct fstack *out, struct err *e)
-{
-    if (img->w != ctx->w || img->h != ctx->h || (img->channels != 1 && img->channels != 3))
-        return err_set(e, ST_EINVAL, "features: frame %dx%dx%d does not fit a context for %dx%d (1 or 3 channels)",
-                       img->w, img->h, img->channels, ctx->w, ctx->h);
-    if (out->w != ctx->w || out->h != ctx->h || out->n != ctx->n)
-        return err_set(e, ST_EINVAL, "features: stack %dx%dx%d given for %dx%d frames with %d features", out->w,
-                       out->h, out->n, ctx->w, ctx->h, ctx->n);
-    if (box->x0 < 0 || box->y0 < 0 || box->x1 > ctx->w || box->y1 > ctx->h || box->x0 >= box->x1 ||
-        box->y0 >= box->y1)
-        return err_set(e, ST_EINVAL, "features: box [%d, %d) x [%d, %d) is empty or outside the %dx%d frame",
-                       box->x0, box->x1, box->y0, box->y1, ctx->w, ctx->h);
     ctx->img = img;
     ctx->out = out;
     set_box(ctx, box);
@@ -1041,4 +1039,41 @@ double feat_pass_ops(const struct feat_ctx *ctx)
         pass_ops(g->r, 0, g->y_real ? 0 : parts, &ops);
     }
     return ops;
+}
+
+int feat_compute(struct feat_ctx *ctx, const struct image *img, struct fstack *out, struct err *e)
+{
+    struct feat_box all = {0, 0, ctx->w, ctx->h};
+    return feat_compute_box(ctx, img, &all, out, e);
+}
+
+int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct feat_box *box,
+                     struct fstack *out, struct err *e)
+{
+    int n = ctx->n + (ctx->cnn ? ctx->spec.cnn.nch : 0);
+    if (img->w != ctx->w || img->h != ctx->h || (img->channels != 1 && img->channels != 3))
+        return err_set(e, ST_EINVAL, "features: frame %dx%dx%d does not fit a context for %dx%d (1 or 3 channels)",
+                       img->w, img->h, img->channels, ctx->w, ctx->h);
+    if (out->w != ctx->w || out->h != ctx->h || out->n != n)
+        return err_set(e, ST_EINVAL, "features: stack %dx%dx%d given for %dx%d frames with %d features", out->w,
+                       out->h, out->n, ctx->w, ctx->h, n);
+    if (box->x0 < 0 || box->y0 < 0 || box->x1 > ctx->w || box->y1 > ctx->h || box->x0 >= box->x1 ||
+        box->y0 >= box->y1)
+        return err_set(e, ST_EINVAL, "features: box [%d, %d) x [%d, %d) is empty or outside the %dx%d frame",
+                       box->x0, box->x1, box->y0, box->y1, ctx->w, ctx->h);
+    if (!ctx->cnn)
+        return bank_compute(ctx, img, box, out);
+    /* The network's stripes cover the whole frame (it has no box of its
+     * own yet); the bank's features are computed for the box and copied in
+     * beside them. */
+    if (ctx->n) {
+        bank_compute(ctx, img, box, ctx->bank);
+        size_t nb = (size_t)ctx->n;
+        for (int y = box->y0; y < box->y1; y++)
+            for (int x = box->x0; x < box->x1; x++) {
+                size_t p = (size_t)y * ctx->w + x;
+                memcpy(out->v + p * (size_t)n, ctx->bank->v + p * nb, nb * sizeof *out->v);
+            }
+    }
+    return cnnfeat_compute(ctx->cnn, img, out, ctx->n, e);
 }

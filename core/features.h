@@ -63,7 +63,7 @@
  *
  * A feat_ctx owns all scratch buffers for one frame size so that per-frame
  * work allocates nothing (planar float planes, about 45 of w x h for the
- * default spec); it is not shared between threads, but feat_compute itself
+ * default spec); with a network, a cnnfeat context as well; it is not shared between threads, but feat_compute itself
  * splits rows over spec.threads worker threads (started per call; one that
  * cannot start has its rows done by the caller). */
 #ifndef ST_FEATURES_H
@@ -71,6 +71,7 @@
 
 #include <stddef.h>
 
+#include "cnnfeat.h"
 #include "image.h"
 
 enum feat_family {
@@ -98,6 +99,9 @@ struct feat_spec {
     double gabor_freqs[FEAT_MAX_GABOR_FREQS]; /* cycles per pixel, in [0.01, 0.5], distinct */
     int normalise;                            /* 1: divide by the part's brightness level; 0 or 1 */
     int threads;                              /* 1..FEAT_MAX_THREADS */
+    /* A cut network (core/cnnfeat.h): its features follow the bank's, and
+     * families may then be 0 (no bank). */
+    struct cnnfeat_spec cnn;
 };
 
 /* Fills spec with the demo default: all families, sigmas 1 2 4, Gabor at

@@ -20,6 +20,12 @@
  * in the table verifications (schema 3): one row per run of a recipe's
  * masters, append-only like the others.
  *
+ * Signatures (schema 4): every record, disposition and verification is
+ * also signed over its hash with the station's Ed25519 key (core/logsign.h);
+ * opening for writing loads the key file (DB.key), creating it and storing
+ * its public key in the log (table meta) the first time.  Links written
+ * before schema 4 stay unsigned and are reported so by `audit verify`.
+ *
  * Reading (LOG_OPEN_READ) never blocks the writer (WAL readers see the last
  * commit).  log_iter_* walks records in sequence order under a filter.
  *
@@ -43,9 +49,11 @@
 
 #include "err.h"
 #include "image.h"
+#include "logsign.h"
 #include "sha256.h"
 
-#define LOG_SCHEMA_VERSION 3
+#define LOG_SCHEMA_VERSION 4
+#define LOG_SIGNED_SINCE 4         /* the schema that brought signatures */
 #define LOG_ID_MAX 64              /* station, operator, serial, recipe, scale, auditor ids */
 #define LOG_UTC_MAX 32             /* "2026-12-01T22:45:44.123Z" */
 #define LOG_NAME_MAX 96            /* evidence name relative to the evidence folder */
@@ -90,6 +98,7 @@ struct log_options {
     unsigned file_mode;            /* permissions of what the log creates (database, its WAL
                                       and evidence files): LOG_FILE_MODE by default; folders
                                       get log_folder_mode() of it */
+    const char *key_path;          /* signing key file; NULL: the database path + ".key" */
 };
 void log_options_init(struct log_options *o);
 
@@ -155,6 +164,7 @@ struct log_disposition {
     char *comment;                 /* heap, "" when none */
     char prev_hash[SHA256_HEX_LEN];
     char hash[SHA256_HEX_LEN];
+    char sig[LOGSIGN_SIG_HEX];     /* "" when written before signing */
 };
 
 /* One record as read back.  The heap strings belong to the record:
@@ -178,6 +188,7 @@ struct log_record {
     struct log_evidence ev[LOG_MAX_EVIDENCE];
     char prev_hash[SHA256_HEX_LEN];
     char hash[SHA256_HEX_LEN];
+    char sig[LOGSIGN_SIG_HEX];     /* "" when written before signing */
     int has_disposition;           /* the latest disposition, when any */
     struct log_disposition disp;
 };
@@ -242,6 +253,7 @@ struct log_verification {
     char *masters_json;
     char prev_hash[SHA256_HEX_LEN];
     char hash[SHA256_HEX_LEN];
+    char sig[LOGSIGN_SIG_HEX];     /* "" when written before signing */
 };
 
 /* Appends v (station, recipe_*, model_sha256, passed, masters_json set by
@@ -258,6 +270,15 @@ int log_verification_last(struct log_db *db, const char *station, const char *re
 int log_verifications_get(struct log_db *db, struct log_verification **out, int *n,
                           struct err *e);
 void log_verifications_free(struct log_verification *v, int n);
+
+/* The log's signing key as stored in it (meta table, schema 4). */
+struct log_signing {
+    int present;                   /* 0: no key yet (never opened for writing since) */
+    char public_key[LOGSIGN_PK_HEX];
+    int64_t from[3];               /* first signed record, disposition, verification */
+    char statement_sig[LOGSIGN_SIG_HEX];   /* over logsign_statement */
+};
+int log_signing_get(struct log_db *db, struct log_signing *s, struct err *e);
 
 /* PRAGMA integrity_check: ST_OK when SQLite answers "ok", else ST_EFORMAT
  * with its first complaint. */

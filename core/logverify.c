@@ -7,6 +7,7 @@
 #include "evidence.h"
 #include "judge.h"
 #include "logcanon.h"
+#include "logsign.h"
 
 /* Notes the first break only; later ones just count as links after it. */
 static void brk(struct log_verify_result *res, const char *chain, int64_t seq, const char *what)
@@ -42,6 +43,37 @@ static void check_link(struct log_verify_result *res, const char *chain, int64_t
     brk(res, chain, seq, what);
 }
 
+/* The signature of link seq of a chain (index 0 records, 1 dispositions, 2
+ * verifications) when the log's signing start covers it. */
+static void check_sig(struct log_verify_result *res, const struct log_signing *sg, int chain_ix,
+                      const char *chain, int64_t seq, const char *hash, const char *sig)
+{
+    if (!res->ok)
+        return;
+    if (seq < sg->from[chain_ix]) {
+        res->unsigned_links++;
+        return;
+    }
+    char what[400];
+    if (!res->public_key[0])
+        snprintf(what, sizeof what,
+                 "%s %" PRId64 ": the log holds no public key, yet its signing start is %s %" PRId64,
+                 chain, seq, chain, sg->from[chain_ix]);
+    else if (!sig[0])
+        snprintf(what, sizeof what, "%s %" PRId64 ": no signature (signed links start at %" PRId64
+                 ")", chain, seq, sg->from[chain_ix]);
+    else if (logsign_verify(res->public_key, hash, sig) != ST_OK)
+        snprintf(what, sizeof what,
+                 "%s %" PRId64 ": signature does not verify with public key %.16s...: written"
+                 " or rewritten without the station's private key",
+                 chain, seq, res->public_key);
+    else {
+        res->signed_links++;
+        return;
+    }
+    brk(res, chain, seq, what);
+}
+
 static int check_evidence(struct log_db *db, const struct log_record *r,
                           struct log_verify_result *res)
 {
@@ -71,7 +103,8 @@ static int check_evidence(struct log_db *db, const struct log_record *r,
     return 0;
 }
 
-static int walk_records(struct log_db *db, struct log_verify_result *res, struct err *e)
+static int walk_records(struct log_db *db, const struct log_signing *sg,
+                        struct log_verify_result *res, struct err *e)
 {
     struct log_iter *it = NULL;
     int rc = log_iter_new(db, NULL, &it, e);
@@ -92,6 +125,7 @@ static int walk_records(struct log_db *db, struct log_verify_result *res, struct
         if (rc)
             break;
         check_link(res, "record", r.seq, want, r.prev_hash, prev, r.hash, hash);
+        check_sig(res, sg, 0, "record", r.seq, r.hash, r.sig);
         broken = !res->ok || check_evidence(db, &r, res);
         snprintf(prev, sizeof prev, "%s", r.hash);
         want = r.seq + 1;
@@ -101,7 +135,8 @@ static int walk_records(struct log_db *db, struct log_verify_result *res, struct
     return rc;
 }
 
-static int walk_dispositions(struct log_db *db, struct log_verify_result *res, struct err *e)
+static int walk_dispositions(struct log_db *db, const struct log_signing *sg,
+                             struct log_verify_result *res, struct err *e)
 {
     struct log_disposition *d = NULL;
     int n = 0;
@@ -128,6 +163,7 @@ static int walk_dispositions(struct log_db *db, struct log_verify_result *res, s
             if (!rc)
                 check_link(res, "disposition", d[i].dseq, i + 1, d[i].prev_hash, prev,
                            d[i].hash, hash);
+            check_sig(res, sg, 1, "disposition", d[i].dseq, d[i].hash, d[i].sig);
         }
         broken = !res->ok;
         snprintf(prev, sizeof prev, "%s", d[i].hash);
@@ -136,7 +172,8 @@ static int walk_dispositions(struct log_db *db, struct log_verify_result *res, s
     return rc;
 }
 
-static int walk_verifications(struct log_db *db, struct log_verify_result *res, struct err *e)
+static int walk_verifications(struct log_db *db, const struct log_signing *sg,
+                              struct log_verify_result *res, struct err *e)
 {
     struct log_verification *v = NULL;
     int n = 0;
@@ -156,6 +193,7 @@ static int walk_verifications(struct log_db *db, struct log_verify_result *res, 
         if (!rc)
             check_link(res, "verification", v[i].vseq, i + 1, v[i].prev_hash, prev, v[i].hash,
                        hash);
+        check_sig(res, sg, 2, "verification", v[i].vseq, v[i].hash, v[i].sig);
         broken = !res->ok;
         snprintf(prev, sizeof prev, "%s", v[i].hash);
     }
@@ -163,7 +201,37 @@ static int walk_verifications(struct log_db *db, struct log_verify_result *res, 
     return rc;
 }
 
+/* The signed start statement: without it (or with a forged one) the start
+ * could be moved to pass signed links off as old unsigned ones. */
+static void check_statement(struct log_verify_result *res, const struct log_signing *sg)
+{
+    char statement[LOGSIGN_STATEMENT_MAX], what[400];
+    if (!res->ok || (!sg->present && !res->key_given))
+        return;
+    if (!sg->present)
+        snprintf(what, sizeof what, "the log holds no signing key, but public key %.16s... was"
+                 " given: its signatures were removed, or it is another station's log",
+                 res->public_key);
+    else {
+        logsign_statement(res->public_key, sg->from, statement);
+        if (logsign_verify(res->public_key, statement, sg->statement_sig) == ST_OK)
+            return;
+        snprintf(what, sizeof what,
+                 "the signing start (records from %" PRId64 ", dispositions from %" PRId64
+                 ", verifications from %" PRId64 ") is not signed by public key %.16s...%s",
+                 sg->from[0], sg->from[1], sg->from[2], res->public_key,
+                 strcmp(sg->public_key, res->public_key) ? " (the log names another key)" : "");
+    }
+    brk(res, "signature", 0, what);
+}
+
 int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e)
+{
+    return log_verify_key(db, NULL, res, e);
+}
+
+int log_verify_key(struct log_db *db, const char *public_key, struct log_verify_result *res,
+                   struct err *e)
 {
     memset(res, 0, sizeof *res);
     res->ok = 1;
@@ -172,12 +240,21 @@ int log_verify(struct log_db *db, struct log_verify_result *res, struct err *e)
         brk(res, "database", 0, sub.msg);
         return ST_OK;
     }
-    int rc = walk_records(db, res, e);
+    struct log_signing sg;
+    int rc = log_signing_get(db, &sg, e);
+    if (rc)
+        return rc;
+    res->key_given = public_key != NULL;
+    snprintf(res->public_key, sizeof res->public_key, "%s", public_key ? public_key : sg.public_key);
+    rc = walk_records(db, &sg, res, e);
     if (!rc)
-        rc = walk_dispositions(db, res, e);
+        rc = walk_dispositions(db, &sg, res, e);
     if (!rc)
-        rc = walk_verifications(db, res, e);
+        rc = walk_verifications(db, &sg, res, e);
+    if (!rc)
+        check_statement(res, &sg);
     if (!rc && !res->ok)
-        res->torn = res->after == 0 && strcmp(res->chain, "database") != 0;
+        res->torn = res->after == 0 && strcmp(res->chain, "database") != 0 &&
+                    strcmp(res->chain, "signature") != 0;
     return rc;
 }

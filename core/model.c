@@ -2,6 +2,7 @@
 
 #include <jansson.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 int model_meta_path(const char *model_path, char *buf, size_t len, struct err *e)
@@ -16,16 +17,45 @@ static int features_signature(const struct feat_spec *spec, char hex[SHA256_HEX_
                               struct err *e)
 {
     int n = feat_count(spec);
-    size_t cap = (size_t)n * 40 + 1, len = 0;
-    char buf[64 * 40 + 1];
-    if (cap > sizeof buf)
-        return err_set(e, ST_ERANGE, "too many features (%d)", n);
+    /* a network's names carry its tensor's name, so allow long ones */
+    size_t cap = (size_t)(n > 0 ? n : 0) * 192 + 1, len = 0;
+    char *buf = malloc(cap);
+    if (!buf)
+        return err_set(e, ST_ENOMEM, "out of memory for %d feature names", n);
     for (int k = 0; k < n; k++) {
-        char name[40];
-        feat_name(spec, k, name, sizeof name);
-        len += (size_t)snprintf(buf + len, sizeof buf - len, "%s\n", name);
+        char name[192];
+        if (feat_name(spec, k, name, sizeof name)) {
+            free(buf);
+            return err_set(e, ST_ERANGE, "feature %d has no name of under %zu characters", k, sizeof name);
+        }
+        len += (size_t)snprintf(buf + len, cap - len, "%s\n", name);
     }
     sha256_hex_buffer(buf, len, hex);
+    free(buf);
+    return ST_OK;
+}
+
+int model_basis(const struct recipe *r, char buf[MODEL_BASIS_MAX], char hex[SHA256_HEX_LEN],
+                struct err *e)
+{
+    char feats[SHA256_HEX_LEN];
+    int rc = features_signature(&r->feat, feats, e);
+    if (rc)
+        return rc;
+    size_t n = (size_t)snprintf(buf, MODEL_BASIS_MAX, "product: %s\nclasses:", r->product);
+    for (int c = 0; c < r->nclasses && n < MODEL_BASIS_MAX; c++)
+        n += (size_t)snprintf(buf + n, MODEL_BASIS_MAX - n, " %s", r->cls[c].name);
+    if (n < MODEL_BASIS_MAX)
+        n += (size_t)snprintf(buf + n, MODEL_BASIS_MAX - n,
+                              "\nfeatures: %d, sha256 %s, normalise %s\n"
+                              "classifier: rounds %d, depth %d, learning rate %.10g, seed %d, "
+                              "early stop %d, samples per class %d, validation share %.10g\n",
+                              feat_count(&r->feat), feats, r->feat.normalise ? "yes" : "no",
+                              r->train.rounds, r->train.depth, r->train.eta, r->train.seed,
+                              r->train.early_stop, r->samples_per_class, r->validation_fraction);
+    if (n >= MODEL_BASIS_MAX)
+        return err_set(e, ST_ERANGE, "%s: training basis too long", r->path);
+    sha256_hex_buffer(buf, n, hex);
     return ST_OK;
 }
 
@@ -41,7 +71,14 @@ int model_meta_from_recipe(const struct recipe *r, struct model_meta *m, struct 
         snprintf(m->classes[c], sizeof m->classes[c], "%s", r->cls[c].name);
     m->nfeatures = feat_count(&r->feat);
     m->depth = r->train.depth;
-    return features_signature(&r->feat, m->features_sha256, e);
+    if (r->feat.cnn.on)
+        snprintf(m->cnn_sha256, sizeof m->cnn_sha256, "%s", r->feat.cnn.sha256);
+    int rc = features_signature(&r->feat, m->features_sha256, e);
+    if (!rc)
+        rc = model_basis(r, m->basis, m->basis_sha256, e);
+    if (!rc)
+        rc = sha256_hex_file(r->path, m->recipe_sha256, e);
+    return rc;
 }
 
 int model_meta_save(const char *model_path, const struct model_meta *m, struct err *e)
@@ -54,8 +91,9 @@ int model_meta_save(const char *model_path, const struct model_meta *m, struct e
     for (int c = 0; c < m->nclasses; c++) {
         json_array_append_new(classes, json_string(m->classes[c]));
         json_object_set_new(samples, m->classes[c],
-                            json_pack("{s:I,s:i}", "pixels", (json_int_t)m->samples[c], "images",
-                                      m->images[c]));
+                            json_pack("{s:I,s:i,s:I}", "pixels", (json_int_t)m->samples[c],
+                                      "images", m->images[c], "labelled",
+                                      (json_int_t)m->labelled[c]));
     }
     json_t *o = json_pack("{s:i,s:s,s:i,s:s,s:s,s:i,s:o,s:o,s:i,s:i,s:f,s:s,s:{s:f,s:f,s:i}}",
                           "format",
@@ -68,6 +106,12 @@ int model_meta_save(const char *model_path, const struct model_meta *m, struct e
                           "part_area_mm2", m->ref_part_area_mm2, "frames", m->ref_frames);
     if (!o)
         return err_set(e, ST_ENOMEM, "%s: cannot build metadata", path);
+    if (m->cnn_sha256[0])
+        json_object_set_new(o, "cnn_sha256", json_string(m->cnn_sha256));
+    if (m->format >= 3)
+        json_object_update_new(o, json_pack("{s:s,s:s,s:s,s:f}", "recipe_sha256", m->recipe_sha256,
+                                            "recipe_basis", m->basis, "recipe_basis_sha256",
+                                            m->basis_sha256, "holdout_fraction", m->holdout));
     if (json_dump_file(o, path, JSON_INDENT(2) | JSON_SORT_KEYS) != 0)
         rc = err_set(e, ST_EIO, "%s: cannot write model metadata", path);
     json_decref(o);
@@ -131,7 +175,15 @@ int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
         json_t *sc = json_object_get(samples, s);
         m->samples[c] = (size_t)json_integer_value(json_object_get(sc, "pixels"));
         m->images[c] = (int)json_integer_value(json_object_get(sc, "images"));
+        m->labelled[c] = (size_t)json_integer_value(json_object_get(sc, "labelled"));
     }
+    const char *cs = json_string_value(json_object_get(o, "cnn_sha256"));
+    if (cs && strlen(cs) != SHA256_HEX_LEN - 1) {
+        rc = err_set(e, ST_EFORMAT, "%s: 'cnn_sha256' is not a SHA-256", path);
+        goto done;
+    }
+    if (cs)
+        memcpy(m->cnn_sha256, cs, SHA256_HEX_LEN);
     m->recipe_version = (int)json_integer_value(json_object_get(o, "recipe_version"));
     m->nfeatures = (int)json_integer_value(json_object_get(o, "features"));
     m->best_round = (int)json_integer_value(json_object_get(o, "best_round"));
@@ -146,9 +198,32 @@ int model_meta_load(const char *model_path, struct model_meta *m, struct err *e)
         rc = err_set(e, ST_EFORMAT, "%s: 'references' missing or not numbers", path);
         goto done;
     }
+    if (m->format >= 3 &&
+        ((rc = copy_str(o, "recipe_sha256", m->recipe_sha256, sizeof m->recipe_sha256, path, e)) ||
+         (rc = copy_str(o, "recipe_basis", m->basis, sizeof m->basis, path, e)) ||
+         (rc = copy_str(o, "recipe_basis_sha256", m->basis_sha256, sizeof m->basis_sha256, path,
+                        e))))
+        goto done;
+    m->holdout = json_number_value(json_object_get(o, "holdout_fraction"));
 done:
     json_decref(o);
     return rc;
+}
+
+/* The first line where two basis texts differ, as "a' at training, recipe says 'b'". */
+static void basis_difference(const char *had, const char *want, char *out, size_t len)
+{
+    while (*had || *want) {
+        size_t a = strcspn(had, "\n"), b = strcspn(want, "\n");
+        if (a != b || strncmp(had, want, a) != 0) {
+            snprintf(out, len, "'%.*s' at training, the recipe now gives '%.*s'", (int)a, had,
+                     (int)b, want);
+            return;
+        }
+        had += a + (had[a] == '\n');
+        want += b + (want[b] == '\n');
+    }
+    snprintf(out, len, "the basis hashes differ");
 }
 
 int model_check(const struct recipe *r, struct model_meta *m, struct err *e)
@@ -173,6 +248,18 @@ int model_check(const struct recipe *r, struct model_meta *m, struct err *e)
         return err_set(e, ST_EFORMAT,
                        "%s: model was trained on other features than recipe %s selects; retrain",
                        r->model_path, r->path);
+    if (strcmp(m->cnn_sha256, want.cnn_sha256) != 0)
+        return err_set(e, ST_EFORMAT, "%s: trained with network %s of SHA-256 %.12s..., recipe %s now reads "
+                       "%.12s...; the network changed, retrain", r->model_path, r->feat.cnn.model,
+                       m->cnn_sha256[0] ? m->cnn_sha256 : "(none)", r->path,
+                       want.cnn_sha256[0] ? want.cnn_sha256 : "(none)");
+    if (m->format >= 3 && strcmp(m->basis_sha256, want.basis_sha256) != 0) {
+        char why[400];
+        basis_difference(m->basis, want.basis, why, sizeof why);
+        return err_set(e, ST_EFORMAT,
+                       "%s does not belong to recipe %s: %s; train it again (station train)",
+                       r->model_path, r->path, why);
+    }
     char hex[SHA256_HEX_LEN];
     if ((rc = sha256_hex_file(r->model_path, hex, e)))
         return rc;

@@ -49,7 +49,7 @@ enum {
     K_NONE = 1u << 2      /* accepts "none", stored as -1 */
 };
 
-#define MAX_KEYS 12
+#define MAX_KEYS 16
 /* each single section once, the classes, their tolerances (also per zone),
  * the zones and the master parts */
 #define MAX_SECTIONS                                                                               \
@@ -71,6 +71,9 @@ static const char *const orient_words[] = {"fixed", "moments", NULL};
 static const char *const shape_words[] = {"rect", "circle", "ring", "polygon", "mask", NULL};
 /* enum verdict order */
 static const char *const expect_words[] = {"pass", "fail", NULL};
+/* cnn_input: channel order the network was trained on */
+static const char *const cnn_input_words[] = {"rgb", "bgr", NULL};
+static const char *const cnn_precision_words[] = {"fp32", "bf16", NULL};
 
 #define R(f) offsetof(struct recipe, f)
 #define CLS(f) offsetof(struct recipe_class, f)
@@ -95,7 +98,8 @@ static const struct key_def class_keys[] = {
 
 static const struct key_def features_keys[] = {
     {"families", V_FAMILIES, FEAT(families), 0, 0, 0, 0, 0, NULL},
-    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, 0, NULL},
+    /* required only with a per-sigma family: checked after parsing */
+    {"sigmas", V_REALS, FEAT(sigmas), FEAT(nsigmas), 0.5, 16, FEAT_MAX_SIGMAS, K_OPTIONAL, NULL},
     {"gabor_orientations", V_INT, FEAT(gabor_orientations), 0, 1, FEAT_MAX_ORIENT, 0,
      K_OPTIONAL, NULL},
     /* required only with family gabor: checked after parsing */
@@ -103,6 +107,18 @@ static const struct key_def features_keys[] = {
      FEAT_MAX_GABOR_FREQS, K_OPTIONAL | K_LO_OPEN, NULL},
     {"normalise", V_YESNO, FEAT(normalise), 0, 0, 0, 0, K_OPTIONAL, NULL},
     {"threads", V_INT, FEAT(threads), 0, 1, 64, 0, K_OPTIONAL, NULL},
+    /* a cut pretrained network (core/cnnfeat.h); read by check_cnn */
+    {"cnn_model", V_FILE, FEAT(cnn.model), 0, 0, 0, 0, K_OPTIONAL, NULL},
+    {"cnn_output", V_TEXT, FEAT(cnn.output), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->output), K_OPTIONAL, NULL},
+    {"cnn_channels", V_TEXT, FEAT(cnn.channels), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->channels),
+     K_OPTIONAL, NULL},
+    {"cnn_input", V_WORD, FEAT(cnn.bgr), 0, 0, 0, 0, K_OPTIONAL, cnn_input_words},
+    {"cnn_precision", V_WORD, FEAT(cnn.bf16), 0, 0, 0, 0, K_OPTIONAL, cnn_precision_words},
+    {"cnn_scale", V_REAL, FEAT(cnn.scale), 0, 0, 1e6, 0, K_OPTIONAL | K_LO_OPEN, NULL},
+    {"cnn_mean", V_TEXT, FEAT(cnn.mean_text), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->mean_text), K_OPTIONAL,
+     NULL},
+    {"cnn_std", V_TEXT, FEAT(cnn.std_text), 0, 0, 0, sizeof(((struct cnnfeat_spec *)0)->std_text), K_OPTIONAL,
+     NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def classifier_keys[] = {
@@ -286,6 +302,11 @@ static const char *const family_names[] = {"colour",    "gauss",    "gradient", 
                                            "hessian",   "structure", "localstd", "gabor"};
 #define NFAMILIES ((int)(sizeof family_names / sizeof family_names[0]))
 
+const char *recipe_family_name(int bit)
+{
+    return bit >= 0 && bit < NFAMILIES ? family_names[bit] : NULL;
+}
+
 struct section {
     enum sec_kind kind;
     char name[32];
@@ -424,28 +445,39 @@ static int out_of_range(struct parse *p, const struct key_def *k, const char *va
                    range, (k->flags & K_NONE) ? " or none" : "");
 }
 
-static int store_families(struct parse *p, const struct key_def *k, char *base, const char *value)
+/* A list of distinct words from a fixed set of n, name(i) the i-th, as a
+ * bit mask at k->off; an empty list only when allow_empty. */
+static int store_word_set(struct parse *p, const struct key_def *k, char *base, const char *value,
+                          const char *(*name)(int), int n, int allow_empty)
 {
-    unsigned fam = 0;
+    unsigned mask = 0;
     char word[32];
     int got;
     while ((got = next_word(&value, word, sizeof word)) != 0) {
         int f = 0;
-        while (got > 0 && f < NFAMILIES && strcmp(word, family_names[f]))
+        while (got > 0 && f < n && strcmp(word, name(f)))
             f++;
-        if (got < 0 || f == NFAMILIES)
-            return fail_at(p, p->line, ST_EFORMAT,
-                           "%s: unknown family '%s' (known: colour gauss gradient laplace "
-                           "hessian structure localstd gabor)",
-                           k->name, got < 0 ? "(overlong word)" : word);
-        if (fam & (1u << f))
+        if (got < 0 || f == n) {
+            char known[160] = "";
+            for (int m = 0; m < n; m++)
+                snprintf(known + strlen(known), sizeof known - strlen(known), "%s%s",
+                         m ? " " : "", name(m));
+            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' is not one of: %s", k->name,
+                           got < 0 ? "(overlong word)" : word, known);
+        }
+        if (mask & (1u << f))
             return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' listed twice", k->name, word);
-        fam |= 1u << f;
+        mask |= 1u << f;
     }
-    if (!fam)
-        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one family", k->name);
-    *(unsigned *)(base + k->off) = fam;
+    if (!mask && !allow_empty)
+        return fail_at(p, p->line, ST_EFORMAT, "%s: needs at least one of them", k->name);
+    *(unsigned *)(base + k->off) = mask;
     return ST_OK;
+}
+
+static const char *family_name(int i)
+{
+    return family_names[i];
 }
 
 static int hex_digit(int c)
@@ -680,27 +712,9 @@ static int store_pass(struct parse *p, const struct key_def *k, char *base, cons
 }
 
 /* `required = exposure gain`: names of [camera]'s setting keys, each once. */
-static int store_settings(struct parse *p, const struct key_def *k, char *base, const char *value)
+static const char *setting_name(int i)
 {
-    unsigned mask = 0;
-    char word[32];
-    const char *cur = value;
-    int got;
-    while ((got = next_word(&cur, word, sizeof word)) != 0) {
-        int s = 0;
-        while (got > 0 && s < CAM_NSETTINGS && strcmp(word, camera_keys[s].name))
-            s++;
-        if (got < 0 || s == CAM_NSETTINGS)
-            return fail_at(p, p->line, ST_EFORMAT,
-                           "%s: '%s' is not one of: exposure gain white_balance_k focus "
-                           "power_line",
-                           k->name, got < 0 ? "(overlong word)" : word);
-        if (mask & (1u << s))
-            return fail_at(p, p->line, ST_EFORMAT, "%s: '%s' listed twice", k->name, word);
-        mask |= 1u << s;
-    }
-    *(unsigned *)(base + k->off) = mask;
-    return ST_OK;
+    return camera_keys[i].name;
 }
 
 static int store_value(struct parse *p, const struct key_def *k, char *base, const char *value)
@@ -758,7 +772,11 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
     case V_REALS:
         return store_reals(p, k, base, value);
     case V_FAMILIES:
-        return store_families(p, k, base, value);
+        if (!strcmp(value, "none")) { /* a network's features only: check_cnn insists on one */
+            *(unsigned *)(base + k->off) = 0;
+            return ST_OK;
+        }
+        return store_word_set(p, k, base, value, family_name, NFAMILIES, 0);
     case V_GRADE:
         if (is_none) {
             *(int *)(base + k->off) = -1;
@@ -776,7 +794,7 @@ static int store_value(struct parse *p, const struct key_def *k, char *base, con
     case V_PASS:
         return store_pass(p, k, base, value);
     case V_SETTINGS:
-        return store_settings(p, k, base, value);
+        return store_word_set(p, k, base, value, setting_name, CAM_NSETTINGS, 1);
     case V_MODEL:
     case V_MASK:
     case V_CALIB:
@@ -1020,6 +1038,9 @@ static int check_sections(struct parse *p)
             return fail_at(p, s->line, ST_EFORMAT,
                            "[%s] lacks key 'gabor_frequencies' (required with family gabor)",
                            s->title);
+        if (s->kind == SEC_FEATURES && (p->r.feat.families & ~(unsigned)(FEAT_COLOUR | FEAT_GABOR)) &&
+            !s->key_line[key_index(SEC_FEATURES, "sigmas")])
+            return fail_at(p, s->line, ST_EFORMAT, "[%s] lacks key 'sigmas'", s->title);
     }
     return ST_OK;
 }
@@ -1183,6 +1204,19 @@ static int check_gates(struct parse *p)
 
 /* The scale comes one way only: the two mm_per_px keys, or a calibration
  * file whose scale (at the target's centre) fills them. */
+/* A network named by cnn_model is read now, so feature counts, names and
+ * the file's digest are known from here on. */
+static int check_cnn(struct parse *p)
+{
+    struct cnnfeat_spec *c = &p->r.feat.cnn;
+    c->on = c->model[0] != 0;
+    if (!c->on && p->r.feat.families == 0)
+        return fail_at(p, 0, ST_EFORMAT, "[features] families = none needs cnn_model");
+    if (!c->on && (c->output[0] || c->channels[0] || c->mean_text[0] || c->std_text[0]))
+        return fail_at(p, 0, ST_EFORMAT, "[features] cnn_* keys need cnn_model");
+    return cnnfeat_resolve(c, p->path, p->e);
+}
+
 static int check_scale(struct parse *p)
 {
     const struct section *s = NULL;
@@ -1267,6 +1301,7 @@ static int check_trigger(struct parse *p)
 
 static void set_defaults(struct recipe *r)
 {
+    cnnfeat_spec_default(&r->feat.cnn);
     r->feat.gabor_orientations = 4;
     r->feat.normalise = 1;
     r->feat.threads = 2;
@@ -1343,7 +1378,7 @@ int recipe_load(const char *path, struct recipe *r, struct err *e)
         (rc = check_zones(p)) != ST_OK || (rc = check_tolerances(p)) != ST_OK ||
         (rc = check_gates(p)) != ST_OK || (rc = check_scale(p)) != ST_OK ||
         (rc = check_masters(p)) != ST_OK || (rc = check_camera(p)) != ST_OK ||
-        (rc = check_trigger(p)) != ST_OK)
+        (rc = check_trigger(p)) != ST_OK || (rc = check_cnn(p)) != ST_OK)
         goto fail;
     *r = p->r;
 fail:

@@ -163,6 +163,9 @@ struct recipe {
 
 int recipe_load(const char *path, struct recipe *r, struct err *e);
 
+/* The [features] families word of bit `bit` of enum feat_family, or NULL. */
+const char *recipe_family_name(int bit);
+
 /* Index of the class with this name, or -1. */
 int recipe_find_class(const struct recipe *r, const char *name);
 

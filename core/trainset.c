@@ -92,6 +92,7 @@ int trainset_add_image(struct trainset *ts, const struct fstack *fs, const struc
     if (rc == ST_OK) {
         for (int c = 0; c < ts->nclasses; c++) {
             size_t take = seen[c] < (size_t)cap ? seen[c] : (size_t)cap;
+            ts->labelled[c] += seen[c];
             if (take)
                 ts->images_with[c]++;
             for (size_t k = 0; k < take; k++)

@@ -24,6 +24,7 @@ struct trainset {
     float *y;        /* class index as float, as XGBoost takes labels */
     size_t per_class[TRAINSET_MAX_CLASSES];
     int images_with[TRAINSET_MAX_CLASSES];  /* images contributing to each class */
+    size_t labelled[TRAINSET_MAX_CLASSES];  /* labelled pixels seen, before the cap */
 };
 
 void trainset_init(struct trainset *ts, int nfeat, int nclasses);

@@ -419,6 +419,12 @@ int audit_report_html(FILE *f, const char *source, const json_t *st,
         esc(f, str(st, "last"));
     }
     fprintf(f, " (days and shifts counted at UTC%+d min).</p>\n", (int)num(st, "utc_offset_min"));
+    if (*str(st, "public_key")) {
+        fputs("<p>Signed with the station's Ed25519 public key <code>", f);
+        esc(f, str(st, "public_key"));
+        fputs("</code>: check a copy of the log with <code>station audit verify --public-key"
+              " KEY</code> against this key obtained separately.</p>\n", f);
+    }
     fputs("<h2>Verdicts</h2>\n", f);
     fputs("<table><tr><th></th><th>PASS</th><th>FAIL</th><th>NO VERDICT</th><th>total</th></tr>\n",
           f);

@@ -5,7 +5,9 @@
  * per-subgroup limits, the Pareto bars with their cumulative line), and the
  * rejects' overlay evidence appears as downscaled thumbnails embedded as
  * base64 PNG data URIs.  It carries the caution that the tool aids, and does
- * not replace, qualified inspection.  Every text from the log is escaped.
+ * not replace, qualified inspection, and the public key the log is signed
+ * with (stats "public_key", when the log has one).  Every text from the log
+ * is escaped.
  *
  * Owns nothing between calls; writes only to the FILE it is handed. */
 #ifndef ST_AUDIT_REPORT_H

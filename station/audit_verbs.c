@@ -369,6 +369,10 @@ int audit_cmd_report(int argc, char **argv)
         goto done;
     for (size_t i = 0; i < g.n; i++)
         load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
+    /* the key the log is signed with, so a reader can check a copy of it */
+    struct log_signing sg;
+    if (!log_signing_get(db, &sg, &e) && sg.present)
+        json_object_set_new(js, "public_key", json_string(sg.public_key));
     /* the page names its selection, so a printed copy says what it covers */
     char source[1024];
     snprintf(source, sizeof source, "%s%s%s%s%s%s%s%s%s", log_path(db), o.from ? ", from " : "",

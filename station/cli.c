@@ -2,7 +2,9 @@
 
 #include "core/recipe.h"
 
+#include <errno.h>
 #include <stdarg.h>
+#include <stdlib.h>
 #include <string.h>
 #include <time.h>
 #include <unistd.h>
@@ -30,6 +32,15 @@ double cli_now_ms(void)
     struct timespec ts;
     clock_gettime(CLOCK_MONOTONIC, &ts);
     return ts.tv_sec * 1e3 + ts.tv_nsec / 1e6;
+}
+
+void cli_sleep_ms(double ms)
+{
+    if (ms <= 0)
+        return;
+    struct timespec ts = {(time_t)(ms / 1e3), (long)((ms - (double)(time_t)(ms / 1e3) * 1e3) * 1e6)};
+    while (nanosleep(&ts, &ts) != 0 && errno == EINTR)
+        ;
 }
 
 void progress_init(struct progress *p)
@@ -78,6 +89,37 @@ int cli_load_recipe(const char *path, struct recipe *r)
     if (recipe_load(path, r, &e) != ST_OK) {
         cli_say("%s", e.msg);
         return EXIT_ERROR;
+    }
+    return 0;
+}
+
+int cli_number(const char *opt, const char *v, double *out, int zero_ok)
+{
+    char *end;
+    *out = strtod(v, &end);
+    if (*end || end == v || !(*out > 0 || (zero_ok && *out == 0))) {
+        cli_say("%s: '%s' is not a %s number", opt, v, zero_ok ? "non-negative" : "positive");
+        return -1;
+    }
+    return 0;
+}
+
+int cli_size(const char *opt, const char *v, int *w, int *h)
+{
+    if (sscanf(v, "%dx%d", w, h) != 2 || *w < 64 || *h < 64 || *w > 8192 || *h > 8192) {
+        cli_say("%s: '%s' is not WxH with sides 64..8192", opt, v);
+        return -1;
+    }
+    return 0;
+}
+
+int cli_split(const char *opt, const char *v, double *out)
+{
+    char *end;
+    *out = strtod(v, &end);
+    if (*end || end == v || !(*out > 0 && *out <= 0.9)) {
+        cli_say("%s: '%s' is not a share of the images in (0, 0.9]", opt, v);
+        return -1;
     }
     return 0;
 }

@@ -39,7 +39,10 @@ void progress_update(struct progress *p, int force, const char *fmt, ...)
     __attribute__((format(printf, 3, 4)));
 void progress_done(struct progress *p);
 
+/* CLOCK_MONOTONIC milliseconds. */
 double cli_now_ms(void);
+/* Sleeps ms milliseconds (none when ms <= 0), resumed after a signal. */
+void cli_sleep_ms(double ms);
 
 /* Subcommands: each returns an exit_status. */
 int cmd_train(int argc, char **argv);
@@ -52,7 +55,16 @@ int cmd_calibrate(int argc, char **argv);
 int cmd_verify(int argc, char **argv);
 int cmd_audit(int argc, char **argv);
 int cmd_run(int argc, char **argv);
-int cmd_calibrate(int argc, char **argv);
+int cmd_label(int argc, char **argv);
+int cmd_capture(int argc, char **argv);
+
+/* Option values: a positive (or, with zero_ok, non-negative) number, and
+ * WxH with sides 64..8192; on a bad value they say so naming opt and
+ * return -1. */
+int cli_number(const char *opt, const char *v, double *out, int zero_ok);
+int cli_size(const char *opt, const char *v, int *w, int *h);
+/* A held-out share for --split, in (0, 0.9]. */
+int cli_split(const char *opt, const char *v, double *out);
 
 /* True when argv holds -h or --help; such commands print usage and return 0. */
 int cli_wants_help(int argc, char **argv);

@@ -377,7 +377,7 @@ static int run_demo(const struct demo_opts *o, struct err *e)
     fprintf(stderr, "demo: rendered in %.1f s\n", (cli_now_ms() - t0) / 1e3);
 
     struct train_report rep;
-    if ((rc = train_recipe(&r, train_dir, &rep, e)))
+    if ((rc = train_recipe(&r, train_dir, 0, &rep, e)))
         return rc;
     train_print_report(&r, &rep);
 
@@ -405,7 +405,7 @@ static int run_demo(const struct demo_opts *o, struct err *e)
         snprintf(dir, sizeof dir, "%s/evaluation", dirs[k]);
         if (count[k] == 0)
             continue;
-        if (!(rc = evaluate_dataset(in, dirs[k], dir, 3, &b[k].eval, e)))
+        if (!(rc = evaluate_dataset(in, dirs[k], 0, dir, 3, &b[k].eval, e)))
             rc = inspect_batch(in, dirs[k], first[k], count[k], &b[k], e);
     }
     inspector_free(in);

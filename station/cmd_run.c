@@ -48,17 +48,6 @@ static void usage(FILE *f)
             LOGBOOK_DEFAULT_STATION, CLI_CAUTION);
 }
 
-static int positive(const char *opt, const char *v, double *out, int zero_ok)
-{
-    char *end;
-    *out = strtod(v, &end);
-    if (*end || end == v || !(*out > 0 || (zero_ok && *out == 0))) {
-        cli_say("%s: '%s' is not a %s number", opt, v, zero_ok ? "non-negative" : "positive");
-        return -1;
-    }
-    return 0;
-}
-
 int cmd_run(int argc, char **argv)
 {
     if (cli_wants_help(argc, argv)) {
@@ -94,15 +83,12 @@ int cmd_run(int argc, char **argv)
             }
             break;
         case 'f':
-            if (positive("--fps", optarg, &o.src.fps, 1))
+            if (cli_number("--fps", optarg, &o.src.fps, 1))
                 return EXIT_USAGE;
             break;
         case 'z':
-            if (sscanf(optarg, "%dx%d", &o.src.width, &o.src.height) != 2 || o.src.width < 64 ||
-                o.src.height < 64 || o.src.width > 8192 || o.src.height > 8192) {
-                cli_say("--size: '%s' is not WxH with sides 64..8192", optarg);
+            if (cli_size("--size", optarg, &o.src.width, &o.src.height))
                 return EXIT_USAGE;
-            }
             break;
         case 'd':
             o.src.seed = strtoull(optarg, &end, 10);
@@ -113,12 +99,12 @@ int cmd_run(int argc, char **argv)
             break;
         case 'L': o.src.loop = 1; break;
         case 'i':
-            if (positive("--inspections", optarg, &v, 0))
+            if (cli_number("--inspections", optarg, &v, 0))
                 return EXIT_USAGE;
             o.inspections = (long)v;
             break;
         case 'F':
-            if (positive("--frames", optarg, &v, 0))
+            if (cli_number("--frames", optarg, &v, 0))
                 return EXIT_USAGE;
             o.frames = (long)v;
             break;
@@ -127,7 +113,7 @@ int cmd_run(int argc, char **argv)
         case 'p': o.operator_id = optarg; break;
         case 'n': o.serial = optarg; break;
         case 'b':
-            if (positive("--evidence-budget", optarg, &o.budget_mb, 0))
+            if (cli_number("--evidence-budget", optarg, &o.budget_mb, 0))
                 return EXIT_USAGE;
             break;
         case 'o': o.snapshot = optarg; break;

@@ -95,8 +95,8 @@ static int write_worst(struct inspector *in, const struct dataset *ds, struct ev
     return rc;
 }
 
-int evaluate_dataset(struct inspector *in, const char *data_dir, const char *sheet_dir,
-                     int nworst, struct eval_result *res, struct err *e)
+int evaluate_dataset(struct inspector *in, const char *data_dir, double split,
+                     const char *sheet_dir, int nworst, struct eval_result *res, struct err *e)
 {
     const struct recipe *r = inspector_recipe(in);
     memset(res, 0, sizeof *res);
@@ -111,7 +111,7 @@ int evaluate_dataset(struct inspector *in, const char *data_dir, const char *she
         return err_set(e, ST_ENOMEM, "out of memory");
     }
     for (int i = 0; i < ds.n && rc == ST_OK; i++) {
-        if (!ds.labelled[i])
+        if (!ds.labelled[i] || (split > 0 && !dataset_held_out(&ds, i, split)))
             continue;
         struct image *img, *lab;
         if ((rc = load_pair(&ds, i, r->nclasses, &img, &lab, e)))
@@ -136,7 +136,8 @@ int evaluate_dataset(struct inspector *in, const char *data_dir, const char *she
         image_free(lab);
     }
     if (rc == ST_OK && res->n == 0)
-        rc = err_set(e, ST_EFORMAT, "%s/labels: no label masks for the images", data_dir);
+        rc = err_set(e, ST_EFORMAT, "%s/labels: no label masks for the images%s", data_dir,
+                     split > 0 ? " held out at that share" : "");
     if (rc == ST_OK && sheet_dir && nworst > 0)
         rc = write_worst(in, &ds, res, sheet_dir, nworst, e);
     dataset_close(&ds);

@@ -4,7 +4,9 @@
  * classified by the same inspector the station uses; the confusion matrix
  * accumulates over all of them (unlabelled pixels skipped) and each image
  * gets its own row.  The worst images (lowest pixel accuracy) are written
- * as sheets: frame | truth | prediction, in the recipe's class colours. */
+ * as sheets: frame | truth | prediction, in the recipe's class colours.
+ * With split > 0 only the images held out at that share (core/dataset.h)
+ * are measured: the ones `station train --split` never read. */
 #ifndef ST_EVALUATE_H
 #define ST_EVALUATE_H
 
@@ -29,8 +31,8 @@ struct eval_result {
 };
 
 /* sheet_dir may be NULL (no sheets). */
-int evaluate_dataset(struct inspector *in, const char *data_dir, const char *sheet_dir,
-                     int nworst, struct eval_result *res, struct err *e);
+int evaluate_dataset(struct inspector *in, const char *data_dir, double split,
+                     const char *sheet_dir, int nworst, struct eval_result *res, struct err *e);
 void evaluate_clear(struct eval_result *res);
 
 /* Human report on f: metrics, IoU per class, confusion (counts and row

@@ -9,6 +9,7 @@
 #include <time.h>
 #include <unistd.h>
 
+#include "capture.h"
 #include "cli.h"
 #include "core/judge.h"
 #include "screen.h"
@@ -17,6 +18,12 @@
 
 #define FRAME_TIMEOUT_MS 20
 #define CLOSING_MS 10000
+/* No new frame for this long (or 5 frame periods at the rate measured, when
+ * longer) while the camera is not lost: stalled.  The camera source skips
+ * garbled buffers and restarts a stream after [camera] stall_ms, so without
+ * this a key trigger would inspect the last good picture, seconds old
+ * (found by tests/e2e/test_camera_faults.sh).  Common practice, no source. */
+#define STALE_MIN_MS 500.0
 
 static volatile sig_atomic_t stop_signal;
 
@@ -40,7 +47,7 @@ struct live {
     double last_t_ms;
     struct job pending;
     int has_pending;
-    int lost, frozen, ended, halted, quit;
+    int lost, frozen, stalled, ended, halted, quit;
     int closing, key_waiting;    /* closing: finish what was asked, then quit */
     double closing_ms;
     long results, counts[3];
@@ -52,6 +59,8 @@ struct live {
     size_t line_len;
     int stdin_open;
     long snapshots;
+    struct capture cap;          /* capture mode (o->capture_dir) */
+    struct err cap_err;          /* a frame that could not be saved stops capture */
 };
 
 static void event(const char *name, const char *key, const char *value)
@@ -84,9 +93,34 @@ static void fill_record_fields(struct live *L, struct job *j)
     snprintf(j->serial, sizeof j->serial, "%s", L->st.serial);
 }
 
+static void snapshot(struct live *L);
+
+/* Capture mode: the triggered frame (the latest one) into the dataset. */
+static void save_frame(struct live *L)
+{
+    char path[PATH_MAX];
+    if (capture_save(&L->cap, L->last, path, sizeof path, &L->cap_err))
+        return;
+    L->results++;
+    L->st.inspected = L->cap.saved;
+    snprintf(L->st.saved, sizeof L->st.saved, "saved %s", path);
+    snprintf(L->st.status, sizeof L->st.status, "%s",
+             L->mode == RECIPE_TRIGGER_AUTO ? "saved: take the part off" : "saved");
+    cli_emit(json_pack("{s:s,s:s,s:I,s:s}", "event", "saved", "path", path, "count",
+                       (json_int_t)L->cap.saved, "frame", L->last_name));
+    if (L->scr && L->o->snapshot)
+        snapshot(L);
+    if (L->o->inspections > 0 && L->results >= L->o->inspections)
+        L->quit = 1;
+}
+
 /* A triggered frame (the latest one) for the worker. */
 static void want_inspection(struct live *L)
 {
+    if (L->o->capture_dir && L->last) {
+        save_frame(L);
+        return;
+    }
     if (L->halted) {
         event("trigger_dropped", "reason", "inspection halted");
         return;
@@ -117,6 +151,10 @@ static void want_inspection(struct live *L)
 /* A NO_VERDICT record without inspection (camera lost, frozen, unreadable). */
 static void want_refusal(struct live *L, const char *name, const char *rule, const char *message)
 {
+    if (L->o->capture_dir) {
+        event("trigger_dropped", "reason", message); /* nothing to save, nothing to log */
+        return;
+    }
     if (L->halted || L->has_pending) {
         event("trigger_dropped", "reason", L->halted ? "inspection halted" : "busy");
         return;
@@ -138,6 +176,8 @@ static void key_trigger(struct live *L)
         want_refusal(L, "camera", "camera_lost", "camera lost: no picture to inspect");
     else if (L->frozen)
         want_refusal(L, L->last_name, "frozen", "camera frozen: the picture repeats unchanged");
+    else if (L->stalled)
+        want_refusal(L, "camera", "camera_stalled", "camera stalled: no new picture to inspect");
     else
         want_inspection(L);
 }
@@ -160,11 +200,14 @@ static void set_status(struct live *L)
     trigger_view(L->trig, &v);
     const char *s = L->halted                  ? "inspection halted"
                     : L->lost                  ? "camera lost"
+                    : L->stalled               ? "camera stalled"
                     : L->frozen                ? "camera frozen"
                     : L->has_pending           ? "inspecting"
+                    : L->mode == RECIPE_TRIGGER_KEY && L->o->capture_dir ? "press Enter to save the frame"
                     : L->mode == RECIPE_TRIGGER_KEY ? "press Enter to inspect"
                     : !v.learned               ? "learning the empty bench"
                     : v.present && v.armed     ? "part present, waiting for it to lie still"
+                    : v.present && L->o->capture_dir ? "saved: take the part off"
                     : v.present                ? "inspected: take the part off"
                                                : "waiting for a part";
     snprintf(L->st.status, sizeof L->st.status, "%s", s);
@@ -255,6 +298,10 @@ static void on_frame(struct live *L, const struct source_frame *f)
         trigger_restart(L->trig);
         event("camera_back", NULL, NULL);
     }
+    if (L->stalled) {
+        L->stalled = 0;
+        event("camera_streaming", NULL, NULL);
+    }
     if (copy_frame(&L->last, f->img))
         return;
     snprintf(L->last_name, sizeof L->last_name, "%s", f->name);
@@ -293,6 +340,19 @@ static void on_frame(struct live *L, const struct source_frame *f)
     if ((ev & TRIGGER_FIRE) || L->key_waiting)
         want_inspection(L);
     L->key_waiting = 0;
+}
+
+/* Called while the source has no frame: a stream that stopped is stalled. */
+static void check_stalled(struct live *L)
+{
+    if (L->lost || L->stalled || !L->frames)
+        return;
+    double stale = L->st.fps > 0 ? 5000.0 / L->st.fps : 0;
+    if (cli_now_ms() - L->last_frame_ms < (stale > STALE_MIN_MS ? stale : STALE_MIN_MS))
+        return;
+    L->stalled = 1;
+    event("camera_stalled", "camera", source_describe(L->src));
+    part_in_view_refused(L, "camera_stalled", "camera stalled while the part was in view");
 }
 
 static void on_lost(struct live *L)
@@ -374,17 +434,20 @@ static void poll_screen(struct live *L)
 static int step(struct live *L, struct err *e)
 {
     struct result res;
-    while (worker_poll(L->w, &res))
+    while (L->w && worker_poll(L->w, &res))
         take_result(L, &res);
     if (L->has_pending && !L->quit && worker_submit(L->w, &L->pending))
         L->has_pending = 0;
+    if (L->cap_err.code)
+        return err_set(e, L->cap_err.code, "%s", L->cap_err.msg);
     if (L->headless)
         read_stdin(L);
     else
         poll_screen(L);
     if (L->quit || stop_signal)
         return ST_OK;
-    int waiting = L->paced_by_worker && (L->has_pending || worker_busy(L->w));
+    int busy = L->w && worker_busy(L->w);
+    int waiting = L->paced_by_worker && (L->has_pending || busy);
     if (L->ended || waiting) {
         struct timespec ts = {0, 2000000};
         nanosleep(&ts, NULL);
@@ -402,8 +465,10 @@ static int step(struct live *L, struct err *e)
             want_refusal(L, f.name, "unreadable", e->msg);
         else if (status == SOURCE_END)
             L->ended = 1;
+        else if (status == SOURCE_WAIT)
+            check_stalled(L);
     }
-    int idle = !L->has_pending && !L->key_waiting && !worker_busy(L->w);
+    int idle = !L->has_pending && !L->key_waiting && !busy;
     if ((L->ended || L->closing) && idle)
         L->quit = 1;
     if (L->closing && cli_now_ms() - L->closing_ms > CLOSING_MS)
@@ -453,7 +518,9 @@ static int open_all(struct live *L, struct err *e)
         rc = trigger_new(&L->r.trigger, L->mode, &L->trig, e);
     struct worker_options wo = {o->db_path, o->station, (uint64_t)(o->budget_mb * 1e6),
                                 !o->headless, o->retry_ms};
-    if (!rc)
+    if (!rc && o->capture_dir)
+        rc = capture_open(&L->cap, o->capture_dir, e);
+    else if (!rc)
         rc = worker_start(&L->r, &wo, &L->w, e);
     if (!rc && !o->headless) {
         struct screen_options sopt;
@@ -482,6 +549,7 @@ int live_run(const struct live_options *o)
     snprintf(L->st.operator_id, sizeof L->st.operator_id, "%s", o->operator_id ? o->operator_id : "");
     snprintf(L->st.serial, sizeof L->st.serial, "%s", o->serial ? o->serial : "");
     snprintf(L->st.recipe, sizeof L->st.recipe, "%s version %d", L->r.product, L->r.version);
+    L->st.capture = o->capture_dir != NULL;
     describe_calibration(L);
     /* frames of a replay are files, not a camera's consecutive frames */
     L->forget_last = !strncmp(o->source, "replay:", 7);
@@ -529,7 +597,9 @@ int live_run(const struct live_options *o)
     trigger_free(L->trig);
     source_free(L->src);
     long none = L->counts[VERDICT_NONE], fail = L->counts[VERDICT_FAIL];
-    if (L->results)
+    if (o->capture_dir && L->src)
+        fprintf(stderr, "%ld frames saved in %s.\n", L->cap.saved, L->cap.images);
+    else if (L->results)
         fprintf(stderr, "%ld PASS, %ld FAIL, %ld NO VERDICT.  %s\n", L->counts[VERDICT_PASS],
                 fail, none, CLI_CAUTION);
     free(L);

@@ -15,7 +15,10 @@
  * until the worker's retry succeeds.  Camera lost: the screen says so, and
  * the part in view (auto, continuous) or a key trigger meanwhile gets a
  * NO_VERDICT record with rule camera_lost; a frozen camera likewise gets
- * rule frozen.  Operator id and serial come from the options, the screen's
+ * rule frozen, and a stalled one (no new frame for 500 ms, or five frame
+ * periods when longer: a stream that stopped, or garbled buffers the camera
+ * source skips) rule camera_stalled, with events camera_stalled and
+ * camera_streaming.  Operator id and serial come from the options, the screen's
  * input line or stdin commands, and go into each record; the serial is
  * cleared once the inspection it was logged with has its result (a serial
  * belongs to one part).  Headless: JSON lines on stdout (each inspection's
@@ -24,7 +27,14 @@
  * "quit" (end of input with the key trigger quits too); quitting so first
  * finishes the inspection asked for (one asked before the first frame takes
  * that frame), for at most 10 s.  A signal (SIGINT, SIGTERM) finishes only
- * the record in hand. */
+ * the record in hand.
+ *
+ * Capture mode (capture_dir set, `station capture`): the same source,
+ * trigger and screen, but no worker, no model and no log: each trigger
+ * (key, or the automatic part trigger) saves the frame into the dataset
+ * folder (station/capture.h) and prints {"event": "saved", "path", "count",
+ * "frame"}; the screen shows CAPTURE, the count and the last file.
+ * inspections then counts saved frames. */
 #ifndef ST_LIVE_H
 #define ST_LIVE_H
 
@@ -43,6 +53,7 @@ struct live_options {
     int allow_offscreen;         /* tests: SDL's offscreen and dummy drivers are accepted */
     double budget_mb;
     int retry_ms;                /* log retries while halted */
+    const char *capture_dir;     /* capture mode: save triggered frames here */
 };
 void live_options_init(struct live_options *o);
 

@@ -8,6 +8,7 @@
 #include <sys/stat.h>
 
 #include "core/model.h"
+#include "core/recipever.h"
 #include "report.h"
 
 static int valid_station(const char *s)
@@ -95,6 +96,10 @@ int logbook_open(struct logbook *lb, const char *db_path, const char *station,
     if (!rc && !db_path && !(rc = logbook_default_path(station, def, sizeof def, e)))
         db_path = def;
     struct model_meta m;
+    /* the version every record names must be the recipe's: an edit not
+     * saved (station recipe save) would be logged under the old number */
+    if (!rc)
+        rc = recipever_check(r->path, e);
     if (!rc)
         rc = sha256_hex_file(r->path, lb->recipe_sha256, e);
     if (!rc && !(rc = model_meta_load(r->model_path, &m, e)))

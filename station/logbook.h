@@ -1,7 +1,8 @@
 /* logbook: what `station inspect` and `station demo` share to record each
  * inspection in the station's log (core/log.h).
  *
- * Opens the log for one recipe (its file's SHA-256, its model's SHA-256 from
+ * Opens the log for one recipe (refused when the file was edited since its
+ * version was saved, core/recipever.h; its file's SHA-256, its model's SHA-256 from
  * the model metadata, its scale), and records one judged report: the
  * report's `reasons` and `regions` arrays as the JSON text jansson dumps,
  * the frame and the overlay from report_overlay as evidence for every FAIL

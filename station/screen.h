@@ -21,6 +21,7 @@
 #define ST_SCREEN_H
 
 #include <jansson.h>
+#include <limits.h>
 #include <stdint.h>
 
 #include "core/image.h"
@@ -63,6 +64,10 @@ struct screen_state {
     int field;                   /* enum screen_field being typed into */
     char input[64];              /* the line being typed */
     int show_help;
+    /* station capture: frames are saved, not judged; the verdict panel
+     * shows CAPTURE, the count (inspected) and the last file saved */
+    int capture;
+    char saved[PATH_MAX + 8];    /* "saved DIR/images/NAME.png"; "" before the first */
 };
 void screen_state_init(struct screen_state *s);
 

@@ -19,9 +19,12 @@ struct screen_look screen_panels_look(const struct screen_state *st)
                                     looks[3] = {{SCREEN_RGB_GREEN, "PASS", SCREEN_SYM_TICK},
                                                 {SCREEN_RGB_VERMILION, "FAIL", SCREEN_SYM_CROSS},
                                                 {SCREEN_RGB_YELLOW, "NO VERDICT",
-                                                 SCREEN_SYM_QUESTION}};
+                                                 SCREEN_SYM_QUESTION}},
+                                    capture = {SCREEN_RGB_SKY, "CAPTURE", SCREEN_SYM_NONE};
     if (st->halted[0])
         return halted;
+    if (st->capture)
+        return capture;
     if (st->verdict < VERDICT_PASS || st->verdict > VERDICT_NONE)
         return waiting;
     return looks[st->verdict];
@@ -87,7 +90,10 @@ void screen_panels_verdict(const struct screen_canvas *c, const struct screen_st
         draw(c, SCREEN_PX_HUGE, k.word, INK, x, y, SCREEN_LEFT, max_w, 0);
     }
     char note[64];
-    if (st->halted[0])
+    if (st->capture)
+        snprintf(note, sizeof note, "%ld frame%s saved", st->inspected,
+                 st->inspected == 1 ? "" : "s");
+    else if (st->halted[0])
         snprintf(note, sizeof note, "inspection halted");
     else if (st->verdict < 0)
         snprintf(note, sizeof note, "no part inspected yet");
@@ -127,8 +133,15 @@ void screen_panels_reasons(const struct screen_canvas *c, const struct screen_st
 {
     struct screen_rect r = c->L->reasons;
     int p = c->L->pad, body = line(c, SCREEN_PX_BODY), wrap = r.w - 3 * p;
-    int y = section(c, r, st->halted[0] ? "Why inspection is halted" : "Reasons");
+    int y = section(c, r, st->halted[0] ? "Why inspection is halted"
+                          : st->capture ? "Last frame saved"
+                                        : "Reasons");
     int bottom = r.y + r.h - p / 2;
+    if (st->capture) {
+        draw(c, SCREEN_PX_BODY, st->saved[0] ? st->saved : "none yet", TEXT, r.x + p, y,
+             SCREEN_LEFT, 0, wrap);
+        return;
+    }
     if (st->halted[0]) {
         draw(c, SCREEN_PX_BODY, st->halted, TEXT, r.x + p, y, SCREEN_LEFT, 0, wrap);
         return;
@@ -205,7 +218,8 @@ void screen_panels_bars(const struct screen_canvas *c, const struct screen_state
     int p = c->L->pad;
     int y = section(c, r, "Defects counted, against the part's tolerance");
     if (!st->nbars) {
-        const char *why = st->verdict == VERDICT_NONE && !st->halted[0]
+        const char *why = st->capture ? "not judged while capturing"
+                          : st->verdict == VERDICT_NONE && !st->halted[0]
                               ? "not judged: no verdict"
                               : "nothing measured yet";
         draw(c, SCREEN_PX_BODY, why, DIM, r.x + p, y, SCREEN_LEFT, r.w - 2 * p, 0);
@@ -229,6 +243,11 @@ void screen_panels_counters(const struct screen_canvas *c, const struct screen_s
     int p = c->L->pad, x = r.x + p, y = r.y + p;
     screen_paint_rect(c->ren, r, PANEL);
     char v[5][32];
+    if (st->capture) {
+        snprintf(v[0], sizeof v[0], "%ld", st->inspected);
+        counter(c, x, y, r.w - 2 * p, "Saved this session", v[0]);
+        return;
+    }
     snprintf(v[0], sizeof v[0], "%ld", st->inspected);
     snprintf(v[1], sizeof v[1], "%ld", st->passed);
     snprintf(v[2], sizeof v[2], "%ld", st->failed);

@@ -8,6 +8,7 @@
 #include "source_bench.h"
 #include "source_camera.h"
 #include "source_replay.h"
+#include "cli.h"
 
 void source_options_init(struct source_options *o)
 {
@@ -73,34 +74,20 @@ int source_wrap(const struct source_ops *ops, void *impl, struct source **out, s
     return ST_OK;
 }
 
-double source_now_ms(void)
-{
-    struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
-    return ts.tv_sec * 1e3 + ts.tv_nsec / 1e6;
-}
-
-static void sleep_ms(double ms)
-{
-    struct timespec ts = {(time_t)(ms / 1e3), (long)((ms - (time_t)(ms / 1e3) * 1e3) * 1e6)};
-    while (nanosleep(&ts, &ts) != 0 && errno == EINTR)
-        ;
-}
-
 int source_pace(struct source_pace *p, double fps, int timeout_ms)
 {
     if (fps <= 0)
         return 1;
-    double now = source_now_ms(), period = 1e3 / fps;
+    double now = cli_now_ms(), period = 1e3 / fps;
     if (p->due_ms <= 0 || now - p->due_ms > period)
         p->due_ms = now; /* late by more than a frame: drop, as a camera does, not catch up */
     double wait = p->due_ms - now;
     if (wait > timeout_ms) {
-        sleep_ms(timeout_ms > 0 ? timeout_ms : 0);
+        cli_sleep_ms(timeout_ms);
         return 0;
     }
     if (wait > 0)
-        sleep_ms(wait);
+        cli_sleep_ms(wait);
     p->due_ms += period;
     return 1;
 }

@@ -66,13 +66,12 @@ const char *source_settings_json(const struct source *s);
 void source_free(struct source *s);
 
 /* For implementations: wraps impl in a new source (ops->free(impl) on
- * failure); CLOCK_MONOTONIC milliseconds; pacing at fps frames per second:
+ * failure); pacing at fps frames per second:
  * source_pace sleeps until the next frame is due and returns 1, or returns
  * 0 after timeout_ms when it is not due yet (fps <= 0: always due).  A
  * caller late by more than a frame period drops frames rather than
- * catching up, as a camera does. */
+ * catching up, as a camera does.  Times are cli_now_ms (station/cli.h). */
 int source_wrap(const struct source_ops *ops, void *impl, struct source **out, struct err *e);
-double source_now_ms(void);
 struct source_pace {
     double due_ms;
 };

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "simbench.h"
+#include "cli.h"
 
 #define GTAB_BITS 16
 
@@ -203,7 +204,7 @@ static int bench_next(void *impl, int timeout_ms, struct source_frame *f, int *s
     }
     f->img = b->frame;
     f->index = b->delivered++;
-    f->t_ms = source_now_ms();
+    f->t_ms = cli_now_ms();
     *status = SOURCE_FRAME;
     return ST_OK;
 }

@@ -16,6 +16,7 @@
 #include <linux/videodev2.h>
 
 #include "camctl.h"
+#include "cli.h"
 
 #define CAM_NBUF 4               /* asked of REQBUFS: one being copied, the rest filling */
 #define BACKOFF_FIRST_MS 250.0
@@ -58,22 +59,6 @@ struct cam {
     char lost[160];              /* why, while lost */
     char desc[512];
 };
-
-static double now_ms(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return (double)t.tv_sec * 1e3 + (double)t.tv_nsec / 1e6;
-}
-
-static void nap_ms(double ms)
-{
-    if (ms <= 0)
-        return;
-    struct timespec d = {(time_t)(ms / 1e3), (long)((ms - (double)(time_t)(ms / 1e3) * 1e3) * 1e6)};
-    while (nanosleep(&d, &d) && errno == EINTR)
-        ;
-}
 
 static int xioctl(int fd, unsigned long req, void *arg)
 {
@@ -273,7 +258,7 @@ out:
         v4l2_close(raw_fd);
     if (rc)
         disconnect(c);
-    c->last_frame_ms = now_ms();
+    c->last_frame_ms = cli_now_ms();
     return rc;
 }
 
@@ -282,7 +267,7 @@ static void lose(struct cam *c, const char *why)
     snprintf(c->lost, sizeof c->lost, "%s", why);
     c->live = 0;
     disconnect(c);
-    c->retry_at_ms = now_ms() + c->backoff_ms;
+    c->retry_at_ms = cli_now_ms() + c->backoff_ms;
 }
 
 static void lose_errno(struct cam *c, const char *what)
@@ -311,22 +296,22 @@ static void went_live(struct cam *c)
 static int reconnect(struct cam *c, double deadline, struct err *e)
 {
     if (!c->attempting) {
-        double t = now_ms();
+        double t = cli_now_ms();
         if (t < c->retry_at_ms)
-            nap_ms((c->retry_at_ms < deadline ? c->retry_at_ms : deadline) - t);
-        if (now_ms() < c->retry_at_ms)
+            cli_sleep_ms((c->retry_at_ms < deadline ? c->retry_at_ms : deadline) - t);
+        if (cli_now_ms() < c->retry_at_ms)
             return ST_OK;
         atomic_store(&c->attempt_done, 0);
         err_clear(&c->attempt_err);
         if (pthread_create(&c->attempt, NULL, attempt_main, c)) {
             snprintf(c->lost, sizeof c->lost, "cannot start a thread to reconnect");
-            c->retry_at_ms = now_ms() + c->backoff_ms;
+            c->retry_at_ms = cli_now_ms() + c->backoff_ms;
             return ST_OK;
         }
         c->attempting = 1;
     }
-    while (!atomic_load(&c->attempt_done) && now_ms() < deadline)
-        nap_ms(EAGAIN_NAP_MS);
+    while (!atomic_load(&c->attempt_done) && cli_now_ms() < deadline)
+        cli_sleep_ms(EAGAIN_NAP_MS);
     if (!atomic_load(&c->attempt_done))
         return ST_OK;
     pthread_join(c->attempt, NULL);
@@ -342,7 +327,7 @@ static int reconnect(struct cam *c, double deadline, struct err *e)
         const char *why = strstr(ce.msg, ": ");
         snprintf(c->lost, sizeof c->lost, "%.150s", why ? why + 2 : ce.msg);
         c->backoff_ms = c->backoff_ms * 2 > BACKOFF_MAX_MS ? BACKOFF_MAX_MS : c->backoff_ms * 2;
-        c->retry_at_ms = now_ms() + c->backoff_ms;
+        c->retry_at_ms = cli_now_ms() + c->backoff_ms;
     }
     return ST_OK;
 }
@@ -350,7 +335,7 @@ static int reconnect(struct cam *c, double deadline, struct err *e)
 /* No frame for the stall time: the stream is restarted. */
 static void check_stall(struct cam *c)
 {
-    double t = now_ms();
+    double t = cli_now_ms();
     if (t - c->last_frame_ms < c->rc.stall_ms)
         return;
     stream_off(c);
@@ -392,7 +377,7 @@ static int take_frame(struct cam *c, struct source_frame *f)
     }
     if (!ok)
         return 0;
-    double t = now_ms();
+    double t = cli_now_ms();
     c->last_frame_ms = t;
     c->backoff_ms = BACKOFF_FIRST_MS;
     f->img = c->img;
@@ -407,7 +392,7 @@ static int take_frame(struct cam *c, struct source_frame *f)
 static int cam_next(void *impl, int timeout_ms, struct source_frame *f, int *status, struct err *e)
 {
     struct cam *c = impl;
-    double deadline = now_ms() + (timeout_ms > 0 ? timeout_ms : 0);
+    double deadline = cli_now_ms() + (timeout_ms > 0 ? timeout_ms : 0);
     *status = SOURCE_LOST;
     if (!c->live) {
         int rc = reconnect(c, deadline, e);
@@ -415,7 +400,7 @@ static int cam_next(void *impl, int timeout_ms, struct source_frame *f, int *sta
             return rc;
     }
     for (;;) {
-        double left = deadline - now_ms();
+        double left = deadline - cli_now_ms();
         struct pollfd p = {.fd = c->fd, .events = POLLIN};
         int r = poll(&p, 1, left > 0 ? (int)(left + 0.999) : 0);
         if (r < 0 && errno == EINTR)
@@ -438,13 +423,13 @@ static int cam_next(void *impl, int timeout_ms, struct source_frame *f, int *sta
         check_stall(c);
         if (!c->live)
             return ST_OK;
-        left = deadline - now_ms();
+        left = deadline - cli_now_ms();
         if (left <= 0) {
             *status = SOURCE_WAIT;
             return ST_OK;
         }
         if (r > 0)
-            nap_ms(left < EAGAIN_NAP_MS ? left : EAGAIN_NAP_MS);
+            cli_sleep_ms(left < EAGAIN_NAP_MS ? left : EAGAIN_NAP_MS);
     }
 }
 
@@ -457,7 +442,7 @@ static const char *cam_describe(void *impl)
                      c->lost);
             return c->desc;
         }
-        double wait = (c->retry_at_ms - now_ms()) / 1e3;
+        double wait = (c->retry_at_ms - cli_now_ms()) / 1e3;
         snprintf(c->desc, sizeof c->desc, "camera %s lost (%s), retrying in %.2g s", c->device,
                  c->lost, wait > 0 ? wait : 0);
         return c->desc;

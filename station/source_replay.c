@@ -9,6 +9,7 @@
 #include <sys/stat.h>
 
 #include "core/pngio.h"
+#include "cli.h"
 
 struct replay {
     char dir[PATH_MAX];
@@ -98,7 +99,7 @@ static int replay_next(void *impl, int timeout_ms, struct source_frame *f, int *
     size_t keep = n < 0 ? 0 : (size_t)n < sizeof f->name ? (size_t)n : sizeof f->name - 1;
     memcpy(f->name, path, keep);
     f->name[keep] = '\0';
-    f->t_ms = source_now_ms();
+    f->t_ms = cli_now_ms();
     image_free(r->img);
     r->img = NULL;
     if (keep < (size_t)n) {

@@ -16,11 +16,6 @@
 #include "core/pngio.h"
 #include "core/trainset.h"
 
-/* Below these a defect class is too thin to trust (common practice, no
- * source: a few hundred pixels from a handful of parts). */
-#define THIN_PIXELS 300
-#define THIN_IMAGES 3
-
 static void on_round(void *user, int round, int rounds, double elapsed_s, double val_loss)
 {
     struct progress *p = user;
@@ -31,8 +26,8 @@ static void on_round(void *user, int round, int rounds, double elapsed_s, double
 }
 
 /* Features of every labelled image into the sample. */
-static int sample_dataset(const struct recipe *r, const struct dataset *ds, struct trainset *all,
-                          int *used, struct err *e)
+static int sample_dataset(const struct recipe *r, const struct dataset *ds, double holdout,
+                          struct trainset *all, int *used, int *held, struct err *e)
 {
     struct feat_ctx *ctx = NULL;
     struct fstack *fs = NULL;
@@ -45,10 +40,14 @@ static int sample_dataset(const struct recipe *r, const struct dataset *ds, stru
     uint64_t rng = (uint64_t)r->train.seed * 0x9e3779b97f4a7c15ull + 1;
     struct progress p;
     progress_init(&p);
-    *used = 0;
+    *used = *held = 0;
     for (int i = 0; i < ds->n; i++) {
         if (!ds->labelled[i])
             continue;
+        if (dataset_held_out(ds, i, holdout)) {
+            (*held)++;
+            continue;
+        }
         char ip[PATH_MAX], lp[PATH_MAX];
         if ((rc = dataset_image_path(ds, i, ip, sizeof ip, e)) ||
             (rc = dataset_label_path(ds, i, lp, sizeof lp, e)) ||
@@ -118,7 +117,7 @@ static int cmp_double(const void *a, const void *b)
  * frames (medians, so the few frames with a large defect do not move them).
  * Runs the freshly saved model through an inspector, so the references are
  * measured exactly as inspection will measure. */
-static int measure_references(const struct recipe *r, const struct dataset *ds,
+static int measure_references(const struct recipe *r, const struct dataset *ds, double holdout,
                               struct model_meta *m, struct err *e)
 {
     enum { MOST = 24 };
@@ -130,7 +129,7 @@ static int measure_references(const struct recipe *r, const struct dataset *ds,
     for (int i = 0; i < ds->n && n < MOST && !rc; i++) {
         char ip[PATH_MAX];
         struct image *img = NULL;
-        if (!ds->labelled[i])
+        if (!ds->labelled[i] || dataset_held_out(ds, i, holdout))
             continue;
         /* training frames are separate parts: none is a frozen repeat */
         inspector_forget_last_frame(in);
@@ -156,10 +155,11 @@ static int measure_references(const struct recipe *r, const struct dataset *ds,
     return ST_OK;
 }
 
-int train_recipe(const struct recipe *r, const char *data_dir, struct train_report *rep,
-                 struct err *e)
+int train_recipe(const struct recipe *r, const char *data_dir, double holdout,
+                 struct train_report *rep, struct err *e)
 {
     memset(rep, 0, sizeof *rep);
+    rep->holdout = holdout;
     double t0 = cli_now_ms();
     struct dataset ds;
     int rc = dataset_open(data_dir, &ds, e);
@@ -170,15 +170,17 @@ int train_recipe(const struct recipe *r, const char *data_dir, struct train_repo
     trainset_init(&tr, all.nfeat, all.nclasses);
     trainset_init(&va, all.nfeat, all.nclasses);
     struct booster *b = NULL;
-    if ((rc = sample_dataset(r, &ds, &all, &rep->images, e)))
+    if ((rc = sample_dataset(r, &ds, holdout, &all, &rep->images, &rep->held_out, e)))
         goto done;
     if (rep->images == 0) {
-        rc = err_set(e, ST_EFORMAT, "%s/labels: no label masks for the images", data_dir);
+        rc = err_set(e, ST_EFORMAT, "%s/labels: no label masks for the images%s", data_dir,
+                     rep->held_out ? " outside the held-out share" : "");
         goto done;
     }
     for (int c = 0; c < r->nclasses; c++) {
         rep->per_class[c] = all.per_class[c];
         rep->images_with[c] = all.images_with[c];
+        rep->labelled[c] = all.labelled[c];
         if (all.per_class[c] == 0) {
             rc = err_set(e, ST_EFORMAT, "%s: no labelled pixel of class '%s'; cannot train",
                          data_dir, r->cls[c].name);
@@ -214,7 +216,9 @@ int train_recipe(const struct recipe *r, const char *data_dir, struct train_repo
     for (int c = 0; c < r->nclasses; c++) {
         m.samples[c] = rep->per_class[c];
         m.images[c] = rep->images_with[c];
+        m.labelled[c] = rep->labelled[c];
     }
+    m.holdout = holdout;
     m.best_round = rep->best_round;
     m.val_mlogloss = rep->best_loss;
     time_t now = time(NULL);
@@ -222,7 +226,7 @@ int train_recipe(const struct recipe *r, const char *data_dir, struct train_repo
     gmtime_r(&now, &tm);
     strftime(m.trained_utc, sizeof m.trained_utc, "%Y-%m-%dT%H:%M:%SZ", &tm);
     if ((rc = model_meta_save(r->model_path, &m, e)) ||
-        (rc = measure_references(r, &ds, &m, e)))
+        (rc = measure_references(r, &ds, holdout, &m, e)))
         goto done;
     rep->ref_sharpness = m.ref_sharpness;
     rep->ref_part_area_mm2 = m.ref_part_area_mm2;
@@ -240,16 +244,24 @@ done:
 
 void train_print_report(const struct recipe *r, const struct train_report *rep)
 {
-    fprintf(stderr, "training sample (class-balanced, at most %d pixels per class per image):\n",
+    if (rep->holdout > 0)
+        fprintf(stderr, "held out of training: %d of %d labelled images (share %g by name; "
+                        "station evaluate --split %g measures on them)\n",
+                rep->held_out, rep->held_out + rep->images, rep->holdout, rep->holdout);
+    fprintf(stderr, "training data per class (labelled pixels; sampled, at most %d per class "
+                    "per image; images with the class):\n",
             r->samples_per_class);
     for (int c = 0; c < r->nclasses; c++) {
-        fprintf(stderr, "  %-12s %8zu pixels from %3d images%s\n", r->cls[c].name,
-                rep->per_class[c], rep->images_with[c], r->cls[c].is_defect ? "  (defect)" : "");
+        fprintf(stderr, "  %-12s %9zu labelled %8zu sampled from %3d images%s\n", r->cls[c].name,
+                rep->labelled[c], rep->per_class[c], rep->images_with[c],
+                r->cls[c].is_defect ? "  (defect)" : "");
         if (r->cls[c].is_defect &&
-            (rep->per_class[c] < THIN_PIXELS || rep->images_with[c] < THIN_IMAGES))
-            fprintf(stderr, "  warning: defect class '%s' has only %zu pixels in %d images; "
-                            "label more parts with it\n",
-                    r->cls[c].name, rep->per_class[c], rep->images_with[c]);
+            (rep->labelled[c] < TRAIN_THIN_PIXELS || rep->images_with[c] < TRAIN_THIN_IMAGES))
+            fprintf(stderr, "  warning: defect class '%s' has only %zu labelled pixels in %d "
+                            "images (wanted at least %d pixels in %d images); label more parts "
+                            "with it\n",
+                    r->cls[c].name, rep->labelled[c], rep->images_with[c], TRAIN_THIN_PIXELS,
+                    TRAIN_THIN_IMAGES);
     }
     fprintf(stderr, "model: %s, best round %d of %d (depth %d), validation mlogloss %.4f, "
                     "%.1f s\n",

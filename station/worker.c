@@ -12,6 +12,7 @@
 #include "report.h"
 #include "source.h"
 #include "verify.h"
+#include "cli.h"
 
 #define VERIFY_REFRESH_MS 60000.0
 
@@ -35,14 +36,14 @@ struct worker {
 static void refresh_verified(struct worker *w)
 {
     if (!w->r->nmasters || (w->verified_ms > 0 &&
-                            source_now_ms() - w->verified_ms < VERIFY_REFRESH_MS))
+                            cli_now_ms() - w->verified_ms < VERIFY_REFRESH_MS))
         return;
     double since;
     struct err e;
     err_clear(&e);
     verify_hours_since(&w->lb, w->r, &since, &e); /* an unreadable log reads as never verified */
     inspector_set_verified(w->in, since);
-    w->verified_ms = source_now_ms();
+    w->verified_ms = cli_now_ms();
 }
 
 /* Runs one job (without the lock) into res. */
@@ -77,7 +78,7 @@ static void run_job(struct worker *w, struct job *jb, struct result *res)
     int rc = logbook_record(&w->lb, o, w->in, judged ? jb->frame : NULL, judged ? &j : NULL,
                             jb->operator_id, jb->serial, &seq, judged ? &ov : NULL, &e);
     res->report = o;
-    res->done_ms = source_now_ms();
+    res->done_ms = cli_now_ms();
     if (rc) {
         res->kind = RESULT_HALTED;
         res->verdict = VERDICT_NONE;
@@ -110,7 +111,7 @@ static int retry_log(struct worker *w, struct result *res)
     memset(res, 0, sizeof *res);
     res->kind = RESULT_RESUMED;
     res->seq = seq;
-    res->done_ms = source_now_ms();
+    res->done_ms = cli_now_ms();
     return 1;
 }
 

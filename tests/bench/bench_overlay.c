@@ -12,27 +12,9 @@
 #include "core/part.h"
 #include "core/zones.h"
 #include "station/simbench.h"
+#include "tests/bench/benchkit.h"
 
 #define MAX_REPEAT 1000
-
-static double now_ms(void)
-{
-    struct timespec t;
-    clock_gettime(CLOCK_MONOTONIC, &t);
-    return t.tv_sec * 1e3 + t.tv_nsec / 1e6;
-}
-
-static int cmp(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
-static void figures(const char *what, double *ms, int n)
-{
-    qsort(ms, (size_t)n, sizeof *ms, cmp);
-    printf("  %-28s %7.2f (%.2f-%.2f)", what, ms[n / 2], ms[0], ms[n - 1]);
-}
 
 /* The demo recipe's classes, enough for the picture. */
 static void demo_recipe(struct recipe *r, double mm)
@@ -81,15 +63,15 @@ static int bench(int w, int h, int repeat, struct err *e)
     double t_locate[MAX_REPEAT], t_paint[MAX_REPEAT], t_overlay[MAX_REPEAT];
     for (int i = 0; i < repeat && !rc; i++) {
         struct part_pose p;
-        double t0 = now_ms();
+        double t0 = bench_ms(CLOCK_MONOTONIC);
         rc = part_locate(cls, mm, mm, PART_ORIENT_MOMENTS, &p, e);
-        double t1 = now_ms();
+        double t1 = bench_ms(CLOCK_MONOTONIC);
         if (!rc)
             rc = zone_map_paint(zm, &p, w, h, mm, mm, e);
-        double t2 = now_ms();
+        double t2 = bench_ms(CLOCK_MONOTONIC);
         image_free(out);
         out = rc ? NULL : overlay_inspection(img, cls, &rs, zone_map_image(zm), &r, &j, e);
-        double t3 = now_ms();
+        double t3 = bench_ms(CLOCK_MONOTONIC);
         if (!rc && !out)
             rc = e->code;
         t_locate[i] = t1 - t0;
@@ -98,9 +80,9 @@ static int bench(int w, int h, int repeat, struct err *e)
     }
     if (!rc) {
         printf("%4dx%-4d", w, h);
-        figures("part_locate", t_locate, repeat);
-        figures("zone_map_paint (5 zones)", t_paint, repeat);
-        figures("overlay_inspection", t_overlay, repeat);
+        bench_figures("part_locate", 28, t_locate, repeat);
+        bench_figures("zone_map_paint (5 zones)", 28, t_paint, repeat);
+        bench_figures("overlay_inspection", 28, t_overlay, repeat);
         printf("\n");
     }
     image_free(out);

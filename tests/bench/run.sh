@@ -83,3 +83,6 @@ echo "bench: live station" >&2
 BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/live_bench.sh
 echo "bench: the operator screen" >&2
 "$BUILD/tests/bench/screen_bench" 60
+# A cut network as the feature extractor: VGG16 block 1 beside torch.
+echo "bench: CNN features (VGG16 block 1) beside torch" >&2
+"$PYTHON" tests/bench/cnn_bench.py "$BUILD" "${CNN_REPEAT:-7}"

@@ -15,27 +15,9 @@
 
 #include "station/screen.h"
 #include "station/simbench.h"
+#include "tests/bench/benchkit.h"
 
 #define MAX_REPEAT 1000
-
-static double now_ms(clockid_t c)
-{
-    struct timespec t;
-    clock_gettime(c, &t);
-    return t.tv_sec * 1e3 + t.tv_nsec / 1e6;
-}
-
-static int cmp(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
-static void figures(const char *what, double *ms, int n)
-{
-    qsort(ms, (size_t)n, sizeof *ms, cmp);
-    printf("  %-18s %7.2f (%.2f-%.2f)", what, ms[n / 2], ms[0], ms[n - 1]);
-}
 
 static int run(struct screen *scr, struct screen_state *st, int repeat, int changing)
 {
@@ -44,19 +26,19 @@ static int run(struct screen *scr, struct screen_state *st, int repeat, int chan
     for (int i = -3; i < repeat; i++) {   /* three draws to warm the cache */
         if (changing)
             st->fps = 25 + (i % 50) * 0.1;
-        double w0 = now_ms(CLOCK_MONOTONIC), c0 = now_ms(CLOCK_PROCESS_CPUTIME_ID);
+        double w0 = bench_ms(CLOCK_MONOTONIC), c0 = bench_ms(CLOCK_PROCESS_CPUTIME_ID);
         if (screen_draw(scr, st, &e)) {
             fprintf(stderr, "screen_bench: %s\n", e.msg);
             return 1;
         }
         if (i >= 0) {
-            wall[i] = now_ms(CLOCK_MONOTONIC) - w0;
-            cpu[i] = now_ms(CLOCK_PROCESS_CPUTIME_ID) - c0;
+            wall[i] = bench_ms(CLOCK_MONOTONIC) - w0;
+            cpu[i] = bench_ms(CLOCK_PROCESS_CPUTIME_ID) - c0;
         }
     }
     printf("  %-10s", changing ? "changing" : "unchanged");
-    figures("wall ms/draw", wall, repeat);
-    figures("cpu ms/draw", cpu, repeat);
+    bench_figures("wall ms/draw", 18, wall, repeat);
+    bench_figures("cpu ms/draw", 18, cpu, repeat);
     printf("\n");
     return 0;
 }

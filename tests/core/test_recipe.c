@@ -630,7 +630,7 @@ static void test_syntax(void **state)
     snprintf(text2, sizeof text2, "[product]\ndescription = %0300d\n", 0);
     load_bad(text2, ST_EFORMAT, 2, "line longer than");
     load_bad("[features]\nfamilies = gauss sobel\n", ST_EFORMAT, 2,
-             "families: unknown family 'sobel'");
+             "families: 'sobel' is not one of: colour gauss");
     load_bad("[features]\nfamilies = gauss gauss\n", ST_EFORMAT, 2,
              "families: 'gauss' listed twice");
     load_bad("[classifier]\nmodel = m.bin\n", ST_EFORMAT, 2, "model: 'm.bin' must end in .json");

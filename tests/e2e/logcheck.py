@@ -4,10 +4,16 @@ Rebuilds every hash from the canonical form documented in core/logcanon.h
 with Python's hashlib (SHA-256, FIPS 180-4) over rows read with Python's own
 sqlite3 module, checks PRAGMA integrity_check, and hashes every evidence file
 the log names.  None of the station's code is used, so a fault in the
-station's chain or verify cannot hide itself here."""
+station's chain or verify cannot hide itself here.  Signatures (schema 4)
+are checked with PyNaCl (libsodium's Python binding, python3-nacl): each
+signed link's signature over its hash's 64 hex characters, and the signed
+signing start statement (core/logsign.h)."""
 import hashlib
 import os
 import sqlite3
+
+import nacl.exceptions
+import nacl.signing
 
 GENESIS = "0" * 64
 REC_FIELDS = ["seq", "utc", "station", "operator", "serial", "recipe_id", "recipe_version",
@@ -35,11 +41,53 @@ def connect(db):
     return con
 
 
-def problems(db, evidence_dir=None):
+def signing(con):
+    """(public key hex, {chain: first signed seq}, statement signature) or None before schema 4."""
+    if not con.execute("SELECT 1 FROM sqlite_master WHERE name = 'meta'").fetchone():
+        return None
+    meta = dict(con.execute("SELECT key, value FROM meta").fetchall())
+    start = {c: int(meta.get("signed_from_" + c, 1)) for c in
+             ("record", "disposition", "verification")}
+    return meta.get("public_key", ""), start, meta.get("signing_sig", "")
+
+
+def sig_ok(pk, msg, sig):
+    try:
+        nacl.signing.VerifyKey(bytes.fromhex(pk)).verify(msg.encode(), bytes.fromhex(sig or ""))
+        return True
+    except (nacl.exceptions.BadSignatureError, ValueError, TypeError):
+        return False
+
+
+def sig_problems(con, public_key=None):
+    """Signatures that do not verify (against public_key, else the stored key)."""
+    sg = signing(con)
+    if sg is None:
+        return []
+    stored, start, statement_sig = sg
+    pk = public_key or stored
+    if not pk:
+        return [] if public_key is None else ["no public key in the log"]
+    bad = []
+    statement = ("station-log signing 1\npublic_key=%s\nrecord=%d\ndisposition=%d\n"
+                 "verification=%d\n" % (pk, start["record"], start["disposition"],
+                                         start["verification"]))
+    if not sig_ok(pk, statement, statement_sig):
+        bad.append("signing start statement does not verify")
+    for chain, table, key in (("record", "records", "seq"), ("disposition", "dispositions", "dseq"),
+                              ("verification", "verifications", "vseq")):
+        for row in con.execute("SELECT %s, hash, sig FROM %s WHERE %s >= ? ORDER BY %s"
+                               % (key, table, key, key), (start[chain],)):
+            if not sig_ok(pk, row[1], row[2]):
+                bad.append("%s %d: signature does not verify" % (chain, row[0]))
+    return bad
+
+
+def problems(db, evidence_dir=None, public_key=None):
     """Everything wrong with the log at db, as a list of strings (empty: all good)."""
     evidence_dir = evidence_dir or os.path.join(os.path.dirname(db), "evidence")
     con = connect(db)
-    bad = []
+    bad = sig_problems(con, public_key)
     ic = con.execute("PRAGMA integrity_check").fetchone()[0]
     if ic != "ok":
         bad.append("integrity_check: %s" % ic)

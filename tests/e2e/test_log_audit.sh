@@ -108,12 +108,12 @@ expect_rc 3 "$S" audit list --log "$db"
 grep -q "log schema 7 is newer than this program's" "$out/last.err" || fail "newer: $(cat "$out/last.err")"
 expect_rc 3 "$S" inspect "$recipe" "$images/part-0004.png" --log "$db"
 restore
-sqlx "DROP TRIGGER purged_no_update; DROP TRIGGER purged_no_delete; DROP TABLE evidence_purged; DROP TABLE verifications; PRAGMA user_version = 1"
+sqlx "DROP TRIGGER purged_no_update; DROP TRIGGER purged_no_delete; DROP TABLE evidence_purged; DROP TABLE verifications; DROP TABLE meta; ALTER TABLE records DROP COLUMN sig; ALTER TABLE dispositions DROP COLUMN sig; PRAGMA user_version = 1"
 expect_rc 3 "$S" audit verify --log "$db"
 grep -q "older" "$out/last.err" || fail "older, read-only: $(cat "$out/last.err")"
 expect_rc 0 "$S" audit dispose 3 --log "$db" --auditor aud-1 --as rework
 expect_rc 0 "$S" audit verify --log "$db"
-"$PYTHON" -c 'import sqlite3,sys; c=sqlite3.connect(sys.argv[1]); v=c.execute("PRAGMA user_version").fetchone()[0]; assert v == 3, v; c.execute("SELECT count(*) FROM evidence_purged"); c.execute("SELECT count(*) FROM verifications")' "$db"
+"$PYTHON" -c 'import sqlite3,sys; c=sqlite3.connect(sys.argv[1]); v=c.execute("PRAGMA user_version").fetchone()[0]; assert v == 4, v; c.execute("SELECT count(*) FROM evidence_purged"); c.execute("SELECT count(*) FROM verifications"); c.execute("SELECT count(*) FROM meta")' "$db"
 # an evidence budget with only unaudited rejects left: inspection stops
 expect_rc 2 "$S" inspect "$recipe" "$images"/*.png "$images"/*.png --log "$out/budget/log.db" \
     --evidence-budget 1.5

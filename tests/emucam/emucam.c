@@ -262,6 +262,15 @@ static int dqbuf(struct emucam *c, struct v4l2_buffer *b, int nonblock)
             return fail(ENOMEM);
     }
     emucam_render(c->frame, c->st.pixfmt, c->st.width, c->st.height, c->st.frames);
+    if (c->st.garbage) {
+        uint32_t x = c->st.frames * 2654435761u + 1u;   /* xorshift32, Marsaglia 2003 */
+        for (size_t k = 0; k < n; k++) {
+            x ^= x << 13;
+            x ^= x >> 17;
+            x ^= x << 5;
+            c->frame[k] = (uint8_t)x;
+        }
+    }
     describe_buf(c, b, i);
     if (pwrite(c->fd, c->frame, n, (off_t)b->m.offset) != (ssize_t)n)
         return fail(EIO);

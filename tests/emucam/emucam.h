@@ -47,6 +47,7 @@ struct emucam_state {
     uint32_t bad_index;           /* DQBUF gives an index past those REQBUFS made */
     uint32_t open_delay_ms;       /* opening takes this long, as a real camera's can */
     uint32_t short_frames;        /* DQBUF reports half a frame in bytesused */
+    uint32_t garbage;             /* DQBUF fills the frame with pseudo-random bytes */
     /* counted by the plugin */
     uint32_t streamons;
     uint32_t frames;

@@ -1,0 +1,67 @@
+/* cnn: runs a cut ONNX graph (core/onnx.h) on one image on the CPU.
+ *
+ * A cnn_net is built for one input size (C, H, W) and one destination: it
+ * infers every value's shape (ONNX's output-size formulas for Conv and the
+ * pools, auto_pad SAME_UPPER / SAME_LOWER / VALID / NOTSET, ceil_mode with
+ * PyTorch's and ONNX's rule that the last window must start inside the
+ * input or its left padding) and allocates all buffers once.
+ *
+ * Layout: every tensor is pixel-major (H, W, C with C contiguous), the
+ * layout of the feature stack.  Convolution is GEMM through OpenBLAS
+ * (cblas_sgemm): for stride 1 and one group, one GEMM per kernel tap over a
+ * zero-bordered copy of the input rows (no im2col); otherwise im2col per
+ * output row.  The image is done in stripes of destination rows: for each
+ * stripe every op computes just the rows the next ops need (halo rows are
+ * recomputed), so the 64-channel intermediates of a VGG-style stem live in
+ * a per-thread buffer of a few rows that stays in cache, never as a whole
+ * frame.  Stripes are shared out over `threads` workers started per run;
+ * OpenBLAS itself is held to one thread per call so the two do not
+ * oversubscribe (openblas_set_num_threads(1), the one process-wide setting
+ * this module changes).
+ *
+ * Destination: out_w x out_h pixels, `stride` floats per pixel, `nch`
+ * channels (a list, or all when ch is NULL) written at dst[p * stride + k].
+ * When out_w x out_h differs from the graph's output size (a strided cut),
+ * the output is resampled bilinearly with half-pixel centres: source
+ * coordinate (x + 0.5) * in / out - 0.5, clamped to the edge, which is
+ * torch.nn.functional.interpolate(mode='bilinear', align_corners=False) and
+ * OpenCV's INTER_LINEAR resize.
+ *
+ * With dest->bf16, on a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted
+ * to the process by arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide
+ * setting), the stride-1 single-group convolutions with input and output
+ * channels in multiples of 32, and an RGB stem's patches of up to 32 values,
+ * round their inputs and weights to bfloat16
+ * (nearest even) and multiply on the tiles, summing in float32; the others,
+ * and every convolution elsewhere, stay float32.  Off by default: results
+ * move by a few tenths of a percent of the output's scale. */
+#ifndef ST_CNN_H
+#define ST_CNN_H
+
+#include "onnx.h"
+
+#define CNN_MAX_THREADS 64
+
+struct cnn_dest {
+    int w, h;        /* destination pixels (0, 0: the output's own size) */
+    int stride;      /* floats per destination pixel (0: nch) */
+    int nch;         /* channels written (0: all) */
+    const int *ch;   /* nch channel indices, or NULL for 0..nch-1 */
+    int bf16;        /* 1: bfloat16 convolutions on AMX tiles where the CPU has them */
+};
+
+/* Output shape of g for an input of c x h x w, without allocating. */
+int cnn_shape(const struct onnx_graph *g, int c, int h, int w, int *oc, int *oh, int *ow, struct err *e);
+
+/* Multiply-adds of one run (for the benchmark's GFLOP figure). */
+double cnn_macs(const struct onnx_graph *g, int c, int h, int w);
+
+struct cnn_net;
+struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, const struct cnn_dest *dest,
+                            int threads, struct err *e);
+void cnn_net_free(struct cnn_net *net);
+
+/* Runs the net on in (h x w x c floats, pixel-major) into dst. */
+int cnn_net_run(struct cnn_net *net, const float *in, float *dst, struct err *e);
+
+#endif

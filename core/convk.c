@@ -1,0 +1,300 @@
+/* syscall() and SYS_arch_prctl, for the AMX permission */
+#define _DEFAULT_SOURCE
+#include "convk.h"
+
+#include <cpuid.h>
+#include <immintrin.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/syscall.h>
+#include <unistd.h>
+
+/* The direct kernel: 6 pixels x 64 output channels held in 24 registers,
+ * one broadcast per pixel and input channel against 4 weight vectors, over
+ * every tap; a row's remainder in 4 pixels, then one at a time.  Input
+ * channels go in blocks of CONVK_CI_BLOCK so that block's weights for all taps
+ * (9 x 16 x 64 floats for a 3x3 kernel, 36 KB) stay in L1 while the row is
+ * swept; the accumulators go back to the output between blocks.  Pixels
+ * x0.. of output row ry (relative to the stripe); p is the zero-bordered
+ * copy of the input rows with pitch wp pixels.  Named accumulators, not an
+ * array, so the compiler keeps them all in registers. */
+#define KX 6
+#define ACC4(q, o)                                                                                                  \
+    __m512 q##0 = first ? z0 : _mm512_loadu_ps(o), q##1 = first ? z1 : _mm512_loadu_ps((o) + 16),                  \
+           q##2 = first ? z2 : _mm512_loadu_ps((o) + 32), q##3 = first ? z3 : _mm512_loadu_ps((o) + 48)
+#define FMA4(q, v)                                                                                                  \
+    do {                                                                                                            \
+        q##0 = _mm512_fmadd_ps(v, w0, q##0);                                                                        \
+        q##1 = _mm512_fmadd_ps(v, w1, q##1);                                                                        \
+        q##2 = _mm512_fmadd_ps(v, w2, q##2);                                                                        \
+        q##3 = _mm512_fmadd_ps(v, w3, q##3);                                                                        \
+    } while (0)
+#define STORE4(q, dst)                                                                                              \
+    do {                                                                                                            \
+        _mm512_storeu_ps((dst), _mm512_min_ps(_mm512_max_ps(q##0, lo), hi));                                        \
+        _mm512_storeu_ps((dst) + 16, _mm512_min_ps(_mm512_max_ps(q##1, lo), hi));                                   \
+        _mm512_storeu_ps((dst) + 32, _mm512_min_ps(_mm512_max_ps(q##2, lo), hi));                                   \
+        _mm512_storeu_ps((dst) + 48, _mm512_min_ps(_mm512_max_ps(q##3, lo), hi));                                   \
+    } while (0)
+
+struct dblock {
+    const float *p;   /* zero-bordered input rows */
+    int wp, cin, cout;
+    const struct onnx_op *op;
+    int ci0, nci, first, last;
+};
+
+__attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, int ry, int x0, int cb, float *o)
+{
+    const struct onnx_op *op = k->op;
+    int cin = k->cin, cout = k->cout, first = k->first;
+    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
+    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
+    float *oa = o + cb, *ob = oa + cout, *oc = ob + cout, *od = oc + cout, *oe = od + cout, *of = oe + cout;
+    ACC4(a, oa);
+    ACC4(b, ob);
+    ACC4(c, oc);
+    ACC4(d, od);
+    ACC4(e, oe);
+    ACC4(f, of);
+    for (int ky = 0; ky < op->kh; ky++)
+        for (int kx = 0; kx < op->kw; kx++) {
+            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
+            for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
+                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
+                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
+                __m512 v = _mm512_set1_ps(x[0]);
+                FMA4(a, v);
+                v = _mm512_set1_ps(x[cin]);
+                FMA4(b, v);
+                v = _mm512_set1_ps(x[2 * cin]);
+                FMA4(c, v);
+                v = _mm512_set1_ps(x[3 * cin]);
+                FMA4(d, v);
+                v = _mm512_set1_ps(x[4 * cin]);
+                FMA4(e, v);
+                v = _mm512_set1_ps(x[5 * cin]);
+                FMA4(f, v);
+            }
+        }
+    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
+    STORE4(a, oa);
+    STORE4(b, ob);
+    STORE4(c, oc);
+    STORE4(d, od);
+    STORE4(e, oe);
+    STORE4(f, of);
+}
+
+__attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, int ry, int x0, int cb, float *o)
+{
+    const struct onnx_op *op = k->op;
+    int cin = k->cin, cout = k->cout, first = k->first;
+    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
+    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
+    float *oa = o + cb;
+    ACC4(a, oa);
+    for (int ky = 0; ky < op->kh; ky++)
+        for (int kx = 0; kx < op->kw; kx++) {
+            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
+            for (int ci = 0; ci < k->nci; ci++, wt += cout) {
+                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
+                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
+                __m512 v = _mm512_set1_ps(x[ci]);
+                FMA4(a, v);
+            }
+        }
+    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
+    STORE4(a, oa);
+}
+
+/* Four pixels: a row's remainder of 4 or 5 (640 = 6 x 106 + 4). */
+__attribute__((target("avx512f"))) static void direct_4(const struct dblock *k, int ry, int x0, int cb, float *o)
+{
+    const struct onnx_op *op = k->op;
+    int cin = k->cin, cout = k->cout, first = k->first;
+    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
+    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
+    float *oa = o + cb, *ob = oa + cout, *oc = ob + cout, *od = oc + cout;
+    ACC4(a, oa);
+    ACC4(b, ob);
+    ACC4(c, oc);
+    ACC4(d, od);
+    for (int ky = 0; ky < op->kh; ky++)
+        for (int kx = 0; kx < op->kw; kx++) {
+            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
+            for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
+                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
+                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
+                __m512 v = _mm512_set1_ps(x[0]);
+                FMA4(a, v);
+                v = _mm512_set1_ps(x[cin]);
+                FMA4(b, v);
+                v = _mm512_set1_ps(x[2 * cin]);
+                FMA4(c, v);
+                v = _mm512_set1_ps(x[3 * cin]);
+                FMA4(d, v);
+            }
+        }
+    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
+    STORE4(a, oa);
+    STORE4(b, ob);
+    STORE4(c, oc);
+    STORE4(d, od);
+}
+
+void convk_run_direct(const float *p, int wp, int cin, int cout, const struct onnx_op *op, int ry, int w,
+                       float *o)
+{
+    struct dblock k = {.p = p, .wp = wp, .cin = cin, .cout = cout, .op = op};
+    for (int cb = 0; cb < cout; cb += 64)
+        for (k.ci0 = 0; k.ci0 < cin; k.ci0 += CONVK_CI_BLOCK) {
+            k.nci = cin - k.ci0 < CONVK_CI_BLOCK ? cin - k.ci0 : CONVK_CI_BLOCK;
+            k.first = k.ci0 == 0;
+            k.last = k.ci0 + k.nci == cin;
+            int x0 = 0;
+            for (; x0 + KX <= w; x0 += KX)
+                direct_6(&k, ry, x0, cb, o + (size_t)x0 * cout);
+            if (x0 + 4 <= w) {
+                direct_4(&k, ry, x0, cb, o + (size_t)x0 * cout);
+                x0 += 4;
+            }
+            for (; x0 < w; x0++)
+                direct_1(&k, ry, x0, cb, o + (size_t)x0 * cout);
+        }
+}
+
+/* ---- bfloat16 on AMX tiles ---------------------------------------------
+ * Tiles 0-3 hold a 32 pixel x 32 channel float32 block of the output (2 x 2
+ * tiles of 16 x 16), tiles 4-5 two 16-pixel rows of 32 input channels,
+ * tiles 6-7 the weights of 32 input channels for 2 x 16 output channels in
+ * the pair-interleaved layout TDPBF16PS wants (16 rows of channel pairs, 16
+ * outputs x 2).  Each step over a tap and 32 input channels is 4 tile loads
+ * and 4 TDPBF16PS. */
+struct amx_cfg {
+    uint8_t palette, start;
+    uint8_t reserved[14];
+    uint16_t colsb[16];
+    uint8_t rows[16];
+};
+
+int convk_has_amx(void)
+{
+    unsigned a, b, c, d;
+    if (!__get_cpuid_count(7, 0, &a, &b, &c, &d) || !(d & (1u << 22)) || !(d & (1u << 24)))
+        return 0;
+    /* Linux hands out the tile state only on request: ARCH_REQ_XCOMP_PERM, XFEATURE_XTILEDATA */
+    return syscall(SYS_arch_prctl, 0x1023, 18) == 0;
+}
+
+uint16_t convk_bf16(float f)
+{
+    uint32_t u;
+    memcpy(&u, &f, sizeof u);
+    u += 0x7fffu + ((u >> 16) & 1u); /* round to nearest, ties to even */
+    return (uint16_t)(u >> 16);
+}
+
+__attribute__((target("avx512f,avx512bf16"))) void convk_convert_bf16(const float *src, uint16_t *dst, size_t n)
+{
+    size_t i = 0;
+    for (; i + 32 <= n; i += 32) {
+        __m512bh v = _mm512_cvtne2ps_pbh(_mm512_loadu_ps(src + i + 16), _mm512_loadu_ps(src + i));
+        _mm512_storeu_si512((void *)(dst + i), (__m512i)v);
+    }
+    for (; i < n; i++)
+        dst[i] = convk_bf16(src[i]);
+}
+
+/* [tap][32-channel block][16-output block][16 pairs][16 outputs][2] over
+ * k channels per tap, zero from k up to kp (a multiple of 32): kp = k = cin
+ * for a convolution, taps 1 and k the patch size for an RGB stem. */
+uint16_t *convk_pack_amx(const struct onnx_op *op, int taps, int k, int kp)
+{
+    int nkb = kp / 32, ncb = op->cout / 16;
+    uint16_t *w = malloc((size_t)taps * kp * op->cout * sizeof *w);
+    if (!w)
+        return NULL;
+    for (int t = 0; t < taps; t++)
+        for (int kb = 0; kb < nkb; kb++)
+            for (int cb = 0; cb < ncb; cb++)
+                for (int r = 0; r < 16; r++)
+                    for (int co = 0; co < 16; co++)
+                        for (int e = 0; e < 2; e++) {
+                            int c = kb * 32 + 2 * r + e;
+                            w[((((size_t)t * nkb + kb) * ncb + cb) * 16 + r) * 32 + co * 2 + e] =
+                                c < k ? convk_bf16(op->w[((size_t)t * k + c) * op->cout + cb * 16 + co]) : 0;
+                        }
+    return w;
+}
+
+__attribute__((target("amx-tile"))) void convk_begin_amx(void)
+{
+    struct amx_cfg cfg;
+    memset(&cfg, 0, sizeof cfg);
+    cfg.palette = 1;
+    for (int t = 0; t < 8; t++) {
+        cfg.colsb[t] = 64;
+        cfg.rows[t] = 16;
+    }
+    /* GCC 12's _tile_loadconfig tells the compiler it reads 8 bytes only, so
+     * without this the other 56 are dead stores to it */
+    __asm__ volatile("" : : "r"(&cfg) : "memory");
+    _tile_loadconfig(&cfg);
+}
+
+__attribute__((target("amx-tile"))) void convk_end_amx(void)
+{
+    _tile_release();
+}
+
+/* Output row ry of the stripe: 32-pixel blocks (the last one shifted left
+ * to end at the row's end, recomputing a few pixels), 32 outputs at a time. */
+__attribute__((target("avx512f,amx-tile,amx-bf16"))) void convk_run_amx(const uint16_t *x, const uint16_t *wq, int wp,
+                                                                int cin, int cout, const struct onnx_op *op, int ry,
+                                                                int w, float *o)
+{
+    int nkb = cin / 32, ncb = cout / 16;
+    size_t xs = (size_t)cin * sizeof *x, os = (size_t)cout * sizeof *o;
+    for (int x0 = 0; x0 < w; x0 += 32) {
+        int xb = x0 + 32 <= w ? x0 : w - 32;
+        for (int cb = 0; cb < ncb; cb += 2) {
+            _tile_zero(0);
+            _tile_zero(1);
+            _tile_zero(2);
+            _tile_zero(3);
+            for (int ky = 0; ky < op->kh; ky++)
+                for (int kx = 0; kx < op->kw; kx++) {
+                    const uint16_t *a = x + ((size_t)(ry + ky * op->dh) * wp + xb + (size_t)kx * op->dw) * cin;
+                    const uint16_t *b = wq + (((size_t)(ky * op->kw + kx) * nkb) * ncb + cb) * 512;
+                    for (int kb = 0; kb < nkb; kb++, a += 32, b += (size_t)ncb * 512) {
+                        _tile_loadd(4, a, xs);
+                        _tile_loadd(5, a + 16 * (size_t)cin, xs);
+                        _tile_loadd(6, b, 64);
+                        _tile_loadd(7, b + 512, 64);
+                        _tile_dpbf16ps(0, 4, 6);
+                        _tile_dpbf16ps(1, 4, 7);
+                        _tile_dpbf16ps(2, 5, 6);
+                        _tile_dpbf16ps(3, 5, 7);
+                    }
+                }
+            float *c = o + (size_t)xb * cout + cb * 16;
+            _tile_stored(0, c, os);
+            _tile_stored(1, c + 16, os);
+            _tile_stored(2, c + 16 * (size_t)cout, os);
+            _tile_stored(3, c + 16 * (size_t)cout + 16, os);
+        }
+    }
+    __m512 lo = _mm512_set1_ps(op->lo), hi = _mm512_set1_ps(op->hi);
+    for (int p = 0; p < w; p++)
+        for (int co = 0; co < cout; co += 16) {
+            float *v = o + (size_t)p * cout + co;
+            __m512 r = _mm512_add_ps(_mm512_loadu_ps(v), _mm512_loadu_ps(op->b + co));
+            _mm512_storeu_ps(v, _mm512_min_ps(_mm512_max_ps(r, lo), hi));
+        }
+}
+

@@ -1,0 +1,42 @@
+/* convk: the convolution kernels core/cnn.c calls for stride-1,
+ * single-group convolutions, on zero-bordered pixel-major input rows.
+ *
+ * convk_run_direct: float32 on AVX-512F, output channels a multiple of 64;
+ * convk_run_amx: bfloat16 on Intel AMX tiles (float32 sums), input and
+ * output channels multiples of 32 and a row of at least 32 pixels, with
+ * weights from convk_pack_amx and inputs from convk_convert_bf16.  Both
+ * compute one output row: out = clamp(sum over taps and input channels +
+ * bias, op->lo, op->hi), pixel-major.  The caller checks the CPU
+ * (__builtin_cpu_supports("avx512f"), convk_has_amx) first; an AMX run is
+ * bracketed per thread by convk_begin_amx and convk_end_amx.  Nothing here
+ * allocates except convk_pack_amx, or keeps state. */
+#ifndef ST_CONVK_H
+#define ST_CONVK_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+#include "onnx.h"
+
+/* input channels per block: its weights for every tap stay in L1 */
+#define CONVK_CI_BLOCK 16
+
+/* p: rows of wp pixels x cin floats, row 0 being output row ry's first
+ * input row; w output pixels into o (w x cout floats). */
+void convk_run_direct(const float *p, int wp, int cin, int cout, const struct onnx_op *op, int ry, int w, float *o);
+
+/* 1 when the CPU has AMX-TILE and AMX-BF16 and Linux granted the tile
+ * state to this process (it asks: arch_prctl(ARCH_REQ_XCOMP_PERM)). */
+int convk_has_amx(void);
+uint16_t convk_bf16(float f);  /* round to nearest, ties to even */
+void convk_convert_bf16(const float *src, uint16_t *dst, size_t n);
+/* op's weights as taps x k channels (zero up to kp, a multiple of 32) in
+ * the tiles' order; NULL when out of memory.  Caller frees. */
+uint16_t *convk_pack_amx(const struct onnx_op *op, int taps, int k, int kp);
+void convk_begin_amx(void);
+void convk_end_amx(void);
+/* As convk_run_direct on bfloat16 rows x (kp = cin channels), weights wq. */
+void convk_run_amx(const uint16_t *x, const uint16_t *wq, int wp, int cin, int cout, const struct onnx_op *op,
+                   int ry, int w, float *o);
+
+#endif
