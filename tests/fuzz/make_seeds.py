@@ -162,3 +162,13 @@ put("logrecord", "fail.txt", "\x01" + "\n".join([
 put("logrecord", "pass.txt", "\x00" + "\n".join(["2026-12-01T23:59:59+01:00", "[]", "[]"]))
 put("logrecord", "noverdict.txt", "\x02" + "\n".join([
     "2026-11-30T05:00:00", json.dumps([{"rule": "too_dark", "value": 20, "limit": 40}]), "[]"]))
+
+# ONNX: the ONNX project's own conformance models (Debian's libonnx-testdata,
+# Apache-2.0) of the operators core/onnx.c supports
+ONNX_TESTS = "/usr/share/libonnx-testdata/data/node"
+for name in ["test_conv_with_strides_padding", "test_relu", "test_maxpool_2d_default",
+             "test_averagepool_2d_default", "test_batchnorm_example", "test_add",
+             "test_concat_2d_axis_0", "test_clip", "test_identity"]:
+    p = os.path.join(ONNX_TESTS, name, "model.onnx")
+    if os.path.exists(p):
+        put("onnx", name[5:] + ".onnx", open(p, "rb").read())
