@@ -477,6 +477,13 @@ struct cut {
     struct err *e;
 };
 
+/* A ValueInfoProto's name is optional in onnx.proto (proto2): protobuf-c
+ * leaves an absent one NULL (found by tests/fuzz/fuzz_onnx). */
+static const char *vi_name(const Onnx__ValueInfoProto *vi)
+{
+    return vi->name ? vi->name : "";
+}
+
 static const char *node_name(const Onnx__NodeProto *n)
 {
     return n->name && *n->name ? n->name : (n->n_output ? n->output[0] : "?");
@@ -503,7 +510,7 @@ static int uses(const struct onnx_model *m, const char *name)
         for (size_t k = 0; k < g->node[i]->n_input; k++)
             n += strcmp(g->node[i]->input[k], name) == 0;
     for (size_t i = 0; i < g->n_output; i++)
-        n += strcmp(g->output[i]->name, name) == 0;
+        n += strcmp(vi_name(g->output[i]), name) == 0;
     return n;
 }
 
@@ -916,7 +923,7 @@ static int resolve(struct cut *c, const char *name, int *value)
                            file, name);
         int found = 0;
         for (size_t i = 0; i < c->m->pb->graph->n_input; i++)
-            found |= strcmp(c->m->pb->graph->input[i]->name, name) == 0;
+            found |= strcmp(vi_name(c->m->pb->graph->input[i]), name) == 0;
         if (!found)
             return err_set(c->e, ST_EFORMAT, "%s: tensor %s is produced by no node and is no input", file, name);
         if (c->g->input[0] && strcmp(c->g->input, name) != 0)
@@ -949,7 +956,7 @@ static void input_shape(const struct onnx_model *m, const char *name, int *rank,
     *channels = -1;
     for (size_t i = 0; i < m->pb->graph->n_input; i++) {
         const Onnx__ValueInfoProto *vi = m->pb->graph->input[i];
-        if (strcmp(vi->name, name) != 0 || !vi->type || vi->type->value_case != ONNX__TYPE_PROTO__VALUE_TENSOR_TYPE ||
+        if (strcmp(vi_name(vi), name) != 0 || !vi->type || vi->type->value_case != ONNX__TYPE_PROTO__VALUE_TENSOR_TYPE ||
             !vi->type->tensor_type->shape)
             continue;
         const Onnx__TensorShapeProto *s = vi->type->tensor_type->shape;
