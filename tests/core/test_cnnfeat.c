@@ -124,8 +124,9 @@ static int load(const char *features, struct recipe *r, struct err *e)
 {
     char text[4096];
     const char *path = recipe_path;
-    snprintf(text, sizeof text, RECIPE_HEAD "[features]\nnormalise = no\nthreads = 2\ncnn_model = %s\n%s", model_path,
-             features);
+    /* the model beside the recipe, named relative to it (recipes/README.md, "Paths") */
+    snprintf(text, sizeof text, RECIPE_HEAD "[features]\nnormalise = no\nthreads = 2\ncnn_model = %s\n%s",
+             strrchr(model_path, '/') + 1, features);
     FILE *f = fopen(path, "w");
     assert_non_null(f);
     fputs(text, f);
