@@ -478,21 +478,17 @@ void inspector_forget_last_frame(struct inspector *in)
 }
 
 const struct image *inspector_classes(const struct inspector *in) { return in->classes; }
-const struct image *inspector_frame(const struct inspector *in) { return in->frame; }
 const struct fstack *inspector_features(const struct inspector *in) { return in->fs; }
 const struct forest *inspector_forest(const struct inspector *in) { return in->forest; }
-const float *inspector_confidence(const struct inspector *in) { return in->conf; }
 const struct region_set *inspector_regions(const struct inspector *in) { return &in->rs; }
 const struct quality *inspector_quality(const struct inspector *in) { return &in->q; }
 const struct recipe *inspector_recipe(const struct inspector *in) { return &in->r; }
 const struct part_pose *inspector_pose(const struct inspector *in) { return &in->pose; }
-const struct judge_refs *inspector_refs(const struct inspector *in) { return &in->refs; }
 const struct image *inspector_zone_map(const struct inspector *in)
 {
     return in->zones ? zone_map_image(in->zones) : NULL;
 }
 const struct model_meta *inspector_model(const struct inspector *in) { return &in->meta; }
-int inspector_threads(const struct inspector *in) { return in->threads; }
 
 void inspector_set_verified(struct inspector *in, double hours_ago)
 {
@@ -503,12 +499,4 @@ void inspector_set_verified(struct inspector *in, double hours_ago)
 void inspector_set_locating(struct inspector *in, int on)
 {
     in->roi = on != 0;
-}
-
-void inspector_set_threads(struct inspector *in, int threads)
-{
-    in->threads = threads < 1 ? 1 : threads;
-    in->r.feat.threads = in->threads;
-    /* the feature context and worker buffers were made for the old count */
-    free_frame_buffers(in);
 }

@@ -50,24 +50,17 @@ int inspector_run(struct inspector *in, const struct image *img, struct judgemen
 
 /* Results of the last call; owned by the inspector, valid until the next call. */
 const struct image *inspector_classes(const struct inspector *in);
-/* The frame the features saw: the flat-field corrected copy, or the
- * caller's own frame when the recipe has no flat field. */
-const struct image *inspector_frame(const struct inspector *in);
 /* With the locating pass on, only the box it computed features for holds
  * this frame's features (core/inspect.c); with it off, the whole stack. */
 const struct fstack *inspector_features(const struct inspector *in);
 const struct forest *inspector_forest(const struct inspector *in);
-const float *inspector_confidence(const struct inspector *in);
 const struct region_set *inspector_regions(const struct inspector *in);
 const struct quality *inspector_quality(const struct inspector *in);
 const struct recipe *inspector_recipe(const struct inspector *in);
 const struct part_pose *inspector_pose(const struct inspector *in);
-/* The references the gates compare with (recipe, else model metadata). */
-const struct judge_refs *inspector_refs(const struct inspector *in);
 /* Zone index per pixel for the last frame's pose; NULL without zones. */
 const struct image *inspector_zone_map(const struct inspector *in);
 const struct model_meta *inspector_model(const struct inspector *in);
-int inspector_threads(const struct inspector *in);
 /* Hours since the last passing master-part verification (from the log; -1:
  * not checked, the default), for the verification_due gate (core/judge.h). */
 void inspector_set_verified(struct inspector *in, double hours_ago);
@@ -76,8 +69,6 @@ void inspector_set_verified(struct inspector *in, double hours_ago);
  * the part.  Off computes features over the whole frame and classifies
  * every pixel in full, which the tests use to show the two agree. */
 void inspector_set_locating(struct inspector *in, int on);
-/* Classifier threads (1 = inline); features threads follow recipe.feat.threads. */
-void inspector_set_threads(struct inspector *in, int threads);
 /* The next frame is not compared with this one (the frozen-camera gate):
  * for frames that are not a camera's consecutive ones. */
 void inspector_forget_last_frame(struct inspector *in);

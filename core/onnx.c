@@ -311,11 +311,6 @@ void onnx_model_free(struct onnx_model *m)
     free(m);
 }
 
-const char *onnx_model_path(const struct onnx_model *m)
-{
-    return m->path;
-}
-
 static const Onnx__TensorProto *find_init(const struct onnx_model *m, const char *name)
 {
     const Onnx__GraphProto *g = m->pb->graph;
@@ -352,11 +347,6 @@ const char *onnx_model_input(const struct onnx_model *m, int k)
         if (!find_init(m, m->pb->graph->input[i]->name) && k-- == 0)
             return m->pb->graph->input[i]->name;
     return NULL;
-}
-
-int onnx_model_noutputs(const struct onnx_model *m)
-{
-    return (int)m->pb->graph->n_output;
 }
 
 const char *onnx_model_output(const struct onnx_model *m, int i)

@@ -52,12 +52,10 @@ void onnx_tensor_clear(struct onnx_tensor *t);
 struct onnx_model;
 struct onnx_model *onnx_model_load(const char *path, struct err *e);
 void onnx_model_free(struct onnx_model *m);
-const char *onnx_model_path(const struct onnx_model *m);
 /* Names of the graph's inputs that are not initializers, in file order. */
 int onnx_model_ninputs(const struct onnx_model *m);
 const char *onnx_model_input(const struct onnx_model *m, int i);
-/* The graph's outputs. */
-int onnx_model_noutputs(const struct onnx_model *m);
+/* The graph's outputs (NULL past the last). */
 const char *onnx_model_output(const struct onnx_model *m, int i);
 /* Gives graph input NAME a constant value (copied), as if an initializer. */
 int onnx_model_bind(struct onnx_model *m, const char *name, const struct onnx_tensor *t, struct err *e);

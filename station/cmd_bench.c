@@ -202,7 +202,11 @@ int cmd_bench(int argc, char **argv)
     int status = EXIT_ERROR;
     struct simbench_conditions cond;
     simbench_conditions_nominal(&cond);
-    if (!v || inspector_new(&r, &in, &e) || (xgb && booster_load(r.model_path, threads, &b, &e)))
+    if (!v) {
+        err_set(&e, ST_ENOMEM, "out of memory for %d frames' figures", repeat);
+        goto done;
+    }
+    if (inspector_new(&r, &in, &e) || (xgb && booster_load(r.model_path, threads, &b, &e)))
         goto done;
     size_t npix = (size_t)w * h;
     if (!(located = malloc(npix))) {

@@ -306,9 +306,12 @@ static void test_undo_history_is_bounded(void **state)
         assert_true(label_doc_history_bytes(d) <= 3 * 2 * LABEL_TILE * LABEL_TILE);
     }
     int undone = 0;
+    assert_true(label_doc_can_undo(d));
     while (label_doc_undo(d))
         undone++;
     assert_int_equal(undone, 3);
+    /* the history held three steps: none is left to undo */
+    assert_false(label_doc_can_undo(d));
     /* the three oldest dabs stay: their undo was forgotten */
     const uint8_t *m = label_doc_mask(d);
     assert_int_equal(m[5 * 200 + 5], 0);
