@@ -48,13 +48,10 @@ int cmd_capture(int argc, char **argv)
     o.trigger = RECIPE_TRIGGER_KEY;
     int c;
     double v;
-    char *end;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
         case 'O': o.capture_dir = optarg; break;
-        case 'S': o.source = optarg; break;
-        case 'H': o.headless = 1; break;
         case 't':
             o.trigger = trigger_mode_parse(optarg);
             if (o.trigger != RECIPE_TRIGGER_KEY && o.trigger != RECIPE_TRIGGER_AUTO) {
@@ -67,39 +64,22 @@ int cmd_capture(int argc, char **argv)
                 return EXIT_USAGE;
             o.inspections = (long)v;
             break;
-        case 'f':
-            if (cli_number("--fps", optarg, &o.src.fps, 1))
-                return EXIT_USAGE;
-            break;
-        case 'z':
-            if (cli_size("--size", optarg, &o.src.width, &o.src.height))
-                return EXIT_USAGE;
-            break;
-        case 'd':
-            o.src.seed = strtoull(optarg, &end, 10);
-            if (*end || end == optarg) {
-                cli_say("--seed: '%s' is not a whole number", optarg);
+        default: {
+            int got = live_parse_option(c, optarg, &o);
+            if (got != 1) {
+                if (got == 0) /* a bad value has said why already */
+                    usage(stderr);
                 return EXIT_USAGE;
             }
-            break;
-        case 'F':
-            if (cli_number("--frames", optarg, &v, 0))
-                return EXIT_USAGE;
-            o.frames = (long)v;
-            break;
-        case 'o': o.snapshot = optarg; break;
-        case 'A': o.allow_offscreen = 1; break;
-        default: usage(stderr); return EXIT_USAGE;
+        }
         }
     }
     if (argc - optind != 1 || !o.capture_dir) {
         usage(stderr);
         return EXIT_USAGE;
     }
-    if (o.headless && o.snapshot) {
-        cli_say("--snapshot needs the screen: it cannot go with --headless");
+    if (live_options_check(&o))
         return EXIT_USAGE;
-    }
     o.recipe_path = argv[optind];
     int rc = live_run(&o);
     return rc == EXIT_ERROR ? EXIT_ERROR : 0;

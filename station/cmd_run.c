@@ -70,30 +70,12 @@ int cmd_run(int argc, char **argv)
     live_options_init(&o);
     int c;
     double v;
-    char *end;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
-        case 'S': o.source = optarg; break;
-        case 'H': o.headless = 1; break;
         case 't':
             if ((o.trigger = trigger_mode_parse(optarg)) < 0) {
                 cli_say("--trigger: '%s' is not key, auto or continuous", optarg);
-                return EXIT_USAGE;
-            }
-            break;
-        case 'f':
-            if (cli_number("--fps", optarg, &o.src.fps, 1))
-                return EXIT_USAGE;
-            break;
-        case 'z':
-            if (cli_size("--size", optarg, &o.src.width, &o.src.height))
-                return EXIT_USAGE;
-            break;
-        case 'd':
-            o.src.seed = strtoull(optarg, &end, 10);
-            if (*end || end == optarg) {
-                cli_say("--seed: '%s' is not a whole number", optarg);
                 return EXIT_USAGE;
             }
             break;
@@ -103,11 +85,6 @@ int cmd_run(int argc, char **argv)
                 return EXIT_USAGE;
             o.inspections = (long)v;
             break;
-        case 'F':
-            if (cli_number("--frames", optarg, &v, 0))
-                return EXIT_USAGE;
-            o.frames = (long)v;
-            break;
         case 'l': o.db_path = optarg; break;
         case 's': o.station = optarg; break;
         case 'p': o.operator_id = optarg; break;
@@ -116,19 +93,22 @@ int cmd_run(int argc, char **argv)
             if (cli_number("--evidence-budget", optarg, &o.budget_mb, 0))
                 return EXIT_USAGE;
             break;
-        case 'o': o.snapshot = optarg; break;
-        case 'A': o.allow_offscreen = 1; break;
-        default: usage(stderr); return EXIT_USAGE;
+        default: {
+            int got = live_parse_option(c, optarg, &o);
+            if (got != 1) {
+                if (got == 0) /* a bad value has said why already */
+                    usage(stderr);
+                return EXIT_USAGE;
+            }
+        }
         }
     }
     if (argc - optind != 1) {
         usage(stderr);
         return EXIT_USAGE;
     }
-    if (o.headless && o.snapshot) {
-        cli_say("--snapshot needs the screen: it cannot go with --headless");
+    if (live_options_check(&o))
         return EXIT_USAGE;
-    }
     o.recipe_path = argv[optind];
     return live_run(&o);
 }

@@ -507,6 +507,42 @@ void live_options_init(struct live_options *o)
     o->trigger = -1;
 }
 
+int live_parse_option(int c, const char *arg, struct live_options *o)
+{
+    double v;
+    char *end;
+    switch (c) {
+    case 'S': o->source = arg; return 1;
+    case 'H': o->headless = 1; return 1;
+    case 'o': o->snapshot = arg; return 1;
+    case 'A': o->allow_offscreen = 1; return 1;
+    case 'f': return cli_number("--fps", arg, &o->src.fps, 1) ? -1 : 1;
+    case 'z': return cli_size("--size", arg, &o->src.width, &o->src.height) ? -1 : 1;
+    case 'F':
+        if (cli_number("--frames", arg, &v, 0))
+            return -1;
+        o->frames = (long)v;
+        return 1;
+    case 'd':
+        o->src.seed = strtoull(arg, &end, 10);
+        if (*end || end == arg) {
+            cli_say("--seed: '%s' is not a whole number", arg);
+            return -1;
+        }
+        return 1;
+    default: return 0;
+    }
+}
+
+int live_options_check(const struct live_options *o)
+{
+    if (o->headless && o->snapshot) {
+        cli_say("--snapshot needs the screen: it cannot go with --headless");
+        return -1;
+    }
+    return 0;
+}
+
 static int open_all(struct live *L, struct err *e)
 {
     const struct live_options *o = L->o;

@@ -57,6 +57,15 @@ struct live_options {
 };
 void live_options_init(struct live_options *o);
 
+/* The options station run and station capture share, by the getopt codes
+ * both give them: 'S' --source, 'H' --headless, 'f' --fps, 'z' --size,
+ * 'd' --seed, 'F' --frames, 'o' --snapshot, 'A' --allow-offscreen.
+ * Returns 1 when c was one of them and its value was good, -1 (having said
+ * why) when its value was bad, 0 when c is not one of them. */
+int live_parse_option(int c, const char *arg, struct live_options *o);
+/* Options that cannot go together; says why and returns -1. */
+int live_options_check(const struct live_options *o);
+
 /* The exit status: 0 all PASS, 1 any FAIL, 2 any NO_VERDICT, 3 error. */
 int live_run(const struct live_options *o);
 
