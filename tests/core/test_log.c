@@ -2,7 +2,7 @@
  * chain uses against FIPS 180-4's examples, records and evidence round trips,
  * filters, append-only triggers, schema versions, failing writes through the
  * I/O table, the evidence budget and tampering.  Files live in a fresh
- * mkdtemp folder removed at the end (rm -rf through system()). */
+ * mkdtemp folder removed at the end. */
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
@@ -24,32 +24,20 @@
 #include "core/logcanon.h"
 #include "core/logverify.h"
 #include "core/pngio.h"
-
-static char dir[64];
+#include "tests/testkit.h"
 
 static int setup(void **state)
 {
     (void)state;
-    snprintf(dir, sizeof dir, "/tmp/test_log.XXXXXX");
-    return mkdtemp(dir) ? 0 : -1;
+    return testkit_scratch_setup("test_log");
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
-    return system(cmd);
+    return testkit_scratch_teardown();
 }
 
-static const char *db_path(const char *name)
-{
-    static char p[4][128];
-    static int k;
-    k = (k + 1) % 4;
-    snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
-    return p[k];
-}
 
 /* FIPS 180-4 (and its predecessor 180-2), appendix examples: SHA-256 of
  * "abc" (one block) and of the 56-byte two-block message. */
@@ -127,7 +115,7 @@ static int count(struct log_db *db, const struct log_filter *f)
 static void test_round_trip_and_filters(void **state)
 {
     (void)state;
-    const char *p = db_path("rt.db");
+    const char *p = testkit_path("rt.db");
     struct log_db *db = open_w(p, 0, NULL);
     struct image *f = frame(13, 9, 1), *o = frame(13, 9, 2);
     int64_t s1 = append(db, entry(VERDICT_PASS, "[]"));
@@ -237,7 +225,7 @@ static int sql(const char *path, const char *stmt, char *msg, size_t len)
 static void test_append_only(void **state)
 {
     (void)state;
-    const char *p = db_path("ao.db");
+    const char *p = testkit_path("ao.db");
     struct log_db *db = open_w(p, 0, NULL);
     struct image *f = frame(5, 4, 1);
     struct log_entry en = entry(VERDICT_FAIL, "[]");
@@ -264,7 +252,7 @@ static void test_append_only(void **state)
 static void test_schema_versions(void **state)
 {
     (void)state;
-    const char *p = db_path("schema.db");
+    const char *p = testkit_path("schema.db");
     struct log_db *db = open_w(p, 0, NULL);
     append(db, entry(VERDICT_PASS, "[]"));
     log_close(db);
@@ -295,7 +283,7 @@ static void test_schema_versions(void **state)
     assert_int_equal(sql(p, "SELECT count(*) FROM evidence_purged", NULL, 0), SQLITE_OK);
     assert_int_equal(sql(p, "SELECT count(*) FROM verifications", NULL, 0), SQLITE_OK);
     /* not a station log */
-    const char *q = db_path("other.db");
+    const char *q = testkit_path("other.db");
     assert_int_equal(sql(q, "CREATE TABLE t(x)", NULL, 0), SQLITE_OK);
     assert_int_equal(log_open(q, LOG_OPEN_WRITE, NULL, &db, &e), ST_EFORMAT);
     assert_non_null(strstr(e.msg, "not a station log"));
@@ -323,7 +311,7 @@ static int bad_rename(const char *a, const char *b)
 static void test_failing_writes(void **state)
 {
     (void)state;
-    const char *p = db_path("fault.db");
+    const char *p = testkit_path("fault.db");
     struct log_io io = *log_io_default();
     io.fsync = bad_fsync;
     io.rename = bad_rename;
@@ -363,7 +351,7 @@ static void test_failing_writes(void **state)
 static void test_evidence_budget(void **state)
 {
     (void)state;
-    const char *p = db_path("budget.db");
+    const char *p = testkit_path("budget.db");
     struct image *f = frame(16, 12, 5);
     struct log_entry pass = entry(VERDICT_PASS, "[]"), fail = entry(VERDICT_FAIL, "[]");
     pass.frame = fail.frame = f;
@@ -432,7 +420,7 @@ static void verify_expect(const char *p, const char *chain, int64_t seq, int tor
 static void test_tamper(void **state)
 {
     (void)state;
-    const char *p = db_path("tamper.db");
+    const char *p = testkit_path("tamper.db");
     struct image *f = frame(9, 9, 7);
     struct log_entry fail = entry(VERDICT_FAIL, "[{\"rule\":\"max_area\",\"class\":\"pit\"}]");
     fail.frame = f;
@@ -478,7 +466,7 @@ static void test_tamper(void **state)
     /* one byte of an evidence file */
     snprintf(cmd, sizeof cmd, "f=$(ls %s/evidence/*/00000003-frame.png) &&"
                               " printf 'X' | dd of=\"$f\" bs=1 seek=60 conv=notrunc 2>/dev/null",
-             dir);
+             testkit_dir);
     assert_int_equal(system(cmd), 0);
     verify_expect(p, "evidence", 3, 0);
     image_free(f);
@@ -489,7 +477,7 @@ static void test_tamper(void **state)
 static void test_verifications(void **state)
 {
     (void)state;
-    const char *p = db_path("verify.db");
+    const char *p = testkit_path("verify.db");
     struct log_db *db = open_w(p, 0, NULL);
     struct err e;
     struct log_verification v, got;
@@ -559,7 +547,7 @@ static void modes_case(const char *name, mode_t mask, unsigned file_mode)
 {
     mode_t old = umask(mask);
     char sub[160], p[200], ev[PATH_MAX], evroot[PATH_MAX];
-    snprintf(sub, sizeof sub, "%s/%s", dir, name);
+    snprintf(sub, sizeof sub, "%s/%s", testkit_dir, name);
     assert_int_equal(mkdir(sub, 0755), 0);
     snprintf(p, sizeof p, "%s/log.db", sub);
     struct log_options o;

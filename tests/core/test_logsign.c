@@ -28,32 +28,20 @@
 #include "core/logcanon.h"
 #include "core/logsign.h"
 #include "core/logverify.h"
-
-static char dir[64];
+#include "tests/testkit.h"
 
 static int setup(void **state)
 {
     (void)state;
-    snprintf(dir, sizeof dir, "/tmp/test_logsign.XXXXXX");
-    return mkdtemp(dir) && sodium_init() >= 0 ? 0 : -1;
+    return testkit_scratch_setup("test_logsign") ? -1 : (sodium_init() >= 0 ? 0 : -1);
 }
 
 static int teardown(void **state)
 {
     (void)state;
-    char cmd[128];
-    snprintf(cmd, sizeof cmd, "rm -rf '%s'", dir);
-    return system(cmd);
+    return testkit_scratch_teardown();
 }
 
-static const char *path_of(const char *name)
-{
-    static char p[4][128];
-    static int k;
-    k = (k + 1) % 4;
-    snprintf(p[k], sizeof p[k], "%s/%s", dir, name);
-    return p[k];
-}
 
 static struct log_db *open_w(const char *path)
 {
@@ -123,7 +111,7 @@ static void test_rfc8032_vector(void **state)
 static void test_round_trip(void **state)
 {
     (void)state;
-    const char *p = path_of("round.db");
+    const char *p = testkit_path("round.db");
     struct log_db *db = open_w(p);
     for (int i = 0; i < 3; i++)
         append(db, i == 1 ? VERDICT_FAIL : VERDICT_PASS);
@@ -190,7 +178,7 @@ static void test_round_trip(void **state)
 static void test_wholesale_rewrite(void **state)
 {
     (void)state;
-    const char *p = path_of("rewrite.db");
+    const char *p = testkit_path("rewrite.db");
     struct log_db *db = open_w(p);
     for (int i = 0; i < 4; i++)
         append(db, i == 1 ? VERDICT_FAIL : VERDICT_PASS);
@@ -198,7 +186,7 @@ static void test_wholesale_rewrite(void **state)
     struct err e;
     assert_int_equal(log_signing_get(db, &sg, &e), ST_OK);
     log_close(db);
-    const char *q = path_of("rewrite-copy.db");
+    const char *q = testkit_path("rewrite-copy.db");
     char cmd[400];
     snprintf(cmd, sizeof cmd, "cp '%s' '%s'", p, q);
     assert_int_equal(system(cmd), 0);
@@ -265,7 +253,7 @@ static void test_wholesale_rewrite(void **state)
 static void test_key_file_mode(void **state)
 {
     (void)state;
-    const char *p = path_of("mode.db");
+    const char *p = testkit_path("mode.db");
     struct log_db *db = open_w(p);
     append(db, VERDICT_PASS);
     log_close(db);
@@ -287,7 +275,7 @@ static void test_key_file_mode(void **state)
     assert_non_null(strstr(e.msg, "signing key missing"));
     assert_int_equal(access(kp, F_OK), -1);
     /* another log's key is refused */
-    const char *p2 = path_of("mode2.db");
+    const char *p2 = testkit_path("mode2.db");
     db = open_w(p2);
     log_close(db);
     char kp2[160];
@@ -305,7 +293,7 @@ static void test_key_file_mode(void **state)
 static void test_upgrade_from_3(void **state)
 {
     (void)state;
-    const char *p = path_of("old.db");
+    const char *p = testkit_path("old.db");
     struct log_db *db = open_w(p);
     append(db, VERDICT_PASS);
     append(db, VERDICT_FAIL);
@@ -348,7 +336,7 @@ static void test_public_parse(void **state)
     const char *k = "D75A980182B10AB7D54BFED3C964073A0EE172F3DAA62325AF021A68F707511A";
     assert_int_equal(logsign_public_parse(k, hex, &e), ST_OK);
     assert_string_equal(hex, "d75a980182b10ab7d54bfed3c964073a0ee172f3daa62325af021a68f707511a");
-    const char *f = path_of("pub.txt");
+    const char *f = testkit_path("pub.txt");
     FILE *fp = fopen(f, "w");
     fprintf(fp, "  %s\n", k);
     fclose(fp);
