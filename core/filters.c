@@ -3,6 +3,11 @@
 #include <math.h>
 #include <string.h>
 
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+#include <immintrin.h>
+#define FILT_WIDE 1
+#endif
+
 static const double filt_pi = 3.14159265358979323846;
 
 int filt_reflect(int i, int n)
@@ -99,8 +104,8 @@ FILT_TAPS void taps_pair4(float *restrict os, float *restrict oa, const float *r
     }
 }
 
-FILT_HOT void filt_pair(const float *const *src, const float *ks, const float *ka, int r, int w, float *os,
-                        float *oa)
+FILT_HOT static void pair_clones(const float *const *src, const float *ks, const float *ka, int r, int w,
+                                 float *os, float *oa)
 {
     taps_centre(os, src[r], ks[0], w);
     taps_centre(oa, src[r], 0.0f, w);
@@ -114,14 +119,213 @@ FILT_HOT void filt_pair(const float *const *src, const float *ks, const float *k
     }
 }
 
-FILT_HOT void filt_sym(const float *const *src, const float *k, int r, int w, float *out)
+FILT_HOT static void sym_clones(const float *const *src, const float *k, int r, int w, float *out)
 {
     filt_run(src, k, r, w, out, 0);
 }
 
-FILT_HOT void filt_anti(const float *const *src, const float *k, int r, int w, float *out)
+FILT_HOT static void anti_clones(const float *const *src, const float *k, int r, int w, float *out)
 {
     filt_run(src, k, r, w, out, 1);
+}
+
+#ifdef FILT_WIDE
+/* The AVX-512 form keeps the outputs of 64 columns in registers through all
+ * taps, so a tap costs two loads, an add and an FMA per vector and no load
+ * and store of the output: the loops above stream the output through
+ * memory once per four taps, and a column pass's sources of radius 32 then
+ * compete with it for the cache.  The arithmetic is theirs in their order
+ * (centre product, then the taps j = 1..r each as one FMA of the pre-added
+ * pair), so every output has the same bits on every path. */
+#define WIDE_VECS 4
+
+__attribute__((target("avx512f"), always_inline)) static inline void
+wide_chunk(const float *const *src, const float *ks, const float *ka, int r, int x, __mmask16 m, const int nv,
+           float *os, float *oa)
+{
+    __m512 s[WIDE_VECS], a[WIDE_VECS];
+    const float *c = src[r] + x;
+    const __m512 k0 = _mm512_set1_ps(os ? ks[0] : 0.0f), zero = _mm512_setzero_ps();
+#pragma GCC unroll 4
+    for (int v = 0; v < nv; v++) {
+        __m512 cv = _mm512_maskz_loadu_ps(m, c + 16 * v);
+        s[v] = _mm512_mul_ps(k0, cv);
+        a[v] = _mm512_mul_ps(zero, cv); /* the antisymmetric pass's centre: 0 * c, signed zero and all */
+    }
+    for (int j = 1; j <= r; j++) {
+        const float *lo = src[r - j] + x, *hi = src[r + j] + x;
+        const __m512 kj = _mm512_set1_ps(os ? ks[j] : 0.0f), kd = _mm512_set1_ps(oa ? ka[j] : 0.0f);
+#pragma GCC unroll 4
+        for (int v = 0; v < nv; v++) {
+            __m512 l = _mm512_maskz_loadu_ps(m, lo + 16 * v), h = _mm512_maskz_loadu_ps(m, hi + 16 * v);
+            if (os)
+                s[v] = _mm512_fmadd_ps(kj, _mm512_add_ps(h, l), s[v]);
+            if (oa)
+                a[v] = _mm512_fmadd_ps(kd, _mm512_sub_ps(h, l), a[v]);
+        }
+    }
+#pragma GCC unroll 4
+    for (int v = 0; v < nv; v++) {
+        if (os)
+            _mm512_mask_storeu_ps(os + x + 16 * v, m, s[v]);
+        if (oa)
+            _mm512_mask_storeu_ps(oa + x + 16 * v, m, a[v]);
+    }
+}
+
+/* Inlined per output set, so the tests on os and oa fold away. */
+__attribute__((target("avx512f"), always_inline)) static inline void
+wide_run(const float *const *src, const float *ks, const float *ka, int r, int w, float *os, float *oa)
+{
+    int x = 0;
+    for (; x + 16 * WIDE_VECS <= w; x += 16 * WIDE_VECS)
+        wide_chunk(src, ks, ka, r, x, (__mmask16)0xffff, WIDE_VECS, os, oa);
+    for (; x + 16 <= w; x += 16)
+        wide_chunk(src, ks, ka, r, x, (__mmask16)0xffff, 1, os, oa);
+    if (x < w)
+        wide_chunk(src, ks, ka, r, x, (__mmask16)((1u << (w - x)) - 1), 1, os, oa);
+}
+
+__attribute__((target("avx512f"))) static void wide_sym(const float *const *src, const float *k, int r, int w,
+                                                        float *out)
+{
+    wide_run(src, k, NULL, r, w, out, NULL);
+}
+
+__attribute__((target("avx512f"))) static void wide_anti(const float *const *src, const float *k, int r, int w,
+                                                         float *out)
+{
+    wide_run(src, NULL, k, r, w, NULL, out);
+}
+
+__attribute__((target("avx512f"))) static void wide_pair(const float *const *src, const float *ks,
+                                                         const float *ka, int r, int w, float *os, float *oa)
+{
+    wide_run(src, ks, ka, r, w, os, oa);
+}
+
+/* ROWS output rows of one pass, 16 columns at a time: the sources of those
+ * columns (2r + ROWS lines of 64 bytes) stay in L1 for every tap of every
+ * row, where a row at a time across the width reloads each source line
+ * from L2 for each output row.  Per output the same arithmetic as above. */
+#define ROWS 8
+/* Prefetch distance in floats: two chunks on. */
+#define ROWS_AHEAD 32
+
+__attribute__((target("avx512f"), always_inline)) static inline void
+rows_chunk(const float *const *src, const float *ks, const float *ka, int r, int x, __mmask16 m, const int nr,
+           float *const *os, float *const *oa)
+{
+    __m512 s[ROWS], a[ROWS];
+    const __m512 k0 = _mm512_set1_ps(os ? ks[0] : 0.0f), zero = _mm512_setzero_ps();
+    /* the lines two chunks on: a source row's lines are 2 KB and more apart
+     * and the hardware does not follow 2r + ROWS such streams */
+    for (int t = 0; t < 2 * r + nr; t++)
+        _mm_prefetch((const char *)(src[t] + x + ROWS_AHEAD), _MM_HINT_T0);
+#pragma GCC unroll 8
+    for (int i = 0; i < nr; i++) {
+        __m512 cv = _mm512_maskz_loadu_ps(m, src[r + i] + x);
+        s[i] = _mm512_mul_ps(k0, cv);
+        a[i] = _mm512_mul_ps(zero, cv);
+    }
+    for (int j = 1; j <= r; j++) {
+        const __m512 kj = _mm512_set1_ps(os ? ks[j] : 0.0f), kd = _mm512_set1_ps(oa ? ka[j] : 0.0f);
+#pragma GCC unroll 8
+        for (int i = 0; i < nr; i++) {
+            __m512 l = _mm512_maskz_loadu_ps(m, src[r + i - j] + x), h = _mm512_maskz_loadu_ps(m, src[r + i + j] + x);
+            if (os)
+                s[i] = _mm512_fmadd_ps(kj, _mm512_add_ps(h, l), s[i]);
+            if (oa)
+                a[i] = _mm512_fmadd_ps(kd, _mm512_sub_ps(h, l), a[i]);
+        }
+    }
+#pragma GCC unroll 8
+    for (int i = 0; i < nr; i++) {
+        if (os)
+            _mm512_mask_storeu_ps(os[i] + x, m, s[i]);
+        if (oa)
+            _mm512_mask_storeu_ps(oa[i] + x, m, a[i]);
+    }
+}
+
+__attribute__((target("avx512f"), always_inline)) static inline void
+rows_run(const float *const *src, const float *ks, const float *ka, int r, int w, float *const *os,
+         float *const *oa)
+{
+    int x = 0;
+    for (; x + 16 <= w; x += 16)
+        rows_chunk(src, ks, ka, r, x, (__mmask16)0xffff, ROWS, os, oa);
+    if (x < w)
+        rows_chunk(src, ks, ka, r, x, (__mmask16)((1u << (w - x)) - 1), ROWS, os, oa);
+}
+
+__attribute__((target("avx512f"))) static void rows_wide(const float *const *src, const float *ks,
+                                                         const float *ka, int r, int w, float *const *os,
+                                                         float *const *oa)
+{
+    if (os && oa)
+        rows_run(src, ks, ka, r, w, os, oa);
+    else if (os)
+        rows_run(src, ks, NULL, r, w, os, NULL);
+    else
+        rows_run(src, NULL, ka, r, w, NULL, oa);
+}
+
+static int filt_has_wide(void)
+{
+    return __builtin_cpu_supports("avx512f");
+}
+#else
+static int filt_has_wide(void)
+{
+    return 0;
+}
+#define wide_sym sym_clones
+#define wide_anti anti_clones
+#define wide_pair pair_clones
+#endif
+
+void filt_sym(const float *const *src, const float *k, int r, int w, float *out)
+{
+    if (filt_has_wide())
+        wide_sym(src, k, r, w, out);
+    else
+        sym_clones(src, k, r, w, out);
+}
+
+void filt_anti(const float *const *src, const float *k, int r, int w, float *out)
+{
+    if (filt_has_wide())
+        wide_anti(src, k, r, w, out);
+    else
+        anti_clones(src, k, r, w, out);
+}
+
+void filt_pair(const float *const *src, const float *ks, const float *ka, int r, int w, float *os, float *oa)
+{
+    if (filt_has_wide())
+        wide_pair(src, ks, ka, r, w, os, oa);
+    else
+        pair_clones(src, ks, ka, r, w, os, oa);
+}
+
+void filt_rows(const float *const *src, const float *ks, const float *ka, int r, int w, int nrows,
+               float *const *os, float *const *oa)
+{
+    int i = 0;
+#ifdef FILT_WIDE
+    if (filt_has_wide())
+        for (; i + ROWS <= nrows; i += ROWS)
+            rows_wide(src + i, ks, ka, r, w, os ? os + i : NULL, oa ? oa + i : NULL);
+#endif
+    for (; i < nrows; i++) {
+        if (os && oa)
+            filt_pair(src + i, ks, ka, r, w, os[i], oa[i]);
+        else if (os)
+            filt_sym(src + i, ks, r, w, os[i]);
+        else
+            filt_anti(src + i, ka, r, w, oa[i]);
+    }
 }
 
 int filt_gauss_radius(double sigma)

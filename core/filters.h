@@ -47,6 +47,14 @@ void filt_anti(const float *const *src, const float *k, int r, int w, float *out
  * sharing the loads (the same values as the two calls). */
 void filt_pair(const float *const *src, const float *ks, const float *ka, int r, int w, float *os, float *oa);
 
+/* The passes of nrows consecutive output rows at once: src holds 2r + nrows
+ * sources and output row i is the single-row pass over src + i, written to
+ * os[i] (symmetric, ks) and oa[i] (antisymmetric, ka); os or oa may be NULL,
+ * not both.  The same bits as the single-row calls, faster for a column
+ * pass, whose sources are then read once per group of rows. */
+void filt_rows(const float *const *src, const float *ks, const float *ka, int r, int w, int nrows,
+               float *const *os, float *const *oa);
+
 /* Gaussian radius as scipy.ndimage.gaussian_filter with truncate=4:
  * (int)(4 sigma + 0.5). */
 int filt_gauss_radius(double sigma);
