@@ -1,8 +1,9 @@
 /* station: the program's entry point; dispatches to one file per subcommand. */
+#define _GNU_SOURCE /* sched_setaffinity, cpu_set_t */
+#include <sched.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <unistd.h>
 
 #include "cli.h"
 
@@ -36,24 +37,50 @@ static void usage(FILE *f)
             CLI_CAUTION);
 }
 
-/* XGBoost's OpenMP threads spin between its parallel regions unless
- * OMP_WAIT_POLICY says otherwise, and libgomp reads that once, as it loads,
- * before main.  On two cores shared with anything else the spinning thread
- * takes the core the working one needs: training the demo took 76 s of wall
- * clock (55 s of CPU) so and 26 s (19 s) with passive waits, the same model.
- * So a command that trains runs itself again, once, with the policy set,
- * unless the caller chose one (the memcheck run does, so valgrind keeps
- * the process it watches).  Should the exec fail, it goes on spinning. */
-static void passive_waits(char **argv)
+/* XGBoost's OpenMP threads spin between its parallel regions, and on two
+ * cores shared with anything else the spinning thread takes the core the
+ * working one needs: perf put half of `station train`'s samples in
+ * libgomp's spin loop, and the demo's training took 76 s of wall clock (55 s
+ * of CPU) so against 24 s (21 s) with OMP_WAIT_POLICY=PASSIVE, the same
+ * model.  libgomp fixes its policy in its constructor, from the environment
+ * and from the CPUs the process may run on: with more of its threads than
+ * such CPUs it spins briefly (its GOMP_SPINCOUNT throttling).  The program
+ * cannot set the environment that early (glibc resets environ after the
+ * executable's .preinit_array, which runs before any library's constructor,
+ * per the ELF gABI), but it can narrow the CPUs there: for the commands that
+ * train, unless the caller set a policy, the process runs on its first
+ * allowed CPU while the libraries start, and main gives the whole set back
+ * before any thread exists.  XGBoost names its thread count, so only the
+ * spinning changes. */
+static cpu_set_t start_cpus;
+static int start_narrowed;
+
+static void waits_narrow(int argc, char **argv, char **envp)
 {
-    if (getenv("OMP_WAIT_POLICY"))
+    (void)envp;
+    if (argc < 2 || getenv("OMP_WAIT_POLICY") || sched_getaffinity(0, sizeof start_cpus, &start_cpus) != 0 ||
+        CPU_COUNT(&start_cpus) < 2)
         return;
-    if (setenv("OMP_WAIT_POLICY", "PASSIVE", 1) == 0)
-        execv("/proc/self/exe", argv);
+    for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
+        if (commands[i].boosts && strcmp(argv[1], commands[i].name) == 0) {
+            cpu_set_t one;
+            CPU_ZERO(&one);
+            for (int c = 0; c < CPU_SETSIZE; c++)
+                if (CPU_ISSET(c, &start_cpus)) {
+                    CPU_SET(c, &one);
+                    break;
+                }
+            start_narrowed = sched_setaffinity(0, sizeof one, &one) == 0;
+        }
 }
+
+__attribute__((section(".preinit_array"), used)) static void (*const waits_at_start)(int, char **, char **) =
+    waits_narrow;
 
 int main(int argc, char **argv)
 {
+    if (start_narrowed)
+        sched_setaffinity(0, sizeof start_cpus, &start_cpus);
     if (argc < 2) {
         usage(stderr);
         return EXIT_USAGE;
@@ -67,11 +94,8 @@ int main(int argc, char **argv)
         return 0;
     }
     for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
-        if (strcmp(argv[1], commands[i].name) == 0) {
-            if (commands[i].boosts)
-                passive_waits(argv);
+        if (strcmp(argv[1], commands[i].name) == 0)
             return commands[i].run(argc - 1, argv + 1);
-        }
     cli_say("unknown command '%s' (station --help lists them)", argv[1]);
     return EXIT_USAGE;
 }

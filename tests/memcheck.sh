@@ -16,7 +16,7 @@ mkdir -p "$out"
 sed -e 's/^rounds = .*/rounds = 4/' -e 's/^sigmas = .*/sigmas = 1 2/' -e 's/^early_stop = .*/early_stop = 0/' \
     -e 's/^samples_per_class = .*/samples_per_class = 300/' recipes/ostrel-cap38.ini >"$out/recipe.ini"
 set +e
-OMP_WAIT_POLICY=PASSIVE valgrind --tool=memcheck --error-exitcode=1 --leak-check=full --errors-for-leak-kinds=definite \
+valgrind --tool=memcheck --error-exitcode=1 --leak-check=full --errors-for-leak-kinds=definite \
     --show-leak-kinds=definite --num-callers=30 --suppressions=tests/valgrind.supp \
     --log-file="$out/valgrind.log" \
     "$BUILD/station" demo --recipe "$out/recipe.ini" --out "$out/demo" --seed 3 --train 4 --test 2 \
