@@ -46,6 +46,11 @@ struct inspector {
     uint64_t *cell_sum;     /* per cell: sum of its integer grey */
     int cx0, cy0, cx1, cy1; /* the cells features were computed for */
     float *grid_rows;       /* per worker: one grid row of samples' features */
+    int coarse;             /* [classifier] coarse: see coarse_pass */
+    float *list_rows;       /* per worker: a frame row of picked pixels' features */
+    int *list_x;            /* per worker: their columns */
+    uint8_t *list_cls;      /* per worker: their classes */
+    float *list_conf;       /* per worker: their confidences */
     struct region_set rs;
     struct quality q;
     struct part_pose pose;
@@ -74,6 +79,7 @@ int inspector_new(const struct recipe *r, struct inspector **out, struct err *e)
     in->r = *r;
     in->threads = r->train.threads;
     in->roi = 1;
+    in->coarse = r->coarse_classify;
     regions_init(&in->rs);
     int rc = model_check(r, &in->meta, e);
     if (rc)
@@ -118,6 +124,13 @@ static void free_frame_buffers(struct inspector *in)
     free(in->cell_sum);
     in->cell_sum = NULL;
     free(in->grid_rows);
+    free(in->list_rows);
+    free(in->list_x);
+    free(in->list_cls);
+    free(in->list_conf);
+    in->list_rows = in->list_conf = NULL;
+    in->list_x = NULL;
+    in->list_cls = NULL;
     free(in->grey);
     free(in->last);
     image_free(in->evened);
@@ -172,6 +185,13 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->cell_conf = malloc(cells * sizeof *in->cell_conf);
     in->cell_sum = malloc(cells * sizeof *in->cell_sum);
     in->grid_rows = malloc((size_t)workers(in) * in->gw * in->fs->n * sizeof *in->grid_rows);
+    size_t nw = (size_t)workers(in) * w;
+    in->list_rows = malloc(nw * in->fs->n * sizeof *in->list_rows);
+    in->list_x = malloc(nw * sizeof *in->list_x);
+    in->list_cls = malloc(nw);
+    in->list_conf = malloc(nw * sizeof *in->list_conf);
+    if (!in->list_rows || !in->list_x || !in->list_cls || !in->list_conf)
+        return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
     if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows || !in->cell_sum ||
         !in->grey || !in->last)
         return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
@@ -238,6 +258,121 @@ static void *full_pass(void *arg)
             }
             gx = g1;
         }
+    }
+    return NULL;
+}
+
+/* The coarse option ([classifier] coarse, off by default; an approximation
+ * whose effect on IoU and verdicts `make bench` measures on the demo's test
+ * set): in the cells pass 2 would classify pixel by pixel, only the pixels
+ * with even x and even y are classified first (pass C1); every other pixel
+ * of those cells then takes the class of its classified neighbours (left
+ * and right, above and below, or the four diagonal ones) when they all
+ * agree, with the lowest of their confidences, and is classified itself
+ * where they do not (pass C2), so region edges keep full resolution.  A
+ * neighbour outside the needed cells counts with what pass 2 gives it:
+ * background, its sample's confidence. */
+
+/* Classifies the listed columns of row y (features gathered into the
+ * worker's buffer) and writes their classes and confidences. */
+static int classify_list(struct worker *wk, int y, int n)
+{
+    struct inspector *in = wk->in;
+    const int w = in->w, nf = in->fs->n;
+    const size_t base = (size_t)wk->index * w;
+    float *rows = in->list_rows + base * nf;
+    const int *xs = in->list_x + base;
+    if (n == 0)
+        return ST_OK;
+    for (int i = 0; i < n; i++)
+        memcpy(rows + (size_t)i * nf, in->fs->v + ((size_t)y * w + xs[i]) * nf, (size_t)nf * sizeof *rows);
+    int rc = forest_classify(in->forest, rows, (size_t)n, nf, 1, in->list_cls + base, in->list_conf + base, &wk->e);
+    for (int i = 0; i < n && rc == ST_OK; i++) {
+        in->classes->px[(size_t)y * w + xs[i]] = in->list_cls[base + i];
+        in->conf[(size_t)y * w + xs[i]] = in->list_conf[base + i];
+    }
+    return rc;
+}
+
+static int needed(const struct inspector *in, int x, int y)
+{
+    return in->need[(size_t)(y / ROI_STEP) * in->gw + x / ROI_STEP];
+}
+
+/* Pass C1 for frame rows [y0, y1): the pixels pass 2 leaves out, as pass 2
+ * does them; in the needed cells the even pixels of even rows. */
+static void *coarse_pass(void *arg)
+{
+    struct worker *wk = arg;
+    struct inspector *in = wk->in;
+    const int w = in->w, gw = in->gw;
+    int *xs = in->list_x + (size_t)wk->index * w;
+    for (int y = wk->y0 + wk->index; y < wk->y1 && wk->rc == ST_OK; y += wk->step) {
+        const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
+        size_t row = (size_t)y * w;
+        int n = 0;
+        for (int x = 0; x < w; x++) {
+            if (!needed(in, x, y)) {
+                in->classes->px[row + x] = 0;
+                in->conf[row + x] = cc[x / ROI_STEP];
+            } else if (!(x & 1) && !(y & 1)) {
+                xs[n++] = x;
+            }
+        }
+        wk->rc = classify_list(wk, y, n);
+    }
+    return NULL;
+}
+
+/* Whether the classified neighbours of (x, y) named by the offsets agree;
+ * their class and lowest confidence then. */
+static int neighbours_agree(const struct inspector *in, int x, int y, const int (*d)[2], int nd, uint8_t *cls,
+                            float *conf)
+{
+    int seen = 0;
+    for (int k = 0; k < nd; k++) {
+        int nx = x + d[k][0], ny = y + d[k][1];
+        if (nx < 0 || ny < 0 || nx >= in->w || ny >= in->h)
+            continue;
+        size_t at = (size_t)ny * in->w + nx;
+        if (seen && in->classes->px[at] != *cls)
+            return 0;
+        if (!seen || in->conf[at] < *conf)
+            *conf = in->conf[at];
+        *cls = in->classes->px[at];
+        seen = 1;
+    }
+    return seen;
+}
+
+/* Pass C2 for frame rows [y0, y1): the needed pixels pass C1 left. */
+static void *coarse_fill(void *arg)
+{
+    static const int across[2][2] = {{-1, 0}, {1, 0}}, down[2][2] = {{0, -1}, {0, 1}};
+    static const int diag[4][2] = {{-1, -1}, {1, -1}, {-1, 1}, {1, 1}};
+    struct worker *wk = arg;
+    struct inspector *in = wk->in;
+    const int w = in->w;
+    int *xs = in->list_x + (size_t)wk->index * w;
+    for (int y = wk->y0 + wk->index; y < wk->y1 && wk->rc == ST_OK; y += wk->step) {
+        size_t row = (size_t)y * w;
+        int n = 0;
+        for (int x = 0; x < w; x++) {
+            if (!needed(in, x, y) || (!(x & 1) && !(y & 1)))
+                continue;
+            uint8_t c = 0;
+            float f = 0;
+            int ok = !(y & 1) ? neighbours_agree(in, x, y, across, 2, &c, &f)
+                     : !(x & 1) ? neighbours_agree(in, x, y, down, 2, &c, &f)
+                                : neighbours_agree(in, x, y, diag, 4, &c, &f);
+            if (ok) {
+                in->classes->px[row + x] = c;
+                in->conf[row + x] = f;
+            } else {
+                xs[n++] = x;
+            }
+        }
+        wk->rc = classify_list(wk, y, n);
     }
     return NULL;
 }
@@ -377,7 +512,13 @@ static int classify_located(struct inspector *in, double t0, struct inspect_time
                 }
             in->need[gy * gw + gx] = (uint8_t)near;
         }
-    rc = run_workers(in, 0, in->h, full_pass, e);
+    if (in->coarse) {
+        rc = run_workers(in, 0, in->h, coarse_pass, e);
+        if (!rc)
+            rc = run_workers(in, 0, in->h, coarse_fill, e);
+    } else {
+        rc = run_workers(in, 0, in->h, full_pass, e);
+    }
     if (t) {
         t->features_ms = feat_ms + box_feat_ms;
         t->classify_ms = now_ms() - start - box_feat_ms;
@@ -499,4 +640,9 @@ void inspector_set_verified(struct inspector *in, double hours_ago)
 void inspector_set_locating(struct inspector *in, int on)
 {
     in->roi = on != 0;
+}
+
+void inspector_set_coarse(struct inspector *in, int on)
+{
+    in->coarse = on != 0;
 }

@@ -69,6 +69,11 @@ void inspector_set_verified(struct inspector *in, double hours_ago);
  * the part.  Off computes features over the whole frame and classifies
  * every pixel in full, which the tests use to show the two agree. */
 void inspector_set_locating(struct inspector *in, int on);
+/* The coarse approximation of the locating pass's pixel pass (the recipe's
+ * [classifier] coarse, off by default; see inspect.c): every other pixel of
+ * the part's cells classified, the rest copied where their neighbours
+ * agree.  No effect with the locating pass off. */
+void inspector_set_coarse(struct inspector *in, int on);
 /* The next frame is not compared with this one (the frozen-camera gate):
  * for frames that are not a camera's consecutive ones. */
 void inspector_forget_last_frame(struct inspector *in);

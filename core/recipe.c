@@ -131,6 +131,7 @@ static const struct key_def classifier_keys[] = {
     {"early_stop", V_INT, R(train.early_stop), 0, 0, 1000, 0, 0, NULL},
     {"samples_per_class", V_INT, R(samples_per_class), 0, 1, 1000000, 0, 0, NULL},
     {"validation_fraction", V_REAL, R(validation_fraction), 0, 0, 0.5, 0, K_LO_OPEN, NULL},
+    {"coarse", V_YESNO, R(coarse_classify), 0, 0, 0, 0, K_OPTIONAL, NULL},
     {NULL, 0, 0, 0, 0, 0, 0, 0, NULL}};
 
 static const struct key_def scale_keys[] = {

@@ -134,6 +134,7 @@ struct recipe {
     struct booster_params train;
     int samples_per_class;     /* cap of training pixels per class per image */
     double validation_fraction;/* share of sampled pixels held out, (0, 0.5] */
+    int coarse_classify;       /* [classifier] coarse: 1 = the approximation in core/inspect.c */
     char model_path[PATH_MAX]; /* resolved against dir */
     double mm_per_px_x, mm_per_px_y; /* [scale], or the calibration's at its target's centre */
     char calibration_path[PATH_MAX]; /* [scale] calibration, resolved against dir; "" = none */

@@ -36,7 +36,9 @@ static void usage(FILE *f)
                "register-only kernel on N threads and filter_floor the filter passes' own\n"
                "arithmetic (filter_ops_per_px) at that rate. locating_agreement is the share\n"
                "of the warm-up frame's pixels whose class is the same with and without the\n"
-               "locating pass (--frames-only skips it). --save-frame writes the first\n"
+               "locating pass (--frames-only skips it); with a recipe's [classifier] coarse\n"
+               "on, coarse_agreement the share that is the same with and without it.\n"
+               "--save-frame writes the first\n"
                "frame and its true classes as DIR/frame.png and DIR/truth.png.\n");
 }
 
@@ -195,7 +197,7 @@ int cmd_bench(int argc, char **argv)
     struct image *img = NULL, *truth = NULL;
     float *prob = NULL, *ours = NULL;
     uint8_t *located = NULL;
-    double max_dp = 0, agreement = -1;
+    double max_dp = 0, agreement = -1, coarse_agreement = -1;
     size_t mismatches = 0;
     enum { NSTAGES = 8 };
     double *v = calloc((size_t)repeat * NSTAGES, sizeof *v);
@@ -233,6 +235,18 @@ int cmd_bench(int argc, char **argv)
         int compare = k < 0 && !frames_only;
         if (compare)
             memcpy(located, inspector_classes(in)->px, npix);
+        if (compare && r.coarse_classify) {
+            /* how far the coarse approximation moves the class map from the exact pixel pass */
+            inspector_set_coarse(in, 0);
+            int rc = inspector_classify(in, img, NULL, &e);
+            inspector_set_coarse(in, 1);
+            if (rc)
+                goto done;
+            size_t same = 0;
+            for (size_t i = 0; i < npix; i++)
+                same += located[i] == inspector_classes(in)->px[i];
+            coarse_agreement = (double)same / (double)npix;
+        }
         double x = 0, all = 0, bank = 0;
         if (xgb) {
             /* the same frame without the locating pass: the whole frame's
@@ -299,6 +313,8 @@ int cmd_bench(int argc, char **argv)
                           r.nclasses);
     if (agreement >= 0)
         json_object_set_new(o, "locating_agreement", json_real(agreement));
+    if (coarse_agreement >= 0)
+        json_object_set_new(o, "coarse_agreement", json_real(coarse_agreement));
     if (xgb) {
         json_object_set_new(o, "max_abs_dp", json_real(max_dp));
         json_object_set_new(o, "class_mismatches", json_integer((json_int_t)mismatches));

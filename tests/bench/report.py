@@ -58,6 +58,15 @@ print(f"\npeak resident memory, inspection at {m['width']}x{m['height']}, {m['th
       f"{m['peak_rss_mb']:.0f} MB (total {m['total']['median']:.1f} ms)")
 print(f"training the demo recipe ({s0['classes']} classes, {s0['trees']} trees, depth {s0['depth']}): "
       f"{extra['train_s']:.1f} s")
+c, x, ce = extra["coarse"], extra["exact"], extra["coarse_effect"]
+print(f"\ncoarse option (approximate, off by default), {c['width']}x{c['height']}, {c['threads']} threads: classify "
+      f"{f(c['classify'])} ms against {f(x['classify'])} exact, total {f(c['total'])} against {f(x['total'])}; "
+      f"class map equal to the exact pass on {100 * c['coarse_agreement']:.3f}% of the warm-up frame")
+print(f"  demo test set, {ce['images']} images: the same verdict on {ce['same_verdict']} "
+      f"(exact: {', '.join(f'{n} {v}' for v, n in ce['verdicts'].items())}); "
+      f"mean IoU {ce['exact']['mean_iou']:.4f} exact, {ce['coarse']['mean_iou']:.4f} coarse")
+print("  IoU per class, exact / coarse: " +
+      ", ".join(f"{k} {ce['exact']['iou'][k]:.4f} / {ce['coarse']['iou'][k]:.4f}" for k in ce["exact"]["iou"]))
 if extra["callgrind"]:
     for item in extra["callgrind"].strip(";").split(";"):
         ir, name = item.split(" ", 1)

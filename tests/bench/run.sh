@@ -50,6 +50,14 @@ t0=$(date +%s.%N)
 }
 t1=$(date +%s.%N)
 train_s=$("$PYTHON" -c "print(round($t1 - $t0, 1))")
+# The coarse approximation ([classifier] coarse, off by default): its stage
+# times beside the exact pixel pass on the same frames, and its effect on the
+# demo's test set (IoU per class, verdicts).
+echo "bench: the coarse option" >&2
+sed 's|^validation_fraction = .*|&\ncoarse = yes|' "$recipe" >"$demo/coarse.ini"
+coarse=$("$BUILD/station" bench "$demo/coarse.ini" --size 640x480 --threads 2 --repeat "$REPEAT")
+exact=$("$BUILD/station" bench "$recipe" --size 640x480 --threads 2 --repeat "$REPEAT" --frames-only)
+effect=$("$PYTHON" tests/bench/coarse_effect.py "$BUILD" "$recipe" "$demo/coarse.ini" "$demo")
 # Instructions (load-independent) of the features and classify stages on two
 # 640x480 frames, one thread, under callgrind.
 cg=""
@@ -64,7 +72,7 @@ if command -v valgrind >/dev/null && [ "${CALLGRIND:-1}" = 1 ]; then
         awk '$2 ~ /^\(/ && $3 ~ /(^|\/)core\/[a-z]+\.c:(feat_compute_box|forest_classify|inspector_run)$/ {
             gsub(",", "", $1); sub(".*:", "", $3); if (!seen[$3]++) print $1, $3 }' | tr '\n' ';')
 fi
-echo "{\"memory\": $mem, \"train_s\": $train_s, \"callgrind\": \"$cg\"}" >"$BUILD/bench-extra.json"
+echo "{\"memory\": $mem, \"train_s\": $train_s, \"callgrind\": \"$cg\", \"coarse\": $coarse, \"exact\": $exact, \"coarse_effect\": $effect}" >"$BUILD/bench-extra.json"
 "$PYTHON" tests/bench/report.py "$results" "$BUILD/bench-extra.json"
 echo
 "$BUILD/tests/bench/bench_overlay"

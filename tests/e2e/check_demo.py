@@ -125,6 +125,29 @@ check(f"evaluator vs XGBoost on the demo model: max |dp| {b['max_abs_dp']:.2e} <
 check(f"locating pass vs full classification: {b['locating_agreement']:.6f} of pixels agree",
       b["locating_agreement"] >= 0.9999, b)
 
+# the coarse option ([classifier] coarse: an approximation, off by default):
+# its class map against the exact pixel pass on a bench frame, and the test
+# set's verdicts with and without it (our own bounds, no source: 1 pixel in
+# 1,000 may differ, no verdict may)
+coarse = os.path.join(out, "coarse-check.ini")
+with open(recipe) as src, open(coarse, "w") as dst:
+    dst.write(src.read().replace("\nvalidation_fraction =", "\ncoarse = yes\nvalidation_fraction =", 1))
+rc = run("bench", coarse, "--size", "480x360", "--threads", "2", "--repeat", "1")
+bc = json.loads(rc.stdout) if rc.returncode == 0 else {}
+check(f"coarse option vs the exact pixel pass: {bc.get('coarse_agreement', 0):.6f} of pixels agree",
+      bc.get("coarse_agreement", 0) >= 0.999, (rc.returncode, rc.stderr))
+tests = sorted(glob.glob(os.path.join(out, "test", "images", "*.png")))
+
+
+def verdicts(rec):
+    r = run("inspect", rec, *tests)
+    return [json.loads(l)["verdict"] for l in r.stdout.splitlines() if l.startswith("{")]
+
+
+ve, vc = verdicts(recipe), verdicts(coarse)
+check(f"coarse option: the same verdict on {sum(a == c for a, c in zip(ve, vc))} of {len(ve)} test images",
+      len(ve) == len(tests) > 0 and ve == vc, (ve, vc))
+
 # sparse labels: brush strokes instead of full masks train about as well
 # (tolerance: 2 points of pixel accuracy, 0.05 of mean IoU; our own rule
 # for "as well", no source).  The strokes imitate an engineer with a brush:
