@@ -335,6 +335,18 @@ static void test_minimal_defaults(void **state)
     assert_int_equal(r.nzones, 0);
     assert_int_equal(r.part.field[0], -1);
     assert_int_equal(r.part.border_margin_px, 2);
+    assert_int_equal(r.coarse_classify, 0);
+}
+
+/* [classifier] coarse: the approximation of core/inspect.c, off unless asked for */
+static void test_coarse_key(void **state)
+{
+    (void)state;
+    static struct recipe r;
+    load_ok(PRODUCT CLASSES FEATURES CLASSIFIER_HEAD CLASSIFIER_TAIL "coarse = yes\n" SCALE TOL, &r);
+    assert_int_equal(r.coarse_classify, 1);
+    const char *text = PRODUCT CLASSES FEATURES CLASSIFIER_HEAD CLASSIFIER_TAIL "coarse = half\n" SCALE TOL;
+    load_bad(text, ST_EFORMAT, line_of(text, "coarse", 1), "coarse: 'half' is not yes or no");
 }
 
 static void test_subfolder_model_and_no_gabor(void **state)
@@ -765,6 +777,7 @@ int main(void)
         cmocka_unit_test(test_evidence_section),
         cmocka_unit_test(test_trigger_section),
         cmocka_unit_test(test_minimal_defaults),
+        cmocka_unit_test(test_coarse_key),
         cmocka_unit_test(test_subfolder_model_and_no_gabor),
         cmocka_unit_test(test_paths_stay_in_folder),
         cmocka_unit_test(test_lighting_and_masters),
