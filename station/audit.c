@@ -41,7 +41,7 @@ json_t *audit_record_json(const struct log_db *db, const struct log_record *r)
     for (int i = 0; i < r->nevidence; i++) {
         char path[PATH_MAX];
         const struct log_evidence *v = &r->ev[i];
-        if (log_evidence_path(db, v->name, path, sizeof path, NULL))
+        if (log_evidence_path(db, r, v->name, path, sizeof path, NULL))
             path[0] = '\0';
         json_array_append_new(ev, json_pack("{s:s,s:s,s:s,s:s,s:I,s:b}", "kind", v->kind, "name",
                                             v->name, "path", path, "sha256", v->sha256, "bytes",

@@ -52,7 +52,7 @@ static void print_record(struct log_db *db, const struct log_record *r,
     fprintf(stderr, "evidence (%d):\n", r->nevidence);
     for (int i = 0; i < r->nevidence; i++) {
         char path[PATH_MAX];
-        if (log_evidence_path(db, r->ev[i].name, path, sizeof path, NULL))
+        if (log_evidence_path(db, r, r->ev[i].name, path, sizeof path, NULL))
             path[0] = '\0';
         fprintf(stderr, "  %-8s %s%s\n", r->ev[i].kind, path,
                 r->ev[i].purged ? "  (deleted by the evidence budget)" : "");

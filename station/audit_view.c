@@ -38,7 +38,7 @@ static int load_evidence(struct log_db *db, const struct log_record *r, struct i
                     r->ev[i].kind);
             return EXIT_ERROR;
         }
-        if (log_evidence_path(db, r->ev[i].name, path, sizeof path, &e) ||
+        if (log_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
             pngio_load_rgb(path, dst, &e)) {
             cli_say("%s", e.msg);
             return EXIT_ERROR;
