@@ -20,6 +20,7 @@ static const struct {
     {"label", cmd_label, "paint class labels over a dataset's images; quick model preview"},
     {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?"},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)"},
+    {"sync", cmd_sync, "forward the log to the site's central PostgreSQL database"},
     {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify, stats, report, export, view"},
 };
 
