@@ -264,18 +264,23 @@ const char *log_evidence_dir(const struct log_db *db, const struct log_record *r
     return db->ops->evidence_dir(db->b, r, buf, len);
 }
 
-int log_evidence_path(const struct log_db *db, const struct log_record *r, const char *name,
-                      char *buf, size_t len, struct err *e)
+int log_record_evidence_path(const struct log_db *db, const struct log_record *r,
+                             const char *name, char *buf, size_t len, struct err *e)
 {
     char dir[PATH_MAX];
     if (!log_evidence_dir(db, r, dir, sizeof dir))
         return err_set(e, ST_EIO,
-                       "record %lld: evidence %s not available here (a central database:"
-                       " --evidence DIR finds what station sync --evidence-to copied)",
-                       (long long)r->seq, name);
+                       "evidence %s not available here (a central database: --evidence DIR"
+                       " finds what station sync --evidence-to copied)", name);
     if ((size_t)snprintf(buf, len, "%s/%s", dir, name) >= len)
         return err_set(e, ST_ERANGE, "%s/%s: path too long", dir, name);
     return ST_OK;
+}
+
+int log_evidence_path(const struct log_db *db, const char *name, char *buf, size_t len,
+                      struct err *e)
+{
+    return log_record_evidence_path(db, NULL, name, buf, len, e);
 }
 
 const char *log_path(const struct log_db *db)

@@ -259,9 +259,13 @@ int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
                 const char *comment, int64_t *dseq, struct err *e);
 
 /* The full path of evidence `name` of record r; ST_EIO "not available" when
- * the handle has no evidence folder (log_evidence_dir is NULL). */
-int log_evidence_path(const struct log_db *db, const struct log_record *r, const char *name,
-                      char *buf, size_t len, struct err *e);
+ * the handle has no evidence folder for it (log_evidence_dir is NULL). */
+int log_record_evidence_path(const struct log_db *db, const struct log_record *r,
+                             const char *name, char *buf, size_t len, struct err *e);
+/* The same for the handle's own chain: a local log's, centrally the scoped
+ * station's (log_scope). */
+int log_evidence_path(const struct log_db *db, const char *name, char *buf, size_t len,
+                      struct err *e);
 
 /* One run of a recipe's master parts.  masters_json is a JSON array of
  * {master, expect, verdict, match}: heap on read (freed by
@@ -334,9 +338,10 @@ const char *log_kind(const struct log_db *db);
  * with its first complaint (centrally: the schema is ours and readable). */
 int log_check_integrity(struct log_db *db, struct err *e);
 
-/* The folder r's evidence names resolve against, written into buf (len
- * PATH_MAX suffices), or NULL when this handle has none: a central database
- * opened without evidence_dir. */
+/* The folder r's evidence names resolve against (r NULL: the handle's own
+ * chain's, as log_evidence_path), written into buf (len PATH_MAX suffices),
+ * or NULL when this handle has none: a central database opened without
+ * evidence_dir, or not scoped when r is NULL. */
 const char *log_evidence_dir(const struct log_db *db, const struct log_record *r, char *buf,
                              size_t len);
 

@@ -656,9 +656,10 @@ static const char *evidence_dir(const void *self, const struct log_record *r, ch
                                 size_t len)
 {
     const struct central *c = self;
-    if (!c->has_evdir)
+    const char *station = r ? r->chain_station : c->scope;
+    if (!c->has_evdir || !*station)
         return NULL;
-    snprintf(buf, len, "%s/%s", c->evdir, r->chain_station);
+    snprintf(buf, len, "%s/%s", c->evdir, station);
     return buf;
 }
 

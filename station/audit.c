@@ -7,7 +7,7 @@
 #include "core/judge.h"
 #include "logbook.h"
 
-int audit_open_log(const struct audit_source *src, int mode, struct log_db **out)
+int audit_open_source(const struct audit_source *src, int mode, struct log_db **out)
 {
     char def[PATH_MAX];
     struct err e;
@@ -29,6 +29,12 @@ int audit_open_log(const struct audit_source *src, int mode, struct log_db **out
     return 0;
 }
 
+int audit_open_log(const char *db_path, const char *station, int mode, struct log_db **out)
+{
+    struct audit_source src = {.log = db_path, .station = station};
+    return audit_open_source(&src, mode, out);
+}
+
 static json_t *parsed(const char *text)
 {
     json_t *v = text ? json_loads(text, 0, NULL) : NULL;
@@ -48,7 +54,7 @@ json_t *audit_record_json(const struct log_db *db, const struct log_record *r)
     for (int i = 0; i < r->nevidence; i++) {
         char path[PATH_MAX];
         const struct log_evidence *v = &r->ev[i];
-        if (log_evidence_path(db, r, v->name, path, sizeof path, NULL))
+        if (log_record_evidence_path(db, r, v->name, path, sizeof path, NULL))
             path[0] = '\0';
         json_array_append_new(ev, json_pack("{s:s,s:s,s:s,s:s,s:I,s:b}", "kind", v->kind, "name",
                                             v->name, "path", path, "sha256", v->sha256, "bytes",

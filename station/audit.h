@@ -32,7 +32,9 @@ struct audit_source {
 /* Opens src->log, or the default log of src->station
  * (LOGBOOK_DEFAULT_STATION when NULL), scoped to src->station when asked;
  * prints the one-line reason and returns EXIT_ERROR on failure. */
-int audit_open_log(const struct audit_source *src, int mode, struct log_db **out);
+int audit_open_source(const struct audit_source *src, int mode, struct log_db **out);
+/* The same for db_path and station alone (no evidence folder, no scope). */
+int audit_open_log(const char *db_path, const char *station, int mode, struct log_db **out);
 
 /* A record as a JSON object: every field of struct log_record, reasons and
  * regions parsed back into arrays, evidence with full paths, the latest

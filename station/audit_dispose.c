@@ -61,7 +61,7 @@ int audit_dispose(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(&src, LOG_OPEN_WRITE, &db))
+    if (audit_open_source(&src, LOG_OPEN_WRITE, &db))
         return EXIT_ERROR;
     struct err e;
     err_clear(&e);

@@ -119,7 +119,7 @@ int audit_list(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(&src, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct err e;
     err_clear(&e);

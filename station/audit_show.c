@@ -59,7 +59,7 @@ static void print_record(struct log_db *db, const struct log_record *r,
     fprintf(stderr, "evidence (%d):\n", r->nevidence);
     for (int i = 0; i < r->nevidence; i++) {
         char path[PATH_MAX];
-        if (log_evidence_path(db, r, r->ev[i].name, path, sizeof path, NULL))
+        if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, NULL))
             path[0] = '\0';
         fprintf(stderr, "  %-8s %s%s\n", r->ev[i].kind, path[0] ? path : r->ev[i].name,
                 r->ev[i].purged ? "  (deleted by the evidence budget)"
@@ -104,7 +104,7 @@ int audit_show(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(&src, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct err e;
     err_clear(&e);

@@ -139,7 +139,7 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
 static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_iter **it)
 {
     struct audit_source src = {.log = o->log, .station = o->station, .evidence = o->evidence};
-    if (audit_open_log(&src, LOG_OPEN_READ, db))
+    if (audit_open_source(&src, LOG_OPEN_READ, db))
         return EXIT_ERROR;
     struct log_filter f;
     log_filter_init(&f);
@@ -371,7 +371,7 @@ static void load_thumb(struct log_db *db, const struct log_record *r, struct aud
         char path[4096];
         struct image *full = NULL;
         struct err e;
-        if (log_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
+        if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
             pngio_load_rgb(path, &full, &e)) {
             t->note = "overlay file missing or unreadable (run audit verify)";
             return;

@@ -125,7 +125,7 @@ int audit_verify(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(&src, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct log_station *st = NULL;
     int n = 0, rc = 0;

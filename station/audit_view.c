@@ -40,7 +40,7 @@ static int load_evidence(struct log_db *db, const struct log_record *r, struct i
                     r->ev[i].kind);
             return EXIT_ERROR;
         }
-        if (log_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
+        if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
             pngio_load_rgb(path, dst, &e)) {
             cli_say("%s", e.msg);
             return EXIT_ERROR;
@@ -115,7 +115,7 @@ int audit_cmd_view(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(&src, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct log_record r;
     log_record_init(&r);

@@ -144,7 +144,7 @@ static void test_round_trip_and_filters(void **state)
     assert_int_equal(r.utc[10], 'T');
     /* the frame evidence is lossless: the same pixels come back */
     char path[PATH_MAX];
-    assert_int_equal(log_evidence_path(db, &r, r.ev[0].name, path, sizeof path, &e), ST_OK);
+    assert_int_equal(log_evidence_path(db, r.ev[0].name, path, sizeof path, &e), ST_OK);
     struct image *back = NULL;
     assert_int_equal(pngio_load_rgb(path, &back, &e), ST_OK);
     assert_memory_equal(back->px, f->px, 13 * 9 * 3);
@@ -391,7 +391,7 @@ static void test_evidence_budget(void **state)
     assert_int_equal(append(db, fail), 6);
     assert_int_equal(log_get(db, 3, &r, &e), ST_OK);
     assert_true(r.ev[0].purged);
-    assert_int_equal(log_evidence_path(db, &r, r.ev[0].name, path, sizeof path, &e), ST_OK);
+    assert_int_equal(log_evidence_path(db, r.ev[0].name, path, sizeof path, &e), ST_OK);
     assert_int_equal(access(path, F_OK), -1);
     log_record_clear(&r);
     struct log_verify_result v;
@@ -567,7 +567,7 @@ static void modes_case(const char *name, mode_t mask, unsigned file_mode)
     struct log_record r;
     log_record_init(&r);
     assert_int_equal(log_get(db, seq, &r, &e), ST_OK);
-    assert_int_equal(log_evidence_path(db, &r, r.ev[0].name, ev, sizeof ev, &e), ST_OK);
+    assert_int_equal(log_evidence_path(db, r.ev[0].name, ev, sizeof ev, &e), ST_OK);
     unsigned want = file_mode ? file_mode : 0600;
     unsigned want_dir = want | (want & 0444) >> 2;
     check_mode(p, want);
