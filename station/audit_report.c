@@ -266,9 +266,13 @@ static void station_row(FILE *f, const char *station, const char *line, const js
                 100 * real(fr, "rate"));
     else
         fputs("<td>-</td>", f);
-    fputs("<td><code>", f);
-    esc(f, str(st, "public_key"));
-    fputs("</code></td></tr>\n", f);
+    fputs("<td>", f);
+    if (*str(st, "public_key")) {
+        fputs("<code>", f);
+        esc(f, str(st, "public_key"));
+        fputs("</code>", f);
+    }
+    fputs("</td></tr>\n", f);
 }
 
 /* The stations side by side, with the total, when the log holds several. */
