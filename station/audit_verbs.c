@@ -157,27 +157,48 @@ static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_i
     return 0;
 }
 
-/* The newest rejects seen so far, kept in a ring of records whose contents
- * are swapped in from the walk's record (no copies of the heap strings). */
+/* The newest rejects seen so far, by time (a walk of the central database
+ * goes station by station, not in time order): when full, a newer record
+ * takes the place of the oldest kept.  Contents are swapped in from the
+ * walk's record (no copies of the heap strings). */
 struct ring {
     struct log_record *rec;
-    size_t cap, n, next;
+    size_t cap, n;
 };
+
+/* Time order; records of the same millisecond by sequence number. */
+static int newer(const struct log_record *a, const struct log_record *b)
+{
+    int c = strcmp(a->utc, b->utc);
+    return c ? c > 0 : a->seq > b->seq;
+}
 
 static void ring_take(struct ring *g, struct log_record *r)
 {
-    struct log_record tmp = g->rec[g->next];
-    g->rec[g->next] = *r;
-    *r = tmp;
-    g->next = (g->next + 1) % g->cap;
-    if (g->n < g->cap)
+    size_t at = g->n, i;
+    if (g->n == g->cap) {
+        for (at = 0, i = 1; i < g->n; i++)
+            if (newer(&g->rec[at], &g->rec[i]))
+                at = i;
+        if (!newer(r, &g->rec[at]))
+            return;
+    } else {
         g->n++;
+    }
+    struct log_record tmp = g->rec[at];
+    g->rec[at] = *r;
+    *r = tmp;
 }
 
-/* i = 0 is the newest. */
-static struct log_record *ring_get(struct ring *g, size_t i)
+static int by_newest(const void *a, const void *b)
 {
-    return &g->rec[(g->next + g->cap - 1 - i) % g->cap];
+    return newer(b, a) - newer(a, b);
+}
+
+/* Newest first. */
+static void ring_sort(struct ring *g)
+{
+    qsort(g->rec, g->n, sizeof *g->rec, by_newest);
 }
 
 static int walk(struct log_iter *it, struct audit_stats *st, struct audit_compare *cmp,
@@ -400,7 +421,7 @@ int audit_cmd_report(int argc, char **argv)
     struct log_db *db = NULL;
     json_t *js = NULL;
     size_t cap = (size_t)o.thumbs;
-    struct ring g = {calloc(cap + 1, sizeof(struct log_record)), cap, 0, 0};
+    struct ring g = {calloc(cap + 1, sizeof(struct log_record)), cap, 0};
     struct audit_thumb *thumbs = calloc(cap + 1, sizeof *thumbs);
     struct image **imgs = calloc(cap + 1, sizeof *imgs);
     if (!g.rec || !thumbs || !imgs) {
@@ -412,8 +433,9 @@ int audit_cmd_report(int argc, char **argv)
         log_record_init(&g.rec[i]);
     if ((rc = gather(&o, &db, &g, &js)) != 0)
         goto done;
+    ring_sort(&g);
     for (size_t i = 0; i < g.n; i++)
-        load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
+        load_thumb(db, &g.rec[i], &thumbs[i], &imgs[i]);
     /* the key the log is signed with, so a reader can check a copy of it */
     struct log_signing sg;
     if (!log_signing_get(db, &sg, &e) && sg.present)
