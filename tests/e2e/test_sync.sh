@@ -145,3 +145,38 @@ echo "ok   --recheck finds a forwarded record altered in the middle (record 123)
 
 $CHECK bypass "$PGCLUSTER_URI" bench-A || fail "server-side enforcement"
 echo "ok   the server refuses a broken link, a changed copy, a gap, UPDATE and DELETE from psycopg2"
+
+# the live station forwarding in the background: the server down at first
+# (sync_failed, inspection goes on), then up (synced)
+base="$out"
+out="$base/live"
+. tests/e2e/log_fixture.sh
+fresh
+pgcluster_stop
+"$S" run "$recipe" --headless --source "replay:$images" --loop --trigger continuous --fps 5 \
+    --inspections 30 --log "$out/live.db" --station bench-L --sync-to "$PGCLUSTER_URI" \
+    --sync-every 0.5 --sync-line line-3 </dev/null >"$out/run.jsonl" 2>"$out/run.log" &
+prun=$!
+i=0
+until grep -q '"event":"sync_failed"' "$out/run.jsonl" 2>/dev/null; do
+    i=$((i + 1))
+    [ "$i" -lt 200 ] || fail "no sync_failed event with the server down: $(tail -n 3 "$out/run.log")"
+    sleep 0.05
+done
+pgcluster_resume
+set +e
+wait "$prun"
+rc=$?
+set -e
+[ "$rc" -le 2 ] || fail "station run with --sync-to: exit $rc: $(tail -n 3 "$out/run.log")"
+n=$(grep -c '"log_seq"' "$out/run.jsonl")
+[ "$n" = 30 ] || fail "$n inspections with the forwarding failing, want 30"
+grep -q '"event":"synced","records":[1-9]' "$out/run.jsonl" ||
+    fail "no synced event once the server was up: $(grep event "$out/run.jsonl" | tail -n 3)"
+"$S" sync --to "$PGCLUSTER_URI" --log "$out/live.db" --station bench-L >/dev/null 2>"$out/final.log" ||
+    fail "final sync: $(cat "$out/final.log")"
+$CHECK compare "$PGCLUSTER_URI" bench-L "$out/live.db" || fail "central copy of the live log"
+[ "$(pgcluster_psql "SELECT line FROM stations WHERE station = 'bench-L'")" = line-3 ] ||
+    fail "the live station's line"
+echo "ok   station run --sync-to: 30 inspections while the server was down, forwarded in the" \
+    "background once it was up ($(grep -c '"event":"sync_failed"' "$out/run.jsonl") failed tries)"
