@@ -218,7 +218,8 @@ static int conn_fail(struct logpg *pg, const char *what, struct err *e)
 {
     char line[400];
     int lost = PQstatus(pg->c) != CONNECTION_OK;
-    return err_set(e, lost ? ST_EIO : ST_ELIB, "central database %s: %s: %s", pg->name, what,
+    return err_set(e, lost ? ST_EIO : ST_ELIB, "central database %s: %s: %s", pg->name,
+                   lost && pg->in_batch ? "connection lost, the open batch is not committed" : what,
                    first_line(PQerrorMessage(pg->c), line, sizeof line));
 }
 
@@ -595,15 +596,18 @@ int logpg_batch_commit(struct logpg *pg, struct err *e)
 {
     if (!pg->in_batch)
         return err_set(e, ST_EINVAL, "central database: no batch open");
-    pg->in_batch = 0;
     int rc = ST_OK;
     if (!PQsendQueryParams(pg->c, "COMMIT", 0, NULL, NULL, NULL, NULL, 0) ||
         !PQpipelineSync(pg->c))
         rc = conn_fail(pg, "cannot send", e);
     if (!rc)
         rc = drain(pg, e);
-    if (PQstatus(pg->c) != CONNECTION_OK)
-        return rc ? rc : conn_fail(pg, "connection lost", e);
+    if (PQstatus(pg->c) != CONNECTION_OK) {
+        rc = rc ? rc : conn_fail(pg, "connection lost", e);
+        pg->in_batch = 0;
+        return rc;
+    }
+    pg->in_batch = 0;
     PQexitPipelineMode(pg->c);
     if (rc)
         PQclear(PQexec(pg->c, "ROLLBACK"));

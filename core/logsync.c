@@ -398,8 +398,7 @@ int logsync_run(struct log_db *db, struct logpg *pg, const struct logsync_option
     int rc = local_last_seq(db, &res->local_seq, e);
     if (!rc && !opt.station) {
         if (!res->local_seq)
-            return err_set(e, ST_EINVAL, "%s: no record yet, so no station id to forward it as"
-                                         " (give one)", log_path(db));
+            return ST_OK;      /* nothing to forward, nor a station to forward it as */
         struct log_record r;
         log_record_init(&r);
         rc = log_get(db, res->local_seq, &r, e);

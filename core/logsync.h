@@ -60,7 +60,8 @@ struct logsync_result {
 };
 
 /* Forwards db (opened for reading) into pg.  On failure res holds what was
- * committed before it; a retry continues from there. */
+ * committed before it; a retry continues from there.  A log without records
+ * and no station given is nothing to do (res->station stays ""). */
 int logsync_run(struct log_db *db, struct logpg *pg, const struct logsync_options *o,
                 struct logsync_result *res, struct err *e);
 

@@ -115,6 +115,8 @@ int cmd_sync(int argc, char **argv)
         if (pg && r.sent_records)
             cli_say("%lld records were forwarded before that; the next sync continues after them",
                     (long long)r.sent_records);
+    } else if (!r.station[0]) {
+        fprintf(stderr, "%s: no records yet, nothing to forward\n", log_path(db));
     } else {
         const char *st = r.station;
         fprintf(stderr, "%s: forwarding to %s\n", st, logpg_name(pg));
