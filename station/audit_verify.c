@@ -147,8 +147,15 @@ int audit_verify(int argc, char **argv)
             fprintf(stderr, "%s: %d stations %s.\n", log_path(db), n,
                     rc ? "checked, not all verified" : "verified");
     } else {
+        /* scoped, so the central back-end reads the one station's chains directly */
         const char *who = src.station ? src.station : n == 1 ? st[0].station : NULL;
-        rc = verify_one(db, strcmp(log_kind(db), "sqlite") ? who : NULL, key_arg ? key : NULL);
+        if (!src.station && who && log_scope(db, who, &e)) {
+            cli_say("%s", e.msg);
+            rc = EXIT_ERROR;
+        } else {
+            rc = verify_one(db, strcmp(log_kind(db), "sqlite") ? who : NULL,
+                            key_arg ? key : NULL);
+        }
     }
     log_stations_free(st);
     log_close(db);

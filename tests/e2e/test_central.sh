@@ -6,9 +6,9 @@
 #   the figures check_central.py computes from the local SQLite files alone;
 # - list and export filtered by station, line and recipe select exactly the
 #   rows psycopg2 selects from the central tables;
-# - show needs --station when several stations are held and says which are;
-#   its evidence is found under --evidence DIR (SHA-256 checked by hashlib)
-#   and reported as not available without it;
+# - show and view need --station when several stations are held and say
+#   which are; evidence is found under --evidence DIR (SHA-256 checked by
+#   hashlib, view's picture by PIL) and reported as not available without it;
 # - verify checks every station's chains with that station's own public key
 #   (the local log's, read by sqlite3), and catches a central row altered
 #   through psycopg2 with the triggers dropped, naming station and record;
@@ -95,6 +95,7 @@ grep -q "no station bench-Z (held: bench-A, bench-B, bench-C)" "$out/last.err" |
     fail "show --station bench-Z: $(cat "$out/last.err")"
 seq=$(pyq "SELECT min(record_seq) FROM evidence WHERE station = 'bench-B'")
 expect_rc 0 "$S" audit show "$seq" --log "$PGCLUSTER_URI" --station bench-B --evidence "$out/share" --json
+cp "$out/last.out" "$out/show.json"
 "$PYTHON" -c 'import hashlib, json, sys
 import psycopg2
 j = json.load(open(sys.argv[1]))
@@ -109,6 +110,19 @@ for v in j["evidence"]:
 expect_rc 0 "$S" audit show "$seq" --log "$PGCLUSTER_URI" --station bench-B
 grep -q "not available here" "$out/last.err" || fail "show without --evidence: $(cat "$out/last.err")"
 echo "ok   show: needs --station among 3 stations, finds bench-B's evidence under --evidence (SHA-256 by hashlib), says not available without it"
+# view: the same record's frame drawn headless equals the copied file (PIL)
+frame=$(sed -n 's/.*"kind":"frame","name":"[^"]*","path":"\([^"]*\)".*/\1/p' "$out/show.json")
+expect_rc 0 env SDL_VIDEODRIVER=dummy "$S" audit view "$seq" --log "$PGCLUSTER_URI" --station bench-B \
+    --evidence "$out/share" --mode frame --screenshot "$out/view.png"
+"$PYTHON" -c 'import sys
+import numpy as np
+from PIL import Image
+a, b = (np.asarray(Image.open(p).convert("RGB")) for p in sys.argv[1:])
+assert a.shape == b.shape and (a == b).all()' "$out/view.png" "$frame" || fail "view's screenshot is not the frame $frame"
+expect_rc 3 env SDL_VIDEODRIVER=dummy "$S" audit view "$seq" --log "$PGCLUSTER_URI" --station bench-B \
+    --screenshot "$out/view.png"
+grep -q "not available here" "$out/last.err" || fail "view without --evidence: $(cat "$out/last.err")"
+echo "ok   view: bench-B's frame from --evidence drawn headless equals the file pixel for pixel (PIL); without --evidence, not available"
 
 # verify: every station with its own key
 expect_rc 0 "$S" audit verify --log "$PGCLUSTER_URI" --evidence "$out/share"
