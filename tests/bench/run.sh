@@ -92,3 +92,6 @@ echo "bench: CNN features (VGG16 block 1) beside torch" >&2
 # catch-up of a station offline for 10 000 inspections.
 echo "bench: forwarding to the central database" >&2
 BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/sync_bench.sh || [ $? = 77 ]
+# The audit verbs on the central database beside the same verbs on a local log.
+echo "bench: the audit verbs on the central database" >&2
+BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/central_bench.sh || [ $? = 77 ]
