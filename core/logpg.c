@@ -450,6 +450,10 @@ static int station_update(struct logpg *pg, const struct logpg_station *st, cons
                           struct err *e)
 {
     const struct log_signing *sg = st->signing;
+    if (*held_key && !(sg && sg->present))
+        return err_set(e, ST_EFORMAT,
+                       "central database %s: station %s is held with a signing key, and this log"
+                       " has none", pg->name, st->station);
     if (sg && sg->present && *held_key && strcmp(held_key, sg->public_key))
         return err_set(e, ST_EFORMAT,
                        "central database %s: station %s is held with another signing key (held %s,"

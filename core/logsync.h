@@ -33,8 +33,8 @@
 #include "logpg.h"
 
 #define LOGSYNC_BATCH_DEFAULT 500
-/* Results of a pipelined batch come back only at its end; a bound keeps them
- * within the socket buffers (DEVELOPERS.md, "The central database"). */
+/* A batch is one transaction holding the station's row: the bound keeps what
+ * a cut connection loses, and what libpq buffers of its replies, small. */
 #define LOGSYNC_BATCH_MAX 2000
 
 struct logsync_options {
