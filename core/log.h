@@ -46,9 +46,10 @@
  * canonical forms the hashes cover in core/logcanon.h, the checks of
  * `audit verify` in core/logverify.h.
  *
- * Owns: the SQLite handle and its statements.  Never prints; no global state;
- * file writes and fsyncs of evidence go through struct log_io so tests can
- * make them fail.  One handle per thread. */
+ * Owns: the back-end's handle (the SQLite handle and its statements, or the
+ * central connection).  Never prints; no global state; file writes and
+ * fsyncs of evidence go through struct log_io so tests can make them fail.
+ * One handle per thread. */
 #ifndef ST_LOG_H
 #define ST_LOG_H
 
