@@ -392,6 +392,10 @@ static void load_thumb(struct log_db *db, const struct log_record *r, struct aud
         char path[4096];
         struct image *full = NULL;
         struct err e;
+        if (!log_evidence_dir(db, r, path, sizeof path)) {
+            t->note = "evidence not available here (--evidence DIR)";
+            return;
+        }
         if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
             pngio_load_rgb(path, &full, &e)) {
             t->note = "overlay file missing or unreadable (run audit verify)";

@@ -208,3 +208,10 @@ total = ["total", "-", str(sum(int(w[2]) for w in want)), str(sum(int(w[3]) for 
 assert got == want + [total], (got, want)' "$out/report.html" "$C" ||
     fail "the report's stations table"
 echo "ok   report: the stations table (records, rejects per station and the total) equals psycopg2's counts"
+expect_rc 0 "$S" audit report --log "$PGCLUSTER_URI" --station bench-B --thumbs 5 --out "$out/b.html" \
+    --evidence "$out/share"
+[ "$(grep -o 'src="data:image/png;base64,' "$out/b.html" | wc -l)" = 5 ] || fail "bench-B's report with --evidence: not 5 thumbnails"
+expect_rc 0 "$S" audit report --log "$PGCLUSTER_URI" --station bench-B --thumbs 5 --out "$out/b.html"
+[ "$(grep -c 'evidence not available here' "$out/b.html")" = 5 ] && ! grep -q 'data:image/png' "$out/b.html" ||
+    fail "bench-B's report without --evidence: $(grep -c 'not available' "$out/b.html") notes"
+echo "ok   report: bench-B's newest rejects as thumbnails from --evidence, each noted not available without it"
