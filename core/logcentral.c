@@ -634,7 +634,10 @@ static int dispose(void *self, int64_t seq, const char *auditor, int disp, const
                    int64_t *dseq, struct err *e)
 {
     struct central *c = self;
-    (void)auditor, (void)disp, (void)comment, (void)dseq;
+    (void)auditor;
+    (void)disp;
+    (void)comment;
+    (void)dseq;
     return err_set(e, ST_EINVAL,
                    "central database %s is read-only: dispose of record %" PRId64 " in the"
                    " station's own log (--log its log.db), which signs it with the station's key;"
