@@ -36,8 +36,9 @@ struct log_ops {
     int (*verifications_get)(void *self, struct log_verification **out, int *n, struct err *e);
     int (*signing_get)(void *self, struct log_signing *s, struct err *e);
     int (*check_integrity)(void *self, struct err *e);
-    /* The folder r's evidence names resolve against, written into buf; NULL
-     * when this handle has none (evidence not available here). */
+    /* The folder r's evidence names resolve against (r NULL: the handle's
+     * own chain's), written into buf; NULL when this handle has none
+     * (evidence not available here). */
     const char *(*evidence_dir)(const void *self, const struct log_record *r, char *buf,
                                 size_t len);
     const char *(*path)(const void *self);
