@@ -17,8 +17,10 @@
 struct image *overlay_colourise(const struct image *classes, const struct recipe *r,
                                 struct err *e);
 
-/* Images of equal height side by side, with a 4-pixel white gap. */
-struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e);
+/* Images of equal height (grey or RGB) side by side as one RGB image, gap
+ * pixels of grey level `grey` between them. */
+struct image *overlay_side_by_side(const struct image *const *imgs, int n, int gap, uint8_t grey,
+                                   struct err *e);
 
 /* The inspection picture: a verdict banner above the frame, so the banner
  * never hides the part.  The banner's colour tells the verdict in the
