@@ -13,7 +13,10 @@
 #   server, naming station and record, when its hash was recomputed (the
 #   re-sent anchor), and by --recheck when only its content changed;
 # - the server's own triggers refuse a broken link, a changed copy, a gap,
-#   UPDATE and DELETE from a client that is not the station (psycopg2).
+#   UPDATE and DELETE from a client that is not the station (psycopg2);
+# - another log forwarded under a held station id is refused by its key;
+# - station run --sync-to forwards in the background, the server down at
+#   first, and inspection goes on meanwhile.
 set -eu
 BUILD=${STATION_BUILD:-build}
 PYTHON=${STATION_PYTHON:-/usr/bin/python3}
@@ -145,6 +148,15 @@ echo "ok   --recheck finds a forwarded record altered in the middle (record 123)
 
 $CHECK bypass "$PGCLUSTER_URI" bench-A || fail "server-side enforcement"
 echo "ok   the server refuses a broken link, a changed copy, a gap, UPDATE and DELETE from psycopg2"
+
+set +e
+"$S" sync --to "$PGCLUSTER_URI" --log "$out/C.db" --station bench-A >/dev/null 2>"$out/key.log"
+rc=$?
+set -e
+[ "$rc" = 3 ] || fail "another log as bench-A: exit $rc, want 3"
+grep -q "station bench-A is held with another signing key" "$out/key.log" ||
+    fail "another log as bench-A: $(cat "$out/key.log")"
+echo "ok   another station's log forwarded as bench-A is refused (another signing key)"
 
 # the live station forwarding in the background: the server down at first
 # (sync_failed, inspection goes on), then up (synced)
