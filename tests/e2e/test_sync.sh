@@ -94,7 +94,7 @@ echo "ok   a second sync forwards nothing"
 
 # the server killed in the middle of a sync
 "$FILL" "$out/A.db" 4000 21 --station bench-A --verify-every 60 >/dev/null
-"$S" sync --to "$PGCLUSTER_URI" --log "$out/A.db" --batch 10 >"$out/cut.json" 2>"$out/cut.log" &
+"$S" sync --to "$PGCLUSTER_URI" --log "$out/A.db" --batch 5 >"$out/cut.json" 2>"$out/cut.log" &
 pcut=$!
 i=0
 while [ "$(pgcluster_psql "SELECT count(*) FROM records WHERE station = 'bench-A'")" -lt 900 ]; do
@@ -112,7 +112,7 @@ grep -q 'central database' "$out/cut.log" || fail "the cut is not reported: $(ca
 pgcluster_resume
 held=$(pgcluster_psql "SELECT count(*) FROM records WHERE station = 'bench-A'")
 [ "$held" -lt 4700 ] || fail "the cut came after the sync ended ($held records held)"
-[ $(((held - 700) % 10)) = 0 ] || fail "$held records held after the cut: not whole batches of 10"
+[ $(((held - 700) % 5)) = 0 ] || fail "$held records held after the cut: not whole batches of 5"
 "$S" sync --to "$PGCLUSTER_URI" --log "$out/A.db" --json >"$out/resume.json" 2>"$out/resume.log" ||
     fail "sync after the restart: $(cat "$out/resume.log")"
 grep -q "\"records\":{\"local\":4700,\"held_before\":$held,\"forwarded\":$((4700 - held))," \
