@@ -13,7 +13,10 @@
 #   server, naming station and record, when its hash was recomputed (the
 #   re-sent anchor), and by --recheck when only its content changed;
 # - the server's own triggers refuse a broken link, a changed copy, a gap,
-#   UPDATE and DELETE from a client that is not the station (psycopg2).
+#   UPDATE and DELETE from a client that is not the station (psycopg2);
+# - another log forwarded under a held station id is refused by its key;
+# - station run --sync-to forwards in the background, the server down at
+#   first, and inspection goes on meanwhile.
 set -eu
 BUILD=${STATION_BUILD:-build}
 PYTHON=${STATION_PYTHON:-/usr/bin/python3}
@@ -91,7 +94,7 @@ echo "ok   a second sync forwards nothing"
 
 # the server killed in the middle of a sync
 "$FILL" "$out/A.db" 4000 21 --station bench-A --verify-every 60 >/dev/null
-"$S" sync --to "$PGCLUSTER_URI" --log "$out/A.db" --batch 10 >"$out/cut.json" 2>"$out/cut.log" &
+"$S" sync --to "$PGCLUSTER_URI" --log "$out/A.db" --batch 5 >"$out/cut.json" 2>"$out/cut.log" &
 pcut=$!
 i=0
 while [ "$(pgcluster_psql "SELECT count(*) FROM records WHERE station = 'bench-A'")" -lt 900 ]; do
@@ -109,7 +112,7 @@ grep -q 'central database' "$out/cut.log" || fail "the cut is not reported: $(ca
 pgcluster_resume
 held=$(pgcluster_psql "SELECT count(*) FROM records WHERE station = 'bench-A'")
 [ "$held" -lt 4700 ] || fail "the cut came after the sync ended ($held records held)"
-[ $(((held - 700) % 10)) = 0 ] || fail "$held records held after the cut: not whole batches of 10"
+[ $(((held - 700) % 5)) = 0 ] || fail "$held records held after the cut: not whole batches of 5"
 "$S" sync --to "$PGCLUSTER_URI" --log "$out/A.db" --json >"$out/resume.json" 2>"$out/resume.log" ||
     fail "sync after the restart: $(cat "$out/resume.log")"
 grep -q "\"records\":{\"local\":4700,\"held_before\":$held,\"forwarded\":$((4700 - held))," \
@@ -145,6 +148,15 @@ echo "ok   --recheck finds a forwarded record altered in the middle (record 123)
 
 $CHECK bypass "$PGCLUSTER_URI" bench-A || fail "server-side enforcement"
 echo "ok   the server refuses a broken link, a changed copy, a gap, UPDATE and DELETE from psycopg2"
+
+set +e
+"$S" sync --to "$PGCLUSTER_URI" --log "$out/C.db" --station bench-A >/dev/null 2>"$out/key.log"
+rc=$?
+set -e
+[ "$rc" = 3 ] || fail "another log as bench-A: exit $rc, want 3"
+grep -q "station bench-A is held with another signing key" "$out/key.log" ||
+    fail "another log as bench-A: $(cat "$out/key.log")"
+echo "ok   another station's log forwarded as bench-A is refused (another signing key)"
 
 # the live station forwarding in the background: the server down at first
 # (sync_failed, inspection goes on), then up (synced)
