@@ -253,6 +253,13 @@ int log_stations_get(struct log_db *db, struct log_station **out, int *n, struct
     return db->ops->stations_get(db->b, out, n, e);
 }
 
+int log_purges_get(struct log_db *db, struct log_purge **out, int *n, struct err *e)
+{
+    *out = NULL;
+    *n = 0;
+    return db->ops->purges_get(db->b, out, n, e);
+}
+
 int log_scope(struct log_db *db, const char *station, struct err *e)
 {
     return db->ops->scope(db->b, station, e);

@@ -316,12 +316,25 @@ struct log_station {
     char line[LOG_ID_MAX];
     char public_key[LOGSIGN_PK_HEX];   /* "" when not signed */
     int64_t records;
+    int64_t last_seq;              /* the newest record's number, 0 when none */
 };
 /* Every station the log holds, by id: a local log its own one (none while
  * empty), the central database each station that forwarded to it.  Free
  * with log_stations_free. */
 int log_stations_get(struct log_db *db, struct log_station **out, int *n, struct err *e);
 void log_stations_free(struct log_station *s);
+
+/* Retention's deletions of evidence (the evidence budget): a local log's in
+ * the order it made them, the central database's of the scoped station by
+ * time, record and name.  Free with free(). */
+#define LOG_REASON_MAX 64
+struct log_purge {
+    char name[LOG_NAME_MAX];
+    int64_t record_seq;
+    char utc[LOG_UTC_MAX];
+    char reason[LOG_REASON_MAX];
+};
+int log_purges_get(struct log_db *db, struct log_purge **out, int *n, struct err *e);
 
 /* Narrows log_get, log_record_hash, log_dispositions_get,
  * log_verifications_get, log_signing_get and log_iter_new (and so

@@ -44,6 +44,7 @@ struct log_ops {
     const char *(*path)(const void *self);
     int (*scope)(void *self, const char *station, struct err *e);
     int (*stations_get)(void *self, struct log_station **out, int *n, struct err *e);
+    int (*purges_get)(void *self, struct log_purge **out, int *n, struct err *e);
 };
 
 #endif

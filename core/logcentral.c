@@ -169,7 +169,8 @@ static int stations_get(void *self, struct log_station **out, int *n, struct err
     *n = 0;
     PGresult *r = run(c,
                       "SELECT s.station, s.line, s.public_key,"
-                      " (SELECT count(*) FROM records r WHERE r.station = s.station)"
+                      " (SELECT count(*) FROM records r WHERE r.station = s.station),"
+                      " (SELECT COALESCE(max(seq), 0) FROM records r WHERE r.station = s.station)"
                       " FROM stations s ORDER BY s.station COLLATE \"C\"",
                       0, NULL, "cannot list the stations", e);
     if (!r)
@@ -185,6 +186,7 @@ static int stations_get(void *self, struct log_station **out, int *n, struct err
         col_copy(r, i, 1, s[i].line, sizeof s[i].line);
         col_copy(r, i, 2, s[i].public_key, sizeof s[i].public_key);
         s[i].records = col_i64(r, i, 3);
+        s[i].last_seq = col_i64(r, i, 4);
     }
     PQclear(r);
     *out = s;
@@ -585,6 +587,39 @@ static int verifications_get(void *self, struct log_verification **out, int *n, 
     return ST_OK;
 }
 
+static int purges_get(void *self, struct log_purge **out, int *n, struct err *e)
+{
+    struct central *c = self;
+    const char *key;
+    int rc = chain_key(c, &key, e);
+    if (rc)
+        return rc;
+    const char *p[1] = {key};
+    /* PostgreSQL keeps no insertion order a query can rely on */
+    PGresult *r = run(c,
+                      "SELECT name, record_seq, utc, reason FROM evidence_purged"
+                      " WHERE station = $1 ORDER BY utc, record_seq, name COLLATE \"C\"",
+                      1, p, "cannot read the evidence purges", e);
+    if (!r)
+        return e ? e->code : ST_ELIB;
+    int rows = PQntuples(r);
+    struct log_purge *u = calloc(rows ? (size_t)rows : 1, sizeof *u);
+    if (!u) {
+        PQclear(r);
+        return err_set(e, ST_ENOMEM, "central database %s: out of memory", logpg_name(c->pg));
+    }
+    for (int i = 0; i < rows; i++) {
+        col_copy(r, i, 0, u[i].name, sizeof u[i].name);
+        u[i].record_seq = col_i64(r, i, 1);
+        col_copy(r, i, 2, u[i].utc, sizeof u[i].utc);
+        col_copy(r, i, 3, u[i].reason, sizeof u[i].reason);
+    }
+    PQclear(r);
+    *out = u;
+    *n = rows;
+    return ST_OK;
+}
+
 static int signing_get(void *self, struct log_signing *s, struct err *e)
 {
     struct central *c = self;
@@ -736,4 +771,5 @@ const struct log_ops logcentral_ops = {
     .path = path,
     .scope = scope,
     .stations_get = stations_get,
+    .purges_get = purges_get,
 };

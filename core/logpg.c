@@ -543,7 +543,7 @@ int logpg_push_record(struct logpg *pg, const struct log_record *r, struct err *
     return rc;
 }
 
-int logpg_push_purge(struct logpg *pg, const struct logpg_purge *u, struct err *e)
+int logpg_push_purge(struct logpg *pg, const struct log_purge *u, struct err *e)
 {
     char seq[24];
     snprintf(seq, sizeof seq, "%" PRId64, u->record_seq);

@@ -90,15 +90,6 @@ struct logpg_held {
     char hash[SHA256_HEX_LEN], dhash[SHA256_HEX_LEN], vhash[SHA256_HEX_LEN];
 };
 
-/* One retention deletion, as the local log's evidence_purged table holds it. */
-#define LOGPG_REASON_MAX 64
-struct logpg_purge {
-    char name[LOG_NAME_MAX];
-    int64_t record_seq;
-    char utc[LOG_UTC_MAX];
-    char reason[LOGPG_REASON_MAX];
-};
-
 /* BEGIN, the station's row created when missing and locked, its signing key
  * compared ("station S is held with another signing key"), its line set when
  * given, and what it holds. */
@@ -106,7 +97,7 @@ int logpg_batch_begin(struct logpg *pg, const struct logpg_station *st, struct l
                       struct err *e);
 /* Queue one insert each (the station's key is the batch's). */
 int logpg_push_record(struct logpg *pg, const struct log_record *r, struct err *e);
-int logpg_push_purge(struct logpg *pg, const struct logpg_purge *p, struct err *e);
+int logpg_push_purge(struct logpg *pg, const struct log_purge *p, struct err *e);
 int logpg_push_disposition(struct logpg *pg, const struct log_disposition *d, struct err *e);
 int logpg_push_verification(struct logpg *pg, const struct log_verification *v,
                             struct err *e);

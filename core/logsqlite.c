@@ -104,7 +104,7 @@ enum stmt_id {
     S_BEGIN, S_COMMIT, S_ROLLBACK, S_LAST, S_INS_REC, S_INS_EV, S_PURGE_CAND, S_INS_PURGE,
     S_LAST_DISP, S_REC_HASH, S_INS_DISP, S_GET, S_EV, S_LATEST_DISP, S_DISPS, S_DISPS_ALL,
     S_EV_TOTAL, S_LAST_VER, S_INS_VER, S_VER_LATEST, S_VERS, S_META_GET, S_META_PUT, S_OWN,
-    S_NREC, S_COUNT
+    S_NREC, S_PURGES, S_COUNT
 };
 
 static const char *const stmt_sql[S_COUNT] = {
@@ -145,7 +145,8 @@ static const char *const stmt_sql[S_COUNT] = {
     [S_META_PUT] = "INSERT INTO meta VALUES(?,?)",
     /* the log's own station: its latest record's, as `station sync` keys it */
     [S_OWN] = "SELECT station FROM records ORDER BY seq DESC LIMIT 1",
-    [S_NREC] = "SELECT count(*) FROM records",
+    [S_NREC] = "SELECT count(*), COALESCE(MAX(seq), 0) FROM records",
+    [S_PURGES] = "SELECT name, record_seq, utc, reason FROM evidence_purged ORDER BY rowid",
 };
 
 struct sqlog {
@@ -1296,12 +1297,14 @@ static int sq_stations_get(void *self, struct log_station **out, int *n, struct 
     *out = NULL;
     *n = 0;
     struct log_signing sg;
-    int64_t count = 0;
+    int64_t count = 0, last = 0;
     int rc = own_station(db, e);
     if (!rc)
         rc = sq_signing_get(db, &sg, e);
-    if (!rc && sqlite3_step(db->st[S_NREC]) == SQLITE_ROW)
+    if (!rc && sqlite3_step(db->st[S_NREC]) == SQLITE_ROW) {
         count = sqlite3_column_int64(db->st[S_NREC], 0);
+        last = sqlite3_column_int64(db->st[S_NREC], 1);
+    }
     if (!rc)
         rc = step_done(db, db->st[S_NREC], e, "cannot count the records");
     if (rc || !count)
@@ -1312,9 +1315,41 @@ static int sq_stations_get(void *self, struct log_station **out, int *n, struct 
     snprintf(s->station, sizeof s->station, "%s", db->own);
     snprintf(s->public_key, sizeof s->public_key, "%s", sg.public_key);
     s->records = count;
+    s->last_seq = last;
     *out = s;
     *n = 1;
     return ST_OK;
+}
+
+static void text_copy(sqlite3_stmt *s, int col, char *buf, size_t len)
+{
+    const unsigned char *t = sqlite3_column_text(s, col);
+    snprintf(buf, len, "%s", t ? (const char *)t : "");
+}
+
+static int read_purge_row(sqlite3_stmt *s, void *out)
+{
+    struct log_purge *u = out;
+    text_copy(s, 0, u->name, sizeof u->name);
+    u->record_seq = sqlite3_column_int64(s, 1);
+    text_copy(s, 2, u->utc, sizeof u->utc);
+    text_copy(s, 3, u->reason, sizeof u->reason);
+    return 0;
+}
+
+static int sq_purges_get(void *self, struct log_purge **out, int *n, struct err *e)
+{
+    struct sqlog *db = self;
+    void *p;
+    int rc = read_rows(db, db->st[S_PURGES], sizeof **out, read_purge_row,
+                       "cannot read the evidence purges", &p, n, e);
+    *out = p;
+    if (rc) {
+        free(p);
+        *out = NULL;
+        *n = 0;
+    }
+    return rc;
 }
 
 const struct log_ops logsqlite_ops = {
@@ -1337,4 +1372,5 @@ const struct log_ops logsqlite_ops = {
     .path = sq_path,
     .scope = sq_scope,
     .stations_get = sq_stations_get,
+    .purges_get = sq_purges_get,
 };

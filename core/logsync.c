@@ -2,7 +2,6 @@
 
 #include <inttypes.h>
 #include <limits.h>
-#include <sqlite3.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -30,84 +29,9 @@ struct local {
     int nd;
     struct log_verification *v;
     int nv;
-    struct logpg_purge *p;
+    struct log_purge *p;
     int np;
 };
-
-/* The last record's number: records are numbered 1..N without gaps, so a
- * doubling then halving search over log_record_hash finds N in 2 log N reads. */
-static int local_last_seq(struct log_db *db, int64_t *last, struct err *e)
-{
-    char h[SHA256_HEX_LEN];
-    int64_t lo = 0, hi = 1;
-    int rc;
-    while ((rc = log_record_hash(db, hi, h, e)) == ST_OK) {
-        lo = hi;
-        if (hi > INT64_MAX / 2)
-            break;
-        hi *= 2;
-    }
-    if (rc && rc != ST_ERANGE)
-        return rc;
-    while (hi - lo > 1) {      /* lo is held, hi is not */
-        int64_t mid = lo + (hi - lo) / 2;
-        rc = log_record_hash(db, mid, h, e);
-        if (rc && rc != ST_ERANGE)
-            return rc;
-        if (rc)
-            hi = mid;
-        else
-            lo = mid;
-    }
-    err_clear(e);
-    *last = lo;
-    return ST_OK;
-}
-
-/* Retention's deletions in the order the log made them.  core/log.h has no
- * reader for them, so this opens the log's own file read-only (WAL: never in
- * the writer's way); a log from before schema 2 has none. */
-static int purges_load(struct local *L, struct err *e)
-{
-    sqlite3 *h = NULL;
-    sqlite3_stmt *s = NULL;
-    const char *path = log_path(L->db);
-    int rc = sqlite3_open_v2(path, &h, SQLITE_OPEN_READONLY, NULL);
-    if (rc == SQLITE_OK)
-        rc = sqlite3_busy_timeout(h, 5000);
-    if (rc == SQLITE_OK &&
-        sqlite3_prepare_v2(h, "SELECT name, record_seq, utc, reason FROM evidence_purged"
-                              " ORDER BY rowid", -1, &s, NULL) != SQLITE_OK) {
-        int missing = strstr(sqlite3_errmsg(h), "no such table") != NULL;
-        sqlite3_close(h);
-        return missing ? ST_OK : err_set(e, ST_EIO, "%s: cannot read evidence purges", path);
-    }
-    int cap = 0;
-    while (rc == SQLITE_OK && (rc = sqlite3_step(s)) == SQLITE_ROW) {
-        if (L->np == cap) {
-            cap = cap ? 2 * cap : 64;
-            void *q = realloc(L->p, (size_t)cap * sizeof *L->p);
-            if (!q) {
-                rc = SQLITE_NOMEM;
-                break;
-            }
-            L->p = q;
-        }
-        struct logpg_purge *u = &L->p[L->np++];
-        snprintf(u->name, sizeof u->name, "%s", (const char *)sqlite3_column_text(s, 0));
-        u->record_seq = sqlite3_column_int64(s, 1);
-        snprintf(u->utc, sizeof u->utc, "%s", (const char *)sqlite3_column_text(s, 2));
-        snprintf(u->reason, sizeof u->reason, "%s", (const char *)sqlite3_column_text(s, 3));
-        rc = SQLITE_OK;
-    }
-    int ok = rc == SQLITE_DONE;
-    if (!ok)
-        err_set(e, rc == SQLITE_NOMEM ? ST_ENOMEM : ST_EIO, "%s: cannot read evidence purges: %s",
-                path, sqlite3_errmsg(h));
-    sqlite3_finalize(s);
-    sqlite3_close(h);
-    return ok ? ST_OK : e->code;
-}
 
 static void local_free(struct local *L)
 {
@@ -119,7 +43,8 @@ static void local_free(struct local *L)
 static int local_load(struct local *L, struct err *e)
 {
     return log_dispositions_get(L->db, 0, &L->d, &L->nd, e) ||
-           log_verifications_get(L->db, &L->v, &L->nv, e) || purges_load(L, e);
+           log_verifications_get(L->db, &L->v, &L->nv, e) ||
+           log_purges_get(L->db, &L->p, &L->np, e);
 }
 
 /* The checks before anything is forwarded: the stored hash is the hash of
@@ -395,20 +320,20 @@ int logsync_run(struct log_db *db, struct logpg *pg, const struct logsync_option
     if (opt.evidence_to && (stat(opt.evidence_to, &sb) || !S_ISDIR(sb.st_mode)))
         return err_set(e, ST_EINVAL, "%s: no such folder for evidence copies", opt.evidence_to);
     struct local L = {.db = db};
-    int rc = local_last_seq(db, &res->local_seq, e);
-    if (!rc && !opt.station) {
-        if (!res->local_seq)
-            return ST_OK;      /* nothing to forward, nor a station to forward it as */
-        struct log_record r;
-        log_record_init(&r);
-        rc = log_get(db, res->local_seq, &r, e);
-        if (!rc)
-            snprintf(res->station, sizeof res->station, "%s", r.station);
-        log_record_clear(&r);
-    } else if (!rc && snprintf(res->station, sizeof res->station, "%s", opt.station) >=
-                          (int)sizeof res->station) {
+    struct log_station *own;
+    int n;
+    int rc = log_stations_get(db, &own, &n, e);
+    if (rc)
+        return rc;
+    res->local_seq = n ? own->last_seq : 0;
+    if (!opt.station && n)
+        snprintf(res->station, sizeof res->station, "%s", own->station);
+    log_stations_free(own);
+    if (!opt.station && !n)
+        return ST_OK;      /* nothing to forward, nor a station to forward it as */
+    if (opt.station && snprintf(res->station, sizeof res->station, "%s", opt.station) >=
+                           (int)sizeof res->station)
         return err_set(e, ST_EINVAL, "station id '%s' is too long", opt.station);
-    }
     if (rc)
         return rc;
     L.station = res->station;

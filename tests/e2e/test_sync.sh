@@ -84,6 +84,12 @@ grep -q 'records       forwarded 700; the central copy was 700 behind' "$out/A.l
     "$(sq "$out/A.db" "SELECT value FROM meta WHERE key = 'public_key'")" ] ||
     fail "A's public key not held"
 ncopied=$($CHECK evidence "$PGCLUSTER_URI" bench-B "$out/share") || fail "evidence copies: $ncopied"
+# both back-ends' log_purges_get give the same purges (the central one sorted by time, record, name)
+"$BUILD/tests/tools/logpurges" "$out/B.db" | LC_ALL=C sort -k3,3 -k2,2n -k1,1 >"$out/purges.local" &&
+    "$BUILD/tests/tools/logpurges" "$PGCLUSTER_URI" bench-B >"$out/purges.central" ||
+    fail "logpurges"
+[ -s "$out/purges.local" ] && cmp -s "$out/purges.local" "$out/purges.central" ||
+    fail "central purges differ from B's: $(diff "$out/purges.local" "$out/purges.central" | head -3)"
 echo "ok   three stations forwarded at once: central rows equal each local log, chains recompute," \
     "$ncopied evidence copies hold their SHA-256"
 
