@@ -21,6 +21,17 @@ struct pads {
     int t, l, b, r;
 };
 
+/* An RGB stem: convolutions with fewer input channels than this run on
+ * their patches, of at most STEM_PATCH values. */
+#define STEM_CH 16
+#define STEM_PATCH 64
+
+/* OpenBLAS's sgemm may round a row differently with the number of rows it
+ * is given (its small-matrix and edge kernels), so GEMM runs over chunks of
+ * a row's pixels that start at multiples of this in the frame, whatever the
+ * box: a pixel then always lies in the same chunk and gets the same bits. */
+#define GEMM_CHUNK 64
+
 /* How a convolution runs: see conv_path. */
 enum path { PATH_IM2COL, PATH_GEMM, PATH_DIRECT, PATH_STEM, PATH_AMX, PATH_STEM_AMX };
 
@@ -213,7 +224,7 @@ static void widen(int *r, int lo, int hi, int len)
 
 /* Rows (axis 0) or columns (axis 1) [lo, hi) of every value that [lo, hi)
  * of the last value needs, into r[2 v], r[2 v + 1].  An AMX convolution's
- * columns are widened to its 32-pixel block. */
+ * columns are widened to its 32-pixel block, a GEMM's to its chunks. */
 static void need_back(const struct cnn_net *n, int axis, int lo, int hi, int *r)
 {
     const struct onnx_graph *g = n->g;
@@ -232,6 +243,12 @@ static void need_back(const struct cnn_net *n, int axis, int lo, int hi, int *r)
         if (axis && op->kind == ONNX_CONV && n->path[i] >= PATH_AMX && o[1] - o[0] < 32) {
             o[1] = o[0] + 32 < len ? o[0] + 32 : len;
             o[0] = o[1] - 32;
+        }
+        if (axis && op->kind == ONNX_CONV && n->path[i] <= PATH_GEMM) {
+            o[0] -= o[0] % GEMM_CHUNK;
+            o[1] = o[1] + GEMM_CHUNK - 1 - (o[1] + GEMM_CHUNK - 1) % GEMM_CHUNK;
+            if (o[1] > len)
+                o[1] = len;
         }
         int a = o[0], b = o[1];
         if (op->kind == ONNX_CONV || op->kind == ONNX_MAXPOOL || op->kind == ONNX_AVGPOOL) {
@@ -285,7 +302,7 @@ static enum path conv_path(const struct cnn_net *n, int i)
     int amx = n->wamx && n->wamx[i];
     if (op->sh != 1 || op->sw != 1 || op->group != 1)
         return PATH_IM2COL;
-    if (n->avx512 && op->cout % 64 == 0 && cin < CONVK_CI_BLOCK && kk <= 4 * CONVK_CI_BLOCK && op->dw == 1)
+    if (n->avx512 && op->cout % 64 == 0 && cin < STEM_CH && kk <= STEM_PATCH && op->dw == 1)
         return amx ? PATH_STEM_AMX : PATH_STEM;
     if (amx)
         return PATH_AMX;
@@ -415,8 +432,10 @@ static void conv_row(struct worker *wk, int i, int y, float *out, int os)
                     }
                 }
             }
-            cblas_sgemm(CblasRowMajor, CblasNoTrans, CblasNoTrans, w, coutg, kk, 1.0f, p, kk,
-                        op->w + (size_t)gi * kk * coutg, coutg, 1.0f, out + (size_t)gi * coutg, os);
+            for (int c0 = 0; c0 < w; c0 += GEMM_CHUNK) /* the window starts at a chunk's start */
+                cblas_sgemm(CblasRowMajor, CblasNoTrans, CblasNoTrans, w - c0 < GEMM_CHUNK ? w - c0 : GEMM_CHUNK,
+                            coutg, kk, 1.0f, p + (size_t)c0 * kk, kk, op->w + (size_t)gi * kk * coutg, coutg, 1.0f,
+                            out + (size_t)c0 * os + (size_t)gi * coutg, os);
         }
         clamp_row(out, (size_t)w, cout, os, op->lo, op->hi);
         return;
@@ -463,11 +482,13 @@ static void conv_row(struct worker *wk, int i, int y, float *out, int os)
         }
     } else {
         bias_row(out, (size_t)w, op->b, cout, os);
-        for (int ky = 0; ky < op->kh; ky++)
-            for (int kx = 0; kx < op->kw; kx++)
-                cblas_sgemm(CblasRowMajor, CblasNoTrans, CblasNoTrans, w, cout, cin, 1.0f,
-                            (const float *)wk->rowp[ky] + (size_t)kx * op->dw * cin, cin,
-                            op->w + (size_t)(ky * op->kw + kx) * cin * cout, cout, 1.0f, out, os);
+        for (int c0 = 0; c0 < w; c0 += GEMM_CHUNK)
+            for (int ky = 0; ky < op->kh; ky++)
+                for (int kx = 0; kx < op->kw; kx++)
+                    cblas_sgemm(CblasRowMajor, CblasNoTrans, CblasNoTrans, w - c0 < GEMM_CHUNK ? w - c0 : GEMM_CHUNK,
+                                cout, cin, 1.0f, (const float *)wk->rowp[ky] + ((size_t)c0 + (size_t)kx * op->dw) * cin,
+                                cin, op->w + (size_t)(ky * op->kw + kx) * cin * cout, cout, 1.0f,
+                                out + (size_t)c0 * os, os);
         clamp_row(out, (size_t)w, cout, os, op->lo, op->hi);
     }
 }
@@ -800,7 +821,7 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
             if (op->kind != ONNX_CONV || op->sh != 1 || op->sw != 1 || op->group != 1 || n->v[i + 1].w < 32)
                 continue;
             /* the two shapes conv_path hands to the tiles: an RGB stem's patches, or 32k channels */
-            int patch = op->cout % 64 == 0 && cin < CONVK_CI_BLOCK && kk <= 32 && op->dw == 1;
+            int patch = op->cout % 64 == 0 && cin < STEM_CH && kk <= 32 && op->dw == 1;
             if (!patch && (op->cout % 32 || cin % 32))
                 continue;
             if (!(n->wamx[i] = patch ? convk_pack_amx(op, 1, kk, 32) : convk_pack_amx(op, op->kh * op->kw, cin, cin)))

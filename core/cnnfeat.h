@@ -26,6 +26,7 @@
 
 #include <limits.h>
 
+#include "cnn.h"
 #include "image.h"
 #include "sha256.h"
 
@@ -66,8 +67,12 @@ struct cnnfeat_ctx;
 struct cnnfeat_ctx *cnnfeat_ctx_new(const struct cnnfeat_spec *s, int w, int h, int threads, struct err *e);
 void cnnfeat_ctx_free(struct cnnfeat_ctx *ctx);
 
-/* The s->nch features of img into out->v[p * out->n + offset + k]. */
-int cnnfeat_compute(struct cnnfeat_ctx *ctx, const struct image *img, struct fstack *out, int offset,
-                    struct err *e);
+/* The s->nch features of img at the pixels in box into
+ * out->v[p * out->n + offset + k], bit for bit those of a box covering the
+ * whole frame there (core/cnn.h); only the frame's pixels the network's
+ * receptive field reaches from the box are read, and nothing outside box is
+ * written. */
+int cnnfeat_compute_box(struct cnnfeat_ctx *ctx, const struct image *img, const struct cnn_box *box,
+                        struct fstack *out, int offset, struct err *e);
 
 #endif

@@ -13,9 +13,8 @@
 /* The direct kernel: 6 pixels x 64 output channels held in 24 registers,
  * one broadcast per pixel and input channel against 4 weight vectors, over
  * every tap; a row's remainder in 4 pixels, then one at a time.  Input
- * channels go in blocks of CONVK_CI_BLOCK so that block's weights for all taps
- * (9 x 16 x 64 floats for a 3x3 kernel, 36 KB) stay in L1 while the row is
- * swept; the accumulators go back to the output between blocks.  Pixels
+ * channels go in blocks of CONVK_CI_BLOCK (convk.h), the accumulators going
+ * back to the output between blocks.  Pixels
  * x0.. of the output row; k->rows holds one input row per kernel row,
  * zero-bordered by the caller.  Named accumulators, not an array, so the
  * compiler keeps them all in registers. */
