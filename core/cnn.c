@@ -32,6 +32,9 @@ struct pads {
  * box: a pixel then always lies in the same chunk and gets the same bits. */
 #define GEMM_CHUNK 64
 
+/* A value read by a bfloat16 convolution keeps its rows converted too. */
+enum { SHADOW_AMX = 1, SHADOW_ROUNDED = 2 };
+
 /* How a convolution runs: see conv_path. */
 enum path { PATH_IM2COL, PATH_GEMM, PATH_DIRECT, PATH_STEM, PATH_AMX, PATH_STEM_AMX };
 
@@ -39,6 +42,7 @@ struct worker {
     struct cnn_net *net;
     float **ring;       /* per value: cap rows of pitch floats */
     uint16_t **rbf;     /* per value: the same rows in bfloat16 where an AMX convolution reads them */
+    float **rrn;        /* per value: the same rows rounded to bfloat16 where a rounded convolution reads them */
     float *scratch;     /* one row of patches (an RGB stem, im2col) */
     uint16_t *sbf;      /* one row of stem patches in bfloat16 */
     const void **rowp;  /* a convolution's input rows, one per kernel row */
@@ -60,7 +64,7 @@ struct cnn_net {
     int *ml, *mr;       /* per value: zero pixels left and right of each ring row */
     int *cap;           /* per value: rows in its ring */
     size_t *pitch;      /* per value: floats per ring row */
-    int *shadow;        /* per value: an AMX convolution reads it (a bfloat16 ring beside) */
+    int *shadow;        /* per value: SHADOW_AMX, SHADOW_ROUNDED (a ring of the same rows beside), or 0 */
     size_t scap, sbfcap;
     int maxkh;
     float *zero;        /* a zero row as wide as the widest ring row: rows above and below the frame */
@@ -69,6 +73,7 @@ struct cnn_net {
     int avx512;         /* the direct kernel may run: AVX-512F present */
     int identity;       /* channels 0..nch-1 in order */
     uint16_t **wamx;    /* per op: weights in AMX tile order, or NULL */
+    struct onnx_op *rop; /* per op, bf16 without AMX: the op with its weights rounded (w NULL: not rounded) */
     struct worker *wk;
     /* the run in progress */
     const float *in;
@@ -340,7 +345,10 @@ static int plan(struct cnn_net *n, struct err *e)
             n->mr[u] = n->pd[i].r;
         if (op->kh > n->maxkh)
             n->maxkh = op->kh;
-        n->shadow[u] |= n->path[i] == PATH_AMX;
+        if (n->path[i] == PATH_AMX)
+            n->shadow[u] = SHADOW_AMX;
+        else if (n->rop && n->rop[i].w && n->path[i] != PATH_STEM) /* a stem rounds its patches */
+            n->shadow[u] = SHADOW_ROUNDED;
         if ((n->path[i] == PATH_STEM || n->path[i] == PATH_STEM_AMX || n->path[i] == PATH_IM2COL) &&
             w * kk > n->scap)
             n->scap = w * kk;
@@ -407,7 +415,8 @@ static void bias_row(float *o, size_t pixels, const float *b, int c, int os)
 static void conv_row(struct worker *wk, int i, int y, float *out, int os)
 {
     const struct cnn_net *n = wk->net;
-    const struct onnx_op *op = &n->g->ops[i];
+    int rounded = n->rop && n->rop[i].w;
+    const struct onnx_op *op = rounded ? &n->rop[i] : &n->g->ops[i];
     int u = op->in[0];
     const struct shape *x = &n->v[u];
     const struct pads *pd = &n->pd[i];
@@ -448,6 +457,8 @@ static void conv_row(struct worker *wk, int i, int y, float *out, int os)
             wk->rowp[ky] = n->zero;
         else if (path == PATH_AMX)
             wk->rowp[ky] = wk->rbf[u] + at(wk, u, yi, a - pd->l);
+        else if (rounded && path != PATH_STEM)
+            wk->rowp[ky] = wk->rrn[u] + at(wk, u, yi, a - pd->l);
         else
             wk->rowp[ky] = wk->ring[u] + at(wk, u, yi, a - pd->l);
     }
@@ -477,6 +488,8 @@ static void conv_row(struct worker *wk, int i, int y, float *out, int os)
             const uint16_t *rb = wk->sbf;
             convk_run_amx(&rb, n->wamx[i], 32, cout, &one, w, out, os);
         } else {
+            if (rounded)
+                convk_round_bf16(q, q, (size_t)w * kk);
             const float *rq = q;
             convk_run_direct(&rq, kk, cout, &one, w, out, os);
         }
@@ -594,9 +607,11 @@ static void make_row(struct worker *wk, int v, int y)
     }
     /* the right margin moves with the window: zero it again */
     memset(out + (size_t)w * c, 0, (size_t)n->mr[v] * c * sizeof *out);
-    if (n->shadow[v])
-        convk_convert_bf16(row, wk->rbf[v] + (size_t)(y % n->cap[v]) * n->pitch[v],
-                           (size_t)(n->ml[v] + w + n->mr[v]) * c);
+    size_t len = (size_t)(n->ml[v] + w + n->mr[v]) * c, slot = (size_t)(y % n->cap[v]) * n->pitch[v];
+    if (n->shadow[v] == SHADOW_AMX)
+        convk_convert_bf16(row, wk->rbf[v] + slot, len);
+    else if (n->shadow[v] == SHADOW_ROUNDED)
+        convk_round_bf16(row, wk->rrn[v] + slot, len);
 }
 
 static void write_dest(struct worker *wk, int y)
@@ -737,19 +752,55 @@ static int worker_alloc(struct cnn_net *n, struct worker *wk)
     wk->net = n;
     wk->ring = calloc((size_t)n->nv, sizeof *wk->ring);
     wk->rbf = calloc((size_t)n->nv, sizeof *wk->rbf);
+    wk->rrn = calloc((size_t)n->nv, sizeof *wk->rrn);
     wk->made = malloc((size_t)n->nv * sizeof *wk->made);
     wk->need = malloc((size_t)n->nv * 2 * sizeof *wk->need);
     wk->rowp = malloc((size_t)n->maxkh * sizeof *wk->rowp);
     wk->scratch = malloc((n->scap ? n->scap : 1) * sizeof *wk->scratch);
     wk->sbf = malloc((n->sbfcap ? n->sbfcap : 1) * sizeof *wk->sbf);
-    if (!wk->ring || !wk->rbf || !wk->made || !wk->need || !wk->rowp || !wk->scratch || !wk->sbf)
+    if (!wk->ring || !wk->rbf || !wk->rrn || !wk->made || !wk->need || !wk->rowp || !wk->scratch || !wk->sbf)
         return ST_ENOMEM;
     /* zeroed once: the left margins are never written */
     for (int v = 0; v < n->nv; v++) {
         size_t len = (size_t)(n->cap[v] ? n->cap[v] : 1) * n->pitch[v];
         if (!(wk->ring[v] = calloc(len, sizeof(float))) ||
-            (n->shadow[v] && !(wk->rbf[v] = calloc(len, sizeof(uint16_t)))))
+            (n->shadow[v] == SHADOW_AMX && !(wk->rbf[v] = calloc(len, sizeof(uint16_t)))) ||
+            (n->shadow[v] == SHADOW_ROUNDED && !(wk->rrn[v] = calloc(len, sizeof(float)))))
             return ST_ENOMEM;
+    }
+    return ST_OK;
+}
+
+/* bfloat16 (dest->bf16): the stride-1 single-group convolutions with input
+ * and output channels in multiples of 32, and an RGB stem's patches of up
+ * to 32 values, take inputs and weights rounded to bfloat16 and sum in
+ * float32.  On AMX the tiles do it; elsewhere the float32 kernels run on
+ * operands rounded the same way (slower than float32, but the same
+ * features, so a model trained with them runs on either machine). */
+static int bf16_prepare(struct cnn_net *n)
+{
+    const struct onnx_graph *g = n->g;
+    int amx = n->avx512 && __builtin_cpu_supports("avx512bf16") && convk_has_amx();
+    if (amx ? !(n->wamx = calloc((size_t)g->nops, sizeof *n->wamx)) : !(n->rop = calloc((size_t)g->nops, sizeof *n->rop)))
+        return ST_ENOMEM;
+    for (int i = 0; i < g->nops; i++) {
+        const struct onnx_op *op = &g->ops[i];
+        int cin = n->v[op->in[0]].c, kk = op->kh * op->kw * cin;
+        if (op->kind != ONNX_CONV || op->sh != 1 || op->sw != 1 || op->group != 1 || n->v[i + 1].w < 32)
+            continue;
+        int patch = op->cout % 64 == 0 && cin < STEM_CH && kk <= 32 && op->dw == 1;
+        if (!patch && (op->cout % 32 || cin % 32))
+            continue;
+        if (amx) {
+            if (!(n->wamx[i] = patch ? convk_pack_amx(op, 1, kk, 32) : convk_pack_amx(op, op->kh * op->kw, cin, cin)))
+                return ST_ENOMEM;
+            continue;
+        }
+        size_t nw = (size_t)kk * op->cout;
+        n->rop[i] = *op;
+        if (!(n->rop[i].w = malloc(nw * sizeof *n->rop[i].w)))
+            return ST_ENOMEM;
+        convk_round_bf16(op->w, n->rop[i].w, nw);
     }
     return ST_OK;
 }
@@ -812,22 +863,8 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
     }
     n->threads = threads < n->dh ? threads : n->dh;
     n->avx512 = __builtin_cpu_supports("avx512f");
-    if (dest->bf16 && n->avx512 && __builtin_cpu_supports("avx512bf16") && convk_has_amx()) {
-        if (!(n->wamx = calloc((size_t)g->nops, sizeof *n->wamx)))
-            goto oom;
-        for (int i = 0; i < g->nops; i++) {
-            const struct onnx_op *op = &g->ops[i];
-            int cin = n->v[op->in[0]].c, kk = op->kh * op->kw * cin;
-            if (op->kind != ONNX_CONV || op->sh != 1 || op->sw != 1 || op->group != 1 || n->v[i + 1].w < 32)
-                continue;
-            /* the two shapes conv_path hands to the tiles: an RGB stem's patches, or 32k channels */
-            int patch = op->cout % 64 == 0 && cin < STEM_CH && kk <= 32 && op->dw == 1;
-            if (!patch && (op->cout % 32 || cin % 32))
-                continue;
-            if (!(n->wamx[i] = patch ? convk_pack_amx(op, 1, kk, 32) : convk_pack_amx(op, op->kh * op->kw, cin, cin)))
-                goto oom;
-        }
-    }
+    if (dest->bf16 && bf16_prepare(n))
+        goto oom;
     if (plan(n, e))
         goto fail;
     n->wk = calloc((size_t)n->threads, sizeof *n->wk);
@@ -856,9 +893,11 @@ void cnn_net_free(struct cnn_net *n)
         for (int v = 0; v < n->nv; v++) {
             free(wk->ring ? wk->ring[v] : NULL);
             free(wk->rbf ? wk->rbf[v] : NULL);
+            free(wk->rrn ? wk->rrn[v] : NULL);
         }
         free(wk->ring);
         free(wk->rbf);
+        free(wk->rrn);
         free(wk->made);
         free(wk->need);
         free(wk->rowp);
@@ -869,6 +908,9 @@ void cnn_net_free(struct cnn_net *n)
     for (int i = 0; n->wamx && i < n->g->nops; i++)
         free(n->wamx[i]);
     free(n->wamx);
+    for (int i = 0; n->rop && i < n->g->nops; i++)
+        free(n->rop[i].w);
+    free(n->rop);
     free(n->v);
     free(n->pd);
     free(n->path);

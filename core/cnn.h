@@ -33,13 +33,15 @@
  * torch.nn.functional.interpolate(mode='bilinear', align_corners=False) and
  * OpenCV's INTER_LINEAR resize.
  *
- * With dest->bf16, on a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted
- * to the process by arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide
- * setting), the stride-1 single-group convolutions with input and output
- * channels in multiples of 32, and an RGB stem's patches of up to 32 values,
- * round their inputs and weights to bfloat16
- * (nearest even) and multiply on the tiles, summing in float32; the others,
- * and every convolution elsewhere, stay float32.  Off by default: results
+ * With dest->bf16 the stride-1 single-group convolutions with input and
+ * output channels in multiples of 32 (and at least 32 output columns), and
+ * an RGB stem's patches of up to 32 values, take inputs and weights rounded
+ * to bfloat16 (nearest even) and sum in float32; the others stay float32.
+ * On a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted to the process by
+ * arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide setting) the tiles
+ * multiply; elsewhere the float32 kernels run on the rounded operands, slower
+ * than float32 but the same features up to the order of the sums, so a
+ * model trained with them runs on either machine.  Off by default: results
  * move by a few tenths of a percent of the output's scale. */
 #ifndef ST_CNN_H
 #define ST_CNN_H

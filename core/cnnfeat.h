@@ -19,8 +19,9 @@
  * size bilinearly when the cut is strided (core/cnn.h), written pixel-major
  * into a feature stack at a channel offset.  Feature k is named
  * "cnn_TENSOR_cC" with C the network's channel number.  With bf16 set
- * (cnn_precision = bf16) the convolutions core/cnn.h can run on AMX tiles
- * take bfloat16 inputs and weights: faster, a few tenths of a percent off. */
+ * (cnn_precision = bf16) the convolutions core/cnn.h names take inputs and
+ * weights rounded to bfloat16: a few tenths of a percent off, faster where
+ * the CPU has AMX. */
 #ifndef ST_CNNFEAT_H
 #define ST_CNNFEAT_H
 
@@ -39,7 +40,7 @@ struct cnnfeat_spec {
     char channels[256];           /* "" (all), "A-B" ranges and single numbers, blank separated */
     char mean_text[64], std_text[64];
     int bgr;                      /* 0: R G B order, 1: B G R */
-    int bf16;                     /* 1: bfloat16 convolutions on AMX where present (core/cnn.h) */
+    int bf16;                     /* 1: bfloat16 convolutions (core/cnn.h) */
     double scale;                 /* byte to network input, before mean and std */
     /* filled by cnnfeat_resolve */
     double mean[3], std[3];

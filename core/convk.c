@@ -197,6 +197,27 @@ uint16_t convk_bf16(float f)
     return (uint16_t)(u >> 16);
 }
 
+/* 16 at a time: convk_bf16's integer steps; the count done */
+__attribute__((target("avx512f"))) static size_t round_bf16_512(const float *src, float *dst, size_t n)
+{
+    size_t i = 0;
+    const __m512i half = _mm512_set1_epi32(0x7fff), one = _mm512_set1_epi32(1), top = _mm512_set1_epi32(-65536);
+    for (; i + 16 <= n; i += 16) {
+        __m512i u = _mm512_loadu_si512((const void *)(src + i));
+        u = _mm512_add_epi32(u, _mm512_add_epi32(half, _mm512_and_si512(_mm512_srli_epi32(u, 16), one)));
+        _mm512_storeu_si512((void *)(dst + i), _mm512_and_si512(u, top));
+    }
+    return i;
+}
+
+void convk_round_bf16(const float *src, float *dst, size_t n)
+{
+    for (size_t i = __builtin_cpu_supports("avx512f") ? round_bf16_512(src, dst, n) : 0; i < n; i++) {
+        uint32_t u = (uint32_t)convk_bf16(src[i]) << 16;
+        memcpy(&dst[i], &u, sizeof u);
+    }
+}
+
 __attribute__((target("avx512f,avx512bf16"))) void convk_convert_bf16(const float *src, uint16_t *dst, size_t n)
 {
     size_t i = 0;

@@ -37,6 +37,9 @@ void convk_run_direct(const float *const *rows, int cin, int cout, const struct 
 int convk_has_amx(void);
 uint16_t convk_bf16(float f);  /* round to nearest, ties to even */
 void convk_convert_bf16(const float *src, uint16_t *dst, size_t n);
+/* The same rounding kept as float32 (dst may be src): the operands of the
+ * float32 kernels where bfloat16 is asked for and there is no AMX. */
+void convk_round_bf16(const float *src, float *dst, size_t n);
 /* op's weights as taps x k channels (zero up to kp, a multiple of 32) in
  * the tiles' order; NULL when out of memory.  Caller frees. */
 uint16_t *convk_pack_amx(const struct onnx_op *op, int taps, int k, int kp);
