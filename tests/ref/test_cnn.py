@@ -12,6 +12,9 @@ seed; tests/ref/vggonnx.py), and its refusals.
 - a file from torch.onnx.export, and a small graph with two branches (Add,
   Concat), BatchNormalization after a Conv, Clip, Identity, AveragePool and a
   strided Conv with asymmetric pads, against the same ops in torch.
+- runs over a box of the frame (tests/tools/cnn_box) against the whole
+  frame's run, which the checks above hold to torch: bit for bit inside,
+  nothing written outside, nothing read beyond the input box named.
 - parameter counts printed by `station recipe check`: VGG16's convolutional
   part has 14,714,688 and its first block 38,720 = 1,792 + 36,928 (facts of
   the trade: 3*3*3*64 + 64 and 3*3*64*64 + 64).
