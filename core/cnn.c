@@ -673,11 +673,11 @@ static void *worker_run(void *arg)
 {
     struct worker *wk = arg;
     struct cnn_net *n = wk->net;
-    int rows = n->box.y1 - n->box.y0;
+    int y0 = n->box.y0, rows = n->box.y1 - y0;
     if (n->wamx) /* tile configuration is per thread */
         convk_begin_amx();
     for (int b; (b = atomic_fetch_add(&n->next, 1)) < n->nbands;)
-        run_band(wk, n->box.y0 + (int)((long)rows * b / n->nbands), n->box.y0 + (int)((long)rows * (b + 1) / n->nbands));
+        run_band(wk, y0 + (int)((long)rows * b / n->nbands), y0 + (int)((long)rows * (b + 1) / n->nbands));
     if (n->wamx)
         convk_end_amx();
     return NULL;
@@ -781,7 +781,8 @@ static int bf16_prepare(struct cnn_net *n)
 {
     const struct onnx_graph *g = n->g;
     int amx = n->avx512 && __builtin_cpu_supports("avx512bf16") && convk_has_amx();
-    if (amx ? !(n->wamx = calloc((size_t)g->nops, sizeof *n->wamx)) : !(n->rop = calloc((size_t)g->nops, sizeof *n->rop)))
+    if (amx ? !(n->wamx = calloc((size_t)g->nops, sizeof *n->wamx))
+            : !(n->rop = calloc((size_t)g->nops, sizeof *n->rop)))
         return ST_ENOMEM;
     for (int i = 0; i < g->nops; i++) {
         const struct onnx_op *op = &g->ops[i];
