@@ -722,10 +722,16 @@ int cnn_net_run_box(struct cnn_net *net, const float *in, float *dst, const stru
     need_dest(net, 1, box->x0, box->x1, net->win);
     int f = net->nv - 1;
     net->to_dst = net->direct_dst && net->win[2 * f] == box->x0 && net->win[2 * f + 1] == box->x1;
-    /* bands over the threads: more than one each, so a thread the shared
-     * machine holds back leaves its share to the others; each band remakes
-     * the few rows above it that its first row needs */
-    net->nbands = net->threads == 1 ? 1 : (rows < 4 * net->threads ? rows : 4 * net->threads);
+    /* bands over the threads: four each, so a thread the shared machine
+     * holds back leaves its share to the others, but of 8 rows at least
+     * where the box has them, since each band remakes the few rows above it
+     * that its first row needs */
+    int nb = 4 * net->threads;
+    if (nb > rows / 8)
+        nb = rows / 8;
+    if (nb < net->threads)
+        nb = net->threads < rows ? net->threads : rows;
+    net->nbands = net->threads == 1 ? 1 : nb;
     atomic_store(&net->next, 0);
     for (int t = 1; t < net->threads; t++)
         started[t] = pthread_create(&tids[t], NULL, worker_run, &net->wk[t]) == 0;
