@@ -21,7 +21,7 @@ SANFLAGS :=
 endif
 
 PKGS      := libpng xgboost inih jansson nettle sqlite3 sdl2 SDL2_ttf libv4l2 libprotobuf-c openblas \
-             libsodium
+             libsodium libpq
 TEST_PKGS := cmocka
 PKG_CFLAGS := $(shell pkg-config --cflags $(PKGS) 2>/dev/null)
 PKG_LIBS   := $(shell pkg-config --libs $(PKGS) 2>/dev/null)
@@ -119,10 +119,11 @@ $(FAULTIO_SO): tests/faultio/faultio.c
 # otherwise prints the exact apt-get line and stops.
 DEB_BUILD := gcc make pkg-config libpng-dev libxgboost-dev libinih-dev libjansson-dev nettle-dev \
              libsqlite3-dev libsdl2-dev libsdl2-ttf-dev fonts-dejavu-core libv4l-dev \
-             libonnx-dev protobuf-c-compiler libprotobuf-c-dev libopenblas-dev libsodium-dev
+             libonnx-dev protobuf-c-compiler libprotobuf-c-dev libopenblas-dev libsodium-dev libpq-dev
 DEB_TEST  := libcmocka-dev python3-numpy python3-scipy python3-skimage python3-sklearn \
              python3-xgboost python3-opencv python3-pil libsixel-examples opencv-doc xvfb \
-             libonnx-testdata python3-onnx python3-torch python3-nacl
+             libonnx-testdata python3-onnx python3-torch python3-nacl \
+             postgresql python3-psycopg2
 # Only make bench needs this: callgrind's instruction counts.
 DEB_BENCH := valgrind
 deps:

@@ -308,25 +308,13 @@ int lens_calibrate(const double *const *xy, int nviews, int cols, int rows, doub
     if (!par)
         return err_set(e, ST_ENOMEM, "out of memory calibrating the lens");
     if (!(rc = initial_guess(&p, par, e)) && !(rc = refine(&p, par, np, &out->rms_px, e))) {
-        out->fx = par[0];
-        out->fy = par[1];
-        out->cx = par[2];
-        out->cy = par[3];
-        out->k1 = par[4];
-        out->k2 = par[5];
+        out->m.fx = par[0];
+        out->m.fy = par[1];
+        out->m.cx = par[2];
+        out->m.cy = par[3];
+        out->m.k1 = par[4];
+        out->m.k2 = par[5];
     }
     free(par);
     return rc;
-}
-
-void lens_undistort(const struct lens *l, double u, double v, double *uo, double *vo)
-{
-    double xd = (u - l->cx) / l->fx, yd = (v - l->cy) / l->fy, x = xd, y = yd;
-    for (int it = 0; it < 20; it++) {
-        double r2 = x * x + y * y, d = 1 + l->k1 * r2 + l->k2 * r2 * r2;
-        x = xd / d;
-        y = yd / d;
-    }
-    *uo = x * l->fx + l->cx;
-    *vo = y * l->fy + l->cy;
 }

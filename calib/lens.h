@@ -1,11 +1,11 @@
 /* lens: the camera matrix and radial distortion from several views of a
  * checkerboard (Zhang's method).
  *
- * Model: a board point X in the camera frame (R X + t) projects to
- * normalised x = X/Z, y = Y/Z, is bent radially to x (1 + k1 r^2 + k2 r^4)
- * (r^2 = x^2 + y^2), then u = fx x + cx, v = fy y + cy (no skew, no
- * tangential term: OpenCV's calibrateCamera with CALIB_ZERO_TANGENT_DIST
- * and CALIB_FIX_K3 fits the same model).  Start: one homography per view,
+ * Model (core/lensmodel.h): a board point X in the camera frame (R X + t)
+ * projects to normalised x = X/Z, y = Y/Z, is bent radially to
+ * x (1 + k1 r^2 + k2 r^4) (r^2 = x^2 + y^2), then u = fx x + cx,
+ * v = fy y + cy (no skew, no tangential term: OpenCV's calibrateCamera
+ * with CALIB_ZERO_TANGENT_DIST and CALIB_FIX_K3 fits the same model).  Start: one homography per view,
  * the closed form for B = K^-T K^-1 from h1^T B h2 = 0 and h1^T B h1 =
  * h2^T B h2, pose from K^-1 H, distortion 0.  Then Levenberg-Marquardt on
  * the reprojection error of every corner over all parameters (numeric
@@ -15,12 +15,12 @@
 #define ST_CALIB_LENS_H
 
 #include "core/err.h"
+#include "core/lensmodel.h"
 
 #define LENS_MAX_VIEWS 64
 
 struct lens {
-    double fx, fy, cx, cy;   /* px */
-    double k1, k2;
+    struct lens_model m;     /* the model (core/lensmodel.h) */
     double rms_px;           /* reprojection error over every corner of every view */
 };
 
@@ -28,9 +28,5 @@ struct lens {
  * at least 3 views. */
 int lens_calibrate(const double *const *xy, int nviews, int cols, int rows, double square_mm,
                    struct lens *out, struct err *e);
-
-/* The undistorted pixel of a distorted one (fixed-point inversion of the
- * radial term, good to 1e-6 px for the distortion of ordinary lenses). */
-void lens_undistort(const struct lens *l, double u, double v, double *uo, double *vo);
 
 #endif

@@ -50,13 +50,18 @@ int scale_fit_view(const double *xy, int cols, int rows, double square_mm, int w
     int n = cols * rows, rc;
     if (!(square_mm > 0))
         return err_set(e, ST_ERANGE, "square size %g mm must be positive", square_mm);
-    double *obj = malloc(2 * sizeof(double) * n);
+    double *obj = malloc(4 * sizeof(double) * n), *seen = obj + 2 * n;
     if (!obj)
         return err_set(e, ST_ENOMEM, "out of memory fitting the scale");
     for (int k = 0; k < n; k++) {
         obj[2 * k] = (k % cols) * square_mm;
         obj[2 * k + 1] = (k / cols) * square_mm;
+        if (lens)
+            lensmodel_correct(&lens->m, xy[2 * k], xy[2 * k + 1], &seen[2 * k], &seen[2 * k + 1]);
+        else
+            memcpy(&seen[2 * k], &xy[2 * k], 2 * sizeof *xy);
     }
+    xy = seen;
     if ((rc = homography_fit(obj, xy, n, out->plane_to_image, e)))
         goto fail;
     if (homography_invert(out->plane_to_image, out->image_to_plane)) {
@@ -85,7 +90,8 @@ int scale_fit_view(const double *xy, int cols, int rows, double square_mm, int w
     out->mm_per_px_x = hypot(j[0], j[2]);
     out->mm_per_px_y = hypot(j[1], j[3]);
     if (lens) {
-        out->tilt_deg = tilt_of(out->plane_to_image, lens->fx, lens->fy, lens->cx, lens->cy);
+        out->tilt_deg =
+            tilt_of(out->plane_to_image, lens->m.fx, lens->m.fy, lens->m.cx, lens->m.cy);
     } else {
         double pcx = 0.5 * (w - 1), pcy = 0.5 * (h - 1);
         double f = focal_from_view(out->plane_to_image, pcx, pcy);
@@ -132,13 +138,9 @@ int scale_calibrate(const struct image *const *frames, const char *const *names,
         if ((rc = lens_calibrate(views, n, cols, rows, square_mm, &lens, e)))
             goto fail;
         out->has_lens = 1;
-        out->fx = lens.fx;
-        out->fy = lens.fy;
-        out->cx = lens.cx;
-        out->cy = lens.cy;
-        out->k1 = lens.k1;
-        out->k2 = lens.k2;
+        out->lens = lens.m;
         out->lens_rms_px = lens.rms_px;
+        out->lens_corrected = 1;
     }
     struct scale_fit f;
     if ((rc = scale_fit_view(xy, cols, rows, square_mm, frames[0]->w, frames[0]->h,

@@ -3,7 +3,10 @@
  *
  * The board's corners (corners_find order, square_mm apart, corner 0 at
  * the plane's origin) give the plane-to-image homography (homography_fit);
- * its inverse maps image pixels to plane mm.  Reported at the board's
+ * its inverse maps image pixels to plane mm.  With a lens the corners are
+ * corrected first (lensmodel_correct), so the homography and every figure
+ * below are in lens-corrected pixels: the reprojection error is then what
+ * the lens model leaves, not the lens's bending itself.  Reported at the board's
  * centre: mm per pixel along the image's x and y (the lengths of the
  * columns of the inverse map's Jacobian there), the tilt of the camera's
  * axis against the plane's normal, and the reprojection error of every

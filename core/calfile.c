@@ -39,6 +39,15 @@ double calfile_age_days(const struct calfile *c, time_t now)
     return ((double)now - (double)c->created) / 86400.0;
 }
 
+json_t *calfile_lens_json(const struct calfile *c)
+{
+    const struct lens_model *l = &c->lens;
+    return c->has_lens ? json_pack("{s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:b}", "fx", l->fx, "fy", l->fy,
+                                   "cx", l->cx, "cy", l->cy, "k1", l->k1, "k2", l->k2, "rms_px",
+                                   c->lens_rms_px, "corrected_pixels", c->lens_corrected)
+                       : NULL;
+}
+
 int calfile_save(const char *path, const struct calfile *c, struct err *e)
 {
     char when[32];
@@ -55,10 +64,7 @@ int calfile_save(const char *path, const struct calfile *c, struct err *e)
         "worst_mm", c->worst_mm, "board", "cols", c->board_cols, "rows", c->board_rows,
         "square_mm", c->square_mm, "views", c->views);
     if (o && c->has_lens)
-        json_object_set_new(o, "lens",
-                            json_pack("{s:f,s:f,s:f,s:f,s:f,s:f,s:f}", "fx", c->fx, "fy", c->fy,
-                                      "cx", c->cx, "cy", c->cy, "k1", c->k1, "k2", c->k2,
-                                      "rms_px", c->lens_rms_px));
+        json_object_set_new(o, "lens", calfile_lens_json(c));
     int rc = ST_OK;
     if (!o)
         rc = err_set(e, ST_ENOMEM, "%s: cannot build the calibration", path);
@@ -162,14 +168,22 @@ static int read_all(struct reader *rd, struct calfile *c)
         (rc = get_int(rd, board, "views", 1, 1000, &c->views)))
         return rc;
     c->has_lens = lens != NULL;
-    if (lens && (!json_is_object(lens) || (rc = get_num(rd, lens, "fx", 1e-3, 1e7, &c->fx)) ||
-                 (rc = get_num(rd, lens, "fy", 1e-3, 1e7, &c->fy)) ||
-                 (rc = get_num(rd, lens, "cx", -1e5, 1e5, &c->cx)) ||
-                 (rc = get_num(rd, lens, "cy", -1e5, 1e5, &c->cy)) ||
-                 (rc = get_num(rd, lens, "k1", -1e3, 1e3, &c->k1)) ||
-                 (rc = get_num(rd, lens, "k2", -1e3, 1e3, &c->k2)) ||
+    struct lens_model *l = &c->lens;
+    if (lens && (!json_is_object(lens) || (rc = get_num(rd, lens, "fx", 1e-3, 1e7, &l->fx)) ||
+                 (rc = get_num(rd, lens, "fy", 1e-3, 1e7, &l->fy)) ||
+                 (rc = get_num(rd, lens, "cx", -1e5, 1e5, &l->cx)) ||
+                 (rc = get_num(rd, lens, "cy", -1e5, 1e5, &l->cy)) ||
+                 (rc = get_num(rd, lens, "k1", -1e3, 1e3, &l->k1)) ||
+                 (rc = get_num(rd, lens, "k2", -1e3, 1e3, &l->k2)) ||
                  (rc = get_num(rd, lens, "rms_px", 0, 1e6, &c->lens_rms_px))))
         return rc ? rc : err_set(rd->e, ST_EFORMAT, "%s: 'lens' is not an object", rd->path);
+    if (lens && c->format >= 2) {
+        json_t *b = json_object_get(lens, "corrected_pixels");
+        if (!json_is_boolean(b))
+            return err_set(rd->e, ST_EFORMAT, "%s: 'lens.corrected_pixels' missing or not true/false",
+                           rd->path);
+        c->lens_corrected = json_is_true(b);
+    }
     return ST_OK;
 }
 

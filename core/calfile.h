@@ -5,8 +5,9 @@
  * It holds what inspection needs of a calibration: the camera's id and
  * resolution, the part plane's scale (mm per pixel along image x and y at
  * the target's centre) and the full image-to-plane homography, the
- * camera's tilt against the plane, the reprojection errors, when it was
- * made and for how many days it is valid.  calfile_load refuses a newer
+ * camera's tilt against the plane, the reprojection errors, the lens
+ * when one was calibrated, when it was made and for how many days it is
+ * valid.  calfile_load refuses a newer
  * format, a missing or wrongly typed key and a value out of range, each as
  * "FILE: what" (ST_EFORMAT or ST_ERANGE; ST_EIO when unreadable); on
  * failure *c is untouched.  A struct calfile is a plain value.  Never
@@ -15,11 +16,16 @@
 #ifndef ST_CALFILE_H
 #define ST_CALFILE_H
 
+#include <jansson.h>
 #include <time.h>
 
 #include "err.h"
+#include "lensmodel.h"
 
-#define CALFILE_FORMAT 1
+/* 2: the lens object says whether image_to_plane applies to lens-corrected
+ * pixels (format 1 files are read as "no": their homography was fitted to
+ * the pixels as the camera saw them). */
+#define CALFILE_FORMAT 2
 
 struct calfile {
     int format;
@@ -32,14 +38,22 @@ struct calfile {
     int board_cols, board_rows; /* inner corners */
     double square_mm;
     int views;
-    int has_lens;               /* fx..k2 below were calibrated from 3 or more views */
-    double fx, fy, cx, cy, k1, k2, lens_rms_px;
+    int has_lens;               /* lens below was calibrated from 3 or more views */
+    struct lens_model lens;
+    double lens_rms_px;
+    int lens_corrected;         /* image_to_plane maps lens-corrected pixels
+                                   (lensmodel_correct first); 0: the pixels as seen */
     long long created;          /* seconds since 1970-01-01 UTC; "YYYY-MM-DDTHH:MM:SSZ" in the file */
     int valid_days;             /* 1..3650 */
 };
 
 int calfile_save(const char *path, const struct calfile *c, struct err *e);
 int calfile_load(const char *path, struct calfile *c, struct err *e);
+
+/* The lens as a JSON object (fx fy cx cy k1 k2 rms_px corrected_pixels),
+ * what the file and `station calibrate`'s report hold; NULL without a
+ * lens or memory.  The caller owns it. */
+json_t *calfile_lens_json(const struct calfile *c);
 
 /* Days between c->created and now (negative when made in the future). */
 double calfile_age_days(const struct calfile *c, time_t now);

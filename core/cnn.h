@@ -7,17 +7,23 @@
  * input or its left padding) and allocates all buffers once.
  *
  * Layout: every tensor is pixel-major (H, W, C with C contiguous), the
- * layout of the feature stack.  Convolution is GEMM through OpenBLAS
- * (cblas_sgemm): for stride 1 and one group, one GEMM per kernel tap over a
- * zero-bordered copy of the input rows (no im2col); otherwise im2col per
- * output row.  The image is done in stripes of destination rows: for each
- * stripe every op computes just the rows the next ops need (halo rows are
- * recomputed), so the 64-channel intermediates of a VGG-style stem live in
- * a per-thread buffer of a few rows that stays in cache, never as a whole
- * frame.  Stripes are shared out over `threads` workers started per run;
- * OpenBLAS itself is held to one thread per call so the two do not
- * oversubscribe (openblas_set_num_threads(1), the one process-wide setting
- * this module changes).
+ * layout of the feature stack.  The destination's rows are shared out in
+ * bands over `threads` workers started per run; a worker makes its band's
+ * rows top to bottom, each value keeping only the rows the next ones need
+ * in a ring per worker (for a VGG-style stem, three rows of the 64-channel
+ * intermediate: it stays in cache and never exists whole), each row made
+ * once per band.  Convolutions: our own AVX-512 kernel (core/convk.h) where
+ * output channels come in 64s, otherwise GEMM through OpenBLAS (one
+ * cblas_sgemm per kernel tap for stride 1 and one group, im2col per output
+ * row else), held to one thread per call so the two do not oversubscribe
+ * (openblas_set_num_threads(1), the one process-wide setting this module
+ * changes).
+ *
+ * A run can be asked for a box of the destination: only the rows and
+ * columns of every value that the box needs are made, and the box's pixels
+ * are bit for bit those of a run over the whole destination (each pixel's
+ * sums are taken in the same order whatever the box); nothing outside the
+ * box is written.
  *
  * Destination: out_w x out_h pixels, `stride` floats per pixel, `nch`
  * channels (a list, or all when ch is NULL) written at dst[p * stride + k].
@@ -27,13 +33,15 @@
  * torch.nn.functional.interpolate(mode='bilinear', align_corners=False) and
  * OpenCV's INTER_LINEAR resize.
  *
- * With dest->bf16, on a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted
- * to the process by arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide
- * setting), the stride-1 single-group convolutions with input and output
- * channels in multiples of 32, and an RGB stem's patches of up to 32 values,
- * round their inputs and weights to bfloat16
- * (nearest even) and multiply on the tiles, summing in float32; the others,
- * and every convolution elsewhere, stay float32.  Off by default: results
+ * With dest->bf16 the stride-1 single-group convolutions with input and
+ * output channels in multiples of 32 (and at least 32 output columns), and
+ * an RGB stem's patches of up to 32 values, take inputs and weights rounded
+ * to bfloat16 (nearest even) and sum in float32; the others stay float32.
+ * On a CPU with Intel AMX (AMX-TILE and AMX-BF16, granted to the process by
+ * arch_prctl(ARCH_REQ_XCOMP_PERM), a second process-wide setting) the tiles
+ * multiply; elsewhere the float32 kernels run on the rounded operands, slower
+ * than float32 but the same features up to the order of the sums, so a
+ * model trained with them runs on either machine.  Off by default: results
  * move by a few tenths of a percent of the output's scale. */
 #ifndef ST_CNN_H
 #define ST_CNN_H
@@ -61,7 +69,17 @@ struct cnn_net *cnn_net_new(const struct onnx_graph *g, int c, int h, int w, con
                             int threads, struct err *e);
 void cnn_net_free(struct cnn_net *net);
 
+/* Destination pixels [x0, x1) x [y0, y1). */
+struct cnn_box {
+    int x0, y0, x1, y1;
+};
+
 /* Runs the net on in (h x w x c floats, pixel-major) into dst. */
 int cnn_net_run(struct cnn_net *net, const float *in, float *dst, struct err *e);
+/* As cnn_net_run for the destination's pixels in box only; of in, only the
+ * pixels cnn_net_input_box names are read. */
+int cnn_net_run_box(struct cnn_net *net, const float *in, float *dst, const struct cnn_box *box, struct err *e);
+/* The input pixels a run over box reads, into in_box. */
+int cnn_net_input_box(const struct cnn_net *net, const struct cnn_box *box, struct cnn_box *in_box, struct err *e);
 
 #endif

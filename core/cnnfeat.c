@@ -207,31 +207,33 @@ void cnnfeat_ctx_free(struct cnnfeat_ctx *ctx)
     free(ctx);
 }
 
-static void prepare(struct cnnfeat_ctx *ctx, const struct image *img)
+/* The pixels of box (the ones the network reads) into ctx->in. */
+static void prepare(struct cnnfeat_ctx *ctx, const struct image *img, const struct cnn_box *box)
 {
     const struct cnnfeat_spec *s = &ctx->spec;
-    size_t npx = (size_t)img->w * img->h;
     float mul[3], add[3];
     for (int c = 0; c < 3; c++) {
         mul[c] = (float)(s->scale / s->std[c]);
         add[c] = (float)(-s->mean[c] / s->std[c]);
     }
-    for (size_t p = 0; p < npx; p++) {
-        const uint8_t *px = img->px + p * img->channels;
-        float r = px[0], g = img->channels == 3 ? px[1] : px[0], b = img->channels == 3 ? px[2] : px[0];
-        if (s->in_channels == 1) {
-            ctx->in[p] = (0.299f * r + 0.587f * g + 0.114f * b) * mul[0] + add[0];
-            continue;
+    for (int y = box->y0; y < box->y1; y++)
+        for (int x = box->x0; x < box->x1; x++) {
+            size_t p = (size_t)y * img->w + x;
+            const uint8_t *px = img->px + p * img->channels;
+            float r = px[0], g = img->channels == 3 ? px[1] : px[0], b = img->channels == 3 ? px[2] : px[0];
+            if (s->in_channels == 1) {
+                ctx->in[p] = (0.299f * r + 0.587f * g + 0.114f * b) * mul[0] + add[0];
+                continue;
+            }
+            float v[3] = {r, g, b};
+            float *o = ctx->in + p * 3;
+            for (int c = 0; c < 3; c++)
+                o[c] = v[s->bgr ? 2 - c : c] * mul[c] + add[c];
         }
-        float v[3] = {r, g, b};
-        float *o = ctx->in + p * 3;
-        for (int c = 0; c < 3; c++)
-            o[c] = v[s->bgr ? 2 - c : c] * mul[c] + add[c];
-    }
 }
 
-int cnnfeat_compute(struct cnnfeat_ctx *ctx, const struct image *img, struct fstack *out, int offset,
-                    struct err *e)
+int cnnfeat_compute_box(struct cnnfeat_ctx *ctx, const struct image *img, const struct cnn_box *box,
+                        struct fstack *out, int offset, struct err *e)
 {
     const struct cnnfeat_spec *s = &ctx->spec;
     if (img->w != ctx->w || img->h != ctx->h || out->w != ctx->w || out->h != ctx->h || offset < 0 ||
@@ -249,6 +251,9 @@ int cnnfeat_compute(struct cnnfeat_ctx *ctx, const struct image *img, struct fst
             return e ? e->code : ST_ENOMEM;
         ctx->stride = out->n;
     }
-    prepare(ctx, img);
-    return cnn_net_run(ctx->net, ctx->in, out->v + offset, e);
+    struct cnn_box in;
+    if (cnn_net_input_box(ctx->net, box, &in, e))
+        return e ? e->code : ST_EINVAL;
+    prepare(ctx, img, &in);
+    return cnn_net_run_box(ctx->net, ctx->in, out->v + offset, box, e);
 }

@@ -19,13 +19,15 @@
  * size bilinearly when the cut is strided (core/cnn.h), written pixel-major
  * into a feature stack at a channel offset.  Feature k is named
  * "cnn_TENSOR_cC" with C the network's channel number.  With bf16 set
- * (cnn_precision = bf16) the convolutions core/cnn.h can run on AMX tiles
- * take bfloat16 inputs and weights: faster, a few tenths of a percent off. */
+ * (cnn_precision = bf16) the convolutions core/cnn.h names take inputs and
+ * weights rounded to bfloat16: a few tenths of a percent off, faster where
+ * the CPU has AMX. */
 #ifndef ST_CNNFEAT_H
 #define ST_CNNFEAT_H
 
 #include <limits.h>
 
+#include "cnn.h"
 #include "image.h"
 #include "sha256.h"
 
@@ -38,7 +40,7 @@ struct cnnfeat_spec {
     char channels[256];           /* "" (all), "A-B" ranges and single numbers, blank separated */
     char mean_text[64], std_text[64];
     int bgr;                      /* 0: R G B order, 1: B G R */
-    int bf16;                     /* 1: bfloat16 convolutions on AMX where present (core/cnn.h) */
+    int bf16;                     /* 1: bfloat16 convolutions (core/cnn.h) */
     double scale;                 /* byte to network input, before mean and std */
     /* filled by cnnfeat_resolve */
     double mean[3], std[3];
@@ -66,8 +68,12 @@ struct cnnfeat_ctx;
 struct cnnfeat_ctx *cnnfeat_ctx_new(const struct cnnfeat_spec *s, int w, int h, int threads, struct err *e);
 void cnnfeat_ctx_free(struct cnnfeat_ctx *ctx);
 
-/* The s->nch features of img into out->v[p * out->n + offset + k]. */
-int cnnfeat_compute(struct cnnfeat_ctx *ctx, const struct image *img, struct fstack *out, int offset,
-                    struct err *e);
+/* The s->nch features of img at the pixels in box into
+ * out->v[p * out->n + offset + k], bit for bit those of a box covering the
+ * whole frame there (core/cnn.h); only the frame's pixels the network's
+ * receptive field reaches from the box are read, and nothing outside box is
+ * written. */
+int cnnfeat_compute_box(struct cnnfeat_ctx *ctx, const struct image *img, const struct cnn_box *box,
+                        struct fstack *out, int offset, struct err *e);
 
 #endif

@@ -13,12 +13,11 @@
 /* The direct kernel: 6 pixels x 64 output channels held in 24 registers,
  * one broadcast per pixel and input channel against 4 weight vectors, over
  * every tap; a row's remainder in 4 pixels, then one at a time.  Input
- * channels go in blocks of CONVK_CI_BLOCK so that block's weights for all taps
- * (9 x 16 x 64 floats for a 3x3 kernel, 36 KB) stay in L1 while the row is
- * swept; the accumulators go back to the output between blocks.  Pixels
- * x0.. of output row ry (relative to the stripe); p is the zero-bordered
- * copy of the input rows with pitch wp pixels.  Named accumulators, not an
- * array, so the compiler keeps them all in registers. */
+ * channels go in blocks of CONVK_CI_BLOCK (convk.h), the accumulators going
+ * back to the output between blocks.  Pixels
+ * x0.. of the output row; k->rows holds one input row per kernel row,
+ * zero-bordered by the caller.  Named accumulators, not an array, so the
+ * compiler keeps them all in registers. */
 #define KX 6
 #define ACC4(q, o)                                                                                                  \
     __m512 q##0 = first ? z0 : _mm512_loadu_ps(o), q##1 = first ? z1 : _mm512_loadu_ps((o) + 16),                  \
@@ -39,19 +38,19 @@
     } while (0)
 
 struct dblock {
-    const float *p;   /* zero-bordered input rows */
-    int wp, cin, cout;
+    const float *const *rows; /* per kernel row: its input pixels, from output pixel 0's first tap */
+    int cin, cout, os;        /* os: floats between output pixels */
     const struct onnx_op *op;
     int ci0, nci, first, last;
 };
 
-__attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, int ry, int x0, int cb, float *o)
+__attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, int x0, int cb, float *o)
 {
     const struct onnx_op *op = k->op;
-    int cin = k->cin, cout = k->cout, first = k->first;
+    int cin = k->cin, cout = k->cout, os = k->os, first = k->first;
     __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
     __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
-    float *oa = o + cb, *ob = oa + cout, *oc = ob + cout, *od = oc + cout, *oe = od + cout, *of = oe + cout;
+    float *oa = o + cb, *ob = oa + os, *oc = ob + os, *od = oc + os, *oe = od + os, *of = oe + os;
     ACC4(a, oa);
     ACC4(b, ob);
     ACC4(c, oc);
@@ -60,7 +59,7 @@ __attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, 
     ACC4(f, of);
     for (int ky = 0; ky < op->kh; ky++)
         for (int kx = 0; kx < op->kw; kx++) {
-            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;
             const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
             for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
                 __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
@@ -88,7 +87,7 @@ __attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, 
     STORE4(f, of);
 }
 
-__attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, int ry, int x0, int cb, float *o)
+__attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, int x0, int cb, float *o)
 {
     const struct onnx_op *op = k->op;
     int cin = k->cin, cout = k->cout, first = k->first;
@@ -98,7 +97,7 @@ __attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, 
     ACC4(a, oa);
     for (int ky = 0; ky < op->kh; ky++)
         for (int kx = 0; kx < op->kw; kx++) {
-            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;
             const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
             for (int ci = 0; ci < k->nci; ci++, wt += cout) {
                 __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
@@ -112,20 +111,20 @@ __attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, 
 }
 
 /* Four pixels: a row's remainder of 4 or 5 (640 = 6 x 106 + 4). */
-__attribute__((target("avx512f"))) static void direct_4(const struct dblock *k, int ry, int x0, int cb, float *o)
+__attribute__((target("avx512f"))) static void direct_4(const struct dblock *k, int x0, int cb, float *o)
 {
     const struct onnx_op *op = k->op;
-    int cin = k->cin, cout = k->cout, first = k->first;
+    int cin = k->cin, cout = k->cout, os = k->os, first = k->first;
     __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
     __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
-    float *oa = o + cb, *ob = oa + cout, *oc = ob + cout, *od = oc + cout;
+    float *oa = o + cb, *ob = oa + os, *oc = ob + os, *od = oc + os;
     ACC4(a, oa);
     ACC4(b, ob);
     ACC4(c, oc);
     ACC4(d, od);
     for (int ky = 0; ky < op->kh; ky++)
         for (int kx = 0; kx < op->kw; kx++) {
-            const float *x = k->p + ((size_t)(ry + ky * op->dh) * k->wp + x0 + (size_t)kx * op->dw) * cin + k->ci0;
+            const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;
             const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
             for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
                 __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
@@ -147,10 +146,9 @@ __attribute__((target("avx512f"))) static void direct_4(const struct dblock *k, 
     STORE4(d, od);
 }
 
-void convk_run_direct(const float *p, int wp, int cin, int cout, const struct onnx_op *op, int ry, int w,
-                       float *o)
+void convk_run_direct(const float *const *rows, int cin, int cout, const struct onnx_op *op, int w, float *o, int os)
 {
-    struct dblock k = {.p = p, .wp = wp, .cin = cin, .cout = cout, .op = op};
+    struct dblock k = {.rows = rows, .cin = cin, .cout = cout, .os = os, .op = op};
     for (int cb = 0; cb < cout; cb += 64)
         for (k.ci0 = 0; k.ci0 < cin; k.ci0 += CONVK_CI_BLOCK) {
             k.nci = cin - k.ci0 < CONVK_CI_BLOCK ? cin - k.ci0 : CONVK_CI_BLOCK;
@@ -158,13 +156,13 @@ void convk_run_direct(const float *p, int wp, int cin, int cout, const struct on
             k.last = k.ci0 + k.nci == cin;
             int x0 = 0;
             for (; x0 + KX <= w; x0 += KX)
-                direct_6(&k, ry, x0, cb, o + (size_t)x0 * cout);
+                direct_6(&k, x0, cb, o + (size_t)x0 * os);
             if (x0 + 4 <= w) {
-                direct_4(&k, ry, x0, cb, o + (size_t)x0 * cout);
+                direct_4(&k, x0, cb, o + (size_t)x0 * os);
                 x0 += 4;
             }
             for (; x0 < w; x0++)
-                direct_1(&k, ry, x0, cb, o + (size_t)x0 * cout);
+                direct_1(&k, x0, cb, o + (size_t)x0 * os);
         }
 }
 
@@ -197,6 +195,27 @@ uint16_t convk_bf16(float f)
     memcpy(&u, &f, sizeof u);
     u += 0x7fffu + ((u >> 16) & 1u); /* round to nearest, ties to even */
     return (uint16_t)(u >> 16);
+}
+
+/* 16 at a time: convk_bf16's integer steps; the count done */
+__attribute__((target("avx512f"))) static size_t round_bf16_512(const float *src, float *dst, size_t n)
+{
+    size_t i = 0;
+    const __m512i half = _mm512_set1_epi32(0x7fff), one = _mm512_set1_epi32(1), top = _mm512_set1_epi32(-65536);
+    for (; i + 16 <= n; i += 16) {
+        __m512i u = _mm512_loadu_si512((const void *)(src + i));
+        u = _mm512_add_epi32(u, _mm512_add_epi32(half, _mm512_and_si512(_mm512_srli_epi32(u, 16), one)));
+        _mm512_storeu_si512((void *)(dst + i), _mm512_and_si512(u, top));
+    }
+    return i;
+}
+
+void convk_round_bf16(const float *src, float *dst, size_t n)
+{
+    for (size_t i = __builtin_cpu_supports("avx512f") ? round_bf16_512(src, dst, n) : 0; i < n; i++) {
+        uint32_t u = (uint32_t)convk_bf16(src[i]) << 16;
+        memcpy(&dst[i], &u, sizeof u);
+    }
 }
 
 __attribute__((target("avx512f,avx512bf16"))) void convk_convert_bf16(const float *src, uint16_t *dst, size_t n)
@@ -252,14 +271,14 @@ __attribute__((target("amx-tile"))) void convk_end_amx(void)
     _tile_release();
 }
 
-/* Output row ry of the stripe: 32-pixel blocks (the last one shifted left
+/* One output row: 32-pixel blocks (the last one shifted left
  * to end at the row's end, recomputing a few pixels), 32 outputs at a time. */
-__attribute__((target("avx512f,amx-tile,amx-bf16"))) void convk_run_amx(const uint16_t *x, const uint16_t *wq, int wp,
-                                                                int cin, int cout, const struct onnx_op *op, int ry,
-                                                                int w, float *o)
+__attribute__((target("avx512f,amx-tile,amx-bf16"))) void convk_run_amx(const uint16_t *const *rows,
+                                                                const uint16_t *wq, int cin, int cout,
+                                                                const struct onnx_op *op, int w, float *o, int os)
 {
     int nkb = cin / 32, ncb = cout / 16;
-    size_t xs = (size_t)cin * sizeof *x, os = (size_t)cout * sizeof *o;
+    size_t xs = (size_t)cin * sizeof **rows, ob = (size_t)os * sizeof *o;
     for (int x0 = 0; x0 < w; x0 += 32) {
         int xb = x0 + 32 <= w ? x0 : w - 32;
         for (int cb = 0; cb < ncb; cb += 2) {
@@ -269,7 +288,7 @@ __attribute__((target("avx512f,amx-tile,amx-bf16"))) void convk_run_amx(const ui
             _tile_zero(3);
             for (int ky = 0; ky < op->kh; ky++)
                 for (int kx = 0; kx < op->kw; kx++) {
-                    const uint16_t *a = x + ((size_t)(ry + ky * op->dh) * wp + xb + (size_t)kx * op->dw) * cin;
+                    const uint16_t *a = rows[ky] + ((size_t)xb + (size_t)kx * op->dw) * cin;
                     const uint16_t *b = wq + (((size_t)(ky * op->kw + kx) * nkb) * ncb + cb) * 512;
                     for (int kb = 0; kb < nkb; kb++, a += 32, b += (size_t)ncb * 512) {
                         _tile_loadd(4, a, xs);
@@ -282,17 +301,17 @@ __attribute__((target("avx512f,amx-tile,amx-bf16"))) void convk_run_amx(const ui
                         _tile_dpbf16ps(3, 5, 7);
                     }
                 }
-            float *c = o + (size_t)xb * cout + cb * 16;
-            _tile_stored(0, c, os);
-            _tile_stored(1, c + 16, os);
-            _tile_stored(2, c + 16 * (size_t)cout, os);
-            _tile_stored(3, c + 16 * (size_t)cout + 16, os);
+            float *c = o + (size_t)xb * os + cb * 16;
+            _tile_stored(0, c, ob);
+            _tile_stored(1, c + 16, ob);
+            _tile_stored(2, c + 16 * (size_t)os, ob);
+            _tile_stored(3, c + 16 * (size_t)os + 16, ob);
         }
     }
     __m512 lo = _mm512_set1_ps(op->lo), hi = _mm512_set1_ps(op->hi);
     for (int p = 0; p < w; p++)
         for (int co = 0; co < cout; co += 16) {
-            float *v = o + (size_t)p * cout + co;
+            float *v = o + (size_t)p * os + co;
             __m512 r = _mm512_add_ps(_mm512_loadu_ps(v), _mm512_loadu_ps(op->b + co));
             _mm512_storeu_ps(v, _mm512_min_ps(_mm512_max_ps(r, lo), hi));
         }

@@ -1168,9 +1168,8 @@ int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct
                        box->x0, box->x1, box->y0, box->y1, ctx->w, ctx->h);
     if (!ctx->cnn)
         return bank_compute(ctx, img, box, out);
-    /* The network's stripes cover the whole frame (it has no box of its
-     * own yet); the bank's features are computed for the box and copied in
-     * beside them. */
+    /* the bank fills its own stack for the box, copied in beside the
+     * network's, which it writes for the box itself */
     if (ctx->n) {
         bank_compute(ctx, img, box, ctx->bank);
         size_t nb = (size_t)ctx->n;
@@ -1180,5 +1179,6 @@ int feat_compute_box(struct feat_ctx *ctx, const struct image *img, const struct
                 memcpy(out->v + p * (size_t)n, ctx->bank->v + p * nb, nb * sizeof *out->v);
             }
     }
-    return cnnfeat_compute(ctx->cnn, img, out, ctx->n, e);
+    struct cnn_box cb = {box->x0, box->y0, box->x1, box->y1};
+    return cnnfeat_compute_box(ctx->cnn, img, &cb, out, ctx->n, e);
 }

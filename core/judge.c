@@ -89,6 +89,7 @@ void judge_regions_opts(const struct recipe *r, const struct image *zones, struc
     }
     o->zones = zones;
     o->image_to_plane = r->has_calibration ? r->cal.image_to_plane : NULL;
+    o->lens = r->has_calibration && r->cal.has_lens && r->cal.lens_corrected ? &r->cal.lens : NULL;
 }
 
 static void grey_frame(const struct image *img, uint8_t *grey)

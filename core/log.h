@@ -2,6 +2,15 @@
  * a hash-chained, append-only record per inspection, the evidence files each
  * record names, and the auditors' dispositions in a second chain.
  *
+ * Back-ends: this API dispatches through a table of functions
+ * (core/logbackend.h) to the station's own SQLite log (core/logsqlite.c,
+ * everything below) or, read only, to the plant's central PostgreSQL database
+ * the stations forward to (core/logcentral.c).  log_open tells them apart by
+ * what it is given (logpg_is_conninfo: a URI or libpq's keyword=value form,
+ * else a file path).  The central database holds many stations' chains,
+ * each keyed by its forwarding station (log_record's chain_station);
+ * log_scope narrows the per-chain calls to one of them.
+ *
  * Writing (log_open with LOG_OPEN_WRITE): WAL journal, synchronous=FULL,
  * busy_timeout, every write in one BEGIN IMMEDIATE transaction through
  * prepared statements kept for the handle's life.  log_append writes the
@@ -37,9 +46,10 @@
  * canonical forms the hashes cover in core/logcanon.h, the checks of
  * `audit verify` in core/logverify.h.
  *
- * Owns: the SQLite handle and its statements.  Never prints; no global state;
- * file writes and fsyncs of evidence go through struct log_io so tests can
- * make them fail.  One handle per thread. */
+ * Owns: the back-end's handle (the SQLite handle and its statements, or the
+ * central connection).  Never prints; no global state; file writes and
+ * fsyncs of evidence go through struct log_io so tests can make them fail.
+ * One handle per thread. */
 #ifndef ST_LOG_H
 #define ST_LOG_H
 
@@ -100,6 +110,9 @@ struct log_options {
                                       get log_folder_mode() of it */
     const char *key_path;          /* signing key file; NULL: the database path + ".key" */
 };
+/* On the central database evidence_dir is the folder `station sync
+ * --evidence-to` fills (DIR/STATION/NAME); NULL: evidence not available
+ * there, which is not broken. */
 void log_options_init(struct log_options *o);
 
 /* Owner only: a log names operators and serials and holds the evidence; a
@@ -112,7 +125,12 @@ unsigned log_folder_mode(unsigned file_mode);
 struct log_db;
 
 /* Opens (LOG_OPEN_WRITE: creates or upgrades) the database at path.  opt may
- * be NULL (defaults).  LOG_OPEN_READ on a missing file is ST_EIO. */
+ * be NULL (defaults).  LOG_OPEN_READ on a missing file is ST_EIO.  A
+ * connection string (logpg_is_conninfo) opens the central database, for
+ * reading only: LOG_OPEN_WRITE there is ST_EINVAL, as are log_append,
+ * log_dispose and log_verification_append (records, dispositions and
+ * verifications are made in the station's own log, signed by its key, and
+ * forwarded by `station sync`). */
 int log_open(const char *path, int mode, const struct log_options *opt, struct log_db **out,
              struct err *e);
 /* Accepts NULL. */
@@ -191,6 +209,10 @@ struct log_record {
     char sig[LOGSIGN_SIG_HEX];     /* "" when written before signing */
     int has_disposition;           /* the latest disposition, when any */
     struct log_disposition disp;
+    char chain_station[LOG_ID_MAX];   /* whose chain holds it: centrally the forwarding
+                                         station (the key), locally the log's own station
+                                         (its latest record's) */
+    char line[LOG_ID_MAX];         /* that station's production line; "" locally */
 };
 void log_record_init(struct log_record *r);
 void log_record_clear(struct log_record *r);
@@ -204,7 +226,10 @@ struct log_filter {
     const char *cls;               /* a reason or region with this class */
     const char *zone;              /* a reason or region with this zone */
     const char *recipe_id;
-    const char *station;
+    const char *station;           /* centrally the forwarding station (the chain key);
+                                      locally the record's station field */
+    const char *line;              /* production line (central; a local log has none, so
+                                      only "" matches there) */
     int disp;                      /* enum log_disp of the latest disposition, -1 any */
     int64_t seq_from, seq_to;      /* inclusive; 0 = open */
 };
@@ -234,7 +259,12 @@ int log_record_hash(struct log_db *db, int64_t seq, char hex[SHA256_HEX_LEN], st
 int log_dispose(struct log_db *db, int64_t seq, const char *auditor, int disp,
                 const char *comment, int64_t *dseq, struct err *e);
 
-/* The full path of an evidence name. */
+/* The full path of evidence `name` of record r; ST_EIO "not available" when
+ * the handle has no evidence folder for it (log_evidence_dir is NULL). */
+int log_record_evidence_path(const struct log_db *db, const struct log_record *r,
+                             const char *name, char *buf, size_t len, struct err *e);
+/* The same for the handle's own chain: a local log's, centrally the scoped
+ * station's (log_scope). */
 int log_evidence_path(const struct log_db *db, const char *name, char *buf, size_t len,
                       struct err *e);
 
@@ -280,14 +310,57 @@ struct log_signing {
 };
 int log_signing_get(struct log_db *db, struct log_signing *s, struct err *e);
 
+/* One station's chains as a log holds them. */
+struct log_station {
+    char station[LOG_ID_MAX];
+    char line[LOG_ID_MAX];
+    char public_key[LOGSIGN_PK_HEX];   /* "" when not signed */
+    int64_t records;
+    int64_t last_seq;              /* the newest record's number, 0 when none */
+};
+/* Every station the log holds, by id: a local log its own one (none while
+ * empty), the central database each station that forwarded to it.  Free
+ * with log_stations_free. */
+int log_stations_get(struct log_db *db, struct log_station **out, int *n, struct err *e);
+void log_stations_free(struct log_station *s);
+
+/* Retention's deletions of evidence (the evidence budget): a local log's in
+ * the order it made them, the central database's of the scoped station by
+ * time, record and name.  Free with free(). */
+#define LOG_REASON_MAX 64
+struct log_purge {
+    char name[LOG_NAME_MAX];
+    int64_t record_seq;
+    char utc[LOG_UTC_MAX];
+    char reason[LOG_REASON_MAX];
+};
+int log_purges_get(struct log_db *db, struct log_purge **out, int *n, struct err *e);
+
+/* Narrows log_get, log_record_hash, log_dispositions_get,
+ * log_verifications_get, log_signing_get and log_iter_new (and so
+ * log_verify) to the chains of one station; NULL widens again.  Centrally a
+ * station not held is ST_ERANGE naming those held, and without a scope the
+ * per-chain calls refuse when several stations are held (sequence numbers
+ * are per station).  A local log is one station's chain: scope does not
+ * narrow it. */
+int log_scope(struct log_db *db, const char *station, struct err *e);
+
+/* "sqlite" or "postgresql". */
+const char *log_kind(const struct log_db *db);
+
 /* PRAGMA integrity_check: ST_OK when SQLite answers "ok", else ST_EFORMAT
- * with its first complaint. */
+ * with its first complaint (centrally: the schema is ours and readable). */
 int log_check_integrity(struct log_db *db, struct err *e);
 
-/* The folder evidence names resolve against. */
-const char *log_evidence_dir(const struct log_db *db);
+/* The folder r's evidence names resolve against (r NULL: the handle's own
+ * chain's, as log_evidence_path), written into buf (len PATH_MAX suffices),
+ * or NULL when this handle has none: a central database opened without
+ * evidence_dir, or not scoped when r is NULL. */
+const char *log_evidence_dir(const struct log_db *db, const struct log_record *r, char *buf,
+                             size_t len);
 
-/* The database path the handle was opened with. */
+/* The database path the handle was opened with (a connection string without
+ * its password). */
 const char *log_path(const struct log_db *db);
 
 #endif

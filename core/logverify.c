@@ -1,6 +1,7 @@
 #include "logverify.h"
 
 #include <inttypes.h>
+#include <limits.h>
 #include <stdio.h>
 #include <string.h>
 
@@ -77,6 +78,8 @@ static void check_sig(struct log_verify_result *res, const struct log_signing *s
 static int check_evidence(struct log_db *db, const struct log_record *r,
                           struct log_verify_result *res)
 {
+    char dir[PATH_MAX];
+    const char *root = log_evidence_dir(db, r, dir, sizeof dir);
     for (int i = 0; i < r->nevidence; i++) {
         const struct log_evidence *v = &r->ev[i];
         char what[600];
@@ -91,10 +94,14 @@ static int check_evidence(struct log_db *db, const struct log_record *r,
             }
             continue;
         }
+        if (!root) {
+            res->evidence_unavailable++;
+            continue;
+        }
         struct err sub;
         err_clear(&sub);
         res->evidence_files++;
-        if (evidence_check(log_evidence_dir(db), v->name, v->sha256, v->bytes, &sub)) {
+        if (evidence_check(root, v->name, v->sha256, v->bytes, &sub)) {
             snprintf(what, sizeof what, "record %" PRId64 ": %s", r->seq, sub.msg);
             brk(res, "evidence", r->seq, what);
             return 1;

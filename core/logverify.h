@@ -5,8 +5,10 @@
  * numbers without gaps from 1, each prev_hash equal to the previous record's
  * hash, each hash equal to the SHA-256 of the record's canonical form, see
  * core/logcanon.h); every evidence file a record names (present, same size,
- * same SHA-256) unless retention deleted it, and retention may only have
- * deleted evidence of a PASS or of a disposed reject; then the disposition
+ * same SHA-256) unless retention deleted it or the handle has no evidence
+ * folder (the central database without one: counted as unavailable), and
+ * retention may only have deleted evidence of a PASS or of a disposed
+ * reject; then the disposition
  * chain the same way, each disposition bound to its record's hash; then the
  * verification chain (master-part runs) the same way; then the Ed25519
  * signature of every link from the log's signing start on (core/logsign.h),
@@ -18,7 +20,9 @@
  * first broken link is reported: the chain, the sequence number and what
  * differs.  A break at the very last link of a chain, with every earlier
  * link intact, is told apart as torn (an interrupted last write) from damage
- * with intact links after it.  Reads only; never prints. */
+ * with intact links after it.  On a handle holding several stations (the
+ * central database) the caller scopes it to one first (log_scope): the
+ * chains, keys and signing start are per station.  Reads only; never prints. */
 #ifndef ST_LOGVERIFY_H
 #define ST_LOGVERIFY_H
 
@@ -28,6 +32,9 @@ struct log_verify_result {
     int ok;                        /* 1 only when everything verified */
     int64_t records, dispositions, evidence_files;   /* links checked */
     int64_t verifications;
+    int64_t evidence_unavailable;  /* files named but not reachable from this handle (a
+                                      central database opened without an evidence folder):
+                                      not checked, and not counted as broken */
     int torn;                      /* the first break is at a chain's last link */
     char chain[16];                /* "database", "record", "evidence", "disposition",
                                       "verification" */

@@ -57,9 +57,9 @@ static int same_size(const struct image *frame, const struct image *m, const cha
                    frame->w, frame->h);
 }
 
-struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e)
+struct image *overlay_side_by_side(const struct image *const *imgs, int n, int gap, uint8_t grey,
+                                   struct err *e)
 {
-    const int gap = 4;
     int w = 0, h = imgs[0]->h;
     for (int i = 0; i < n; i++) {
         if (imgs[i]->h != h) {
@@ -71,7 +71,7 @@ struct image *overlay_side_by_side(const struct image *const *imgs, int n, struc
     struct image *out = image_new(w, h, 3, e);
     if (!out)
         return NULL;
-    memset(out->px, 255, (size_t)w * h * 3);
+    memset(out->px, grey, (size_t)w * h * 3);
     int x0 = 0;
     for (int i = 0; i < n; i++) {
         const struct image *s = imgs[i];

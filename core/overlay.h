@@ -9,6 +9,7 @@
 
 #include "image.h"
 #include "judge.h"
+#include "palette.h"
 #include "recipe.h"
 #include "regions.h"
 
@@ -16,14 +17,17 @@
 struct image *overlay_colourise(const struct image *classes, const struct recipe *r,
                                 struct err *e);
 
-/* Images of equal height side by side, with a 4-pixel white gap. */
-struct image *overlay_side_by_side(const struct image *const *imgs, int n, struct err *e);
+/* Images of equal height (grey or RGB) side by side as one RGB image, gap
+ * pixels of grey level `grey` between them. */
+struct image *overlay_side_by_side(const struct image *const *imgs, int n, int gap, uint8_t grey,
+                                   struct err *e);
 
 /* The inspection picture: a verdict banner above the frame, so the banner
- * never hides the part.  The banner's colour tells the verdict (PASS green
- * OVERLAY_PASS_RGB, FAIL red, NO VERDICT amber); its lines are the verdict,
- * the first reason in words (judge_describe_reason, "+N more" when there
- * are more) and a short caution; text is white (OVERLAY_TEXT_RGB), at a
+ * never hides the part.  The banner's colour tells the verdict in the
+ * screen's colours (core/palette.h: PASS bluish green, FAIL vermilion, NO
+ * VERDICT yellow); its lines are the verdict word, the first reason in
+ * words (judge_describe_reason, "+N more" when there are more) and a short
+ * caution; text is black (OVERLAY_TEXT_RGB), at a
  * scale that grows with the frame width (overlay_text_scale).  Below it
  * the frame: defect classes tinted at OVERLAY_TINT, then the outline of
  * every zone in zones (1 px, OVERLAY_ZONE_RGB: zone pixels with a
@@ -37,10 +41,10 @@ struct image *overlay_side_by_side(const struct image *const *imgs, int n, struc
  * region.  The reason and the caution wrap at spaces onto more lines
  * rather than shrink below the scale. */
 #define OVERLAY_TINT 0.35
-#define OVERLAY_PASS_RGB {30, 110, 50}
-#define OVERLAY_FAIL_RGB {170, 30, 30}
-#define OVERLAY_NONE_RGB {160, 110, 0}
-#define OVERLAY_TEXT_RGB {255, 255, 255}
+#define OVERLAY_PASS_RGB PALETTE_GREEN
+#define OVERLAY_FAIL_RGB PALETTE_VERMILION
+#define OVERLAY_NONE_RGB PALETTE_YELLOW
+#define OVERLAY_TEXT_RGB PALETTE_INK
 #define OVERLAY_ZONE_RGB {0, 220, 220}
 #define OVERLAY_CAUTION "aid only – not a substitute for qualified inspection"
 

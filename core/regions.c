@@ -500,18 +500,41 @@ static double orientation(const struct moments *m, int n, double sx, double sy)
 
 /* mm per pixel along image x and y at (x, y): the lengths of the columns
  * of the image-to-plane map's Jacobian there. */
-static void local_scale(const double *h, double x, double y, double *sx, double *sy)
+/* The Jacobian of pixel -> plane mm at pixel (x, y): the homography's
+ * (rows (h0 - u h6, h1 - u h7) / w and (h3 - v h6, h4 - v h7) / w) at the
+ * lens-corrected pixel, times the correction's own when there is a lens. */
+static void plane_jacobian(const struct regions_opts *o, double x, double y, double j[4])
 {
+    const double *h = o->image_to_plane;
+    double l[4] = {1, 0, 0, 1};
+    if (o->lens) {
+        lensmodel_jacobian(o->lens, x, y, l);
+        lensmodel_correct(o->lens, x, y, &x, &y);
+    }
     double w = h[6] * x + h[7] * y + h[8];
     double u = (h[0] * x + h[1] * y + h[2]) / w, v = (h[3] * x + h[4] * y + h[5]) / w;
-    *sx = hypot(h[0] - u * h[6], h[3] - v * h[6]) / fabs(w);
-    *sy = hypot(h[1] - u * h[7], h[4] - v * h[7]) / fabs(w);
+    double a = (h[0] - u * h[6]) / w, b = (h[1] - u * h[7]) / w;
+    double c = (h[3] - v * h[6]) / w, d = (h[4] - v * h[7]) / w;
+    j[0] = a * l[0] + b * l[2];
+    j[1] = a * l[1] + b * l[3];
+    j[2] = c * l[0] + d * l[2];
+    j[3] = c * l[1] + d * l[3];
 }
 
-/* Areas through the homography: |det J| at each pixel's centre, which for
- * a projective map is |det H| / |w|^3 (w = h6 x + h7 y + h8). */
-static void plane_areas(struct region_set *rs, const double *h, int w)
+static void local_scale(const struct regions_opts *o, double x, double y, double *sx, double *sy)
 {
+    double j[4];
+    plane_jacobian(o, x, y, j);
+    *sx = hypot(j[0], j[2]);
+    *sy = hypot(j[1], j[3]);
+}
+
+/* Areas through the map: |det J| at each pixel's centre.  Without a lens
+ * that is |det H| / |w|^3 (w = h6 x + h7 y + h8), kept in closed form for
+ * its speed; with one, the full Jacobian. */
+static void plane_areas(struct region_set *rs, const struct regions_opts *o, int w)
+{
+    const double *h = o->image_to_plane;
     double det = h[0] * (h[4] * h[8] - h[5] * h[7]) - h[1] * (h[3] * h[8] - h[5] * h[6]) +
                  h[2] * (h[3] * h[7] - h[4] * h[6]);
     /* each region's own box, in raster order: the frame's background is
@@ -521,11 +544,18 @@ static void plane_areas(struct region_set *rs, const double *h, int w)
         g->area_mm2 = 0;
         for (int y = g->y0; y <= g->y1; y++) {
             const int32_t *l = rs->labels + (size_t)y * w;
-            for (int x = g->x0; x <= g->x1; x++)
-                if (l[x] == i) {
+            for (int x = g->x0; x <= g->x1; x++) {
+                if (l[x] != i)
+                    continue;
+                if (o->lens) {
+                    double j[4];
+                    plane_jacobian(o, x, y, j);
+                    g->area_mm2 += fabs(j[0] * j[3] - j[1] * j[2]);
+                } else {
                     double q = h[6] * x + h[7] * y + h[8];
                     g->area_mm2 += fabs(det / (q * q * q));
                 }
+            }
         }
     }
 }
@@ -540,7 +570,7 @@ static int measure(struct region_set *rs, int k, const struct hull_row *rows,
     g->cx = (double)m->x / g->pixels;
     g->cy = (double)m->y / g->pixels;
     if (o->image_to_plane)
-        local_scale(o->image_to_plane, g->cx, g->cy, &sx, &sy);
+        local_scale(o, g->cx, g->cy, &sx, &sy);
     g->mean_conf = (float)(m->conf / g->pixels);
     g->area_mm2 = g->pixels * sx * sy;
     g->orientation = orientation(m, g->pixels, sx, sy);
@@ -680,6 +710,6 @@ int regions_find(struct region_set *rs, const struct image *classes, const float
         (rc = finish(rs, o, w, h, nreg, merged)))
         return err_set(e, rc, "out of memory measuring %d regions", nreg);
     if (o->image_to_plane)
-        plane_areas(rs, o->image_to_plane, w);
+        plane_areas(rs, o, w);
     return ST_OK;
 }

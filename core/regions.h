@@ -43,6 +43,7 @@
 #include <stdint.h>
 
 #include "image.h"
+#include "lensmodel.h"
 
 struct region {
     int id;                  /* 1-based, its place in region_set.r plus one */
@@ -84,6 +85,10 @@ struct regions_opts {
      * is left out, as is the scale's change across one region).  Gap
      * merging keeps mm_per_px_x/y. */
     const double *image_to_plane;
+    /* NULL, or the lens whose corrected pixels image_to_plane takes: each
+     * pixel is corrected first (lensmodel_correct) and the map's Jacobian
+     * includes the correction's. */
+    const struct lens_model *lens;
 };
 
 struct region_set {

@@ -21,8 +21,19 @@ int audit_show(int argc, char **argv);
 int audit_dispose(int argc, char **argv);
 int audit_verify(int argc, char **argv);
 
-/* Opens db_path, or the default log of station (LOGBOOK_DEFAULT_STATION when
- * NULL); prints the one-line reason and returns EXIT_ERROR on failure. */
+/* Where a verb reads. */
+struct audit_source {
+    const char *log;               /* --log: a path or a connection string; NULL: the default */
+    const char *station;           /* --station */
+    const char *evidence;          /* --evidence: the evidence folder (central: DIR/STATION/) */
+    int scope;                     /* narrow the handle to station (log_scope) */
+};
+
+/* Opens src->log, or the default log of src->station
+ * (LOGBOOK_DEFAULT_STATION when NULL), scoped to src->station when asked;
+ * prints the one-line reason and returns EXIT_ERROR on failure. */
+int audit_open_source(const struct audit_source *src, int mode, struct log_db **out);
+/* The same for db_path and station alone (no evidence folder, no scope). */
 int audit_open_log(const char *db_path, const char *station, int mode, struct log_db **out);
 
 /* A record as a JSON object: every field of struct log_record, reasons and

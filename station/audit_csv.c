@@ -59,7 +59,9 @@ void audit_csv_row(FILE *f, const struct log_record *r)
                        d ? d->auditor : "",
                        d ? d->utc : "",
                        d ? d->comment : "",
-                       r->hash};
+                       r->hash,
+                       r->chain_station,
+                       r->line};
     size_t n = sizeof v / sizeof v[0];
     for (size_t i = 0; i < n; i++)
         field(f, v[i], i + 1 == n);

@@ -5,7 +5,9 @@
  * columns are AUDIT_CSV_COLUMNS in that order; reasons and regions are the
  * record's JSON text; evidence columns hold names relative to the evidence
  * folder, empty when the record has none; the disposition columns hold the
- * latest disposition, empty when not yet disposed.
+ * latest disposition, empty when not yet disposed; log_station and line are
+ * the station whose chain holds the record (the central database's key) and
+ * its production line (empty in a local log).
  *
  * Owns nothing; writes only to the FILE it is handed. */
 #ifndef ST_AUDIT_CSV_H
@@ -17,7 +19,8 @@
 
 #define AUDIT_CSV_COLUMNS                                                                    \
     "seq,utc,station,operator,serial,recipe,recipe_version,recipe_sha256,model_sha256,scale," \
-    "verdict,reasons,regions,frame,overlay,disposition,auditor,disposed_utc,comment,hash"
+    "verdict,reasons,regions,frame,overlay,disposition,auditor,disposed_utc,comment,hash,"  \
+    "log_station,line"
 
 void audit_csv_header(FILE *f);
 void audit_csv_row(FILE *f, const struct log_record *r);

@@ -11,7 +11,9 @@ static void usage(FILE *f)
                "                             [--log DB] [--station ID]\n\n"
                "Records an auditor's disposition of record SEQ in the log's disposition chain.\n"
                "The inspection record itself never changes; a later disposition of the same\n"
-               "record supersedes an earlier one, and both stay in the log.\n\n"
+               "record supersedes an earlier one, and both stay in the log.  Dispositions are\n"
+               "made in the station's own log, signed with its key; the central database\n"
+               "receives them through station sync and refuses them here.\n\n"
                "  --auditor ID    who audited (required)\n"
                "  --as D          confirmed (the reject was right), false-reject (the part was\n"
                "                  good), rework, or other (say why in the comment)\n"
@@ -31,13 +33,14 @@ int audit_dispose(int argc, char **argv)
         {"log", required_argument, NULL, 'l'},     {"station", required_argument, NULL, 's'},
         {"auditor", required_argument, NULL, 'a'}, {"as", required_argument, NULL, 'd'},
         {"comment", required_argument, NULL, 'c'}, {0, 0, 0, 0}};
-    const char *db_path = NULL, *station = NULL, *auditor = NULL, *comment = NULL;
+    struct audit_source src = {0};
+    const char *auditor = NULL, *comment = NULL;
     int disp = -1, c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
-        case 'l': db_path = optarg; break;
-        case 's': station = optarg; break;
+        case 'l': src.log = optarg; break;
+        case 's': src.station = optarg; break;
         case 'a': auditor = optarg; break;
         case 'c': comment = optarg; break;
         case 'd':
@@ -58,7 +61,7 @@ int audit_dispose(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(db_path, station, LOG_OPEN_WRITE, &db))
+    if (audit_open_source(&src, LOG_OPEN_WRITE, &db))
         return EXIT_ERROR;
     struct err e;
     err_clear(&e);

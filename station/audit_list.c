@@ -12,11 +12,16 @@ static void usage(FILE *f)
 {
     fprintf(f, "usage: station audit list [--log DB] [--station ID] [--from UTC] [--to UTC]\n"
                "                          [--verdict V] [--rejects] [--class NAME] [--zone NAME]\n"
-               "                          [--recipe ID] [--disposition D] [--json]\n\n"
+               "                          [--recipe ID] [--disposition D] [--line L]\n"
+               "                          [--evidence DIR] [--json]\n\n"
                "Lists the records of the inspection log that match every filter given, oldest\n"
                "first: a table on stderr, or with --json one JSON object per record on stdout.\n\n"
-               "  --log DB          the log (default: the station's, see station inspect --help)\n"
+               "  --log DB          the log (default: the station's, see station inspect --help),\n"
+               "                    or the central database (postgresql://... or service=NAME)\n"
                "  --station ID      records of this station (and its default log)\n"
+               "  --line L          records of the stations on this production line (central)\n"
+               "  --evidence DIR    evidence folder (central: where station sync --evidence-to\n"
+               "                    copied it, DIR/STATION/...)\n"
                "  --from UTC        from this time on, ISO 8601 UTC (2026-12-01 or 2026-12-01T08:00)\n"
                "  --to UTC          before this time\n"
                "  --verdict V       PASS, FAIL or NO_VERDICT\n"
@@ -56,7 +61,7 @@ static void print_row(const struct log_record *r)
     char why[80];
     reasons_text(r->reasons_json, why, sizeof why);
     fprintf(stderr, "%8lld  %-24s %-12s %-10s %-12s %-12s %s\n", (long long)r->seq, r->utc,
-            r->station, judge_verdict_name(r->verdict),
+            r->chain_station, judge_verdict_name(r->verdict),
             r->has_disposition ? log_disp_name(r->disp.disp) : "-", r->serial[0] ? r->serial : "-",
             why);
 }
@@ -73,16 +78,19 @@ int audit_list(int argc, char **argv)
         {"verdict", required_argument, NULL, 'v'}, {"rejects", no_argument, NULL, 'r'},
         {"class", required_argument, NULL, 'c'},   {"zone", required_argument, NULL, 'z'},
         {"recipe", required_argument, NULL, 'R'},  {"disposition", required_argument, NULL, 'd'},
-        {"json", no_argument, NULL, 'j'},          {0, 0, 0, 0}};
+        {"json", no_argument, NULL, 'j'},          {"line", required_argument, NULL, 'L'},
+        {"evidence", required_argument, NULL, 'e'}, {0, 0, 0, 0}};
     struct log_filter f;
     log_filter_init(&f);
-    const char *db_path = NULL;
+    struct audit_source src = {0};
     int json = 0, c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
-        case 'l': db_path = optarg; break;
-        case 's': f.station = optarg; break;
+        case 'l': src.log = optarg; break;
+        case 's': f.station = src.station = optarg; break;
+        case 'L': f.line = optarg; break;
+        case 'e': src.evidence = optarg; break;
         case 'f': f.from_utc = optarg; break;
         case 't': f.to_utc = optarg; break;
         case 'r': f.rejects = 1; break;
@@ -111,7 +119,7 @@ int audit_list(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(db_path, f.station, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct err e;
     err_clear(&e);

@@ -244,6 +244,60 @@ static void bucket_table(FILE *f, const char *title, const json_t *a)
     fputs("</table>\n", f);
 }
 
+/* One row of the stations table: st has records, verdicts; rejects and
+ * the audit's false_reject are passed, as the total keeps them elsewhere. */
+static void station_row(FILE *f, const char *station, const char *line, const json_t *st,
+                        long long rejects, const json_t *fr)
+{
+    const json_t *v = json_object_get(st, "verdicts");
+    long long n = num(st, "records");
+    fputs("<tr><td>", f);
+    esc(f, station);
+    fputs("</td><td>", f);
+    esc(f, line && *line ? line : "-");
+    fprintf(f, "</td><td>%lld</td><td>%lld</td><td>%lld</td><td>%lld</td><td>%lld</td>", n,
+            num(v, "PASS"), num(v, "FAIL"), num(v, "NO_VERDICT"), rejects);
+    if (n > 0)
+        fprintf(f, "<td>%.2f%%</td>", 100.0 * (double)rejects / (double)n);
+    else
+        fputs("<td>-</td>", f);
+    if (json_is_real(json_object_get(fr, "rate")))
+        fprintf(f, "<td>%lld of %lld (%.1f%%)</td>", num(fr, "false_rejects"), num(fr, "audited"),
+                100 * real(fr, "rate"));
+    else
+        fputs("<td>-</td>", f);
+    fputs("<td>", f);
+    if (*str(st, "public_key")) {
+        fputs("<code>", f);
+        esc(f, str(st, "public_key"));
+        fputs("</code>", f);
+    }
+    fputs("</td></tr>\n", f);
+}
+
+/* The stations side by side, with the total, when the log holds several. */
+static void stations_section(FILE *f, const json_t *st)
+{
+    const json_t *a = json_object_get(st, "stations");
+    if (json_array_size(a) < 2)
+        return;
+    fputs("<h2>Stations</h2>\n<table><tr><th>station</th><th>line</th><th>records</th>"
+          "<th>PASS</th><th>FAIL</th><th>NO VERDICT</th><th>rejects</th><th>reject rate</th>"
+          "<th>false rejects (audited)</th><th>public key</th></tr>\n",
+          f);
+    size_t i;
+    json_t *s;
+    json_array_foreach(a, i, s)
+    {
+        const json_t *au = json_object_get(s, "audit");
+        station_row(f, str(s, "station"), str(s, "line"), s, num(s, "rejects"),
+                    json_object_get(au, "false_reject"));
+    }
+    const json_t *au = json_object_get(st, "audit");
+    station_row(f, "total", "", st, num(au, "rejects"), json_object_get(au, "false_reject"));
+    fputs("</table>\n", f);
+}
+
 static void pchart_section(FILE *f, const json_t *pc)
 {
     fputs("<h2>Reject rate</h2>\n", f);
@@ -429,7 +483,9 @@ int audit_report_html(FILE *f, const char *source, const json_t *st,
     fputs("<table><tr><th></th><th>PASS</th><th>FAIL</th><th>NO VERDICT</th><th>total</th></tr>\n",
           f);
     verdict_row(f, "all", json_object_get(st, "verdicts"));
-    fputs("</table>\n<h2>Per day</h2>\n", f);
+    fputs("</table>\n", f);
+    stations_section(f, st);
+    fputs("<h2>Per day</h2>\n", f);
     bucket_table(f, "day", json_object_get(st, "days"));
     fputs("<h2>Per shift</h2>\n", f);
     bucket_table(f, "shift (day it began, start)", json_object_get(st, "shifts"));

@@ -13,12 +13,16 @@
 
 static void usage(FILE *f)
 {
-    fprintf(f, "usage: station audit show SEQ [--log DB] [--station ID] [--json] [--view]\n\n"
+    fprintf(f, "usage: station audit show SEQ [--log DB] [--station ID] [--evidence DIR] [--json]\n"
+               "                              [--view]\n\n"
                "Shows one record of the inspection log: when and where it was inspected, the\n"
                "recipe and model it was judged with, the verdict and its reasons, the measured\n"
                "regions, the evidence files and every disposition.  Text on stderr, or with\n"
                "--json one JSON object on stdout.  --view then opens the evidence in a window\n"
                "when a display is present (as `station audit view SEQ` does).\n\n"
+               "On the central database (--log postgresql://... or service=NAME) sequence\n"
+               "numbers are per station: --station names it when several are held, and\n"
+               "--evidence DIR finds the files station sync --evidence-to copied.\n\n"
                "%s\n",
             CLI_CAUTION);
 }
@@ -40,6 +44,9 @@ static void print_json_list(const char *title, const char *text)
 static void print_record(struct log_db *db, const struct log_record *r,
                          const struct log_disposition *d, int nd)
 {
+    if (strcmp(r->chain_station, r->station))
+        fprintf(stderr, "log of station %s%s%s\n", r->chain_station, r->line[0] ? ", line " : "",
+                r->line);
     fprintf(stderr,
             "record %lld  %s  station %s  operator %s  serial %s\n"
             "recipe %s version %d  sha256 %s\nmodel sha256 %s  scale %s\n"
@@ -52,10 +59,12 @@ static void print_record(struct log_db *db, const struct log_record *r,
     fprintf(stderr, "evidence (%d):\n", r->nevidence);
     for (int i = 0; i < r->nevidence; i++) {
         char path[PATH_MAX];
-        if (log_evidence_path(db, r->ev[i].name, path, sizeof path, NULL))
+        if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, NULL))
             path[0] = '\0';
-        fprintf(stderr, "  %-8s %s%s\n", r->ev[i].kind, path,
-                r->ev[i].purged ? "  (deleted by the evidence budget)" : "");
+        fprintf(stderr, "  %-8s %s%s\n", r->ev[i].kind, path[0] ? path : r->ev[i].name,
+                r->ev[i].purged ? "  (deleted by the evidence budget)"
+                : path[0]       ? ""
+                                : "  (not available here: --evidence DIR)");
     }
     fprintf(stderr, "dispositions (%d):\n", nd);
     for (int i = 0; i < nd; i++)
@@ -74,14 +83,16 @@ int audit_show(int argc, char **argv)
                                          {"station", required_argument, NULL, 's'},
                                          {"json", no_argument, NULL, 'j'},
                                          {"view", no_argument, NULL, 'v'},
+                                         {"evidence", required_argument, NULL, 'e'},
                                          {0, 0, 0, 0}};
-    const char *db_path = NULL, *station = NULL;
+    struct audit_source src = {.scope = 1};
     int json = 0, view = 0, c;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         switch (c) {
-        case 'l': db_path = optarg; break;
-        case 's': station = optarg; break;
+        case 'l': src.log = optarg; break;
+        case 's': src.station = optarg; break;
+        case 'e': src.evidence = optarg; break;
         case 'j': json = 1; break;
         case 'v': view = 1; break;
         default: usage(stderr); return EXIT_USAGE;
@@ -93,7 +104,7 @@ int audit_show(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(db_path, station, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct err e;
     err_clear(&e);

@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "audit.h"
+#include "audit_compare.h"
 #include "audit_csv.h"
 #include "audit_report.h"
 #include "audit_stats.h"
@@ -19,17 +20,22 @@
 enum { V_STATS = 1, V_REPORT = 2, V_EXPORT = 4 };
 
 struct verb_opts {
-    const char *log, *from, *to, *station, *recipe, *out;
+    const char *log, *from, *to, *station, *recipe, *line, *evidence, *out;
     struct qstats_shifts shifts;
     int by_shift, json, thumbs;
 };
 
 static const char FILTER_HELP[] =
-    "  --log DB          the station's log (default: the default station's)\n"
+    "  --log DB          the station's log (default: the default station's), or the\n"
+    "                    central database (postgresql://..., service=NAME) of many\n"
     "  --from DATE       first UTC time included, an ISO 8601 prefix (2026-12-01)\n"
     "  --to DATE         first UTC time excluded\n"
     "  --station ID      records of this station only (and its default log)\n"
+    "  --line L          records of the stations on this production line (central)\n"
     "  --recipe ID       records of this recipe only\n";
+static const char EVIDENCE_HELP[] =
+    "  --evidence DIR    evidence folder (central: where station sync --evidence-to\n"
+    "                    copied it, DIR/STATION/...)\n";
 static const char COUNT_HELP[] =
     "  --shifts H,H,...  shift start hours, ascending (default " DEFAULT_SHIFTS "); hours\n"
     "                    before the first belong to the previous day's last shift\n"
@@ -43,15 +49,18 @@ static void usage(FILE *f, int verb)
                    "Counts per verdict, day and shift; the reject rate on a p-chart; the\n"
                    "Pareto of reasons; the false-reject rate among audited rejects with its\n"
                    "exact 95%% interval; Cohen's kappa between station and auditor.  Text on\n"
-                   "stderr, or one JSON object on stdout with --json.\n\n%s%s"
+                   "stderr, or one JSON object on stdout with --json.  A log of several\n"
+                   "stations (the central database) also gets each station's counts and reject\n"
+                   "rate side by side with the total (JSON \"stations\").\n\n%s%s"
                    "  --json            the figures as one JSON line on stdout\n",
                 FILTER_HELP, COUNT_HELP);
     else if (verb == V_REPORT)
         fprintf(f, "usage: station audit report --out FILE.html [OPTIONS]\n\n"
                    "One self-contained HTML page: the figures of `audit stats`, the p-chart\n"
-                   "and Pareto charts, and thumbnails of the newest rejects' overlays.\n\n%s%s"
+                   "and Pareto charts, the stations side by side when there are several, and\n"
+                   "thumbnails of the newest rejects' overlays.\n\n%s%s%s"
                    "  --thumbs N        rejects shown as thumbnails (default %d, 0 none)\n",
-                FILTER_HELP, COUNT_HELP, DEFAULT_THUMBS);
+                FILTER_HELP, EVIDENCE_HELP, COUNT_HELP, DEFAULT_THUMBS);
     else
         fprintf(f, "usage: station audit export --out FILE.csv [OPTIONS]\n\n"
                    "The selected records as CSV (RFC 4180), one row each: " AUDIT_CSV_COLUMNS
@@ -79,7 +88,8 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
         {"recipe", required_argument, NULL, 'r'},  {"out", required_argument, NULL, 'o'},
         {"shifts", required_argument, NULL, 'S'},  {"utc-offset", required_argument, NULL, 'u'},
         {"by", required_argument, NULL, 'b'},      {"json", no_argument, NULL, 'j'},
-        {"thumbs", required_argument, NULL, 'n'},  {0, 0, 0, 0}};
+        {"thumbs", required_argument, NULL, 'n'},  {"line", required_argument, NULL, 'L'},
+        {"evidence", required_argument, NULL, 'e'}, {0, 0, 0, 0}};
     memset(o, 0, sizeof *o);
     o->thumbs = DEFAULT_THUMBS;
     const char *shifts = DEFAULT_SHIFTS;
@@ -93,6 +103,8 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
         case 't': o->to = optarg; break;
         case 's': o->station = optarg; break;
         case 'r': o->recipe = optarg; break;
+        case 'L': o->line = optarg; break;
+        case 'e': o->evidence = optarg; ok = verb == V_REPORT; break;
         case 'o': o->out = optarg; ok = verb != V_STATS; break;
         case 'S': shifts = optarg; ok = counting; break;
         case 'u': ok = counting && !parse_int_arg(optarg, -1440, 1440, &offset_min); break;
@@ -126,7 +138,8 @@ static int parse_opts(int argc, char **argv, int verb, struct verb_opts *o)
  * starts the filtered walk; 0 or an exit status. */
 static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_iter **it)
 {
-    if (audit_open_log(o->log, o->station, LOG_OPEN_READ, db))
+    struct audit_source src = {.log = o->log, .station = o->station, .evidence = o->evidence};
+    if (audit_open_source(&src, LOG_OPEN_READ, db))
         return EXIT_ERROR;
     struct log_filter f;
     log_filter_init(&f);
@@ -134,6 +147,7 @@ static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_i
     f.to_utc = o->to;
     f.station = o->station;
     f.recipe_id = o->recipe;
+    f.line = o->line;
     struct err e;
     err_clear(&e);
     if (log_iter_new(*db, &f, it, &e)) {
@@ -143,36 +157,60 @@ static int open_walk(const struct verb_opts *o, struct log_db **db, struct log_i
     return 0;
 }
 
-/* The newest rejects seen so far, kept in a ring of records whose contents
- * are swapped in from the walk's record (no copies of the heap strings). */
+/* The newest rejects seen so far, by time (a walk of the central database
+ * goes station by station, not in time order): when full, a newer record
+ * takes the place of the oldest kept.  Contents are swapped in from the
+ * walk's record (no copies of the heap strings). */
 struct ring {
     struct log_record *rec;
-    size_t cap, n, next;
+    size_t cap, n;
 };
+
+/* Time order; records of the same millisecond by sequence number. */
+static int newer(const struct log_record *a, const struct log_record *b)
+{
+    int c = strcmp(a->utc, b->utc);
+    return c ? c > 0 : a->seq > b->seq;
+}
 
 static void ring_take(struct ring *g, struct log_record *r)
 {
-    struct log_record tmp = g->rec[g->next];
-    g->rec[g->next] = *r;
-    *r = tmp;
-    g->next = (g->next + 1) % g->cap;
-    if (g->n < g->cap)
+    size_t at = g->n, i;
+    if (g->n == g->cap) {
+        for (at = 0, i = 1; i < g->n; i++)
+            if (newer(&g->rec[at], &g->rec[i]))
+                at = i;
+        if (!newer(r, &g->rec[at]))
+            return;
+    } else {
         g->n++;
+    }
+    struct log_record tmp = g->rec[at];
+    g->rec[at] = *r;
+    *r = tmp;
 }
 
-/* i = 0 is the newest. */
-static struct log_record *ring_get(struct ring *g, size_t i)
+static int by_newest(const void *a, const void *b)
 {
-    return &g->rec[(g->next + g->cap - 1 - i) % g->cap];
+    return newer(b, a) - newer(a, b);
 }
 
-static int walk(struct log_iter *it, struct audit_stats *st, struct ring *g, struct err *e)
+/* Newest first. */
+static void ring_sort(struct ring *g)
+{
+    qsort(g->rec, g->n, sizeof *g->rec, by_newest);
+}
+
+static int walk(struct log_iter *it, struct audit_stats *st, struct audit_compare *cmp,
+                struct ring *g, struct err *e)
 {
     struct log_record r;
     log_record_init(&r);
     int have = 1, rc = ST_OK;
     while (rc == ST_OK && (rc = log_iter_next(it, &r, &have, e)) == ST_OK && have) {
         rc = audit_stats_add(st, &r, e);
+        if (rc == ST_OK)
+            rc = audit_compare_add(cmp, &r, e);
         if (rc == ST_OK && g && g->cap && r.verdict != VERDICT_PASS)
             ring_take(g, &r);
     }
@@ -180,22 +218,49 @@ static int walk(struct log_iter *it, struct audit_stats *st, struct ring *g, str
     return rc;
 }
 
-/* Walks the selected records into the figures; 0 or an exit status.  g,
- * when not NULL, keeps the newest rejects. */
+/* Each station's public key beside its figures, so a reader can check a
+ * copy of its log (the report prints them). */
+static void add_keys(struct log_db *db, json_t *stations)
+{
+    struct log_station *st;
+    int n;
+    struct err e;
+    if (log_stations_get(db, &st, &n, &e))
+        return;
+    size_t i;
+    json_t *o;
+    json_array_foreach(stations, i, o)
+        for (int k = 0; k < n; k++)
+            if (st[k].public_key[0] &&
+                !strcmp(st[k].station, json_string_value(json_object_get(o, "station"))))
+                json_object_set_new(o, "public_key", json_string(st[k].public_key));
+    log_stations_free(st);
+}
+
+/* Walks the selected records into the figures, the total and each
+ * station's ("stations"); 0 or an exit status.  g, when not NULL, keeps the
+ * newest rejects. */
 static int gather(const struct verb_opts *o, struct log_db **db, struct ring *g, json_t **js)
 {
     struct log_iter *it = NULL;
     struct audit_stats st;
+    struct audit_compare cmp;
     struct err e;
     err_clear(&e);
     int rc = open_walk(o, db, &it);
     if (rc)
         return rc;
-    if (audit_stats_init(&st, &o->shifts, &e) || walk(it, &st, g, &e) ||
-        !(*js = audit_stats_json(&st, o->by_shift))) {
+    audit_compare_init(&cmp, &o->shifts);
+    json_t *per = NULL;
+    if (audit_stats_init(&st, &o->shifts, &e) || walk(it, &st, &cmp, g, &e) ||
+        !(*js = audit_stats_json(&st, o->by_shift)) || !(per = audit_compare_json(&cmp)) ||
+        json_object_set_new(*js, "stations", per)) {
         cli_say("%s", e.msg[0] ? e.msg : "audit: out of memory");
         rc = EXIT_ERROR;
+    } else {
+        add_keys(*db, per);
     }
+    audit_compare_clear(&cmp);
     audit_stats_clear(&st);
     log_iter_free(it);
     return rc;
@@ -220,6 +285,7 @@ int audit_cmd_stats(int argc, char **argv)
     if (o.json) {
         cli_emit(js);
     } else {
+        audit_compare_print(stderr, json_object_get(js, "stations"), js);
         audit_stats_print(stderr, js);
         json_decref(js);
     }
@@ -326,7 +392,11 @@ static void load_thumb(struct log_db *db, const struct log_record *r, struct aud
         char path[4096];
         struct image *full = NULL;
         struct err e;
-        if (log_evidence_path(db, r->ev[i].name, path, sizeof path, &e) ||
+        if (!log_evidence_dir(db, r, path, sizeof path)) {
+            t->note = "evidence not available here (--evidence DIR)";
+            return;
+        }
+        if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
             pngio_load_rgb(path, &full, &e)) {
             t->note = "overlay file missing or unreadable (run audit verify)";
             return;
@@ -355,7 +425,7 @@ int audit_cmd_report(int argc, char **argv)
     struct log_db *db = NULL;
     json_t *js = NULL;
     size_t cap = (size_t)o.thumbs;
-    struct ring g = {calloc(cap + 1, sizeof(struct log_record)), cap, 0, 0};
+    struct ring g = {calloc(cap + 1, sizeof(struct log_record)), cap, 0};
     struct audit_thumb *thumbs = calloc(cap + 1, sizeof *thumbs);
     struct image **imgs = calloc(cap + 1, sizeof *imgs);
     if (!g.rec || !thumbs || !imgs) {
@@ -367,18 +437,20 @@ int audit_cmd_report(int argc, char **argv)
         log_record_init(&g.rec[i]);
     if ((rc = gather(&o, &db, &g, &js)) != 0)
         goto done;
+    ring_sort(&g);
     for (size_t i = 0; i < g.n; i++)
-        load_thumb(db, ring_get(&g, i), &thumbs[i], &imgs[i]);
+        load_thumb(db, &g.rec[i], &thumbs[i], &imgs[i]);
     /* the key the log is signed with, so a reader can check a copy of it */
     struct log_signing sg;
     if (!log_signing_get(db, &sg, &e) && sg.present)
         json_object_set_new(js, "public_key", json_string(sg.public_key));
     /* the page names its selection, so a printed copy says what it covers */
     char source[1024];
-    snprintf(source, sizeof source, "%s%s%s%s%s%s%s%s%s", log_path(db), o.from ? ", from " : "",
-             o.from ? o.from : "", o.to ? ", before " : "", o.to ? o.to : "",
-             o.station ? ", station " : "", o.station ? o.station : "",
-             o.recipe ? ", recipe " : "", o.recipe ? o.recipe : "");
+    snprintf(source, sizeof source, "%s%s%s%s%s%s%s%s%s%s%s", log_path(db),
+             o.from ? ", from " : "", o.from ? o.from : "", o.to ? ", before " : "",
+             o.to ? o.to : "", o.station ? ", station " : "", o.station ? o.station : "",
+             o.line ? ", line " : "", o.line ? o.line : "", o.recipe ? ", recipe " : "",
+             o.recipe ? o.recipe : "");
     struct report_ctx c = {source, js, thumbs, g.n};
     if (write_atomic(o.out, write_html, &c, &e)) {
         cli_say("%s", e.msg);

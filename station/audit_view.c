@@ -13,12 +13,14 @@
 static void view_usage(FILE *f)
 {
     fprintf(f, "usage: station audit view SEQ [--log DB] [--station ID] [--mode side|frame|overlay]\n"
-               "                         [--screenshot FILE.png]\n\n"
+               "                         [--evidence DIR] [--screenshot FILE.png]\n\n"
                "Shows record SEQ's evidence in a window: the original frame and the overlay\n"
                "side by side.  Keys: Tab or Space cycles side by side, frame, overlay; 1, 2, 3\n"
                "choose; q or Escape quits.  --screenshot renders once into FILE.png and exits\n"
                "(works without a display under SDL_VIDEODRIVER=dummy).  `audit verify` checks the\n"
-               "files against their hashes; the viewer only shows them.\n\n%s\n",
+               "files against their hashes; the viewer only shows them.  On the central\n"
+               "database --station names the station when several are held and --evidence DIR\n"
+               "is where station sync --evidence-to copied the files.\n\n%s\n",
             CLI_CAUTION);
 }
 
@@ -38,7 +40,7 @@ static int load_evidence(struct log_db *db, const struct log_record *r, struct i
                     r->ev[i].kind);
             return EXIT_ERROR;
         }
-        if (log_evidence_path(db, r->ev[i].name, path, sizeof path, &e) ||
+        if (log_record_evidence_path(db, r, r->ev[i].name, path, sizeof path, &e) ||
             pngio_load_rgb(path, dst, &e)) {
             cli_say("%s", e.msg);
             return EXIT_ERROR;
@@ -83,16 +85,20 @@ int audit_cmd_view(int argc, char **argv)
                                          {"station", required_argument, NULL, 's'},
                                          {"mode", required_argument, NULL, 'm'},
                                          {"screenshot", required_argument, NULL, 'p'},
+                                         {"evidence", required_argument, NULL, 'e'},
                                          {0, 0, 0, 0}};
     static const char *modes[VIEWER_NMODES] = {"side", "frame", "overlay"};
-    const char *log = NULL, *station = NULL, *shot = NULL;
+    struct audit_source src = {.scope = 1};
+    const char *shot = NULL;
     int c, mode = -1;
     optind = 1;
     while ((c = getopt_long(argc, argv, "", opts, NULL)) != -1) {
         if (c == 'l')
-            log = optarg;
+            src.log = optarg;
         else if (c == 's')
-            station = optarg;
+            src.station = optarg;
+        else if (c == 'e')
+            src.evidence = optarg;
         else if (c == 'p')
             shot = optarg;
         else if (c == 'm')
@@ -109,7 +115,7 @@ int audit_cmd_view(int argc, char **argv)
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
-    if (audit_open_log(log, station, LOG_OPEN_READ, &db))
+    if (audit_open_source(&src, LOG_OPEN_READ, &db))
         return EXIT_ERROR;
     struct log_record r;
     log_record_init(&r);

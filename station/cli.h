@@ -57,6 +57,7 @@ int cmd_audit(int argc, char **argv);
 int cmd_run(int argc, char **argv);
 int cmd_label(int argc, char **argv);
 int cmd_capture(int argc, char **argv);
+int cmd_sync(int argc, char **argv);
 
 /* Option values: a positive (or, with zero_ok, non-negative) number, and
  * WxH with sides 64..8192; on a bad value they say so naming opt and

@@ -27,7 +27,9 @@ static void usage(FILE *f)
     fprintf(f, "usage: station audit VERB [OPTIONS]   (station audit VERB --help for details)\n\n");
     for (size_t i = 0; i < sizeof verbs / sizeof verbs[0]; i++)
         fprintf(f, "  %-8s %s\n", verbs[i].name, verbs[i].what);
-    fprintf(f, "\nEvery verb takes --log DB (default: the station's log, chosen with --station).\n"
+    fprintf(f, "\nEvery verb takes --log DB (default: the station's log, chosen with --station);\n"
+               "the verbs that read also take the central database (postgresql://... or\n"
+               "service=NAME), filtered by --station, --line and --recipe.\n"
                "%s\n",
             CLI_CAUTION);
 }

@@ -24,7 +24,8 @@ static void scale_usage(FILE *f)
             "centre, the image-to-plane homography, the camera's tilt and the reprojection\n"
             "error. The first image must show the target lying where the part lies; with 3\n"
             "or more images (the target tilted differently in each) the lens is calibrated\n"
-            "too. One JSON line on stdout, the results for a person on stderr.\n\n"
+            "too, and the scale then applies to lens-corrected pixels, so measurements near\n"
+            "the frame's edges are corrected for the lens's bending. One JSON line on stdout, the results for a person on stderr.\n\n"
             "  --board COLSxROWS  inner corners, e.g. 9x6\n"
             "  --square MM        printed square size, measured with a caliper\n"
             "  --out FILE         calibration file to write (default calibration.json)\n"
@@ -60,8 +61,11 @@ static void report(const struct calfile *c, const char *out, double ms)
             c->views == 1 ? "" : "s", c->tilt_deg, c->rms_px, c->rms_mm, c->worst_px,
             c->worst_mm);
     if (c->has_lens)
-        fprintf(stderr, "lens fx %.2f fy %.2f cx %.2f cy %.2f px, k1 %.4f k2 %.4f, RMS %.3f px\n",
-                c->fx, c->fy, c->cx, c->cy, c->k1, c->k2, c->lens_rms_px);
+        fprintf(stderr,
+                "lens fx %.2f fy %.2f cx %.2f cy %.2f px, k1 %.4f k2 %.4f, RMS %.3f px; the "
+                "scale applies to lens-corrected pixels\n",
+                c->lens.fx, c->lens.fy, c->lens.cx, c->lens.cy, c->lens.k1, c->lens.k2,
+                c->lens_rms_px);
     fprintf(stderr, "written %s, valid %d days (%.0f ms)\n", out, c->valid_days, ms);
     char when[32];
     calfile_format_time(c->created, when, sizeof when);
@@ -72,10 +76,7 @@ static void report(const struct calfile *c, const char *out, double ms)
                           c->worst_mm, "views", c->views, "created", when, "valid_days",
                           c->valid_days, "time_ms", ms);
     if (o && c->has_lens)
-        json_object_set_new(o, "lens",
-                            json_pack("{s:f,s:f,s:f,s:f,s:f,s:f,s:f}", "fx", c->fx, "fy", c->fy,
-                                      "cx", c->cx, "cy", c->cy, "k1", c->k1, "k2", c->k2,
-                                      "rms_px", c->lens_rms_px));
+        json_object_set_new(o, "lens", calfile_lens_json(c));
     json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(8));
     fputc('\n', stdout);
     fflush(stdout);

@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "forwarder.h"
 #include "live.h"
 #include "logbook.h"
 #include "trigger.h"
@@ -16,7 +17,8 @@ static void usage(FILE *f)
             "                  [--headless] [--trigger key|auto|continuous] [--fps F]\n"
             "                  [--size WxH] [--seed N] [--loop] [--inspections N] [--frames N]\n"
             "                  [--log DB] [--station ID] [--operator ID] [--serial S]\n"
-            "                  [--evidence-budget MB] [--snapshot FILE]\n\n"
+            "                  [--evidence-budget MB] [--snapshot FILE]\n"
+            "                  [--sync-to CONNINFO [--sync-every S] [--sync-line LINE]]\n\n"
             "The live station: a live picture, an inspection per part, every verdict\n"
             "recorded in the log before it is shown.\n\n"
             "  --source SPEC   camera:/dev/videoN (V4L2 through libv4l2), replay:DIR (its PNG\n"
@@ -41,11 +43,17 @@ static void usage(FILE *f)
             "                  the inspection it was recorded with)\n"
             "  --evidence-budget MB  disk budget for evidence; oldest PASS evidence goes first\n"
             "  --snapshot FILE write the screen as PNG after each shown verdict (F12 too)\n"
-            "  --allow-offscreen  accept SDL's offscreen and dummy video drivers (tests)\n\n"
+            "  --allow-offscreen  accept SDL's offscreen and dummy video drivers (tests)\n"
+            "  --sync-to CONNINFO forward the log to the central PostgreSQL database in the\n"
+            "                  background (as station sync; no password in CONNINFO: use\n"
+            "                  PGPASSFILE, a service file or PGPASSWORD); failures are retried\n"
+            "                  and never stop inspection\n"
+            "  --sync-every S  seconds between forwards (default %.0f)\n"
+            "  --sync-line LINE the production line the station belongs to\n\n"
             "A verdict the log cannot record halts inspection until the log works again.\n"
             "Exit status: 0 all PASS, 1 any FAIL, 2 any NO_VERDICT, 3 error, 4 usage.\n"
             "%s\n",
-            LOGBOOK_DEFAULT_STATION, CLI_CAUTION);
+            LOGBOOK_DEFAULT_STATION, FORWARDER_EVERY_DEFAULT, CLI_CAUTION);
 }
 
 int cmd_run(int argc, char **argv)
@@ -65,6 +73,9 @@ int cmd_run(int argc, char **argv)
         {"evidence-budget", required_argument, NULL, 'b'},
         {"snapshot", required_argument, NULL, 'o'},
         {"allow-offscreen", no_argument, NULL, 'A'},
+        {"sync-to", required_argument, NULL, 'T'},
+        {"sync-every", required_argument, NULL, 'E'},
+        {"sync-line", required_argument, NULL, 'N'},
         {0, 0, 0, 0}};
     struct live_options o;
     live_options_init(&o);
@@ -93,6 +104,12 @@ int cmd_run(int argc, char **argv)
             if (cli_number("--evidence-budget", optarg, &o.budget_mb, 0))
                 return EXIT_USAGE;
             break;
+        case 'T': o.sync_to = optarg; break;
+        case 'E':
+            if (cli_number("--sync-every", optarg, &o.sync_every, 0))
+                return EXIT_USAGE;
+            break;
+        case 'N': o.sync_line = optarg; break;
         default: {
             int got = live_parse_option(c, optarg, &o);
             if (got != 1) {

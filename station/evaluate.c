@@ -41,7 +41,7 @@ static int write_sheet(struct inspector *in, const struct image *img, const stru
     int rc = e->code;
     if (p) {
         const struct image *parts[3] = {img, t, p};
-        struct image *s = overlay_side_by_side(parts, 3, e);
+        struct image *s = overlay_side_by_side(parts, 3, 4, 255, e);
         rc = s ? pngio_save(path, s, 3, e) : e->code;
         image_free(s);
     }

@@ -12,6 +12,8 @@
 #include "capture.h"
 #include "cli.h"
 #include "core/judge.h"
+#include "core/logpg.h"
+#include "forwarder.h"
 #include "screen.h"
 #include "trigger.h"
 #include "worker.h"
@@ -61,6 +63,8 @@ struct live {
     long snapshots;
     struct capture cap;          /* capture mode (o->capture_dir) */
     struct err cap_err;          /* a frame that could not be saved stops capture */
+    struct forwarder *fwd;       /* sync_to: background forwarding */
+    char sync_state[96];         /* its last outcome, for the status line */
 };
 
 static void event(const char *name, const char *key, const char *value)
@@ -210,7 +214,28 @@ static void set_status(struct live *L)
                     : v.present && L->o->capture_dir ? "saved: take the part off"
                     : v.present                ? "inspected: take the part off"
                                                : "waiting for a part";
-    snprintf(L->st.status, sizeof L->st.status, "%s", s);
+    snprintf(L->st.status, sizeof L->st.status, "%s%s%s", s, L->sync_state[0] ? " · " : "",
+             L->sync_state);
+}
+
+static void take_forwarding(struct live *L)
+{
+    struct forward_event ev;
+    while (L->fwd && forwarder_poll(L->fwd, &ev)) {
+        if (ev.kind == FORWARD_SYNCED) {
+            cli_emit(json_pack("{s:s,s:I,s:I,s:I,s:I}", "event", "synced", "records",
+                               (json_int_t)ev.records, "dispositions", (json_int_t)ev.dispositions,
+                               "verifications", (json_int_t)ev.verifications, "held",
+                               (json_int_t)ev.held));
+            snprintf(L->sync_state, sizeof L->sync_state, "central: %lld held",
+                     (long long)ev.held);
+        } else {
+            cli_emit(json_pack("{s:s,s:s,s:i}", "event", "sync_failed", "reason", ev.message,
+                               "retry_s", ev.retry_s));
+            snprintf(L->sync_state, sizeof L->sync_state, "central: not reached, retry in %d s",
+                     ev.retry_s);
+        }
+    }
 }
 
 static void snapshot(struct live *L)
@@ -436,6 +461,7 @@ static int step(struct live *L, struct err *e)
     struct result res;
     while (L->w && worker_poll(L->w, &res))
         take_result(L, &res);
+    take_forwarding(L);
     if (L->has_pending && !L->quit && worker_submit(L->w, &L->pending))
         L->has_pending = 0;
     if (L->cap_err.code)
@@ -540,6 +566,12 @@ int live_options_check(const struct live_options *o)
         cli_say("--snapshot needs the screen: it cannot go with --headless");
         return -1;
     }
+    struct err e;
+    err_clear(&e);
+    if (o->sync_to && logpg_conninfo_check(o->sync_to, &e)) {
+        cli_say("--sync-to: %s", e.msg);
+        return -1;
+    }
     return 0;
 }
 
@@ -558,6 +590,12 @@ static int open_all(struct live *L, struct err *e)
         rc = capture_open(&L->cap, o->capture_dir, e);
     else if (!rc)
         rc = worker_start(&L->r, &wo, &L->w, e);
+    if (!rc && o->sync_to) {
+        /* started after the worker, which creates the log the forwarder reads */
+        struct forwarder_options fo = {o->sync_to, worker_log_path(L->w), o->station,
+                                       o->sync_line, o->sync_every};
+        rc = forwarder_start(&fo, &L->fwd, e);
+    }
     if (!rc && !o->headless) {
         struct screen_options sopt;
         screen_options_init(&sopt);
@@ -611,6 +649,9 @@ int live_run(const struct live_options *o)
     }
     if (rc)
         cli_say("%s", e.msg);
+    take_forwarding(L);
+    forwarder_stop(L->fwd);
+    L->fwd = NULL;
     if (L->w) {
         /* the job in hand is being recorded: its verdict is still shown */
         struct result res;

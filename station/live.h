@@ -29,6 +29,12 @@
  * that frame), for at most 10 s.  A signal (SIGINT, SIGTERM) finishes only
  * the record in hand.
  *
+ * Forwarding (sync_to set): a forwarder thread (station/forwarder.h) sends
+ * the log to the central database in the background; its outcomes are event
+ * lines {"event": "synced", "records", "held"} and {"event": "sync_failed",
+ * "reason", "retry_s"}, and the screen's status line ends in the central
+ * copy's state.  Inspection never waits on it.
+ *
  * Capture mode (capture_dir set, `station capture`): the same source,
  * trigger and screen, but no worker, no model and no log: each trigger
  * (key, or the automatic part trigger) saves the frame into the dataset
@@ -54,6 +60,9 @@ struct live_options {
     double budget_mb;
     int retry_ms;                /* log retries while halted */
     const char *capture_dir;     /* capture mode: save triggered frames here */
+    const char *sync_to;         /* forward the log to this central database (forwarder.h) */
+    const char *sync_line;       /* the station's production line there; NULL: as held */
+    double sync_every;           /* seconds between syncs; 0: FORWARDER_EVERY_DEFAULT */
 };
 void live_options_init(struct live_options *o);
 

@@ -11,7 +11,7 @@ static const struct {
     const char *name;
     int (*run)(int, char **);
     const char *what;
-    int boosts; /* trains through XGBoost (see passive_waits) */
+    int boosts; /* trains through XGBoost (see waits_narrow) */
 } commands[] = {
     {"demo", cmd_demo, "render the demo product, train, evaluate and inspect it end to end", 1},
     {"train", cmd_train, "train a recipe's pixel classifier on a labelled dataset", 1},
@@ -24,6 +24,7 @@ static const struct {
     {"label", cmd_label, "paint class labels over a dataset's images; quick model preview", 1},
     {"verify", cmd_verify, "run the recipe's master parts: does each get its verdict?", 0},
     {"bench", cmd_bench, "time each inspection stage (used by make bench)", 0},
+    {"sync", cmd_sync, "forward the log to the site's central PostgreSQL database", 0},
     {"audit", cmd_audit, "audit the inspection log: list, show, dispose, verify, stats, report, export, view", 0},
 };
 

@@ -15,16 +15,17 @@
 #include <SDL.h>
 #include <stdint.h>
 
+#include "core/palette.h"
 #include "screen_layout.h"
 
-/* Okabe & Ito 2008 */
-#define SCREEN_RGB_GREEN {0, 158, 115}      /* bluish green: PASS */
-#define SCREEN_RGB_VERMILION {213, 94, 0}   /* FAIL, over a limit */
-#define SCREEN_RGB_YELLOW {240, 228, 66}    /* NO VERDICT */
-#define SCREEN_RGB_PURPLE {204, 121, 167}   /* reddish purple: inspection halted */
-#define SCREEN_RGB_ORANGE {230, 159, 0}     /* camera lost */
-#define SCREEN_RGB_SKY {86, 180, 233}       /* bars within limits, the field typed into */
-#define SCREEN_RGB_BLACK {0, 0, 0}
+/* Okabe & Ito 2008, shared with the overlay (core/palette.h) */
+#define SCREEN_RGB_GREEN PALETTE_GREEN
+#define SCREEN_RGB_VERMILION PALETTE_VERMILION
+#define SCREEN_RGB_YELLOW PALETTE_YELLOW
+#define SCREEN_RGB_PURPLE PALETTE_PURPLE
+#define SCREEN_RGB_ORANGE PALETTE_ORANGE
+#define SCREEN_RGB_SKY PALETTE_SKY
+#define SCREEN_RGB_BLACK PALETTE_INK
 /* our own greys for the frame around the colours */
 #define SCREEN_RGB_WAITING {140, 140, 140}  /* no verdict shown yet (6.2:1 to black) */
 #define SCREEN_RGB_BACK {30, 30, 30}

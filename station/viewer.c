@@ -4,6 +4,7 @@
 #include <string.h>
 
 #include "audit_report.h"
+#include "core/overlay.h"
 #include "core/pngio.h"
 
 int viewer_key(int mode, int key)
@@ -18,13 +19,6 @@ int viewer_key(int mode, int key)
     case SDLK_3: return VIEWER_OVERLAY;
     default: return mode;
     }
-}
-
-static void blit(struct image *dst, const struct image *src, int x0)
-{
-    for (int y = 0; y < src->h; y++)
-        memcpy(&dst->px[((size_t)y * dst->w + x0) * 3], &src->px[(size_t)y * src->w * 3],
-               (size_t)src->w * 3);
 }
 
 /* img itself when it fits the window limits, else a downscaled copy (img
@@ -55,13 +49,9 @@ struct image *viewer_compose(const struct image *frame, const struct image *over
         mode = VIEWER_FRAME;
     if (mode != VIEWER_SIDE)
         return fit(image_clone(mode == VIEWER_FRAME ? frame : overlay, e), e);
-    struct image *both = image_new(2 * frame->w + VIEWER_GAP, frame->h, 3, e);
-    if (!both)
-        return NULL;
-    memset(both->px, 96, (size_t)both->w * both->h * 3);
-    blit(both, frame, 0);
-    blit(both, overlay, frame->w + VIEWER_GAP);
-    return fit(both, e);
+    const struct image *pair[2] = {frame, overlay};
+    struct image *both = overlay_side_by_side(pair, 2, VIEWER_GAP, 96, e);
+    return both ? fit(both, e) : NULL;
 }
 
 struct view {

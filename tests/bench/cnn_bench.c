@@ -5,10 +5,13 @@
  *   cnn_bench --peak THREADS
  *
  * The first prints one line "cnn w=.. h=.. threads=.. gflop=.. ms_median=..
- * ms_min=..": the whole feature path from a prepared float frame to a
- * pixel-major stack of every channel of TENSOR at full resolution.  The
- * second prints "peak threads=.. gflops=..". tests/bench/cnn_bench.py runs
- * both beside torch. */
+ * ms_min=.. cpu_ms_median=.. cpu_ms_min=..": the whole feature path from a
+ * prepared float frame to a pixel-major stack of every channel of TENSOR at
+ * full resolution, in wall-clock time and in CPU time of all its threads.
+ * The second prints "peak threads=.. gflops=.. gflops_per_cpu_s=..": the
+ * rate over the wall clock, and per second of CPU time the threads got
+ * (what one core does while it runs, whatever else shares the machine).
+ * tests/bench/cnn_bench.py runs both beside torch. */
 #include <immintrin.h>
 #include <pthread.h>
 #include <stdio.h>
@@ -20,11 +23,16 @@
 #include "core/onnx.h"
 #include "../tools/toolarg.h"
 
-static double now_ms(void)
+static double clock_ms(clockid_t id)
 {
     struct timespec ts;
-    clock_gettime(CLOCK_MONOTONIC, &ts);
+    clock_gettime(id, &ts);
     return ts.tv_sec * 1e3 + ts.tv_nsec / 1e6;
+}
+
+static double now_ms(void)
+{
+    return clock_ms(CLOCK_MONOTONIC);
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -83,24 +91,35 @@ static int lanes(void)
     return __builtin_cpu_supports("avx512f") ? 16 : 8;
 }
 
+struct peak_run {
+    float sink;
+    double cpu_ms;
+};
+
 static void *peak_thread(void *arg)
 {
-    *(float *)arg = lanes() == 16 ? fma_loop512() : fma_loop256();
+    struct peak_run *r = arg;
+    double c0 = clock_ms(CLOCK_THREAD_CPUTIME_ID);
+    r->sink = lanes() == 16 ? fma_loop512() : fma_loop256();
+    r->cpu_ms = clock_ms(CLOCK_THREAD_CPUTIME_ID) - c0;
     return NULL;
 }
 
 static int peak(int threads)
 {
     pthread_t t[64];
-    float sink[64];
-    double t0 = now_ms();
+    struct peak_run r[64];
+    double t0 = now_ms(), cpu = 0;
     for (int i = 0; i < threads; i++)
-        pthread_create(&t[i], NULL, peak_thread, &sink[i]);
-    for (int i = 0; i < threads; i++)
+        pthread_create(&t[i], NULL, peak_thread, &r[i]);
+    for (int i = 0; i < threads; i++) {
         pthread_join(t[i], NULL);
+        cpu += r[i].cpu_ms;
+    }
     double ms = now_ms() - t0;
     double flop = 2.0 * PEAK_ITERS * PEAK_ACC * lanes() * threads;
-    printf("peak threads=%d lanes=%d gflops=%.1f (sink %g)\n", threads, lanes(), flop / ms / 1e6, sink[0]);
+    printf("peak threads=%d lanes=%d gflops=%.1f gflops_per_cpu_s=%.1f (sink %g)\n", threads, lanes(),
+           flop / ms / 1e6, flop / cpu / 1e6, r[0].sink);
     return 0;
 }
 
@@ -127,7 +146,7 @@ int main(int argc, char **argv)
     struct cnn_dest d = {.w = w, .h = h, .bf16 = bf16};
     struct cnn_net *net = cnn_net_new(g, 3, h, w, &d, threads, &e);
     float *in = malloc((size_t)w * h * 3 * sizeof *in), *out = malloc((size_t)w * h * oc * sizeof *out);
-    double *ms = malloc((size_t)reps * sizeof *ms);
+    double *ms = malloc((size_t)reps * 2 * sizeof *ms), *cpu = ms + reps;
     if (!net || !in || !out || !ms) {
         fprintf(stderr, "cnn_bench: %s\n", net ? "out of memory" : e.msg);
         return 3;
@@ -137,13 +156,16 @@ int main(int argc, char **argv)
         in[i] = (float)rand() / RAND_MAX - 0.5f;
     cnn_net_run(net, in, out, &e); /* warm: pages touched, code paged in */
     for (int r = 0; r < reps; r++) {
-        double t0 = now_ms();
+        double t0 = now_ms(), c0 = clock_ms(CLOCK_PROCESS_CPUTIME_ID);
         cnn_net_run(net, in, out, &e);
         ms[r] = now_ms() - t0;
+        cpu[r] = clock_ms(CLOCK_PROCESS_CPUTIME_ID) - c0;
     }
     qsort(ms, (size_t)reps, sizeof *ms, cmp_double);
-    printf("cnn w=%d h=%d threads=%d gflop=%.2f ms_median=%.1f ms_min=%.1f checksum=%g\n", w, h, threads,
-           2 * cnn_macs(g, 3, h, w) / 1e9, ms[reps / 2], ms[0], out[(size_t)w * h * oc / 2]);
+    qsort(cpu, (size_t)reps, sizeof *cpu, cmp_double);
+    printf("cnn w=%d h=%d threads=%d gflop=%.2f ms_median=%.1f ms_min=%.1f cpu_ms_median=%.1f cpu_ms_min=%.1f "
+           "checksum=%g\n", w, h, threads, 2 * cnn_macs(g, 3, h, w) / 1e9, ms[reps / 2], ms[0], cpu[reps / 2],
+           cpu[0], out[(size_t)w * h * oc / 2]);
     cnn_net_free(net);
     onnx_graph_free(g);
     onnx_model_free(m);

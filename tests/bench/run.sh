@@ -3,7 +3,9 @@
 # (same model, same features) and the same filter bank in OpenCV from Python,
 # and a Python peer of the whole inspection (torch CNN block 1 + XGBoost), the
 # filter floor, peak memory, training time and callgrind instruction counts;
-# then locating the part, painting its zones and drawing the overlay.
+# then locating the part, painting its zones and drawing the overlay; the
+# log, the audit, the live station, the screen, CNN features, and forwarding
+# to the central database.
 # Figures, not a test: nothing here passes or fails on speed.
 set -eu
 BUILD=${BUILD:-build}
@@ -94,3 +96,10 @@ echo "bench: the operator screen" >&2
 # A cut network as the feature extractor: VGG16 block 1 beside torch.
 echo "bench: CNN features (VGG16 block 1) beside torch" >&2
 "$PYTHON" tests/bench/cnn_bench.py "$BUILD" "${CNN_REPEAT:-7}"
+# Forwarding to the central PostgreSQL database: records per second, and the
+# catch-up of a station offline for 10 000 inspections.
+echo "bench: forwarding to the central database" >&2
+BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/sync_bench.sh || [ $? = 77 ]
+# The audit verbs on the central database beside the same verbs on a local log.
+echo "bench: the audit verbs on the central database" >&2
+BUILD="$BUILD" PYTHON="$PYTHON" sh tests/bench/central_bench.sh || [ $? = 77 ]

@@ -56,12 +56,13 @@ static struct calfile sample(void)
     c.square_mm = 4.5;
     c.views = 3;
     c.has_lens = 1;
-    c.fx = 1200.5;
-    c.fy = 1201.25;
-    c.cx = 320.5;
-    c.cy = 241;
-    c.k1 = -0.21;
-    c.k2 = 0.07;
+    c.lens.fx = 1200.5;
+    c.lens.fy = 1201.25;
+    c.lens.cx = 320.5;
+    c.lens.cy = 241;
+    c.lens.k1 = -0.21;
+    c.lens.k2 = 0.07;
+    c.lens_corrected = 1;
     c.lens_rms_px = 0.2;
     c.created = posix_seconds(2026, 334, 12, 34, 56); /* 2026-12-01 is day 334 */
     c.valid_days = 30;
@@ -84,7 +85,8 @@ static void test_round_trip(void **state)
         assert_true(d.image_to_plane[i] == c.image_to_plane[i]);
     assert_true(d.mm_per_px_x == c.mm_per_px_x && d.mm_per_px_y == c.mm_per_px_y);
     assert_true(d.worst_mm == c.worst_mm && d.rms_px == c.rms_px && d.tilt_deg == c.tilt_deg);
-    assert_true(d.has_lens && d.fx == c.fx && d.k2 == c.k2);
+    assert_true(d.has_lens && d.lens.fx == c.lens.fx && d.lens.k2 == c.lens.k2 &&
+                d.lens_corrected == c.lens_corrected);
     assert_int_equal(d.views, 3);
     assert_int_equal(d.valid_days, 30);
     assert_true(d.created == c.created);
@@ -129,7 +131,9 @@ static void test_refusals(void **state)
         const char *from, *to, *says;
         int code;
     } cases[] = {
-        {"\"format\": 1", "\"format\": 2", "newer than this station supports (1)", ST_EFORMAT},
+        {"\"format\": 2", "\"format\": 3", "newer than this station supports (2)", ST_EFORMAT},
+        {"\"corrected_pixels\": true", "\"corrected_pixels\": 1", "'lens.corrected_pixels'",
+         ST_EFORMAT},
         {"\"valid_days\": 30", "\"valid_days\": 0", "'valid_days' = 0 outside", ST_ERANGE},
         {"\"created\": \"2026-12-01T12:34:56Z\"", "\"created\": \"2026-02-30T12:34:56Z\"",
          "'created'", ST_EFORMAT},
@@ -148,6 +152,19 @@ static void test_refusals(void **state)
         if (rc != cases[i].code || !strstr(e.msg, cases[i].says) || !strstr(e.msg, "bad.json"))
             fail_msg("case %zu: rc %d, '%s'", i, rc, e.msg);
     }
+    /* a format 1 file's homography was fitted to the pixels as seen, so its
+     * lens is never applied before it, whatever else the file says */
+    char old[4096];
+    const char *at = strstr(text, "\"format\": 2");
+    assert_non_null(at);
+    snprintf(old, sizeof old, "%.*s\"format\": 1%s", (int)(at - text), text, at + 11);
+    path_in(p, sizeof p, "old.json");
+    f = fopen(p, "w");
+    fputs(old, f);
+    fclose(f);
+    assert_int_equal(calfile_load(p, &c, &e), ST_OK);
+    unlink(p);
+    assert_true(c.has_lens && c.lens.k1 == -0.21 && !c.lens_corrected);
     assert_int_equal(load_text("[1, 2]", &e), ST_EFORMAT);
     assert_int_equal(load_text("{\"format\": 1,", &e), ST_EFORMAT);
     assert_non_null(strstr(e.msg, "bad.json:"));
@@ -192,6 +209,13 @@ static void test_recipe_scale_one_way(void **state)
     struct regions_opts o;
     judge_regions_opts(r, NULL, &o);
     assert_non_null(o.image_to_plane);
+    /* the lens goes with a homography fitted to corrected pixels, and only then */
+    assert_true(o.lens && o.lens->k1 == c.lens.k1);
+    c.lens_corrected = 0;
+    assert_int_equal(calfile_save(p, &c, &e), ST_OK);
+    assert_int_equal(write_recipe("calibration = cal.json", r, &e), ST_OK);
+    judge_regions_opts(r, NULL, &o);
+    assert_true(o.image_to_plane && !o.lens);
     assert_int_equal(write_recipe("calibration = cal.json\nmm_per_px_x = 0.1", r, &e),
                      ST_EFORMAT);
     assert_non_null(strstr(e.msg, "both calibration and mm_per_px_x"));

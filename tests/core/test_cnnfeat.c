@@ -203,6 +203,46 @@ static void test_bank_then_network(void **state)
     image_free(img);
 }
 
+/* feat_compute_box with a network beside the bank: the box's features (the
+ * bank's and the network's) are the whole frame's bit for bit, and nothing
+ * outside the box is written (features.h: feat_compute_box), at the middle,
+ * a border and a corner.  The network's receptive field is held to the
+ * whole frame by tests/ref/test_cnn.py (tests/tools/cnn_box). */
+static void test_box_with_network(void **state)
+{
+    (void)state;
+    struct recipe r;
+    struct err e;
+    assert_int_equal(load("families = colour\ncnn_channels = 2 0\n", &r, &e), ST_OK);
+    struct image *img = frame(23, 17);
+    struct feat_ctx *ctx = feat_ctx_new(&r.feat, 23, 17, &e);
+    struct fstack *whole = fstack_new(23, 17, 5, &e), *fs = fstack_new(23, 17, 5, &e);
+    assert_non_null(ctx);
+    assert_int_equal(feat_compute(ctx, img, whole, &e), ST_OK);
+    const struct feat_box boxes[] = {{5, 4, 12, 9}, {0, 3, 6, 17}, {20, 15, 23, 17}};
+    for (size_t b = 0; b < sizeof boxes / sizeof boxes[0]; b++) {
+        const struct feat_box *bx = &boxes[b];
+        for (size_t i = 0; i < (size_t)23 * 17 * 5; i++)
+            fs->v[i] = -12345.0f;
+        assert_int_equal(feat_compute_box(ctx, img, bx, fs, &e), ST_OK);
+        for (int y = 0; y < 17; y++)
+            for (int x = 0; x < 23; x++)
+                for (int k = 0; k < 5; k++) {
+                    size_t at = ((size_t)y * 23 + x) * 5 + k;
+                    int inside = x >= bx->x0 && x < bx->x1 && y >= bx->y0 && y < bx->y1;
+                    if (inside && memcmp(&fs->v[at], &whole->v[at], sizeof(float)) != 0)
+                        fail_msg("box %zu: feature %d at (%d, %d) is %.9g, whole frame %.9g", b, k, x, y, fs->v[at],
+                                 whole->v[at]);
+                    if (!inside && fs->v[at] != -12345.0f)
+                        fail_msg("box %zu: feature %d at (%d, %d) outside the box was written", b, k, x, y);
+                }
+    }
+    fstack_free(fs);
+    fstack_free(whole);
+    feat_ctx_free(ctx);
+    image_free(img);
+}
+
 static void test_refusals(void **state)
 {
     (void)state;
@@ -265,6 +305,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_network_only),
         cmocka_unit_test(test_bank_then_network),
+        cmocka_unit_test(test_box_with_network),
         cmocka_unit_test(test_refusals),
         cmocka_unit_test(test_changed_file),
     };

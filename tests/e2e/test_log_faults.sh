@@ -68,7 +68,8 @@ for kind in inspect run; do
     calls=$(sed -n 's/^calls=//p' "$runs/$kind-0/shim")
     [ "${calls:-0}" -gt 0 ] || fail "$kind: the shim counted no calls"
     # two at a time: the runs are independent, each in its own folder
-    seq 1 "$calls" | xargs -P 2 -I N sh tests/e2e/test_log_faults.sh one "$kind" N "$runs"
+    # (a placeholder no mktemp name can hold: -I N also replaced an N in "$runs")
+    seq 1 "$calls" | xargs -P 2 -I @N@ sh tests/e2e/test_log_faults.sh one "$kind" @N@ "$runs"
     echo "$kind: $calls calls in the clean run, each failed once"
 done
 "$PYTHON" tests/e2e/check_faults.py "$runs" || fail "kept for a look: $runs"

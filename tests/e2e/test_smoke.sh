@@ -35,7 +35,7 @@ log="$out/log/station.db"
     echo "FAIL audit stats, report or export on the demo's log"
     exit 1
 }
-records=$(grep -o '"records":[0-9]*' "$out/stats.json" | cut -d: -f2)
+records=$(grep -o '"records":[0-9]*' "$out/stats.json" | head -n 1 | cut -d: -f2)   # the total's, before each station's
 "$BUILD/station" audit list --log "$log" --json >"$out/list.jsonl"
 rejects=$(grep -c -v '"verdict":"PASS"' "$out/list.jsonl" || true)
 thumbs=$(grep -o 'src="data:image/png;base64,' "$out/audit.html" | wc -l)

@@ -12,6 +12,9 @@ seed; tests/ref/vggonnx.py), and its refusals.
 - a file from torch.onnx.export, and a small graph with two branches (Add,
   Concat), BatchNormalization after a Conv, Clip, Identity, AveragePool and a
   strided Conv with asymmetric pads, against the same ops in torch.
+- runs over a box of the frame (tests/tools/cnn_box) against the whole
+  frame's run, which the checks above hold to torch: bit for bit inside,
+  nothing written outside, nothing read beyond the input box named.
 - parameter counts printed by `station recipe check`: VGG16's convolutional
   part has 14,714,688 and its first block 38,720 = 1,792 + 36,928 (facts of
   the trade: 3*3*3*64 + 64 and 3*3*64*64 + 64).
@@ -151,6 +154,24 @@ def branches(tmp):
               "thread(s): %s" % (threads, out), rc == 0)
 
 
+def boxes(tmp):
+    """Runs over a box of the frame against the whole frame's run (whose
+    values the checks above hold to torch): bit for bit inside, nothing
+    written outside, nothing read outside the input box the executor names
+    (tests/tools/cnn_box), for the stem, a strided cut brought back to full
+    size, the whole convolutional part and the branches."""
+    cases = (("block1", "relu1_2", 41, 29, ()), ("pool1full", "pool1", 31, 23, ("full",)),
+             ("pool5", "pool5", 96, 64, ("full",)), ("branches", "", 150, 21, ()))
+    for folder, cut, w, h, extra in cases:
+        for threads in ("1", "2"):
+            r = subprocess.run([tool("cnn_box"), os.path.join(tmp, folder, "model.onnx"), cut, str(w), str(h),
+                                threads] + list(extra), capture_output=True, text=True)
+            lines = r.stdout.splitlines()
+            check("box runs of %s (%dx%d, %s thread(s)) equal the whole frame's: %d boxes" % (
+                folder, w, h, threads, len(lines)), r.returncode == 0 and len(lines) == 16 and
+                all(l.startswith("ok") for l in lines), r.stdout + r.stderr)
+
+
 def params(tmp):
     recipe = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "..", "recipes", "ostrel-cap38.ini")
     base = open(recipe).read()
@@ -247,6 +268,7 @@ def main():
         against_torch(tmp, model, vggonnx.weights())
         torch_export(tmp)
         branches(tmp)
+        boxes(tmp)
         params(tmp)
         external(tmp)
         broken(tmp, path)

@@ -31,9 +31,25 @@ CLASSES = [
     {"name": "pit", "defect": True, "rgb": [208, 48, 48], "min_area_mm2": 0.0},
     {"name": "stain", "defect": True, "rgb": [48, 112, 224], "min_area_mm2": 0.0},
 ]
-# written in overlay.h
-PASS_RGB, FAIL_RGB, NONE_RGB, TEXT_RGB, ZONE_RGB = (30, 110, 50), (170, 30, 30), (160, 110, 0), \
-    (255, 255, 255), (0, 220, 220)
+# written in core/palette.h and core/overlay.h: Okabe & Ito (2008) bluish green, vermilion and
+# yellow, black text
+PASS_RGB, FAIL_RGB, NONE_RGB, TEXT_RGB, ZONE_RGB = (0, 158, 115), (213, 94, 0), (240, 228, 66), \
+    (0, 0, 0), (0, 220, 220)
+
+
+def wcag_contrast(a, b):
+    """WCAG 2.1 contrast ratio (definitions of relative luminance and contrast ratio)."""
+    def lum(rgb):
+        c = [v / 255 for v in rgb]
+        c = [v / 12.92 if v <= 0.04045 else ((v + 0.055) / 1.055) ** 2.4 for v in c]
+        return 0.2126 * c[0] + 0.7152 * c[1] + 0.0722 * c[2]
+    hi, lo = sorted((lum(a), lum(b)), reverse=True)
+    return (hi + 0.05) / (lo + 0.05)
+
+
+for bg in (PASS_RGB, FAIL_RGB, NONE_RGB):
+    ratio = wcag_contrast(bg, TEXT_RGB)
+    check(f"banner text on {bg}: WCAG 2.1 contrast {ratio:.1f}:1 >= 4.5:1 (level AA)", ratio >= 4.5)
 FAIL = {"verdict": 1, "reasons": [
     {"rule": "max_area", "cls": 4, "measured": 1.27, "limit": 0.8, "unit": "mm2"},
     {"rule": "max_count", "cls": 3, "measured": 3, "limit": 2, "unit": "count"}]}
@@ -168,7 +184,7 @@ check("zone outlines = find_boundaries(mode='inner') of the zone map", (ours == 
 check("outside the outlines the frame is untouched (no defect classes)",
       (out[top:][~ref] == frame[~ref]).all())
 
-# the banner: its colour tells the verdict; three lines of white text
+# the banner: its colour tells the verdict; three lines of black text
 for name, j, bg, word in [("PASS", PASS, PASS_RGB, "PASS"), ("FAIL", FAIL, FAIL_RGB, "FAIL"),
                           ("NO_VERDICT", NOVERDICT, NONE_RGB, "NO VERDICT")]:
     for fw, fh in [(211, 157), (480, 53), (1280, 61)]:   # the banner depends on the width only

@@ -1,14 +1,19 @@
 /* auditlog: fills an inspection log through core/log's own API, for the
  * audit's tests and benchmark.
  *
- *   auditlog DB N SEED [--evidence] [--station ID]
+ *   auditlog DB N SEED [--evidence] [--station ID] [--recipe ID] [--budget-kib K]
+ *            [--verify-every K]
  *
  * Appends N records with seeded verdicts (about 70% PASS, 22% FAIL, 8%
  * NO_VERDICT) and reasons drawn from a small set of (rule, class, zone),
  * then disposes about two thirds of the rejects and a few passes, with
  * comments that hold commas, quotes and line breaks.  With --evidence every
  * reject gets a 401x267 frame and an overlay (a gradient with the record's
- * number in its top row), so the report has thumbnails to show.  Writes one
+ * number in its top row), so the report has thumbnails to show.  --budget-kib
+ * K gives the log an evidence budget of K KiB, so retention purges (the sync
+ * tests); --verify-every K appends a master-part verification after every K
+ * records; --recipe names the records' recipe (default ostrel-cap38).
+ * Appending to an existing log continues its chains.  Writes one
  * JSON line per record to stdout: seq, verdict, reasons, disp (a name from
  * log_disp_name, "none" when not disposed), comment.  Errors exit 3. */
 #include <stdio.h>
@@ -76,10 +81,11 @@ static void paint(struct image *img, int64_t seq, int shade)
 
 int main(int argc, char **argv)
 {
-    int n, seed, evidence = 0;
-    const char *station = "bench-1";
+    int n, seed, evidence = 0, budget = 0, verify_every = 0;
+    const char *station = "bench-1", *recipe = "ostrel-cap38";
     if (argc < 4 || parse_int(argv[2], &n) || n < 0 || parse_int(argv[3], &seed)) {
-        fprintf(stderr, "usage: auditlog DB N SEED [--evidence] [--station ID]\n");
+        fprintf(stderr, "usage: auditlog DB N SEED [--evidence] [--station ID] [--recipe ID]"
+                        " [--budget-kib K] [--verify-every K]\n");
         return 2;
     }
     for (int i = 4; i < argc; i++) {
@@ -87,13 +93,23 @@ int main(int argc, char **argv)
             evidence = 1;
         else if (!strcmp(argv[i], "--station") && i + 1 < argc)
             station = argv[++i];
+        else if (!strcmp(argv[i], "--recipe") && i + 1 < argc)
+            recipe = argv[++i];
+        else if (!strcmp(argv[i], "--budget-kib") && i + 1 < argc && !parse_int(argv[i + 1], &budget))
+            i++;
+        else if (!strcmp(argv[i], "--verify-every") && i + 1 < argc &&
+                 !parse_int(argv[i + 1], &verify_every))
+            i++;
         else
             return 2;
     }
     struct err e;
     err_clear(&e);
     struct log_db *db;
-    if (log_open(argv[1], LOG_OPEN_WRITE, NULL, &db, &e))
+    struct log_options opt;
+    log_options_init(&opt);
+    opt.evidence_budget = budget > 0 ? (uint64_t)budget << 10 : 0;
+    if (log_open(argv[1], LOG_OPEN_WRITE, &opt, &db, &e))
         return fail(&e);
     struct image *frame = image_new(401, 267, 3, &e), *overlay = image_new(401, 267, 3, &e);
     if (!frame || !overlay)
@@ -105,7 +121,7 @@ int main(int argc, char **argv)
         int verdict = u < 0.70 ? VERDICT_PASS : u < 0.92 ? VERDICT_FAIL : VERDICT_NONE;
         json_t *reasons = make_reasons(&rng, verdict);
         char *rj = json_dumps(reasons, JSON_COMPACT);
-        struct log_entry en = {.station = station, .recipe_id = "ostrel-cap38",
+        struct log_entry en = {.station = station, .recipe_id = recipe,
                                .recipe_version = 1, .recipe_sha256 = "", .model_sha256 = "",
                                .scale_id = "0.05mm", .verdict = verdict, .reasons_json = rj,
                                .regions_json = "[]"};
@@ -132,6 +148,16 @@ int main(int argc, char **argv)
             const char *comment = COMMENTS[i % (int)(sizeof COMMENTS / sizeof COMMENTS[0])];
             int64_t dseq;
             if (disp && log_dispose(db, seq, "auditor-7", disp, comment, &dseq, &e))
+                rc = fail(&e);
+            struct log_verification v = {.recipe_version = 1,
+                                         .passed = i % 3 != 0,
+                                         .masters_json = "[{\"master\":\"m1\",\"expect\":"
+                                                         "\"PASS\",\"verdict\":\"PASS\","
+                                                         "\"match\":true}]"};
+            snprintf(v.station, sizeof v.station, "%s", station);
+            snprintf(v.recipe_id, sizeof v.recipe_id, "%s", recipe);
+            if (!rc && verify_every > 0 && (i + 1) % verify_every == 0 &&
+                log_verification_append(db, &v, &e))
                 rc = fail(&e);
             json_t *line = json_pack("{s:I,s:s,s:O,s:s,s:s}", "seq", (json_int_t)seq, "verdict",
                                      judge_verdict_name(verdict), "reasons", reasons, "disp",

@@ -5,7 +5,8 @@
  * comma list of defect class indices, SX SY the pixel size in mm, GAP the
  * merge gap in mm of every defect class.  LABELS, when given, receives the
  * region index of every pixel (int32, -1 outside every region).  A last
- * argument H=h0,...,h8 sets regions_opts.image_to_plane. */
+ * argument H=h0,...,h8 sets regions_opts.image_to_plane, and with it
+ * L=fx,fy,cx,cy,k1,k2 regions_opts.lens. */
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -20,24 +21,36 @@ static int parse_mm(const char *s, double *v)
     return *s && !*end ? 0 : -1;
 }
 
+/* "NAME=v0,v1,...": exactly n comma-separated numbers after the '='. */
+static int parse_list(const char *arg, int n, double *v)
+{
+    const char *q = arg + 2;
+    for (int i = 0; i < n; i++) {
+        char *end;
+        v[i] = strtod(q, &end);
+        if (end == q || (i < n - 1 && *end != ',') || (i == n - 1 && *end))
+            return -1;
+        q = end + 1;
+    }
+    return 0;
+}
+
 int main(int argc, char **argv)
 {
     int w, h, n, conn;
-    double sx, sy, gap, hom[9];
-    int use_h = argc > 1 && !strncmp(argv[argc - 1], "H=", 2);
-    if (use_h) {
-        const char *q = argv[argc - 1] + 2;
-        for (int i = 0; i < 9; i++) {
-            char *end;
-            hom[i] = strtod(q, &end);
-            if (end == q || (i < 8 && *end != ',') || (i == 8 && *end)) {
-                fprintf(stderr, "regionsdump: H= needs 9 comma-separated numbers\n");
-                return 2;
-            }
-            q = end + 1;
+    double sx, sy, gap, hom[9], lv[6] = {0};
+    int use_h = 0, use_l = 0;
+    while (argc > 1 && (!strncmp(argv[argc - 1], "H=", 2) || !strncmp(argv[argc - 1], "L=", 2))) {
+        const char *a = argv[--argc];
+        int is_h = a[0] == 'H';
+        if (parse_list(a, is_h ? 9 : 6, is_h ? hom : lv)) {
+            fprintf(stderr, "regionsdump: %s needs %d comma-separated numbers\n", is_h ? "H=" : "L=",
+                    is_h ? 9 : 6);
+            return 2;
         }
-        argc--;
+        *(is_h ? &use_h : &use_l) = 1;
     }
+    struct lens_model lens = {lv[0], lv[1], lv[2], lv[3], lv[4], lv[5]};
     if ((argc != 10 && argc != 11) || parse_int(argv[1], &w) || parse_int(argv[2], &h) ||
         parse_int(argv[3], &n) || parse_int(argv[5], &conn) || parse_mm(argv[6], &sx) ||
         parse_mm(argv[7], &sy) || parse_mm(argv[8], &gap)) {
@@ -45,7 +58,8 @@ int main(int argc, char **argv)
         return 2;
     }
     struct regions_opts o = {.connectivity = conn, .mm_per_px_x = sx, .mm_per_px_y = sy,
-                             .nclasses = n, .image_to_plane = use_h ? hom : NULL};
+                             .nclasses = n, .image_to_plane = use_h ? hom : NULL,
+                             .lens = use_h && use_l ? &lens : NULL};
     for (char *t = strtok(argv[4], ","); t; t = strtok(NULL, ",")) {
         int c;
         if (parse_int(t, &c) || c < 0 || c >= REGIONS_MAX_CLASSES) {
