@@ -269,11 +269,13 @@ const char *logpg_first_line(const char *m, char *buf, size_t len)
 static int conn_fail(struct logpg *pg, const char *what, struct err *e)
 {
     char line[400];
-    int lost = PQstatus(pg->c) != CONNECTION_OK;
-    return err_set(e, lost ? ST_EIO : ST_ELIB, "central database %s: %s: %s", pg->name,
-                   lost && pg->in_batch ? "connection lost, the open batch may not be committed; the next sync resumes from what the"
-                                  " server holds" : what,
-                   logpg_first_line(PQerrorMessage(pg->c), line, sizeof line));
+    logpg_first_line(PQerrorMessage(pg->c), line, sizeof line);
+    if (PQstatus(pg->c) != CONNECTION_OK && pg->in_batch)
+        return err_set(e, ST_EIO, "central database %s: connection lost (%s); the open batch may"
+                       " not be committed, and the next sync resumes from what the server holds",
+                       pg->name, line);
+    return err_set(e, PQstatus(pg->c) != CONNECTION_OK ? ST_EIO : ST_ELIB,
+                   "central database %s: %s: %s", pg->name, what, line);
 }
 
 /* A result that failed: the server's own primary message when it sent one. */
@@ -287,7 +289,8 @@ static int result_fail(struct logpg *pg, PGresult *r, const char *what, struct e
     /* class P0 is a RAISE from our triggers, 23 an integrity constraint: a refusal */
     int refused = state && (!strncmp(state, "P0", 2) || !strncmp(state, "23", 2));
     return err_set(e, refused ? ST_EFORMAT : ST_ELIB, "central database %s: %s%s%s", pg->name,
-                   refused ? "" : what, refused ? "" : ": ", logpg_first_line(primary, line, sizeof line));
+                   refused ? "" : what, refused ? "" : ": ",
+                   logpg_first_line(primary, line, sizeof line));
 }
 
 static int exec_ok(struct logpg *pg, const char *sql, const char *what, struct err *e)
