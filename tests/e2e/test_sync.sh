@@ -26,7 +26,8 @@
 # - station run --sync-to forwards in the background, the server down at
 #   first, and inspection goes on meanwhile; with the server stalled
 #   (SIGSTOP) in the middle, station run still quits within 10 s of its last
-#   inspection.
+#   inspection; a forwarded record altered in its log is reported refused,
+#   not as a server not reached.
 set -eu
 BUILD=${STATION_BUILD:-build}
 PYTHON=${STATION_PYTHON:-/usr/bin/python3}
@@ -350,3 +351,14 @@ n=$(grep -c '"log_seq"' "$out/stall.jsonl")
 [ "$n" = 20 ] || fail "$n inspections with the server stalled, want 20"
 [ "$t" -le 10 ] || fail "station run took $t s after its last inspection to quit, the server stalled"
 echo "ok   the server stalled mid-run: station run did its 20 inspections and quit $t s after the last"
+
+# a refusal is told from a server not reached: the live log altered after
+# it was forwarded, the forwarder's first sync rechecks and is refused
+$CHECK tamper "$out/live.db" 7 rehash >/dev/null
+"$S" run "$recipe" --headless --source "replay:$images" --loop --trigger continuous --fps 5 \
+    --inspections 10 --log "$out/live.db" --station bench-L --sync-to "$PGCLUSTER_URI" \
+    --sync-every 0.5 </dev/null >"$out/refused.jsonl" 2>"$out/refused.log" ||
+    [ $? -le 2 ] || fail "station run with a refused log: $(tail -n 3 "$out/refused.log")"
+grep -q '"event":"sync_failed",.*station bench-L record 7 differs from the central copy.*"refused":true' \
+    "$out/refused.jsonl" || fail "no refused sync_failed event: $(grep event "$out/refused.jsonl" | head -n 2)"
+echo "ok   station run --sync-to with a forwarded record altered: sync_failed says refused, record 7"
