@@ -294,3 +294,14 @@ const char *log_path(const struct log_db *db)
 {
     return db->ops->path(db->b);
 }
+
+int log_station_id_ok(const char *s)
+{
+    if (!s || !*s || strlen(s) >= LOG_ID_MAX || !strcmp(s, ".") || !strcmp(s, ".."))
+        return 0;
+    for (; *s; s++)
+        if (!(*s >= 'a' && *s <= 'z') && !(*s >= 'A' && *s <= 'Z') && !(*s >= '0' && *s <= '9') &&
+            !strchr("._-", *s))
+            return 0;
+    return 1;
+}

@@ -65,6 +65,11 @@
 #define LOG_SCHEMA_VERSION 4
 #define LOG_SIGNED_SINCE 4         /* the schema that brought signatures */
 #define LOG_ID_MAX 64              /* station, operator, serial, recipe, scale, auditor ids */
+
+/* True when s may name a station: 1..LOG_ID_MAX-1 letters, digits, . _ -,
+ * and not "." or ".." — it names a folder (the default log's, the central
+ * evidence copies' DIR/STATION), so it must stay one path component. */
+int log_station_id_ok(const char *s);
 #define LOG_UTC_MAX 32             /* "2026-12-01T22:45:44.123Z" */
 #define LOG_NAME_MAX 96            /* evidence name relative to the evidence folder */
 #define LOG_MAX_EVIDENCE 2         /* the frame and the overlay */

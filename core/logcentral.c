@@ -47,13 +47,6 @@ struct central {
     "vseq, utc, rec_station, recipe_id, recipe_version, recipe_sha256, model_sha256, outcome,"  \
     " masters, prev_hash, hash, sig"
 
-static const char *one_line(const char *m, char *buf, size_t len)
-{
-    snprintf(buf, len, "%s", m && *m ? m : "no reason given");
-    buf[strcspn(buf, "\n")] = '\0';
-    return buf;
-}
-
 /* Runs sql with text parameters; NULL (and e filled) unless it succeeded. */
 static PGresult *run(struct central *c, const char *sql, int n, const char *const *p,
                      const char *what, struct err *e)
@@ -67,7 +60,7 @@ static PGresult *run(struct central *c, const char *sql, int n, const char *cons
     char line[400];
     err_set(e, PQstatus(conn) == CONNECTION_OK ? ST_ELIB : ST_EIO, "central database %s: %s: %s",
             logpg_name(c->pg), what,
-            one_line(primary ? primary : PQerrorMessage(conn), line, sizeof line));
+            logpg_first_line(primary ? primary : PQerrorMessage(conn), line, sizeof line));
     PQclear(r);
     return NULL;
 }
@@ -240,6 +233,9 @@ static int scope(void *self, const char *station, struct err *e)
     c->scope[0] = '\0';
     if (!station || !*station)
         return ST_OK;
+    if (!log_station_id_ok(station))
+        return err_set(e, ST_EINVAL, "station id '%s' must be 1..%d of letters, digits, . _ -",
+                       station, LOG_ID_MAX - 1);
     const char *p[1] = {station};
     PGresult *r = run(c, "SELECT 1 FROM stations WHERE station = $1", 1, p,
                       "cannot read the stations", e);
@@ -267,6 +263,7 @@ struct query {
     const char *p[CENTRAL_PARAMS];
     char num[CENTRAL_PARAMS][24];
     int n;
+    int overflow;                  /* a condition did not fit: the query must not run */
 };
 
 /* Appends " AND " cond, where every %d in cond (at most two) is the next
@@ -275,10 +272,30 @@ static void q_cond(struct query *q, const char *cond, const char *v)
 {
     size_t at = strlen(q->sql);
     int k = q->n + 1;
-    snprintf(q->sql + at, sizeof q->sql - at, " AND ");
-    at = strlen(q->sql);
-    snprintf(q->sql + at, sizeof q->sql - at, cond, k, k);
+    int n = snprintf(q->sql + at, sizeof q->sql - at, " AND ");
+    if (n >= 0 && (size_t)n < sizeof q->sql - at) {
+        at += (size_t)n;
+        n = snprintf(q->sql + at, sizeof q->sql - at, cond, k, k);
+    }
+    if (n < 0 || (size_t)n >= sizeof q->sql - at || q->n >= CENTRAL_PARAMS) {
+        q->overflow = 1;
+        return;
+    }
     q->p[q->n++] = v;
+}
+
+static void q_text(struct query *q, const char *text)
+{
+    size_t at = strlen(q->sql);
+    if ((size_t)snprintf(q->sql + at, sizeof q->sql - at, "%s", text) >= sizeof q->sql - at)
+        q->overflow = 1;
+}
+
+static int q_check(struct central *c, const struct query *q, struct err *e)
+{
+    return q->overflow ? err_set(e, ST_ERANGE, "central database %s: the selection is too long"
+                                 " for one query", logpg_name(c->pg))
+                       : ST_OK;
 }
 
 static void q_cond_i64(struct query *q, const char *cond, int64_t v)
@@ -296,6 +313,7 @@ static void q_filter(struct central *c, struct query *q, const struct log_filter
 {
     snprintf(q->sql, sizeof q->sql, "%s", REC_SELECT);
     q->n = 0;
+    q->overflow = 0;
     if (c->scope[0])
         q_cond(q, "r.station = $%d", c->scope);
     if (!f)
@@ -307,7 +325,7 @@ static void q_filter(struct central *c, struct query *q, const struct log_filter
     if (f->verdict >= 0)
         q_cond(q, "r.verdict = $%d", judge_verdict_name(f->verdict));
     if (f->rejects)
-        strncat(q->sql, " AND r.verdict <> 'PASS'", sizeof q->sql - strlen(q->sql) - 1);
+        q_text(q, " AND r.verdict <> 'PASS'");
     if (f->cls)
         q_cond(q, JSON_HAS("class"), f->cls);
     if (f->zone)
@@ -319,7 +337,7 @@ static void q_filter(struct central *c, struct query *q, const struct log_filter
     if (f->line)
         q_cond(q, "s.line = $%d", f->line);
     if (f->disp == LOG_DISP_NONE)
-        strncat(q->sql, " AND d.dseq IS NULL", sizeof q->sql - strlen(q->sql) - 1);
+        q_text(q, " AND d.dseq IS NULL");
     else if (f->disp > 0)
         q_cond(q, "d.disposition = $%d", log_disp_name(f->disp));
     if (f->seq_from > 0)
@@ -379,6 +397,9 @@ static int iter_new(void *self, const struct log_filter *f, void **out, struct e
         it->began = 1;
     }
     q_filter(c, q, f);
+    rc = q_check(c, q, e);
+    if (rc)
+        goto fail;
     char head[64];
     snprintf(it->cursor, sizeof it->cursor, "station_walk_%u", ++c->walks);
     snprintf(head, sizeof head, "DECLARE %s NO SCROLL CURSOR FOR ", it->cursor);
@@ -447,7 +468,8 @@ static int get(void *self, int64_t seq, struct log_record *rec, struct err *e)
     if (!c->scope[0])
         q_cond(q, "r.station = $%d", key);
     q_cond_i64(q, "r.seq = $%d", seq);
-    PGresult *r = run(c, q->sql, q->n, q->p, "cannot read a record", e);
+    rc = q_check(c, q, e);
+    PGresult *r = rc ? NULL : run(c, q->sql, q->n, q->p, "cannot read a record", e);
     free(q);
     if (!r)
         return e ? e->code : ST_ELIB;
@@ -695,7 +717,9 @@ static const char *evidence_dir(const void *self, const struct log_record *r, ch
 {
     const struct central *c = self;
     const char *station = r ? r->chain_station : c->scope;
-    if (!c->has_evdir || !*station)
+    /* the id is a folder name here: one that is not (a row written past
+     * station sync's checks) names no folder of the copies */
+    if (!c->has_evdir || !log_station_id_ok(station))
         return NULL;
     snprintf(buf, len, "%s/%s", c->evdir, station);
     return buf;

@@ -11,6 +11,11 @@
 /* pg_advisory_xact_lock key for schema changes: 'STLGPG01' as an int64. */
 #define LOGPG_SCHEMA_LOCK "6076338063446413361"
 #define LOGPG_CONNECT_TIMEOUT "10"
+/* A batch of 2000 records commits in well under a second; a recheck reads
+ * 4096 hashes a statement. */
+#define LOGPG_SESSION_LIMITS                                                                   \
+    "SET idle_in_transaction_session_timeout = '60s'; SET lock_timeout = '30s';"               \
+    " SET statement_timeout = '120s'"
 
 /* A BEFORE INSERT trigger that holds one chain to its rules on the server:
  * an identical row is skipped, a different one with a held number refused,
@@ -121,6 +126,45 @@ static const char *const central_upgrade[LOGPG_SCHEMA_VERSION] = {
     "CREATE OR REPLACE TRIGGER evidence_purged_same BEFORE INSERT ON evidence_purged"
     " FOR EACH ROW EXECUTE FUNCTION central_purge_same();"
     "INSERT INTO central_meta VALUES('schema', '1') ON CONFLICT DO NOTHING;",
+    /* 2: evidence rows are part of their record's hash, so they arrive with
+     * it only (xmin: inserted by this transaction); a station's row keeps its
+     * key once it has one, and only its line changes */
+    "CREATE OR REPLACE FUNCTION central_evidence_same() RETURNS trigger LANGUAGE plpgsql AS $f$"
+    " DECLARE h evidence;"
+    " BEGIN"
+    "  SELECT * INTO h FROM evidence WHERE station = NEW.station"
+    "   AND record_seq = NEW.record_seq AND kind = NEW.kind;"
+    "  IF NOT FOUND THEN"
+    "   IF NOT EXISTS(SELECT 1 FROM records WHERE station = NEW.station AND seq = NEW.record_seq"
+    "    AND xmin::text::bigint = txid_current() % 4294967296) THEN"
+    "    RAISE EXCEPTION 'station % record % evidence % arrives without its record (evidence is"
+    " part of the record''s hash and comes with it only)', NEW.station, NEW.record_seq, NEW.kind;"
+    "   END IF;"
+    "   RETURN NEW;"
+    "  END IF;"
+    "  IF (h.name, h.sha256, h.bytes) = (NEW.name, NEW.sha256, NEW.bytes) THEN RETURN NULL; END IF;"
+    "  RAISE EXCEPTION 'station % record % evidence % differs from the central copy',"
+    "   NEW.station, NEW.record_seq, NEW.kind;"
+    " END $f$;"
+    "CREATE OR REPLACE FUNCTION central_station_guard() RETURNS trigger LANGUAGE plpgsql AS $f$"
+    " BEGIN"
+    "  IF (NEW.station, NEW.log_schema, NEW.first_seen)"
+    "   IS DISTINCT FROM (OLD.station, OLD.log_schema, OLD.first_seen)"
+    "   OR ((OLD.public_key <> '' OR NEW.public_key = '') AND (NEW.public_key,"
+    "    NEW.signed_from_record, NEW.signed_from_disposition, NEW.signed_from_verification,"
+    "    NEW.statement_sig) IS DISTINCT FROM (OLD.public_key, OLD.signed_from_record,"
+    "    OLD.signed_from_disposition, OLD.signed_from_verification, OLD.statement_sig)) THEN"
+    "   RAISE EXCEPTION 'station %: only its line may change, and its signing key once, from"
+    " none', OLD.station;"
+    "  END IF;"
+    "  RETURN NEW;"
+    " END $f$;"
+    "CREATE OR REPLACE TRIGGER stations_guard BEFORE UPDATE ON stations"
+    " FOR EACH ROW EXECUTE FUNCTION central_station_guard();"
+    "CREATE OR REPLACE TRIGGER stations_no_delete BEFORE DELETE ON stations"
+    " FOR EACH ROW EXECUTE FUNCTION central_append_only();"
+    "CREATE OR REPLACE TRIGGER stations_no_truncate BEFORE TRUNCATE ON stations"
+    " FOR EACH STATEMENT EXECUTE FUNCTION central_append_only();",
 };
 
 enum stmt_id { P_REC, P_EV, P_PURGE, P_DISP, P_VER, P_COUNT };
@@ -142,8 +186,10 @@ struct logpg {
     char name[LOGPG_SHOW_MAX];
     char station[LOG_ID_MAX];      /* the open batch's */
     int prepared;
-    int in_batch;                  /* BEGIN sent, pipeline open */
-    int queued;                    /* statements in the pipeline */
+    int in_batch;                  /* BEGIN sent */
+    int pipeline;                  /* the batch's pipeline open */
+    unsigned char *queued;         /* the statement of each result to come */
+    size_t nqueued, capqueued;
 };
 
 int logpg_is_conninfo(const char *s)
@@ -163,6 +209,13 @@ int logpg_is_conninfo(const char *s)
     return *p == '=';
 }
 
+/* libpq marks its secrets ("*": password, sslpassword) for any tool that
+ * shows a connection's options; a keyword list of our own would miss the next. */
+static int secret(const PQconninfoOption *i)
+{
+    return i->dispchar && i->dispchar[0] == '*';
+}
+
 int logpg_conninfo_check(const char *conninfo, struct err *e)
 {
     char *msg = NULL;
@@ -176,7 +229,7 @@ int logpg_conninfo_check(const char *conninfo, struct err *e)
     }
     int pw = 0;
     for (PQconninfoOption *i = o; i->keyword; i++)
-        if (!strcmp(i->keyword, "password") && i->val && *i->val)
+        if (secret(i) && i->val && *i->val)
             pw = 1;
     PQconninfoFree(o);
     if (pw)
@@ -193,7 +246,7 @@ void logpg_conninfo_show(const char *conninfo, char *buf, size_t len)
     snprintf(buf, len, "%s", o ? "" : "(unparsable connection string)");
     size_t at = 0;
     for (PQconninfoOption *i = o; i && i->keyword; i++) {
-        if (!i->val || !*i->val || !strcmp(i->keyword, "password"))
+        if (!i->val || !*i->val || secret(i))
             continue;
         int n = snprintf(buf + at, at < len ? len - at : 0, "%s%s=%s", at ? " " : "", i->keyword,
                          i->val);
@@ -206,8 +259,7 @@ void logpg_conninfo_show(const char *conninfo, char *buf, size_t len)
     PQconninfoFree(o);
 }
 
-/* libpq's messages may run over several lines; ours are one. */
-static const char *first_line(const char *m, char *buf, size_t len)
+const char *logpg_first_line(const char *m, char *buf, size_t len)
 {
     snprintf(buf, len, "%s", m && *m ? m : "no reason given");
     buf[strcspn(buf, "\n")] = 0;
@@ -217,10 +269,13 @@ static const char *first_line(const char *m, char *buf, size_t len)
 static int conn_fail(struct logpg *pg, const char *what, struct err *e)
 {
     char line[400];
-    int lost = PQstatus(pg->c) != CONNECTION_OK;
-    return err_set(e, lost ? ST_EIO : ST_ELIB, "central database %s: %s: %s", pg->name,
-                   lost && pg->in_batch ? "connection lost, the open batch is not committed" : what,
-                   first_line(PQerrorMessage(pg->c), line, sizeof line));
+    logpg_first_line(PQerrorMessage(pg->c), line, sizeof line);
+    if (PQstatus(pg->c) != CONNECTION_OK && pg->in_batch)
+        return err_set(e, ST_EIO, "central database %s: connection lost (%s); the open batch may"
+                       " not be committed, and the next sync resumes from what the server holds",
+                       pg->name, line);
+    return err_set(e, PQstatus(pg->c) != CONNECTION_OK ? ST_EIO : ST_ELIB,
+                   "central database %s: %s: %s", pg->name, what, line);
 }
 
 /* A result that failed: the server's own primary message when it sent one. */
@@ -234,7 +289,8 @@ static int result_fail(struct logpg *pg, PGresult *r, const char *what, struct e
     /* class P0 is a RAISE from our triggers, 23 an integrity constraint: a refusal */
     int refused = state && (!strncmp(state, "P0", 2) || !strncmp(state, "23", 2));
     return err_set(e, refused ? ST_EFORMAT : ST_ELIB, "central database %s: %s%s%s", pg->name,
-                   refused ? "" : what, refused ? "" : ": ", first_line(primary, line, sizeof line));
+                   refused ? "" : what, refused ? "" : ": ",
+                   logpg_first_line(primary, line, sizeof line));
 }
 
 static int exec_ok(struct logpg *pg, const char *sql, const char *what, struct err *e)
@@ -256,9 +312,14 @@ int logpg_connect(const char *conninfo, struct logpg **out, struct err *e)
     if (!pg)
         return err_set(e, ST_ENOMEM, "central database: out of memory");
     logpg_conninfo_show(conninfo, pg->name, sizeof pg->name);
-    /* ours first, so the caller's string overrides them */
-    const char *const keys[] = {"application_name", "connect_timeout", "dbname", NULL};
-    const char *const vals[] = {"station", LOGPG_CONNECT_TIMEOUT, conninfo, NULL};
+    /* ours first, so the caller's string overrides them; keepalives and the
+     * TCP user timeout bound a network that goes silent (libpq would wait on
+     * it for ever), a Unix socket ignores them */
+    const char *const keys[] = {"application_name", "connect_timeout", "keepalives_idle",
+                                "keepalives_interval", "keepalives_count", "tcp_user_timeout",
+                                "dbname", NULL};
+    const char *const vals[] = {"station", LOGPG_CONNECT_TIMEOUT, "30", "10", "3", "60000",
+                                conninfo, NULL};
     pg->c = PQconnectdbParams(keys, vals, 1);
     if (!pg->c) {
         free(pg);
@@ -266,6 +327,13 @@ int logpg_connect(const char *conninfo, struct logpg **out, struct err *e)
     }
     if (PQstatus(pg->c) != CONNECTION_OK) {
         rc = conn_fail(pg, "cannot connect", e);
+        logpg_close(pg);
+        return rc;
+    }
+    /* a client gone quiet in a transaction must not hold a station's row for
+     * ever, nor wait for ever on one */
+    rc = exec_ok(pg, LOGPG_SESSION_LIMITS, "cannot set the session's time limits", e);
+    if (rc) {
         logpg_close(pg);
         return rc;
     }
@@ -278,6 +346,7 @@ void logpg_close(struct logpg *pg)
     if (!pg)
         return;
     PQfinish(pg->c);
+    free(pg->queued);
     free(pg);
 }
 
@@ -416,23 +485,33 @@ static int station_lock(struct logpg *pg, const struct logpg_station *st, struct
     if (rc)
         return rc;
     const char *p[1] = {st->station};
-    r = PQexecParams(pg->c,
-                     "SELECT s.public_key,"
-                     " (SELECT seq FROM records WHERE station = $1 ORDER BY seq DESC LIMIT 1),"
-                     " (SELECT hash FROM records WHERE station = $1 ORDER BY seq DESC LIMIT 1),"
-                     " (SELECT dseq FROM dispositions WHERE station = $1 ORDER BY dseq DESC LIMIT 1),"
-                     " (SELECT hash FROM dispositions WHERE station = $1 ORDER BY dseq DESC LIMIT 1),"
-                     " (SELECT vseq FROM verifications WHERE station = $1 ORDER BY vseq DESC LIMIT 1),"
-                     " (SELECT hash FROM verifications WHERE station = $1 ORDER BY vseq DESC LIMIT 1),"
-                     " (SELECT count(*) FROM evidence_purged WHERE station = $1)"
-                     " FROM stations s WHERE s.station = $1 FOR UPDATE OF s",
-                     1, NULL, p, NULL, NULL, 0);
+    /* the lock first, the tails in a statement of their own: under READ
+     * COMMITTED each statement sees what committed before it began, and one
+     * that waited on the lock began before the holder committed */
+    r = PQexecParams(pg->c, "SELECT public_key FROM stations WHERE station = $1 FOR UPDATE", 1,
+                     NULL, p, NULL, NULL, 0);
     if (PQresultStatus(r) != PGRES_TUPLES_OK || PQntuples(r) != 1) {
         rc = result_fail(pg, r, "cannot lock the station's row", e);
         PQclear(r);
         return rc;
     }
     snprintf(held_key, keylen, "%s", PQgetvalue(r, 0, 0));
+    PQclear(r);
+    r = PQexecParams(pg->c,
+                     "SELECT 0,"
+                     " (SELECT seq FROM records WHERE station = $1 ORDER BY seq DESC LIMIT 1),"
+                     " (SELECT hash FROM records WHERE station = $1 ORDER BY seq DESC LIMIT 1),"
+                     " (SELECT dseq FROM dispositions WHERE station = $1 ORDER BY dseq DESC LIMIT 1),"
+                     " (SELECT hash FROM dispositions WHERE station = $1 ORDER BY dseq DESC LIMIT 1),"
+                     " (SELECT vseq FROM verifications WHERE station = $1 ORDER BY vseq DESC LIMIT 1),"
+                     " (SELECT hash FROM verifications WHERE station = $1 ORDER BY vseq DESC LIMIT 1),"
+                     " (SELECT count(*) FROM evidence_purged WHERE station = $1)",
+                     1, NULL, p, NULL, NULL, 0);
+    if (PQresultStatus(r) != PGRES_TUPLES_OK || PQntuples(r) != 1) {
+        rc = result_fail(pg, r, "cannot read what the station's row holds", e);
+        PQclear(r);
+        return rc;
+    }
     h->seq = get_i64(r, 1);
     copy_hash(h->hash, r, 2);
     h->dseq = get_i64(r, 3);
@@ -491,30 +570,78 @@ static int station_update(struct logpg *pg, const struct logpg_station *st, cons
 int logpg_batch_begin(struct logpg *pg, const struct logpg_station *st, struct logpg_held *held,
                       struct err *e)
 {
-    if (snprintf(pg->station, sizeof pg->station, "%s", st->station) >= (int)sizeof pg->station)
-        return err_set(e, ST_EINVAL, "station id '%s' is too long", st->station);
+    if (!log_station_id_ok(st->station))
+        return err_set(e, ST_EINVAL, "station id '%s' must be 1..%d of letters, digits, . _ -",
+                       st->station, LOG_ID_MAX - 1);
+    snprintf(pg->station, sizeof pg->station, "%s", st->station);
     char held_key[LOGSIGN_PK_HEX + 8];
     int rc = prepare(pg, e) || exec_ok(pg, "BEGIN", "cannot begin", e);
     if (rc)
         return e->code;
     rc = station_lock(pg, st, held, held_key, sizeof held_key, e) ||
          station_update(pg, st, held_key, e);
-    if (!rc && !PQenterPipelineMode(pg->c))
-        rc = conn_fail(pg, "cannot enter pipeline mode", e);
     if (rc) {
         PQclear(PQexec(pg->c, "ROLLBACK"));
         return e->code;
     }
     pg->in_batch = 1;
-    pg->queued = 0;
+    pg->pipeline = 0;
+    pg->nqueued = 0;
+    return ST_OK;
+}
+
+int logpg_purge_held(struct logpg *pg, const char *name, int *held, struct err *e)
+{
+    *held = 0;
+    if (!pg->in_batch || pg->pipeline)
+        return err_set(e, ST_EINVAL, "central database: a purge is looked up before pushing");
+    const char *p[2] = {pg->station, name};
+    PGresult *r = PQexecParams(pg->c, "SELECT 1 FROM evidence_purged WHERE station = $1"
+                                      " AND name = $2", 2, NULL, p, NULL, NULL, 0);
+    int rc = PQresultStatus(r) == PGRES_TUPLES_OK ? ST_OK
+                                                   : result_fail(pg, r, "cannot read a purge", e);
+    *held = !rc && PQntuples(r) == 1;
+    PQclear(r);
+    return rc;
+}
+
+/* The pipeline opens with the first statement pushed, so a batch may still
+ * ask the server questions before it (logpg_purge_held). */
+static int pipeline_open(struct logpg *pg, struct err *e)
+{
+    if (pg->pipeline)
+        return ST_OK;
+    if (!PQenterPipelineMode(pg->c))
+        return conn_fail(pg, "cannot enter pipeline mode", e);
+    pg->pipeline = 1;
+    return ST_OK;
+}
+
+/* Notes which statement the next result answers, so the commit can count
+ * what the server inserted rather than what was sent. */
+static int note(struct logpg *pg, int id, struct err *e)
+{
+    if (pg->nqueued == pg->capqueued) {
+        size_t cap = pg->capqueued ? 2 * pg->capqueued : 1024;
+        unsigned char *q = realloc(pg->queued, cap);
+        if (!q)
+            return err_set(e, ST_ENOMEM, "central database: out of memory");
+        pg->queued = q;
+        pg->capqueued = cap;
+    }
+    pg->queued[pg->nqueued++] = (unsigned char)id;
     return ST_OK;
 }
 
 static int send(struct logpg *pg, int id, const char *const *p, struct err *e)
 {
+    if (!pg->in_batch)
+        return err_set(e, ST_EINVAL, "central database: no batch open");
+    int rc = pipeline_open(pg, e) || note(pg, id, e);
+    if (rc)
+        return e->code;
     if (!PQsendQueryPrepared(pg->c, stmts[id].name, stmts[id].nparams, p, NULL, NULL, 0))
         return conn_fail(pg, "cannot send", e);
-    pg->queued++;
     return ST_OK;
 }
 
@@ -574,10 +701,13 @@ int logpg_push_verification(struct logpg *pg, const struct log_verification *v, 
 }
 
 /* Reads every result up to the pipeline's sync point; the first failure
- * (the ones after it are PGRES_PIPELINE_ABORTED) goes into e. */
-static int drain(struct logpg *pg, struct err *e)
+ * (the ones after it are PGRES_PIPELINE_ABORTED) goes into e.  "INSERT 0 0"
+ * is a row the server already held (its trigger skipped it). */
+static int drain(struct logpg *pg, struct logpg_counts *got, struct err *e)
 {
     int rc = ST_OK;
+    int64_t n[P_COUNT] = {0};
+    size_t at = 0;
     for (;;) {
         PGresult *r = PQgetResult(pg->c);
         if (!r) {
@@ -588,33 +718,42 @@ static int drain(struct logpg *pg, struct err *e)
         int st = PQresultStatus(r);
         if (st == PGRES_PIPELINE_SYNC) {
             PQclear(r);
+            if (got)
+                *got = (struct logpg_counts){n[P_REC], n[P_EV], n[P_PURGE], n[P_DISP], n[P_VER]};
             return rc;
         }
         if (st == PGRES_FATAL_ERROR && !rc)
             rc = result_fail(pg, r, "refused", e);
+        if (st == PGRES_COMMAND_OK && at < pg->nqueued)
+            n[pg->queued[at]] += strtoll(PQcmdTuples(r), NULL, 10);
+        at++;
         PQclear(r);
     }
 }
 
-int logpg_batch_commit(struct logpg *pg, struct err *e)
+int logpg_batch_commit(struct logpg *pg, struct logpg_counts *inserted, struct err *e)
 {
+    *inserted = (struct logpg_counts){0};
     if (!pg->in_batch)
         return err_set(e, ST_EINVAL, "central database: no batch open");
-    int rc = ST_OK;
-    if (!PQsendQueryParams(pg->c, "COMMIT", 0, NULL, NULL, NULL, NULL, 0) ||
-        !PQpipelineSync(pg->c))
+    int rc = pipeline_open(pg, e);
+    if (!rc && (!PQsendQueryParams(pg->c, "COMMIT", 0, NULL, NULL, NULL, NULL, 0) ||
+                !PQpipelineSync(pg->c)))
         rc = conn_fail(pg, "cannot send", e);
     if (!rc)
-        rc = drain(pg, e);
+        rc = drain(pg, inserted, e);
     if (PQstatus(pg->c) != CONNECTION_OK) {
         rc = rc ? rc : conn_fail(pg, "connection lost", e);
         pg->in_batch = 0;
         return rc;
     }
     pg->in_batch = 0;
+    pg->pipeline = 0;
     PQexitPipelineMode(pg->c);
-    if (rc)
+    if (rc) {
+        *inserted = (struct logpg_counts){0};
         PQclear(PQexec(pg->c, "ROLLBACK"));
+    }
     return rc;
 }
 
@@ -625,11 +764,13 @@ void logpg_batch_abort(struct logpg *pg)
     pg->in_batch = 0;
     if (PQstatus(pg->c) != CONNECTION_OK)
         return;
-    if (PQpipelineSync(pg->c)) {
+    if (pg->pipeline && PQpipelineSync(pg->c)) {
         struct err ignored;
-        drain(pg, &ignored);
+        drain(pg, NULL, &ignored);
     }
-    PQexitPipelineMode(pg->c);
+    if (pg->pipeline)
+        PQexitPipelineMode(pg->c);
+    pg->pipeline = 0;
     PQclear(PQexec(pg->c, "ROLLBACK"));
 }
 

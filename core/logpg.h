@@ -4,8 +4,9 @@
  * into it.  core/logsync.h decides what to push; readers of the central
  * database (the audit verbs) check its schema with logpg_schema_check.
  *
- * Credentials: a connection string or URI that carries a password (URI
- * userinfo `user:pw@`, or `password=`) is refused; passwords come from
+ * Credentials: a connection string or URI that carries a secret (URI
+ * userinfo `user:pw@`, `password=`, `sslpassword=`: every option libpq marks
+ * secret) is refused; passwords come from
  * libpq's password file (PGPASSFILE, ~/.pgpass), a service file
  * (PGSERVICEFILE, `service=NAME`) or PGPASSWORD.  Messages name the database
  * by logpg_conninfo_show, which leaves any password out.
@@ -39,7 +40,7 @@
 #include "err.h"
 #include "log.h"
 
-#define LOGPG_SCHEMA_VERSION 1
+#define LOGPG_SCHEMA_VERSION 2
 #define LOGPG_SHOW_MAX 512         /* logpg_conninfo_show's text */
 
 /* True when s names a PostgreSQL database rather than a file: it starts with
@@ -50,9 +51,13 @@ int logpg_is_conninfo(const char *s);
  * ST_EINVAL with one line saying where passwords belong. */
 int logpg_conninfo_check(const char *conninfo, struct err *e);
 
-/* conninfo as keyword=value pairs without any password (for messages), or
+/* conninfo as keyword=value pairs without any secret (for messages), or
  * "(unparsable connection string)". */
 void logpg_conninfo_show(const char *conninfo, char *buf, size_t len);
+
+/* m's first line into buf ("no reason given" when empty): libpq's messages
+ * may run over several lines, ours are one. */
+const char *logpg_first_line(const char *m, char *buf, size_t len);
 
 struct logpg;
 
@@ -92,18 +97,27 @@ struct logpg_held {
 
 /* BEGIN, the station's row created when missing and locked, its signing key
  * compared ("station S is held with another signing key"), its line set when
- * given, and what it holds. */
+ * given, and what it holds.  A station id that is not log_station_id_ok is
+ * refused (ST_EINVAL). */
 int logpg_batch_begin(struct logpg *pg, const struct logpg_station *st, struct logpg_held *held,
                       struct err *e);
+/* Whether the server holds a purge of evidence file name for the open
+ * batch's station; only before anything is pushed. */
+int logpg_purge_held(struct logpg *pg, const char *name, int *held, struct err *e);
 /* Queue one insert each (the station's key is the batch's). */
 int logpg_push_record(struct logpg *pg, const struct log_record *r, struct err *e);
 int logpg_push_purge(struct logpg *pg, const struct log_purge *p, struct err *e);
 int logpg_push_disposition(struct logpg *pg, const struct log_disposition *d, struct err *e);
 int logpg_push_verification(struct logpg *pg, const struct log_verification *v,
                             struct err *e);
+/* What a committed batch inserted: a row the server held already (an anchor,
+ * or what another sync of the station sent first) is not counted. */
+struct logpg_counts {
+    int64_t records, evidence, purges, dispositions, verifications;
+};
 /* Sends the queue and COMMIT; on any refusal rolls back and returns ST_EFORMAT
  * with the server's one-line reason (a lost connection is ST_EIO). */
-int logpg_batch_commit(struct logpg *pg, struct err *e);
+int logpg_batch_commit(struct logpg *pg, struct logpg_counts *inserted, struct err *e);
 /* Abandons an open batch (after a failure on the client side). */
 void logpg_batch_abort(struct logpg *pg);
 

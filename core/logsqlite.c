@@ -871,6 +871,11 @@ static int sq_iter_new(void *self, const struct log_filter *f, void **out, struc
         log_filter_init(&any);
         f = &any;
     }
+    /* a local log is one station's and knows no line: selecting none would
+     * read as "no records on that line" */
+    if (f->line && *f->line)
+        return err_set(e, ST_EINVAL, "%s: a local log has no production line; --line selects"
+                       " stations of the central database (--log postgresql://...)", db->path);
     char sql[2048] = "SELECT " REC_COLS " FROM records r WHERE 1";
     if (f->from_utc)
         cond(sql, sizeof sql, "r.utc >= :from");
@@ -888,8 +893,6 @@ static int sq_iter_new(void *self, const struct log_filter *f, void **out, struc
         cond(sql, sizeof sql, "r.recipe_id = :recipe");
     if (f->station)
         cond(sql, sizeof sql, "r.station = :station");
-    if (f->line && *f->line)
-        cond(sql, sizeof sql, "0");   /* a local log has no line */
     if (f->disp == LOG_DISP_NONE)
         cond(sql, sizeof sql, "NOT EXISTS(SELECT 1 FROM dispositions d WHERE d.record_seq = r.seq)");
     else if (f->disp > 0)

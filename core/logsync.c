@@ -1,6 +1,7 @@
 #include "logsync.h"
 
 #include <inttypes.h>
+#include <stdatomic.h>
 #include <limits.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -8,16 +9,18 @@
 #include <sys/stat.h>
 
 #include "evidence.h"
+#include "fileio.h"
 #include "logcanon.h"
 #include "sha256.h"
 
 #define RECHECK_CHUNK 4096
-#define EVIDENCE_FILE_MAX (256L << 20)
+#define EVIDENCE_FILE_MAX ((size_t)256 << 20)
 
 void logsync_options_init(struct logsync_options *o)
 {
     memset(o, 0, sizeof *o);
     o->batch = LOGSYNC_BATCH_DEFAULT;
+    o->recheck = 1;
 }
 
 /* What the run reads of the local log once: its chains other than records,
@@ -45,6 +48,11 @@ static int local_load(struct local *L, struct err *e)
     return log_dispositions_get(L->db, 0, &L->d, &L->nd, e) ||
            log_verifications_get(L->db, &L->v, &L->nv, e) ||
            log_purges_get(L->db, &L->p, &L->np, e);
+}
+
+static int stopped(const struct logsync_options *o)
+{
+    return o->stop && atomic_load(o->stop);
 }
 
 /* The checks before anything is forwarded: the stored hash is the hash of
@@ -85,24 +93,6 @@ static int check_verification(const struct local *L, const struct log_verificati
     return rc;
 }
 
-static int read_file(const char *path, unsigned char **buf, size_t *len, struct err *e)
-{
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return err_set(e, ST_EIO, "%s: missing", path);
-    int rc = ST_OK;
-    long n = fseek(f, 0, SEEK_END) ? -1 : ftell(f);
-    if (n < 0 || n > EVIDENCE_FILE_MAX || fseek(f, 0, SEEK_SET))
-        rc = err_set(e, ST_EIO, "%s: cannot read", path);
-    else if (!(*buf = malloc(n ? (size_t)n : 1)))
-        rc = err_set(e, ST_ENOMEM, "%s: out of memory", path);
-    else if (fread(*buf, 1, (size_t)n, f) != (size_t)n)
-        rc = err_set(e, ST_EIO, "%s: cannot read", path);
-    *len = (size_t)(n > 0 ? n : 0);
-    fclose(f);
-    return rc;
-}
-
 /* One evidence file to ROOT/NAME, unless it is there already and intact. */
 static int copy_one(const struct local *L, const char *root, const struct log_evidence *v,
                     struct err *e)
@@ -111,10 +101,10 @@ static int copy_one(const struct local *L, const char *root, const struct log_ev
         return ST_OK;
     char src[PATH_MAX], hex[SHA256_HEX_LEN];
     int rc = log_evidence_path(L->db, v->name, src, sizeof src, e);
-    unsigned char *buf = NULL;
+    uint8_t *buf = NULL;
     size_t len = 0;
     if (!rc)
-        rc = read_file(src, &buf, &len, e);
+        rc = fileio_read_path(src, EVIDENCE_FILE_MAX, &buf, &len, e);
     if (!rc) {
         sha256_hex_buffer(buf, len, hex);
         if (strcmp(hex, v->sha256) || (int64_t)len != v->bytes)
@@ -188,13 +178,13 @@ static int verification_hash_checked(const struct local *L, int64_t seq,
 }
 
 static int recheck_chain(const struct local *L, struct logpg *pg, int chain, const char *noun,
-                         int64_t held, local_hash_fn local_hash, struct logsync_result *res,
-                         struct err *e)
+                         int64_t held, local_hash_fn local_hash, const struct logsync_options *o,
+                         struct logsync_result *res, struct err *e)
 {
     int64_t *seqs = malloc(RECHECK_CHUNK * sizeof *seqs);
     char (*hashes)[SHA256_HEX_LEN] = malloc(RECHECK_CHUNK * sizeof *hashes);
     int rc = seqs && hashes ? ST_OK : err_set(e, ST_ENOMEM, "recheck: out of memory");
-    for (int64_t from = 1; !rc && from <= held; from += RECHECK_CHUNK) {
+    for (int64_t from = 1; !rc && from <= held && !stopped(o); from += RECHECK_CHUNK) {
         int n;
         rc = logpg_held_hashes(pg, chain, L->station, from, from + RECHECK_CHUNK - 1, seqs, hashes,
                                &n, e);
@@ -217,6 +207,41 @@ static int recheck_chain(const struct local *L, struct logpg *pg, int chain, con
     return rc;
 }
 
+/* Each link pushed must name the one before it: a record altered and
+ * rehashed in place keeps its old successor's prev_hash pointing at the old
+ * hash, and that is caught here before the server is asked. */
+static int check_link(const struct local *L, const char *noun, int64_t n, const char *prev_hash,
+                      const char *want, struct err *e)
+{
+    if (!strcmp(prev_hash, want))
+        return ST_OK;
+    return err_set(e, ST_EFORMAT,
+                   "station %s: LOG %s: %s %" PRId64 " does not link to %s %" PRId64 "; run station"
+                   " audit verify", L->station, log_path(L->db), noun, n, noun, n - 1);
+}
+
+/* The purges are counted against what the server holds; the last one it
+ * holds must be the local one of that number, by name. */
+static int check_purges(const struct local *L, struct logpg *pg, const struct logpg_held *h,
+                        struct err *e)
+{
+    if (h->purges > L->np)
+        return err_set(e, ST_EFORMAT,
+                       "station %s: the central database holds %" PRId64 " evidence purges, the"
+                       " local log %s %d: not the log the central database knows as %s",
+                       L->station, h->purges, log_path(L->db), L->np, L->station);
+    if (h->purges == 0)
+        return ST_OK;
+    const struct log_purge *u = &L->p[h->purges - 1];
+    int held, rc = logpg_purge_held(pg, u->name, &held, e);
+    if (!rc && !held)
+        rc = err_set(e, ST_EFORMAT,
+                     "station %s: the central database holds %" PRId64 " evidence purges but not"
+                     " the local log's purge %" PRId64 " (%s): the purges of %s differ from its"
+                     " central copy", L->station, h->purges, h->purges, u->name, log_path(L->db));
+    return rc;
+}
+
 /* One transaction: the anchors, then what is new, within the batch size. */
 static int push_batch(const struct local *L, struct logpg *pg, const struct logpg_station *st,
                       const struct logsync_options *o, struct logsync_result *res, int *more,
@@ -226,6 +251,7 @@ static int push_batch(const struct local *L, struct logpg *pg, const struct logp
     int rc = logpg_batch_begin(pg, st, &h, e);
     if (rc)
         return rc;
+    res->central_seq = h.seq;
     if (!res->batches++) {
         res->held_seq = h.seq;
         res->held_dseq = h.dseq;
@@ -233,9 +259,12 @@ static int push_batch(const struct local *L, struct logpg *pg, const struct logp
         res->held_purges = h.purges;
     }
     int64_t sent = 0, top = h.seq;
+    char link[SHA256_HEX_LEN];
+    memcpy(link, h.hash, SHA256_HEX_LEN);
     struct log_record r;
     log_record_init(&r);
-    if (h.seq > 0) {
+    rc = check_purges(L, pg, &h, e);
+    if (!rc && h.seq > 0) {
         rc = log_get(L->db, h.seq, &r, e);
         if (rc == ST_ERANGE)
             rc = err_set(e, ST_EFORMAT,
@@ -244,6 +273,8 @@ static int push_batch(const struct local *L, struct logpg *pg, const struct logp
                          L->station, h.seq, log_path(L->db), L->station);
         if (!rc)
             rc = check_record(L, &r, e) || logpg_push_record(pg, &r, e);
+        if (!rc)
+            memcpy(link, r.hash, SHA256_HEX_LEN);
     }
     if (!rc && (h.dseq > L->nd || h.vseq > L->nv))
         rc = err_set(e, ST_EFORMAT,
@@ -262,15 +293,15 @@ static int push_batch(const struct local *L, struct logpg *pg, const struct logp
         rc = log_iter_next(it, &r, &have, e);
         if (rc || !have)
             break;
-        rc = check_record(L, &r, e);
+        rc = check_record(L, &r, e) || check_link(L, "record", r.seq, r.prev_hash, link, e);
         if (!rc && o->evidence_to)
             copy_evidence(L, o, &r, res);
         if (!rc)
             rc = logpg_push_record(pg, &r, e);
         if (!rc) {
+            memcpy(link, r.hash, SHA256_HEX_LEN);
             top = r.seq;
             sent++;
-            res->sent_evidence += r.nevidence;
         }
     }
     log_iter_free(it);
@@ -283,25 +314,36 @@ static int push_batch(const struct local *L, struct logpg *pg, const struct logp
         rc = check_disposition(L, &L->d[h.dseq - 1], e) ||
              logpg_push_disposition(pg, &L->d[h.dseq - 1], e);
     for (int64_t i = h.dseq; !rc && i < L->nd && L->d[i].record_seq <= top && nd < o->batch; i++)
-        rc = check_disposition(L, &L->d[i], e) || logpg_push_disposition(pg, &L->d[i], e)
+        rc = check_disposition(L, &L->d[i], e) ||
+                     check_link(L, "disposition", L->d[i].dseq, L->d[i].prev_hash,
+                                i ? L->d[i - 1].hash : LOGCANON_GENESIS, e) ||
+                     logpg_push_disposition(pg, &L->d[i], e)
                  ? e->code : (nd++, ST_OK);
     if (!rc && h.vseq > 0)
         rc = check_verification(L, &L->v[h.vseq - 1], e) ||
              logpg_push_verification(pg, &L->v[h.vseq - 1], e);
     for (int64_t i = h.vseq; !rc && i < L->nv && nv < o->batch; i++)
-        rc = check_verification(L, &L->v[i], e) || logpg_push_verification(pg, &L->v[i], e)
+        rc = check_verification(L, &L->v[i], e) ||
+                     check_link(L, "verification", L->v[i].vseq, L->v[i].prev_hash,
+                                i ? L->v[i - 1].hash : LOGCANON_GENESIS, e) ||
+                     logpg_push_verification(pg, &L->v[i], e)
                  ? e->code : (nv++, ST_OK);
     if (rc) {
         logpg_batch_abort(pg);
         return e->code ? e->code : rc;
     }
-    rc = logpg_batch_commit(pg, e);
+    struct logpg_counts got;
+    rc = logpg_batch_commit(pg, &got, e);
     if (rc)
         return rc;
-    res->sent_records += sent;
-    res->sent_purges += np;
-    res->sent_dispositions += nd;
-    res->sent_verifications += nv;
+    /* what the server inserted: another sync of this station may have sent
+     * some of it first */
+    res->sent_records += got.records;
+    res->sent_evidence += got.evidence;
+    res->sent_purges += got.purges;
+    res->sent_dispositions += got.dispositions;
+    res->sent_verifications += got.verifications;
+    res->central_seq += got.records;
     *more = sent > 0 || np > 0 || nd > 0 || nv > 0;
     return ST_OK;
 }
@@ -331,11 +373,13 @@ int logsync_run(struct log_db *db, struct logpg *pg, const struct logsync_option
     log_stations_free(own);
     if (!opt.station && !n)
         return ST_OK;      /* nothing to forward, nor a station to forward it as */
-    if (opt.station && snprintf(res->station, sizeof res->station, "%s", opt.station) >=
-                           (int)sizeof res->station)
-        return err_set(e, ST_EINVAL, "station id '%s' is too long", opt.station);
-    if (rc)
-        return rc;
+    if (opt.station)
+        snprintf(res->station, sizeof res->station, "%s", opt.station);
+    /* the id names a folder of the evidence copies (DIR/STATION) */
+    if (!log_station_id_ok(opt.station ? opt.station : res->station))
+        return err_set(e, ST_EINVAL, "station id '%s'%s must be 1..%d of letters, digits, . _ -",
+                       opt.station ? opt.station : res->station,
+                       opt.station ? "" : " (the log's latest record's)", LOG_ID_MAX - 1);
     L.station = res->station;
     struct log_signing sg;
     rc = log_signing_get(db, &sg, e) || logpg_schema_ensure(pg, e) || local_load(&L, e);
@@ -351,14 +395,14 @@ int logsync_run(struct log_db *db, struct logpg *pg, const struct logsync_option
             if (!rc) {
                 logpg_batch_abort(pg);
                 rc = recheck_chain(&L, pg, LOGPG_RECORDS, "record", h.seq, record_hash_checked,
-                                   res, e) ||
+                                   &opt, res, e) ||
                      recheck_chain(&L, pg, LOGPG_DISPOSITIONS, "disposition", h.dseq,
-                                   disposition_hash_checked, res, e) ||
+                                   disposition_hash_checked, &opt, res, e) ||
                      recheck_chain(&L, pg, LOGPG_VERIFICATIONS, "verification", h.vseq,
-                                   verification_hash_checked, res, e);
+                                   verification_hash_checked, &opt, res, e);
             }
         }
-        for (int more = 1; !rc && more;)
+        for (int more = 1; !rc && more && !(res->stopped = stopped(&opt));)
             rc = push_batch(&L, pg, &st, &opt, res, &more, e);
     }
     local_free(&L);

@@ -7,14 +7,16 @@
  * not hold yet, in order: records with their evidence rows, then evidence
  * purges, dispositions and verifications whose records are held.  Before
  * sending it recomputes each link's canonical hash (core/logcanon.h) and
- * refuses one whose stored hash does not match its content.  Each batch also
- * sends the local copy of the last link the server holds of each chain (the
- * anchor): a local record altered after it was forwarded is then refused by
- * the server, naming station and sequence number.  Keyed by (station, seq)
- * and checked by hash on the server, a retry after a cut connection resumes
- * from what the server holds: nothing is doubled or skipped.  recheck first
- * compares every held hash of every chain with the local log (a full
- * reconciliation) and forwards nothing when one differs.
+ * refuses one whose stored hash does not match its content or whose
+ * prev_hash does not name the link before it.  Each batch also sends the
+ * local copy of the last link the server holds of each chain (the anchor),
+ * and checks that the last purge it holds is the local one of that number.
+ * Keyed by (station, seq) and checked by hash on the server, a retry after a
+ * cut connection resumes from what the server holds: nothing is doubled or
+ * skipped.  recheck (the default) first compares every held hash of every
+ * chain with the local log (a full reconciliation: a record altered anywhere
+ * after it was forwarded is named with station and sequence number) and
+ * forwards nothing when one differs.
  *
  * evidence_to (optional) copies each forwarded record's evidence files to
  * EVIDENCE_TO/STATION/NAME (temporary name, fsync, rename; SHA-256 checked
@@ -26,6 +28,7 @@
 #ifndef ST_LOGSYNC_H
 #define ST_LOGSYNC_H
 
+#include <stdatomic.h>
 #include <stdint.h>
 
 #include "err.h"
@@ -42,18 +45,22 @@ struct logsync_options {
     const char *line;              /* the station's production line; NULL: as held */
     const char *evidence_to;       /* NULL: evidence files are not copied */
     int batch;                     /* records per transaction; 0: LOGSYNC_BATCH_DEFAULT */
-    int recheck;
+    int recheck;                   /* 1 (the default): every held link compared first */
+    const atomic_int *stop;        /* NULL, or set by another thread: end between batches */
 };
 void logsync_options_init(struct logsync_options *o);
 
 /* What one run did, per chain: the server held *_before, the local log has
- * local_*, sent_* went over (a retry's skipped duplicates are not counted). */
+ * local_*, sent_* the server inserted (a row it held already, sent again by a
+ * retry, an anchor or another sync of the station, is not counted). */
 struct logsync_result {
     char station[LOG_ID_MAX];
     int64_t local_seq, local_dseq, local_vseq, local_purges;
     int64_t held_seq, held_dseq, held_vseq, held_purges;       /* before the run */
     int64_t sent_records, sent_evidence, sent_purges, sent_dispositions, sent_verifications;
+    int64_t central_seq;           /* the central copy's last record after the run */
     int64_t rechecked;             /* links compared by recheck */
+    int stopped;                   /* o->stop ended the run early */
     int batches;
     int64_t copied, copy_failed;   /* evidence files */
     char copy_problem[512];        /* the first copy failure, "" when none */

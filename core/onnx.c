@@ -10,6 +10,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "fileio.h"
 #include "onnx/onnx.pb-c.h"
 
 #define MAX_DIMS_ELEMS (1ull << 31) /* no stem needs more floats in one tensor */
@@ -24,45 +25,6 @@ struct onnx_model {
 };
 
 /* ---- files ------------------------------------------------------------ */
-
-/* Reads at most max bytes of an already open file; *len is its size. */
-static int read_fd(int fd, const char *path, size_t max, uint8_t **buf, size_t *len, struct err *e)
-{
-    struct stat st;
-    if (fstat(fd, &st) || !S_ISREG(st.st_mode))
-        return err_set(e, ST_EIO, "%s: not a regular file", path);
-    if ((unsigned long long)st.st_size > max)
-        return err_set(e, ST_ERANGE, "%s: %lld bytes, more than the %zu allowed", path, (long long)st.st_size,
-                       max);
-    size_t n = (size_t)st.st_size;
-    *buf = malloc(n ? n : 1);
-    if (!*buf)
-        return err_set(e, ST_ENOMEM, "%s: out of memory for %zu bytes", path, n);
-    size_t got = 0;
-    while (got < n) {
-        ssize_t r = read(fd, *buf + got, n - got);
-        if (r <= 0) {
-            if (r < 0 && errno == EINTR)
-                continue;
-            free(*buf);
-            *buf = NULL;
-            return err_set(e, ST_EIO, "%s: read failed after %zu of %zu bytes", path, got, n);
-        }
-        got += (size_t)r;
-    }
-    *len = n;
-    return ST_OK;
-}
-
-static int read_file(const char *path, uint8_t **buf, size_t *len, struct err *e)
-{
-    int fd = open(path, O_RDONLY);
-    if (fd < 0)
-        return err_set(e, ST_EIO, "%s: cannot open: %s", path, strerror(errno));
-    int rc = read_fd(fd, path, ONNX_MAX_FILE_BYTES, buf, len, e);
-    close(fd);
-    return rc;
-}
 
 /* Opens dir/loc for reading with every component checked: relative, no
  * "..", no ".", no empty part, no symlink anywhere (O_NOFOLLOW on each). */
@@ -237,7 +199,7 @@ int onnx_tensor_load(const char *path, struct onnx_tensor *t, struct err *e)
     uint8_t *buf = NULL;
     size_t len = 0;
     memset(t, 0, sizeof *t);
-    int rc = read_file(path, &buf, &len, e);
+    int rc = fileio_read_path(path, ONNX_MAX_FILE_BYTES, &buf, &len, e);
     if (rc)
         return rc;
     Onnx__TensorProto *pb = onnx__tensor_proto__unpack(NULL, len, buf);
@@ -271,7 +233,7 @@ struct onnx_model *onnx_model_load(const char *path, struct err *e)
         slash[slash == m->dir] = 0;
     else
         strcpy(m->dir, ".");
-    if (read_file(path, &buf, &len, e))
+    if (fileio_read_path(path, ONNX_MAX_FILE_BYTES, &buf, &len, e))
         goto fail;
     m->pb = onnx__model_proto__unpack(NULL, len, buf);
     free(buf);

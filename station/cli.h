@@ -14,7 +14,8 @@ enum exit_status {
     EXIT_ANY_FAIL = 1,   /* at least one FAIL, none NO_VERDICT */
     EXIT_ANY_NONE = 2,   /* at least one NO_VERDICT */
     EXIT_ERROR = 3,      /* bad input: recipe, model, dataset, option */
-    EXIT_USAGE = 4       /* wrong command line */
+    EXIT_USAGE = 4,      /* wrong command line */
+    EXIT_REFUSED = 5     /* station sync: a link differs from its central copy (or its own hash) */
 };
 
 #define CLI_CAUTION                                                                       \

@@ -120,6 +120,10 @@ int cmd_run(int argc, char **argv)
         }
         }
     }
+    if (!o.sync_to && (o.sync_line || o.sync_every > 0)) {
+        cli_say("--sync-every and --sync-line set how the log is forwarded: they need --sync-to");
+        return EXIT_USAGE;
+    }
     if (argc - optind != 1) {
         usage(stderr);
         return EXIT_USAGE;

@@ -11,26 +11,31 @@
 static void usage(FILE *f)
 {
     fprintf(f,
-            "usage: station sync --to CONNINFO [--log DB | --station ID] [--line LINE]\n"
-            "                    [--evidence-to DIR] [--batch N] [--recheck] [--json]\n\n"
+            "usage: station sync --to CONNINFO [--log DB] [--station ID] [--line LINE]\n"
+            "                    [--evidence-to DIR] [--batch N] [--quick] [--json]\n\n"
             "Forwards what the central PostgreSQL database does not hold yet of this station's\n"
             "log: records with their evidence rows, evidence purges, dispositions and\n"
             "master-part verifications, in order, %d records per transaction.  Safe to repeat\n"
             "and to cut: a retry continues from what the server holds, never doubling or\n"
-            "skipping a record.  The server refuses a record whose chain link or hash differs\n"
-            "from its copy, and says which.\n\n"
+            "skipping a record.  First every link the server holds is compared with the local\n"
+            "log, so a record altered anywhere after it was forwarded is found; the server\n"
+            "refuses a record whose chain link or hash differs from its copy, and says which.\n\n"
             "  --to CONNINFO     a libpq URI (postgresql://HOST/DB) or keyword=value string\n"
             "                    (service=NAME); never with a password in it: use PGPASSFILE\n"
             "                    or ~/.pgpass, a service file (PGSERVICEFILE) or PGPASSWORD\n"
-            "  --log DB          the local log (default: the station's, see --station)\n"
+            "  --log DB          the local log, a file (default: the station's, see --station)\n"
             "  --station ID      the id the station is held under centrally (default: the\n"
-            "                    station of the log's latest record) and its default log\n"
+            "                    station of the log's latest record); without --log it also\n"
+            "                    names the station's default log\n"
             "  --line LINE       the production line the station belongs to\n"
             "  --evidence-to DIR also copy evidence files to DIR/STATION/NAME (a shared folder)\n"
             "  --batch N         records per transaction, 1..%d (default %d)\n"
-            "  --recheck         first compare every held link's hash with the local log\n"
+            "  --quick           skip the comparison of the held links (only the last one\n"
+            "                    of each chain is checked): for very large logs\n"
             "  --json            one JSON line on stdout\n\n"
-            "Exit status: 0 forwarded (or nothing to do), 3 refused or unreachable, 4 usage.\n",
+            "Exit status: 0 forwarded (or nothing to do), 3 unreachable or the local log\n"
+            "unreadable, 4 usage, 5 refused: a link differs from the central copy or from its\n"
+            "own hash (the message names station and number).\n",
             LOGSYNC_BATCH_DEFAULT, LOGSYNC_BATCH_MAX, LOGSYNC_BATCH_DEFAULT);
 }
 
@@ -61,7 +66,7 @@ int cmd_sync(int argc, char **argv)
                                          {"line", required_argument, NULL, 'L'},
                                          {"evidence-to", required_argument, NULL, 'E'},
                                          {"batch", required_argument, NULL, 'b'},
-                                         {"recheck", no_argument, NULL, 'r'},
+                                         {"quick", no_argument, NULL, 'q'},
                                          {"json", no_argument, NULL, 'j'},
                                          {0, 0, 0, 0}};
     struct logsync_options o;
@@ -85,7 +90,7 @@ int cmd_sync(int argc, char **argv)
             }
             o.batch = (int)batch;
             break;
-        case 'r': o.recheck = 1; break;
+        case 'q': o.recheck = 0; break;
         case 'j': json = 1; break;
         default: usage(stderr); return EXIT_USAGE;
         }
@@ -100,6 +105,16 @@ int cmd_sync(int argc, char **argv)
     err_clear(&e);
     if (logpg_conninfo_check(to, &e)) {
         cli_say("--to: %s", e.msg);
+        return EXIT_USAGE;
+    }
+    if (db_path && logpg_is_conninfo(db_path)) {
+        cli_say("--log %s: sync reads the station's own log, a file; the central database is"
+                " --to", db_path);
+        return EXIT_USAGE;
+    }
+    if (o.station && !log_station_id_ok(o.station)) {
+        cli_say("--station '%s': a station id is 1..%d of letters, digits, . _ -", o.station,
+                LOG_ID_MAX - 1);
         return EXIT_USAGE;
     }
     struct log_db *db = NULL;
@@ -154,5 +169,5 @@ int cmd_sync(int argc, char **argv)
     }
     logpg_close(pg);
     log_close(db);
-    return rc ? EXIT_ERROR : 0;
+    return !rc ? 0 : e.code == ST_EFORMAT ? EXIT_REFUSED : EXIT_ERROR;
 }

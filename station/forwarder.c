@@ -1,9 +1,11 @@
 #include "forwarder.h"
 
 #include <pthread.h>
+#include <stdatomic.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/socket.h>
 #include <time.h>
 
 #include "core/log.h"
@@ -19,7 +21,9 @@ struct forwarder {
     pthread_t th;
     pthread_mutex_t mu;
     pthread_cond_t cv;
-    int stop;
+    atomic_int stop;
+    int sock;                      /* the connection's socket, -1 none; under mu */
+    int rechecked;                 /* a sync since the last (re)connect rechecked */
     struct forward_event ev[EVENTS];
     int head, count;
     int failing;                   /* the last try failed */
@@ -60,11 +64,31 @@ static int once(struct forwarder *f, struct log_db **db, struct logpg **pg,
     logsync_options_init(&o);
     o.station = f->has_station ? f->station : NULL;
     o.line = f->has_line ? f->line : NULL;
+    o.stop = &f->stop;
+    o.recheck = !f->rechecked;
     if (!*db && log_open(f->db_path, LOG_OPEN_READ, NULL, db, e))
         return e->code;
     if (!*pg && logpg_connect(f->conninfo, pg, e))
         return e->code;
-    return logsync_run(*db, *pg, &o, r, e);
+    pthread_mutex_lock(&f->mu);
+    f->sock = PQsocket(logpg_conn(*pg));
+    if (f->stop)
+        shutdown(f->sock, SHUT_RDWR);
+    pthread_mutex_unlock(&f->mu);
+    int rc = logsync_run(*db, *pg, &o, r, e);
+    f->rechecked |= !rc;
+    return rc;
+}
+
+/* The socket is forgotten under the lock before the connection closes, so
+ * forwarder_stop never shuts down a descriptor that has been reused. */
+static void close_pg(struct forwarder *f, struct logpg **pg)
+{
+    pthread_mutex_lock(&f->mu);
+    f->sock = -1;
+    pthread_mutex_unlock(&f->mu);
+    logpg_close(*pg);
+    *pg = NULL;
 }
 
 static void *run(void *arg)
@@ -81,11 +105,14 @@ static void *run(void *arg)
         struct forward_event ev;
         memset(&ev, 0, sizeof ev);
         if (once(f, &db, &pg, &r, &e)) {
-            logpg_close(pg);
+            close_pg(f, &pg);
             log_close(db);
-            pg = NULL;
             db = NULL;
+            f->rechecked = 0;
+            if (f->stop)
+                break;
             ev.kind = FORWARD_FAILED;
+            ev.code = e.code;
             ev.retry_s = backoff;
             snprintf(ev.message, sizeof ev.message, "%s", e.msg);
             post(f, &ev);
@@ -100,13 +127,13 @@ static void *run(void *arg)
         ev.records = r.sent_records;
         ev.dispositions = r.sent_dispositions;
         ev.verifications = r.sent_verifications;
-        ev.held = r.held_seq + r.sent_records;
+        ev.held = r.central_seq;
         /* quiet while nothing happens, but say when a failure is over */
         if (f->failing || ev.records || ev.dispositions || ev.verifications || r.sent_purges)
             post(f, &ev);
         f->failing = 0;
     } while (!wait_s(f, f->every_s));
-    logpg_close(pg);
+    close_pg(f, &pg);
     log_close(db);
     return NULL;
 }
@@ -132,6 +159,7 @@ int forwarder_start(const struct forwarder_options *o, struct forwarder **out, s
     f->has_station = o->station != NULL;
     f->has_line = o->line != NULL;
     f->every_s = o->every_s > 0 ? o->every_s : FORWARDER_EVERY_DEFAULT;
+    f->sock = -1;
     pthread_condattr_t ca;
     pthread_condattr_init(&ca);
     pthread_condattr_setclock(&ca, CLOCK_MONOTONIC);
@@ -154,6 +182,10 @@ void forwarder_stop(struct forwarder *f)
         return;
     pthread_mutex_lock(&f->mu);
     f->stop = 1;
+    /* PQcancel would do it politely, but in libpq 15 it waits on the server
+     * with no bound, and a silent server is the case to end */
+    if (f->sock >= 0)
+        shutdown(f->sock, SHUT_RDWR);
     pthread_cond_signal(&f->cv);
     pthread_mutex_unlock(&f->mu);
     pthread_join(f->th, NULL);

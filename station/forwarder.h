@@ -6,9 +6,11 @@
  * logsync_run (core/logsync.h) every `every_s` seconds.  A failure (server
  * down, refusal) closes both, is posted as an event, and is retried after
  * 1 s, then twice as long each time up to 60 s; inspection never waits on
- * it.  The loop (station/live.h) polls the events and shows them as event
- * lines and in the screen's status line.  Stopping does not wait for a last
- * sync: the next run forwards what is left. */
+ * it.  The first sync (and the first after a failure) rechecks every held
+ * link against the local log; later ones only what is new.  The loop
+ * (station/live.h) polls the events and shows them as event lines and in the
+ * screen's status line.  Stopping does not wait for a last sync: the next
+ * run forwards what is left. */
 #ifndef ST_FORWARDER_H
 #define ST_FORWARDER_H
 
@@ -34,13 +36,16 @@ struct forward_event {
     int64_t records, dispositions, verifications;  /* SYNCED: forwarded this time */
     int64_t held;                  /* SYNCED: the central copy's last record now */
     int retry_s;                   /* FAILED: the next try in */
+    int code;                      /* FAILED: ST_EFORMAT refused by either side, else not reached */
     char message[512];             /* FAILED: why */
 };
 
 struct forwarder;
 int forwarder_start(const struct forwarder_options *o, struct forwarder **out, struct err *e);
-/* Ends the thread after the sync in hand (libpq's connect_timeout bounds a
- * hung connect); accepts NULL. */
+/* Ends the thread: a sync in hand stops between batches, and a statement
+ * waiting on a silent server is cut by shutting its socket down (the open
+ * batch is rolled back by the server); a connect in hand is bounded by
+ * libpq's connect_timeout (10 s).  Accepts NULL. */
 void forwarder_stop(struct forwarder *f);
 /* Takes the next event: 1 when there was one (older ones are dropped when
  * nobody polls). */

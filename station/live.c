@@ -230,10 +230,12 @@ static void take_forwarding(struct live *L)
             snprintf(L->sync_state, sizeof L->sync_state, "central: %lld held",
                      (long long)ev.held);
         } else {
-            cli_emit(json_pack("{s:s,s:s,s:i}", "event", "sync_failed", "reason", ev.message,
-                               "retry_s", ev.retry_s));
-            snprintf(L->sync_state, sizeof L->sync_state, "central: not reached, retry in %d s",
-                     ev.retry_s);
+            cli_emit(json_pack("{s:s,s:s,s:b,s:i}", "event", "sync_failed", "reason", ev.message,
+                               "refused", ev.code == ST_EFORMAT, "retry_s", ev.retry_s));
+            /* a refusal (a link that differs) needs a person; a server
+             * not reached only time */
+            snprintf(L->sync_state, sizeof L->sync_state, "central: %s, retry in %d s",
+                     ev.code == ST_EFORMAT ? "refused" : "not reached", ev.retry_s);
         }
     }
 }

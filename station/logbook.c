@@ -11,20 +11,9 @@
 #include "core/recipever.h"
 #include "report.h"
 
-static int valid_station(const char *s)
-{
-    if (!s || !*s || strlen(s) >= LOG_ID_MAX || !strcmp(s, ".") || !strcmp(s, ".."))
-        return 0;
-    for (; *s; s++)
-        if (!(*s >= 'a' && *s <= 'z') && !(*s >= 'A' && *s <= 'Z') && !(*s >= '0' && *s <= '9') &&
-            !strchr("._-", *s))
-            return 0;
-    return 1;
-}
-
 int logbook_default_path(const char *station, char *buf, size_t len, struct err *e)
 {
-    if (!valid_station(station))
+    if (!log_station_id_ok(station))
         return err_set(e, ST_EINVAL, "station id '%s' must be 1..%d of letters, digits, . _ -",
                        station ? station : "", LOG_ID_MAX - 1);
     const char *xdg = getenv("XDG_DATA_HOME"), *home = getenv("HOME");
@@ -88,7 +77,7 @@ int logbook_open(struct logbook *lb, const char *db_path, const char *station,
     char def[PATH_MAX];
     if (!station)
         station = LOGBOOK_DEFAULT_STATION;
-    int rc = valid_station(station) ? ST_OK
+    int rc = log_station_id_ok(station) ? ST_OK
                                     : err_set(e, ST_EINVAL,
                                               "station id '%s' must be 1..%d of letters, digits,"
                                               " . _ -",

@@ -161,14 +161,20 @@ static void test_local_log_is_one_station(void **state)
     assert_string_equal(r.chain_station, "bench-8");
     log_record_clear(&r);
 
-    /* no line locally: only "" matches; the station filter is the record's field */
+    /* no line locally: "" is every record, another line is refused rather
+     * than an empty selection that reads as "none on that line"; the
+     * station filter is the record's field */
     struct log_filter f;
     log_filter_init(&f);
     assert_int_equal(count(db, &f), 3);
     f.line = "";
     assert_int_equal(count(db, &f), 3);
     f.line = "line-1";
-    assert_int_equal(count(db, &f), 0);
+    struct log_iter *it = NULL;
+    err_clear(&e);
+    assert_int_equal(log_iter_new(db, &f, &it, &e), ST_EINVAL);
+    assert_null(it);
+    assert_non_null(strstr(e.msg, "a local log has no production line"));
     log_filter_init(&f);
     f.station = "bench-7";
     assert_int_equal(count(db, &f), 2);
@@ -179,6 +185,22 @@ static void test_local_log_is_one_station(void **state)
     assert_int_equal(count(db, &f), 3);
     assert_int_equal(log_scope(db, NULL, &e), ST_OK);
     log_close(db);
+}
+
+/* A station id names a folder (the default log's, the central evidence
+ * copies' DIR/STATION): one path component of the portable filename
+ * character set (POSIX.1-2017, 3.282: letters, digits, . _ -), not . or .. */
+static void test_station_id(void **state)
+{
+    (void)state;
+    const char *ok[] = {"bench-A", "line1.bench_2", "A", "..a", "a.."};
+    const char *bad[] = {"", ".", "..", "../esc", "a/b", "bench A", "b\\c", "é",
+                         "0123456789012345678901234567890123456789012345678901234567890123"};
+    for (size_t i = 0; i < sizeof ok / sizeof ok[0]; i++)
+        assert_true(log_station_id_ok(ok[i]));
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++)
+        assert_false(log_station_id_ok(bad[i]));
+    assert_false(log_station_id_ok(NULL));
 }
 
 /* A local record's evidence resolves the same with or without the record. */
@@ -212,6 +234,7 @@ int main(void)
         cmocka_unit_test(test_path_with_equals_is_sqlite),
         cmocka_unit_test(test_local_log_is_one_station),
         cmocka_unit_test(test_local_evidence_paths),
+        cmocka_unit_test(test_station_id),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

@@ -10,8 +10,11 @@ as tests/e2e/logcheck.py writes it (SHA-256 from hashlib, FIPS 180-4).
   check_sync.py compare CONNINFO STATION DB    central rows == local rows, central chains intact
   check_sync.py evidence CONNINFO STATION DIR  every copied evidence file has its recorded SHA-256
   check_sync.py tamper DB SEQ content|rehash   alter record SEQ's verdict in the local log
+  check_sync.py unpurge DB                     rename the local log's last evidence purge
   check_sync.py bypass CONNINFO STATION        the server itself refuses a broken link, a changed
-                                               copy, UPDATE and DELETE from any client
+                                               copy, a gap, evidence for a held record, UPDATE,
+                                               DELETE and TRUNCATE, and a station row's key
+                                               changed, from any client
 """
 import hashlib
 import os
@@ -111,10 +114,6 @@ def compare(conninfo, station, db):
             diff = [i for i in range(min(len(a), len(b))) if a[i] != b[i]]
             bad.append("%s: local %d rows, central %d, first difference at row %s"
                        % (table, len(a), len(b), diff[0] if diff else min(len(a), len(b))))
-    cur.execute("SELECT count(*) FROM records WHERE station = %s GROUP BY seq HAVING count(*) > 1",
-                (station,))
-    if cur.fetchall():
-        bad.append("a record is held twice")
     bad += chain_problems(cur, station)
     pg.close()
     loc.close()
@@ -129,11 +128,15 @@ def compare(conninfo, station, db):
 def evidence(conninfo, station, folder):
     pg = psycopg2.connect(conninfo)
     cur = pg.cursor()
-    cur.execute("SELECT name, sha256, bytes FROM evidence e WHERE station = %s", (station,))
+    # every file not purged must have been copied: the local log still held it
+    cur.execute("SELECT name, sha256, bytes FROM evidence e WHERE station = %s AND NOT EXISTS("
+                "SELECT 1 FROM evidence_purged p WHERE p.station = e.station AND p.name = e.name)",
+                (station,))
     seen, bad = 0, []
     for name, sha, nbytes in cur.fetchall():
         path = os.path.join(folder, station, name)
         if not os.path.exists(path):
+            bad.append("%s: not copied" % path)
             continue
         data = open(path, "rb").read()
         seen += 1
@@ -168,6 +171,16 @@ def tamper(db, seq, mode):
     return 0
 
 
+def unpurge(db):
+    con = sqlite3.connect(db)
+    con.execute("DROP TRIGGER IF EXISTS purged_no_update")
+    con.execute("UPDATE evidence_purged SET name = 'not-' || name"
+                " WHERE rowid = (SELECT max(rowid) FROM evidence_purged)")
+    con.commit()
+    con.close()
+    return 0
+
+
 def refused(cur, sql, args, want):
     try:
         cur.execute(sql, args)
@@ -199,11 +212,26 @@ def bypass(conninfo, station):
            refused(cur, ins, rec(n + 2, last["hash"], "c" * 64), "arrives before record"),
            refused(cur, "UPDATE records SET verdict = 'PASS' WHERE station = %s", [station],
                    "append-only"),
-           refused(cur, "DELETE FROM dispositions WHERE station = %s", [station], "append-only")]
+           refused(cur, "DELETE FROM dispositions WHERE station = %s", [station], "append-only"),
+           # evidence lines are part of a held record's hash
+           refused(cur, "INSERT INTO evidence VALUES(%s, %s, 'frame', 'late.png', %s, 1)",
+                   [station, n, "d" * 64], "arrives without its record"),
+           # the signing key, once held, and the rest of a station's row but its line
+           refused(cur, "UPDATE stations SET public_key = '' WHERE station = %s", [station],
+                   "only its line may change"),
+           refused(cur, "UPDATE stations SET log_schema = 1 WHERE station = %s", [station],
+                   "only its line may change"),
+           refused(cur, "DELETE FROM stations WHERE station = %s", [station], "append-only"),
+           refused(cur, "TRUNCATE records CASCADE", [], "TRUNCATE refused"),
+           refused(cur, "TRUNCATE stations CASCADE", [], "TRUNCATE refused")]
+    cur.execute("UPDATE stations SET line = line || '-x' WHERE station = %s", [station])
+    if cur.rowcount != 1:
+        bad.append("a station's line cannot be changed")
+    pg.rollback()
     pg.close()
     bad = [b for b in bad if b]
-    print("\n".join(bad) or "the server refuses a broken link, a changed copy, a gap, UPDATE and"
-          " DELETE")
+    print("\n".join(bad) or "the server refuses a broken link, a changed copy, a gap, late"
+          " evidence, UPDATE, DELETE and TRUNCATE, and a station row's key or schema changed")
     return 1 if bad else 0
 
 
@@ -215,6 +243,8 @@ def main(argv):
         return evidence(argv[2], argv[3], argv[4])
     if cmd == "tamper":
         return tamper(argv[2], int(argv[3]), argv[4])
+    if cmd == "unpurge":
+        return unpurge(argv[2])
     if cmd == "bypass":
         return bypass(argv[2], argv[3])
     return 2

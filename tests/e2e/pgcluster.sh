@@ -10,6 +10,10 @@
 #   pgcluster_stop        fast shutdown (waits)
 #   pgcluster_kill        immediate shutdown: what a cut connection or a crashed server looks like
 #   pgcluster_resume      start the same cluster again after a stop or kill
+#   pgcluster_pause       SIGSTOP this cluster's postmaster and its own children (a server
+#                         or network gone silent); pgcluster_continue undoes it.  Only the
+#                         pid in DIR/data/postmaster.pid and its children: other tests may
+#                         run clusters of their own as the same user
 #   pgcluster_psql SQL    run SQL through psql as the test user, unaligned, tuples only
 #
 # Authentication is scram-sha-256 with a random password that only the
@@ -92,4 +96,18 @@ pgcluster_kill() {
 
 pgcluster_psql() {
     "$PGCLUSTER_BIN/psql" -X -q -At -v ON_ERROR_STOP=1 "$PGCLUSTER_CONNINFO" -c "$1"
+}
+
+pgcluster_pids() {
+    pm=$(head -n 1 "$PGCLUSTER_DIR/data/postmaster.pid")
+    echo "$pm" $(ps -o pid= --ppid "$pm")
+}
+
+pgcluster_pause() {
+    # the postmaster first, so it starts no child meanwhile
+    for p in $(pgcluster_pids); do kill -STOP "$p"; done
+}
+
+pgcluster_continue() {
+    for p in $(pgcluster_pids); do kill -CONT "$p"; done
 }

@@ -85,6 +85,10 @@ for f in "--line line-2" "--station bench-A --recipe ostrel-cap52" "--recipe ost
 done
 expect_rc 0 "$S" audit list --log "$PGCLUSTER_URI" --json --line line-9
 [ ! -s "$out/last.out" ] || fail "a line no station is on selected records"
+# a local log knows no line: refused, not an empty selection
+expect_rc 3 "$S" audit list --log "$out/A.db" --line line-1
+grep -q "a local log has no production line" "$out/last.err" ||
+    fail "list --line on a local log: $(cat "$out/last.err")"
 
 # show: one station needed, evidence under --evidence
 expect_rc 3 "$S" audit show 5 --log "$PGCLUSTER_URI"
@@ -147,6 +151,8 @@ grep -q '"evidence_unavailable":[1-9]' "$out/last.out" && grep -q '"ok":true' "$
     fail "verify without --evidence: $(cat "$out/last.out")"
 keyB=$(sed -n 's/.*"public_key":"\([0-9a-f]*\)".*/\1/p' "$out/last.out")
 expect_rc 4 "$S" audit verify --log "$PGCLUSTER_URI" --public-key "$keyB"
+grep -q "holds 3 stations, each signed with its own key: --public-key needs" "$out/last.err" ||
+    fail "verify --public-key without --station: $(cat "$out/last.err")"
 expect_rc 1 "$S" audit verify --log "$PGCLUSTER_URI" --station bench-A --public-key "$keyB"
 grep -q '"chain":"record","seq":1,' "$out/last.out" || fail "bench-A against bench-B's key: $(cat "$out/last.out")"
 echo "ok   verify: each station's chains, evidence files and signatures against its own key (the local log's); another station's key fails at record 1"
