@@ -258,7 +258,7 @@ json_t *recipe_show_json(const struct recipe *r, struct err *e)
     return json_pack(
         "{s:s,s:s,s:s,s:i,s:i,s:o,s:o,s:o,"
         "s:{s:o,s:o,s:i,s:o,s:b,s:i},"
-        "s:{s:i,s:i,s:f,s:i,s:i,s:i,s:f},"
+        "s:{s:i,s:i,s:f,s:i,s:i,s:i,s:f,s:b},"
         "s:o,s:{s:s,s:f,s:f,s:i},s:o,s:o,"
         "s:{s:f,s:f,s:f,s:f,s:f,s:f,s:f,s:o,s:f,s:f,s:f,s:o},"
         "s:{s:s,s:i,s:f,s:f,s:f,s:f,s:i,s:i},s:o,"
@@ -270,7 +270,8 @@ json_t *recipe_show_json(const struct recipe *r, struct err *e)
         "count", feat_count(&r->feat), "classifier", "rounds", r->train.rounds, "depth",
         r->train.depth, "learning_rate", r->train.eta, "seed", r->train.seed, "early_stop",
         r->train.early_stop, "samples_per_class", r->samples_per_class, "validation_fraction",
-        r->validation_fraction, "scale", scale_json(r), "part", "orientation",
+        r->validation_fraction, "coarse", r->coarse_classify, "scale", scale_json(r), "part",
+        "orientation",
         r->part.orient == PART_ORIENT_FIXED ? "fixed" : "moments", "area_mm2", r->part.area_mm2,
         "area_tolerance", r->part.area_tolerance, "border_margin_px", r->part.border_margin_px,
         "zones", zones, "tolerances", tols, "gates", "min_level", g->min_level, "max_level",
@@ -381,6 +382,9 @@ void recipe_show_print(const json_t *o, FILE *f)
             (int)num(c, "rounds"), (int)num(c, "depth"), num(c, "learning_rate"),
             (int)num(c, "seed"), (int)num(c, "early_stop"), (int)num(c, "samples_per_class"),
             num(c, "validation_fraction"));
+    if (json_is_true(json_object_get(c, "coarse")))
+        fprintf(f, "  coarse classification (approximate): every other pixel of the part "
+                   "classified, the rest copied where its classified neighbours agree\n");
     const json_t *sc = json_object_get(o, "scale");
     fprintf(f, "Scale: %g x %g mm per pixel; %s\n", num(sc, "mm_per_px_x"), num(sc, "mm_per_px_y"),
             str(sc, "text"));

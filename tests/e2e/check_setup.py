@@ -64,6 +64,9 @@ def check_show():
         fail("product/version %s %s, the file says %s %s" % (s["product"], s["version"],
                                                             ini["product"]["id"],
                                                             ini["product"]["version"]))
+    coarse = ini["classifier"].get("coarse", "no") == "yes"   # recipes/README.md: off by default
+    if s["classifier"]["coarse"] != coarse:
+        fail("classifier coarse %s, the file says %s" % (s["classifier"]["coarse"], coarse))
     classes = [sec.split(" ", 1)[1] for sec in ini.sections() if sec.startswith("class ")]
     if [c["name"] for c in s["classes"]] != classes:
         fail("classes %s, the file lists %s" % ([c["name"] for c in s["classes"]], classes))
