@@ -19,9 +19,11 @@ mount namespace as check_run.py's camera checks do.
 
 usage: check_camera_faults.py STATION RECIPE OUT"""
 import json
+import queue
 import os
 import subprocess
 import sys
+import threading
 import time
 
 sys.path.insert(0, "tests/e2e")
@@ -47,12 +49,21 @@ def inner(build):
                          stdout=subprocess.PIPE, stderr=errf, text=True,
                          env=dict(os.environ, LC_ALL="C"))
     out = []
+    # a reader thread, so a line that never comes fails the check at its limit
+    # instead of blocking the whole suite in readline
+    lines = queue.Queue()
+
+    def pump():
+        for line in iter(p.stdout.readline, ""):
+            lines.put(line)
+    threading.Thread(target=pump, daemon=True).start()
 
     def until(pred, what, limit=15):
         end = time.time() + limit
         while time.time() < end:
-            line = p.stdout.readline()
-            if not line:
+            try:
+                line = lines.get(timeout=max(0.01, end - time.time()))
+            except queue.Empty:
                 break
             o = json.loads(line)
             out.append(o)
@@ -103,7 +114,6 @@ def inner(build):
         got["unplug over"] = ask()
         p.stdin.write("quit\n")
         p.stdin.flush()
-        p.stdout.read()
         rc = p.wait(timeout=30)
     finally:
         if p.poll() is None:
