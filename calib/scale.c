@@ -137,6 +137,13 @@ int scale_calibrate(const struct image *const *frames, const char *const *names,
     if (n >= 3) {
         if ((rc = lens_calibrate(views, n, cols, rows, square_mm, &lens, e)))
             goto fail;
+        if (!lensmodel_holds(&lens.m, frames[0]->w, frames[0]->h)) {
+            rc = err_set(e, ST_ERANGE,
+                         "the fitted lens (k1 %g, k2 %g) cannot be undone over the %dx%d frame: "
+                         "take views with the target also near the corners",
+                         lens.m.k1, lens.m.k2, frames[0]->w, frames[0]->h);
+            goto fail;
+        }
         out->has_lens = 1;
         out->lens = lens.m;
         out->lens_rms_px = lens.rms_px;

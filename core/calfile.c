@@ -184,6 +184,12 @@ static int read_all(struct reader *rd, struct calfile *c)
                            rd->path);
         c->lens_corrected = json_is_true(b);
     }
+    if (lens && c->lens_corrected && !lensmodel_holds(&c->lens, c->width, c->height))
+        return err_set(rd->e, ST_ERANGE,
+                       "%s: the lens (k1 %g, k2 %g) cannot be undone over the %dx%d frame: it "
+                       "folds or diverges towards the edges; calibrate again with the target "
+                       "also near the corners",
+                       rd->path, c->lens.k1, c->lens.k2, c->width, c->height);
     return ST_OK;
 }
 

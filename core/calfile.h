@@ -7,8 +7,9 @@
  * the target's centre) and the full image-to-plane homography, the
  * camera's tilt against the plane, the reprojection errors, the lens
  * when one was calibrated, when it was made and for how many days it is
- * valid.  calfile_load refuses a newer
- * format, a missing or wrongly typed key and a value out of range, each as
+ * valid.  calfile_load refuses a newer format, a missing or wrongly typed
+ * key, a value out of range and a lens whose correction does not hold over
+ * the frame (lensmodel_holds), each as
  * "FILE: what" (ST_EFORMAT or ST_ERANGE; ST_EIO when unreadable); on
  * failure *c is untouched.  A struct calfile is a plain value.  Never
  * prints; the clock is read only by the caller (calfile_age_days takes

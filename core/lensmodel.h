@@ -20,8 +20,21 @@ struct lens_model {
  * term, good to 1e-6 px for the distortion of ordinary lenses). */
 void lensmodel_correct(const struct lens_model *l, double u, double v, double *uo, double *vo);
 
-/* The Jacobian d(ideal)/d(observed) at the observed pixel (u, v), 2x2
- * row-major: the inverse of the bending's Jacobian at the ideal pixel. */
-void lensmodel_jacobian(const struct lens_model *l, double u, double v, double j[4]);
+/* The ideal pixel (uo, vo) of the observed (u, v), as lensmodel_correct,
+ * and the Jacobian d(ideal)/d(observed) there, 2x2 row-major: the inverse
+ * of the bending's Jacobian at the ideal pixel. */
+void lensmodel_jacobian(const struct lens_model *l, double u, double v, double j[4], double *uo,
+                        double *vo);
+
+/* The observed pixel of an ideal one: the model itself. */
+void lensmodel_bend(const struct lens_model *l, double u, double v, double *uo, double *vo);
+
+/* 1 when the correction holds over a w x h frame: at 16 points along each
+ * edge (corners included) the corrected pixel bends back to within 1e-3 px
+ * and the Jacobian keeps its orientation.  A radial model fitted to a
+ * board in the middle can fold or diverge towards corners it never saw;
+ * there a region's area would be meaningless, so such a lens is refused
+ * rather than used. */
+int lensmodel_holds(const struct lens_model *l, int w, int h);
 
 #endif

@@ -498,8 +498,6 @@ static double orientation(const struct moments *m, int n, double sx, double sy)
     return a <= -PI / 2 ? a + PI : a;
 }
 
-/* mm per pixel along image x and y at (x, y): the lengths of the columns
- * of the image-to-plane map's Jacobian there. */
 /* The Jacobian of pixel -> plane mm at pixel (x, y): the homography's
  * (rows (h0 - u h6, h1 - u h7) / w and (h3 - v h6, h4 - v h7) / w) at the
  * lens-corrected pixel, times the correction's own when there is a lens. */
@@ -507,10 +505,8 @@ static void plane_jacobian(const struct regions_opts *o, double x, double y, dou
 {
     const double *h = o->image_to_plane;
     double l[4] = {1, 0, 0, 1};
-    if (o->lens) {
-        lensmodel_jacobian(o->lens, x, y, l);
-        lensmodel_correct(o->lens, x, y, &x, &y);
-    }
+    if (o->lens)
+        lensmodel_jacobian(o->lens, x, y, l, &x, &y);
     double w = h[6] * x + h[7] * y + h[8];
     double u = (h[0] * x + h[1] * y + h[2]) / w, v = (h[3] * x + h[4] * y + h[5]) / w;
     double a = (h[0] - u * h[6]) / w, b = (h[1] - u * h[7]) / w;
@@ -521,6 +517,8 @@ static void plane_jacobian(const struct regions_opts *o, double x, double y, dou
     j[3] = c * l[1] + d * l[3];
 }
 
+/* mm per pixel along image x and y at (x, y): the lengths of the columns
+ * of the map's Jacobian there. */
 static void local_scale(const struct regions_opts *o, double x, double y, double *sx, double *sy)
 {
     double j[4];

@@ -27,7 +27,8 @@ static void usage(FILE *f)
                "Inspects K simulated-bench frames of the given size with N threads and prints\n"
                "one JSON line: median, min and max milliseconds of features, classify,\n"
                "regions, verdict and the whole inspection, and the process's peak resident\n"
-               "memory. With --xgboost, each frame is also done without the locating pass:\n"
+               "memory (frames are rendered first; frames_mb of it are those frames). With\n"
+               "--xgboost, each frame is also done without the locating pass:\n"
                "the filter bank over the whole frame (filter_bank) and our evaluator on every\n"
                "pixel (forest_all_pixels), then XGBoost's XGBoosterPredictFromDense on the\n"
                "same features and model; max_abs_dp is the largest difference between its\n"
@@ -343,6 +344,8 @@ int cmd_bench(int argc, char **argv)
     }
     free(col);
     json_object_set_new(o, "peak_rss_mb", json_real(peak_rss_mb()));
+    /* the frames held for the run are part of that peak: said beside it */
+    json_object_set_new(o, "frames_mb", json_real(nframes * (double)npix * 4 / (1 << 20)));
     json_dumpf(o, stdout, JSON_COMPACT | JSON_REAL_PRECISION(5));
     fputc('\n', stdout);
     json_decref(o);

@@ -56,10 +56,19 @@ static void usage(FILE *f)
 static cpu_set_t start_cpus;
 static int start_narrowed;
 
+/* getenv sees nothing yet in .preinit_array (glibc sets environ later), so
+ * the caller's policy is looked for in the environment handed to it. */
+static int policy_set(char **envp)
+{
+    for (char **v = envp; v && *v; v++)
+        if (strncmp(*v, "OMP_WAIT_POLICY=", 16) == 0)
+            return 1;
+    return 0;
+}
+
 static void waits_narrow(int argc, char **argv, char **envp)
 {
-    (void)envp;
-    if (argc < 2 || getenv("OMP_WAIT_POLICY") || sched_getaffinity(0, sizeof start_cpus, &start_cpus) != 0 ||
+    if (argc < 2 || policy_set(envp) || sched_getaffinity(0, sizeof start_cpus, &start_cpus) != 0 ||
         CPU_COUNT(&start_cpus) < 2)
         return;
     for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)

@@ -55,7 +55,8 @@ print("ratio = the peer's median / ours (above 1: the station is faster).")
 
 m = extra["memory"]
 print(f"\npeak resident memory, inspection at {m['width']}x{m['height']}, {m['threads']} threads: "
-      f"{m['peak_rss_mb']:.0f} MB (total {m['total']['median']:.1f} ms)")
+      f"{m['peak_rss_mb']:.0f} MB, of which {m['frames_mb']:.0f} MB the benchmark's own frames "
+      f"(total {m['total']['median']:.1f} ms)")
 print(f"training the demo recipe ({s0['classes']} classes, {s0['trees']} trees, depth {s0['depth']}): "
       f"{extra['train_s']:.1f} s")
 c, x, ce = extra["coarse"], extra["exact"], extra["coarse_effect"]

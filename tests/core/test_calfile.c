@@ -134,6 +134,8 @@ static void test_refusals(void **state)
         {"\"format\": 2", "\"format\": 3", "newer than this station supports (2)", ST_EFORMAT},
         {"\"corrected_pixels\": true", "\"corrected_pixels\": 1", "'lens.corrected_pixels'",
          ST_EFORMAT},
+        /* 1 + 3 k1 r^2 + 5 k2 r^4 < 0 before the corners (r^2 = 0.11): the model folds */
+        {"\"k1\": -0.2", "\"k1\": -5.2", "cannot be undone over the 640x480 frame", ST_ERANGE},
         {"\"valid_days\": 30", "\"valid_days\": 0", "'valid_days' = 0 outside", ST_ERANGE},
         {"\"created\": \"2026-12-01T12:34:56Z\"", "\"created\": \"2026-02-30T12:34:56Z\"",
          "'created'", ST_EFORMAT},

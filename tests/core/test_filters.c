@@ -55,6 +55,12 @@ static void check_row(const float *got, const float *const *src, const float *k,
     }
 }
 
+static void poison(float os[MAXROWS][MAXW], float oa[MAXROWS][MAXW])
+{
+    memset(os, 0xff, sizeof(float[MAXROWS][MAXW]));   /* all bits set: a NaN */
+    memset(oa, 0xff, sizeof(float[MAXROWS][MAXW]));
+}
+
 static void test_passes_match_fma_chain(void **state)
 {
     (void)state;
@@ -82,23 +88,30 @@ static void test_passes_match_fma_chain(void **state)
                 po[i] = os[i];
                 pa[i] = oa[i];
             }
+            /* every output starts as NaN before each call, so a pass that
+             * leaves a value unwritten cannot pass on an earlier call's */
+            poison(os, oa);
             filt_sym(src, ks, r, w, os[0]);
             check_row(os[0], src, ks, r, w, 0, "filt_sym");
             filt_anti(src, ka, r, w, oa[0]);
             check_row(oa[0], src, ka, r, w, 1, "filt_anti");
+            poison(os, oa);
             filt_pair(src, ks, ka, r, w, os[0], oa[0]);
             check_row(os[0], src, ks, r, w, 0, "filt_pair (symmetric)");
             check_row(oa[0], src, ka, r, w, 1, "filt_pair (antisymmetric)");
             /* row counts around the groups the wide form takes */
             for (int nr = 1; nr <= MAXROWS; nr += 3) {
+                poison(os, oa);
                 filt_rows(src, ks, ka, r, w, nr, po, pa);
                 for (int i = 0; i < nr; i++) {
                     check_row(os[i], src + i, ks, r, w, 0, "filt_rows (pair, symmetric)");
                     check_row(oa[i], src + i, ka, r, w, 1, "filt_rows (pair, antisymmetric)");
                 }
+                poison(os, oa);
                 filt_rows(src, ks, NULL, r, w, nr, po, NULL);
                 for (int i = 0; i < nr; i++)
                     check_row(os[i], src + i, ks, r, w, 0, "filt_rows (symmetric)");
+                poison(os, oa);
                 filt_rows(src, NULL, ka, r, w, nr, NULL, pa);
                 for (int i = 0; i < nr; i++)
                     check_row(oa[i], src + i, ka, r, w, 1, "filt_rows (antisymmetric)");

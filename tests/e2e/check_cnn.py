@@ -29,6 +29,9 @@ import onnx  # noqa: E402
 
 import vggonnx  # noqa: E402
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from recipetext import without_verification  # noqa: E402
+
 STATION, TOOLS, OUT, RECIPE = sys.argv[1:5]
 failures = []
 
@@ -46,18 +49,6 @@ def run(*args):
 def evaluate(recipe):
     r = run(STATION, "evaluate", recipe, "--data", os.path.join(OUT, "test"), "--json", "--sheets", "none")
     return json.loads(r.stdout) if r.returncode == 0 else {"error": r.stderr.strip()}
-
-
-def without_verification(text):
-    """The recipe less its [verification] and [master ...] sections: those
-    parts are refused until a master verification is logged."""
-    out, skip = [], False
-    for line in text.splitlines():
-        if line.startswith("["):
-            skip = line.startswith("[verification]") or line.startswith("[master ")
-        if not skip:
-            out.append(line)
-    return "\n".join(out) + "\n"
 
 
 def has_amx():
