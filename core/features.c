@@ -565,22 +565,9 @@ static float *at(const struct feat_ctx *ctx, float *plane, int y, int x)
     return plane + (size_t)(y - ctx->ry0) * ctx->ps + (size_t)(x - ctx->wx0);
 }
 
-/* Column-pass sources of a packed plane for output columns from x0 on. */
-static void sources_col(const struct feat_ctx *ctx, float *plane, int y, int x0, int r, const float **src)
-{
-    if (y - r >= 0 && y + r < ctx->h) {
-        /* inside the frame no row reflects, and the division in filt_reflect
-         * would cost more than a narrow tile's taps */
-        const float *p = at(ctx, plane, y - r, x0);
-        for (int t = 0; t <= 2 * r; t++)
-            src[t] = p + (size_t)t * ctx->ps;
-        return;
-    }
-    for (int t = 0; t <= 2 * r; t++)
-        src[t] = at(ctx, plane, filt_reflect(y - r + t, ctx->h), x0);
-}
-
-/* Column-pass sources for the nr output rows from ys: 2r + nr rows. */
+/* Column-pass sources for the nr output rows from ys: 2r + nr rows.  Inside
+ * the frame no row reflects, and the division in filt_reflect would cost
+ * more than a narrow tile's taps. */
 static void sources_strip(const struct feat_ctx *ctx, float *plane, int ys, int nr, int x0, int r, const float **src)
 {
     if (ys - r >= 0 && ys + nr - 1 + r < ctx->h) {
@@ -591,6 +578,12 @@ static void sources_strip(const struct feat_ctx *ctx, float *plane, int ys, int 
     }
     for (int t = 0; t < 2 * r + nr; t++)
         src[t] = at(ctx, plane, filt_reflect(ys - r + t, ctx->h), x0);
+}
+
+/* Column-pass sources of a packed plane for output columns from x0 on. */
+static void sources_col(const struct feat_ctx *ctx, float *plane, int y, int x0, int r, const float **src)
+{
+    sources_strip(ctx, plane, y, 1, x0, r, src);
 }
 
 /* Writes the n planar feature rows as one pixel-major output row, so the
