@@ -20,7 +20,7 @@ int audit_open_source(const struct audit_source *src, int mode, struct log_db **
     log_options_init(&o);
     o.evidence_dir = src->evidence;
     if (e.code || log_open(db_path, mode, &o, out, &e) ||
-        (src->scope && log_scope(*out, src->station, &e))) {
+        ((src->scope || src->station) && log_scope(*out, src->station, &e))) {
         cli_say("%s", e.msg);
         log_close(*out);
         *out = NULL;

@@ -30,8 +30,10 @@ struct audit_source {
 };
 
 /* Opens src->log, or the default log of src->station
- * (LOGBOOK_DEFAULT_STATION when NULL), scoped to src->station when asked;
- * prints the one-line reason and returns EXIT_ERROR on failure. */
+ * (LOGBOOK_DEFAULT_STATION when NULL), scoped to src->station when asked or
+ * when a station is named at all, so a station the central database does
+ * not hold is an error naming those it does, not an empty selection; prints
+ * the one-line reason and returns EXIT_ERROR on failure. */
 int audit_open_source(const struct audit_source *src, int mode, struct log_db **out);
 /* The same for db_path and station alone (no evidence folder, no scope). */
 int audit_open_log(const char *db_path, const char *station, int mode, struct log_db **out);

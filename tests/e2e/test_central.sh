@@ -85,6 +85,13 @@ for f in "--line line-2" "--station bench-A --recipe ostrel-cap52" "--recipe ost
 done
 expect_rc 0 "$S" audit list --log "$PGCLUSTER_URI" --json --line line-9
 [ ! -s "$out/last.out" ] || fail "a line no station is on selected records"
+# a station the central database does not hold is named as such, not an empty list
+for verb in list stats "export --out -"; do
+    # shellcheck disable=SC2086 # the verb and its options, split on purpose
+    expect_rc 3 "$S" audit $verb --log "$PGCLUSTER_URI" --station bench-Z
+    grep -q "no station bench-Z (held: bench-A, bench-B, bench-C)" "$out/last.err" ||
+        fail "$verb --station bench-Z: $(cat "$out/last.err")"
+done
 # a local log knows no line: refused, not an empty selection
 expect_rc 3 "$S" audit list --log "$out/A.db" --line line-1
 grep -q "a local log has no production line" "$out/last.err" ||
