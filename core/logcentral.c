@@ -91,6 +91,33 @@ static int col_true(PGresult *r, int row, int col)
 }
 
 /* The disposition columns DISP_COLS starting at col. */
+/* Every row of r (then cleared) as a heap array of elem-sized values, each
+ * filled by read (nonzero: out of memory); on failure free_rows, given the
+ * rows read, frees what they hold and the array. */
+static int rows_read(const struct central *c, PGresult *r, size_t elem,
+                     int (*read)(PGresult *, int, void *), void (*free_rows)(void *, int),
+                     void **out, int *n, struct err *e)
+{
+    int rows = PQntuples(r), oom = 0;
+    char *a = calloc(rows ? (size_t)rows : 1, elem);
+    for (int i = 0; a && !oom && i < rows; i++)
+        oom = read(r, i, a + (size_t)i * elem);
+    PQclear(r);
+    if (!a || oom) {
+        free_rows(a, a ? rows : 0);
+        return err_set(e, ST_ENOMEM, "central database %s: out of memory", logpg_name(c->pg));
+    }
+    *out = a;
+    *n = rows;
+    return ST_OK;
+}
+
+static void free_plain(void *a, int n)
+{
+    (void)n;
+    free(a);
+}
+
 static int read_disposition(PGresult *r, int row, int col, struct log_disposition *d)
 {
     int oom = 0;
@@ -155,6 +182,17 @@ static int read_record(struct central *c, PGresult *res, int row, struct log_rec
 
 /* ---- stations and the chain key ---- */
 
+static int read_station(PGresult *r, int i, void *out)
+{
+    struct log_station *s = out;
+    col_copy(r, i, 0, s->station, sizeof s->station);
+    col_copy(r, i, 1, s->line, sizeof s->line);
+    col_copy(r, i, 2, s->public_key, sizeof s->public_key);
+    s->records = col_i64(r, i, 3);
+    s->last_seq = col_i64(r, i, 4);
+    return 0;
+}
+
 static int stations_get(void *self, struct log_station **out, int *n, struct err *e)
 {
     struct central *c = self;
@@ -168,23 +206,10 @@ static int stations_get(void *self, struct log_station **out, int *n, struct err
                       0, NULL, "cannot list the stations", e);
     if (!r)
         return e ? e->code : ST_ELIB;
-    int rows = PQntuples(r);
-    struct log_station *s = calloc(rows ? (size_t)rows : 1, sizeof *s);
-    if (!s) {
-        PQclear(r);
-        return err_set(e, ST_ENOMEM, "central database %s: out of memory", logpg_name(c->pg));
-    }
-    for (int i = 0; i < rows; i++) {
-        col_copy(r, i, 0, s[i].station, sizeof s[i].station);
-        col_copy(r, i, 1, s[i].line, sizeof s[i].line);
-        col_copy(r, i, 2, s[i].public_key, sizeof s[i].public_key);
-        s[i].records = col_i64(r, i, 3);
-        s[i].last_seq = col_i64(r, i, 4);
-    }
-    PQclear(r);
-    *out = s;
-    *n = rows;
-    return ST_OK;
+    void *a = NULL;
+    int rc = rows_read(c, r, sizeof **out, read_station, free_plain, &a, n, e);
+    *out = a;
+    return rc;
 }
 
 /* "A, B, C" of the stations held, for messages; *n their count. */
@@ -480,6 +505,16 @@ static int get(void *self, int64_t seq, struct log_record *rec, struct err *e)
     return rc;
 }
 
+static int read_disposition_row(PGresult *r, int i, void *out)
+{
+    return read_disposition(r, i, 0, out);
+}
+
+static void free_dispositions(void *a, int n)
+{
+    log_dispositions_free(a, n);
+}
+
 static int dispositions_get(void *self, int64_t seq, struct log_disposition **out, int *n,
                             struct err *e)
 {
@@ -499,18 +534,10 @@ static int dispositions_get(void *self, int64_t seq, struct log_disposition **ou
                       seq > 0 ? 2 : 1, p, "cannot read dispositions", e);
     if (!r)
         return e ? e->code : ST_ELIB;
-    int rows = PQntuples(r), oom = 0;
-    struct log_disposition *d = calloc(rows ? (size_t)rows : 1, sizeof *d);
-    for (int i = 0; d && i < rows; i++)
-        oom |= read_disposition(r, i, 0, &d[i]);
-    PQclear(r);
-    if (!d || oom) {
-        log_dispositions_free(d, d ? rows : 0);
-        return err_set(e, ST_ENOMEM, "central database %s: out of memory", logpg_name(c->pg));
-    }
-    *out = d;
-    *n = rows;
-    return ST_OK;
+    void *a = NULL;
+    rc = rows_read(c, r, sizeof **out, read_disposition_row, free_dispositions, &a, n, e);
+    *out = a;
+    return rc;
 }
 
 static int record_hash(void *self, int64_t seq, char hex[SHA256_HEX_LEN], struct err *e)
@@ -583,6 +610,16 @@ static int verification_last(void *self, const char *station, const char *recipe
     return ST_OK;
 }
 
+static int read_verification_row(PGresult *r, int i, void *out)
+{
+    return read_verification(r, i, out, 1);
+}
+
+static void free_verifications(void *a, int n)
+{
+    log_verifications_free(a, n);
+}
+
 static int verifications_get(void *self, struct log_verification **out, int *n, struct err *e)
 {
     struct central *c = self;
@@ -595,18 +632,20 @@ static int verifications_get(void *self, struct log_verification **out, int *n, 
                       1, p, "cannot read the verifications", e);
     if (!r)
         return e ? e->code : ST_ELIB;
-    int rows = PQntuples(r), oom = 0;
-    struct log_verification *v = calloc(rows ? (size_t)rows : 1, sizeof *v);
-    for (int i = 0; v && i < rows; i++)
-        oom |= read_verification(r, i, &v[i], 1);
-    PQclear(r);
-    if (!v || oom) {
-        log_verifications_free(v, v ? rows : 0);
-        return err_set(e, ST_ENOMEM, "central database %s: out of memory", logpg_name(c->pg));
-    }
-    *out = v;
-    *n = rows;
-    return ST_OK;
+    void *a = NULL;
+    rc = rows_read(c, r, sizeof **out, read_verification_row, free_verifications, &a, n, e);
+    *out = a;
+    return rc;
+}
+
+static int read_purge(PGresult *r, int i, void *out)
+{
+    struct log_purge *u = out;
+    col_copy(r, i, 0, u->name, sizeof u->name);
+    u->record_seq = col_i64(r, i, 1);
+    col_copy(r, i, 2, u->utc, sizeof u->utc);
+    col_copy(r, i, 3, u->reason, sizeof u->reason);
+    return 0;
 }
 
 static int purges_get(void *self, struct log_purge **out, int *n, struct err *e)
@@ -624,22 +663,10 @@ static int purges_get(void *self, struct log_purge **out, int *n, struct err *e)
                       1, p, "cannot read the evidence purges", e);
     if (!r)
         return e ? e->code : ST_ELIB;
-    int rows = PQntuples(r);
-    struct log_purge *u = calloc(rows ? (size_t)rows : 1, sizeof *u);
-    if (!u) {
-        PQclear(r);
-        return err_set(e, ST_ENOMEM, "central database %s: out of memory", logpg_name(c->pg));
-    }
-    for (int i = 0; i < rows; i++) {
-        col_copy(r, i, 0, u[i].name, sizeof u[i].name);
-        u[i].record_seq = col_i64(r, i, 1);
-        col_copy(r, i, 2, u[i].utc, sizeof u[i].utc);
-        col_copy(r, i, 3, u[i].reason, sizeof u[i].reason);
-    }
-    PQclear(r);
-    *out = u;
-    *n = rows;
-    return ST_OK;
+    void *a = NULL;
+    rc = rows_read(c, r, sizeof **out, read_purge, free_plain, &a, n, e);
+    *out = a;
+    return rc;
 }
 
 static int signing_get(void *self, struct log_signing *s, struct err *e)

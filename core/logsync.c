@@ -57,28 +57,30 @@ static int stopped(const struct logsync_options *o)
 
 /* The checks before anything is forwarded: the stored hash is the hash of
  * the content (a link altered in place without its hash is caught here). */
+static int hash_matches(const struct local *L, const char *what, int64_t seq, const char *computed,
+                        const char *stored, struct err *e)
+{
+    return strcmp(computed, stored) == 0
+               ? ST_OK
+               : err_set(e, ST_EFORMAT,
+                         "station %s: LOG %s: %s %" PRId64 " does not match its hash; run station"
+                         " audit verify", L->station, log_path(L->db), what, seq);
+}
+
 static int check_record(const struct local *L, const struct log_record *r, struct err *e)
 {
     char h[SHA256_HEX_LEN];
     int rc = logcanon_record_hash(r, h, e);
-    if (!rc && strcmp(h, r->hash))
-        rc = err_set(e, ST_EFORMAT,
-                     "station %s: LOG %s: record %" PRId64 " does not match its hash; run station"
-                     " audit verify", L->station, log_path(L->db), r->seq);
-    return rc;
+    return rc ? rc : hash_matches(L, "record", r->seq, h, r->hash, e);
 }
 
 static int check_disposition(const struct local *L, const struct log_disposition *d,
                              struct err *e)
 {
     char rh[SHA256_HEX_LEN], h[SHA256_HEX_LEN];
-    int rc = log_record_hash(L->db, d->record_seq, rh, e) ||
-             logcanon_disposition_hash(d, rh, h, e);
-    if (!rc && strcmp(h, d->hash))
-        rc = err_set(e, ST_EFORMAT,
-                     "station %s: LOG %s: disposition %" PRId64 " does not match its hash; run"
-                     " station audit verify", L->station, log_path(L->db), d->dseq);
-    return rc ? e->code : ST_OK;
+    if (log_record_hash(L->db, d->record_seq, rh, e) || logcanon_disposition_hash(d, rh, h, e))
+        return e->code;
+    return hash_matches(L, "disposition", d->dseq, h, d->hash, e);
 }
 
 static int check_verification(const struct local *L, const struct log_verification *v,
@@ -86,11 +88,7 @@ static int check_verification(const struct local *L, const struct log_verificati
 {
     char h[SHA256_HEX_LEN];
     int rc = logcanon_verification_hash(v, h, e);
-    if (!rc && strcmp(h, v->hash))
-        rc = err_set(e, ST_EFORMAT,
-                     "station %s: LOG %s: verification %" PRId64 " does not match its hash; run"
-                     " station audit verify", L->station, log_path(L->db), v->vseq);
-    return rc;
+    return rc ? rc : hash_matches(L, "verification", v->vseq, h, v->hash, e);
 }
 
 /* One evidence file to ROOT/NAME, unless it is there already and intact. */
