@@ -1324,19 +1324,13 @@ static int sq_stations_get(void *self, struct log_station **out, int *n, struct 
     return ST_OK;
 }
 
-static void text_copy(sqlite3_stmt *s, int col, char *buf, size_t len)
-{
-    const unsigned char *t = sqlite3_column_text(s, col);
-    snprintf(buf, len, "%s", t ? (const char *)t : "");
-}
-
 static int read_purge_row(sqlite3_stmt *s, void *out)
 {
     struct log_purge *u = out;
-    text_copy(s, 0, u->name, sizeof u->name);
+    col_copy(s, 0, u->name, sizeof u->name);
     u->record_seq = sqlite3_column_int64(s, 1);
-    text_copy(s, 2, u->utc, sizeof u->utc);
-    text_copy(s, 3, u->reason, sizeof u->reason);
+    col_copy(s, 2, u->utc, sizeof u->utc);
+    col_copy(s, 3, u->reason, sizeof u->reason);
     return 0;
 }
 
