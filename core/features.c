@@ -2,6 +2,7 @@
 
 #include <math.h>
 #include <pthread.h>
+#include <stdatomic.h>
 #include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -86,11 +87,16 @@ struct feat_worker {
 struct feat_ctx;
 typedef void (*feat_phase)(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1);
 
+/* A phase's rows are handed out STRIP at a time from one counter, so a
+ * worker whose core is busy elsewhere (the screen, the camera, another
+ * guest on the host) takes fewer strips instead of holding the frame: with
+ * halves fixed in advance, one slowed core set the whole phase's time. */
 struct feat_job {
     struct feat_ctx *ctx;
     feat_phase fn;
     struct feat_worker *wk;
     int y0, y1;
+    atomic_int *next; /* the phase's next unclaimed row */
 };
 
 struct feat_ctx {
@@ -1035,19 +1041,24 @@ static void phase_final(struct feat_ctx *ctx, struct feat_worker *wk, int y0, in
 static void *feat_job_run(void *arg)
 {
     struct feat_job *job = arg;
-    job->fn(job->ctx, job->wk, job->y0, job->y1);
+    for (int y; (y = atomic_fetch_add(job->next, STRIP)) < job->y1;)
+        job->fn(job->ctx, job->wk, y, job->y1 - y < STRIP ? job->y1 : y + STRIP);
     return NULL;
 }
 
-/* Splits the rows over the workers; joining them is the barrier between
- * phases.  A worker whose thread cannot start is run by the caller, which
- * costs time but not the frame. */
+/* Shares the rows between the workers; joining them is the barrier between
+ * phases.  A worker whose thread cannot start leaves its strips to the
+ * others, which costs time but not the frame. */
 static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn, int y0, int y1)
 {
-    int nt = ctx->nthreads < y1 - y0 ? ctx->nthreads : y1 - y0;
+    int strips = (y1 - y0 + STRIP - 1) / STRIP;
+    int nt = ctx->nthreads < strips ? ctx->nthreads : strips;
+    if (nt < 1)
+        return;
     char started[FEAT_MAX_THREADS] = {0};
+    atomic_int next = y0;
     for (int t = 0; t < nt; t++)
-        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y0 + (y1 - y0) * t / nt, y0 + (y1 - y0) * (t + 1) / nt};
+        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y0, y1, &next};
     for (int t = 1; t < nt; t++)
         started[t] = pthread_create(&ctx->tids[t], NULL, feat_job_run, &ctx->jobs[t]) == 0;
     feat_job_run(&ctx->jobs[0]);

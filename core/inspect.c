@@ -3,6 +3,7 @@
 #include "flatfield.h"
 
 #include <pthread.h>
+#include <stdatomic.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -202,13 +203,25 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
 
 struct worker {
     struct inspector *in;
-    /* rows y0 + index, y0 + index + step, ... below y1 of the grid (pass 1)
-     * or the frame (pass 2): interleaved, because the part, and so the work,
-     * sits in some rows only */
-    int index, step, y0, y1;
+    int index; /* which worker: its share of the per-worker buffers */
+    /* Rows below y1 of the grid (pass 1) or the frame (pass 2) are claimed
+     * one at a time from *next, shared by the pass's workers: the part, and
+     * so the work, sits in some rows only, and a worker whose core is busy
+     * elsewhere takes fewer of them instead of holding the frame. */
+    atomic_int *next;
+    int y1;
     int rc;
     struct err e;
 };
+
+/* The worker's next row, or y1 when the pass is done or has failed. */
+static int worker_claim_row(struct worker *wk)
+{
+    if (wk->rc != ST_OK)
+        return wk->y1;
+    int y = atomic_fetch_add(wk->next, 1);
+    return y < wk->y1 ? y : wk->y1;
+}
 
 /* Pass 1 for grid rows [y0, y1): the samples' features are gathered into
  * the worker's buffer and their results land directly in the cell maps. */
@@ -219,7 +232,7 @@ static void *grid_pass(void *arg)
     const int nf = in->fs->n, gw = in->gw;
     const int cx0 = in->cx0, cn = in->cx1 - in->cx0;
     float *rows = in->grid_rows + (size_t)wk->index * gw * nf;
-    for (int gy = wk->y0 + wk->index; gy < wk->y1 && wk->rc == ST_OK; gy += wk->step) {
+    for (int gy; (gy = worker_claim_row(wk)) < wk->y1;) {
         for (int gx = cx0; gx < cx0 + cn; gx++)
             memcpy(rows + (size_t)(gx - cx0) * nf,
                    in->fs->v + ((size_t)gy * ROI_STEP * in->w + (size_t)gx * ROI_STEP) * nf,
@@ -238,7 +251,7 @@ static void *full_pass(void *arg)
     struct worker *wk = arg;
     struct inspector *in = wk->in;
     const int w = in->w, gw = in->gw, nf = in->fs->n;
-    for (int y = wk->y0 + wk->index; y < wk->y1 && wk->rc == ST_OK; y += wk->step) {
+    for (int y; (y = worker_claim_row(wk)) < wk->y1;) {
         const uint8_t *need = in->need + (size_t)(y / ROI_STEP) * gw;
         const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
         size_t row = (size_t)y * w;
@@ -307,7 +320,7 @@ static void *coarse_pass(void *arg)
     struct inspector *in = wk->in;
     const int w = in->w, gw = in->gw;
     int *xs = in->list_x + (size_t)wk->index * w;
-    for (int y = wk->y0 + wk->index; y < wk->y1 && wk->rc == ST_OK; y += wk->step) {
+    for (int y; (y = worker_claim_row(wk)) < wk->y1;) {
         const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
         size_t row = (size_t)y * w;
         int n = 0;
@@ -354,7 +367,7 @@ static void *coarse_fill(void *arg)
     struct inspector *in = wk->in;
     const int w = in->w;
     int *xs = in->list_x + (size_t)wk->index * w;
-    for (int y = wk->y0 + wk->index; y < wk->y1 && wk->rc == ST_OK; y += wk->step) {
+    for (int y; (y = worker_claim_row(wk)) < wk->y1;) {
         size_t row = (size_t)y * w;
         int n = 0;
         for (int x = 0; x < w; x++) {
@@ -381,14 +394,17 @@ static void *coarse_fill(void *arg)
 static int run_workers(struct inspector *in, int y0, int y1, void *(*fn)(void *), struct err *e)
 {
     int nt = workers(in) < y1 - y0 ? workers(in) : y1 - y0;
+    if (nt < 1)
+        return ST_OK;
     struct worker wk[MAX_WORKERS];
     pthread_t tid[MAX_WORKERS];
     int started[MAX_WORKERS] = {0};
+    atomic_int next = y0;
     for (int t = 0; t < nt; t++) {
-        wk[t] = (struct worker){in, t, nt, y0, y1, ST_OK, {0}};
+        wk[t] = (struct worker){in, t, &next, y1, ST_OK, {0}};
         err_clear(&wk[t].e);
     }
-    /* a thread that cannot start leaves its rows to the caller */
+    /* a thread that cannot start leaves its rows to the other workers */
     for (int t = 1; t < nt; t++)
         started[t] = pthread_create(&tid[t], NULL, fn, &wk[t]) == 0;
     fn(&wk[0]);
