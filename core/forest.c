@@ -60,12 +60,13 @@
 #define MAX_NODES (1 << 24)
 #define MAX_THREADS 64
 #define GROUP 8
-#define MAX_BLOCK 64
+#define MAX_BLOCK 128
 /* Keys in the per-call slot table; MAX_SLOTS * GROUP fits. */
 #define SCRATCH_KEYS 16384
 #define LEAF_KEY UINT32_MAX
 #define WIDE_DEPTH 6
 #define WIDE_LANES 16
+#define WIDE_GROUPS 8 /* registers of rows walking one tree together */
 
 /* One tree as a complete tree for the wide walk.  Level d < 5 holds its
  * 2^d nodes at [16 d, 16 d + 16); level 5 holds 32 at [80, 112). */
@@ -639,8 +640,10 @@ wide_chunk(const struct wide_tree *w, const int depth, const uint32_t *tab, int 
     const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
     const __m512i one = _mm512_set1_epi32(1);
     {
-        __m512i p[4] = {_mm512_setzero_si512(), _mm512_setzero_si512(), _mm512_setzero_si512(),
-                        _mm512_setzero_si512()};
+        __m512i p[WIDE_GROUPS];
+#pragma GCC unroll 8
+        for (int g = 0; g < WIDE_GROUPS; g++)
+            p[g] = _mm512_setzero_si512();
         /* Levels 0..3 hold 1, 2, 4 and 8 nodes: their inputs are the same row
          * offsets for all lanes, so plain loads and blends on the bits of
          * the position replace the gather (16 loads each); the deeper
@@ -650,7 +653,7 @@ wide_chunk(const struct wide_tree *w, const int depth, const uint32_t *tab, int 
         for (; d < depth && d < 4; d++) {
             const uint32_t *off = w->off + 16 * d;
             const __m512i key = _mm512_load_si512(w->key + 16 * d);
-#pragma GCC unroll 4
+#pragma GCC unroll 8
             for (int g = 0; g < groups; g++) {
                 const uint32_t *base = tab + r + WIDE_LANES * g;
                 __m512i x = _mm512_loadu_si512(base + off[0]);
@@ -698,7 +701,7 @@ wide_chunk(const struct wide_tree *w, const int depth, const uint32_t *tab, int 
             }
             const __m512i off_hi = _mm512_load_si512(w->off + 96);
             const __m512i key_hi = _mm512_load_si512(w->key + 96);
-#pragma GCC unroll 4
+#pragma GCC unroll 8
             for (int g = 0; g < groups; g++) {
                 __m512i o = d < 5 ? _mm512_permutexvar_epi32(p[g], off)
                                   : _mm512_permutex2var_epi32(off, p[g], off_hi);
@@ -713,7 +716,7 @@ wide_chunk(const struct wide_tree *w, const int depth, const uint32_t *tab, int 
         }
         const __m512 v0 = _mm512_load_ps(w->val), v1 = _mm512_load_ps(w->val + 16);
         const __m512 v2 = _mm512_load_ps(w->val + 32), v3 = _mm512_load_ps(w->val + 48);
-#pragma GCC unroll 4
+#pragma GCC unroll 8
         for (int g = 0; g < groups; g++) {
             __m512 lo = _mm512_permutex2var_ps(v0, p[g], v1);
             __m512 hi = _mm512_permutex2var_ps(v2, p[g], v3);
@@ -725,13 +728,19 @@ wide_chunk(const struct wide_tree *w, const int depth, const uint32_t *tab, int 
     }
 }
 
-/* Tree w for the rows [0, nrows) of a filled table, 64 rows at a time;
- * depth 6 (what a depth-6 model's trees mostly are) gets its own copies. */
+/* Tree w for the rows [0, nrows) of a filled table.  Depth 6 (what a
+ * depth-6 model's trees mostly are) gets its own copies: WIDE_GROUPS
+ * registers at a time while the rows last, whose independent chains hide
+ * the gathers' latency, then up to four. */
 __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree *w, int depth,
                                                          const uint32_t *tab, int nrows,
                                                          float *m)
 {
-    for (int r = 0; r < nrows; r += 4 * WIDE_LANES) {
+    int r = 0;
+    if (depth == WIDE_DEPTH)
+        for (; r + WIDE_GROUPS * WIDE_LANES <= nrows; r += WIDE_GROUPS * WIDE_LANES)
+            wide_chunk(w, WIDE_DEPTH, tab, r, WIDE_GROUPS, m);
+    for (; r < nrows; r += 4 * WIDE_LANES) {
         int groups = (nrows - r + WIDE_LANES - 1) / WIDE_LANES;
         if (groups > 4)
             groups = 4;
