@@ -538,19 +538,25 @@ struct scratch {
     float margin[MAX_CLASSES * MAX_BLOCK]; /* class * block + row */
 };
 
+/* Row r of a block: x + r * nfeat, or x + pix[r] * nfeat when rows are
+ * picked by index. */
+static const float *row_at(const float *x, const uint32_t *pix, size_t nfeat, int r)
+{
+    return x + (pix ? (size_t)pix[r] : (size_t)r) * nfeat;
+}
+
 /* Fills the slot table for rows [0, nrows); rows up to the next multiple
  * of GROUP are zero so whole groups can walk without a tail loop. */
-static void fill_table(const struct forest *f, const float *x, size_t nfeat, int nrows,
-                       uint32_t *tab)
+static void fill_table(const struct forest *f, const float *x, const uint32_t *pix, size_t nfeat,
+                       int nrows, uint32_t *tab)
 {
     /* padded for the wide walk's 16 lanes too (a multiple of GROUP) */
     int padded = (nrows + WIDE_LANES - 1) / WIDE_LANES * WIDE_LANES;
     for (int s = 0; s < f->nslots; s++) {
-        const float *col = x + f->slot_feat[s];
         float nan_as = f->slot_nan[s];
         uint32_t *dst = tab + (size_t)s * (size_t)f->block;
         for (int r = 0; r < nrows; r++) {
-            float v = col[(size_t)r * nfeat];
+            float v = row_at(x, pix, nfeat, r)[f->slot_feat[s]];
             dst[r] = float_key(isnan(v) ? nan_as : v);
         }
         for (int r = nrows; r < padded; r++)
@@ -562,31 +568,44 @@ static void fill_table(const struct forest *f, const float *x, size_t nfeat, int
 }
 
 /* fill_table for the wide walk: 16 rows of a slot gathered at once, NaN
- * replaced and turned into keys in registers; lanes past nrows hold 0. */
+ * replaced and turned into keys in registers; lanes past nrows hold 0.
+ * Picked rows are gathered by their offsets from the block's first one,
+ * which must fit the gather's 32-bit index: a block whose rows lie
+ * further apart is filled by fill_table. */
 __attribute__((target("avx512f"))) static void wide_fill_table(const struct forest *f,
-                                                              const float *x, size_t nfeat,
-                                                              int nrows, uint32_t *tab)
+                                                              const float *x, const uint32_t *pix,
+                                                              size_t nfeat, int nrows, uint32_t *tab)
 {
-    const __m512i stride = _mm512_mullo_epi32(
-        _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15),
-        _mm512_set1_epi32((int)nfeat));
+    uint32_t lo = 0, hi = 0;
+    for (int r = 0; pix && r < nrows; r++) {
+        lo = r == 0 || pix[r] < lo ? pix[r] : lo;
+        hi = r == 0 || pix[r] > hi ? pix[r] : hi;
+    }
+    if ((uint64_t)(hi - lo) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
+        fill_table(f, x, pix, nfeat, nrows, tab);
+        return;
+    }
+    const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
+    const __m512i nf = _mm512_set1_epi32((int)nfeat), first = _mm512_set1_epi32((int)lo);
+    const float *base = x + (size_t)lo * nfeat;
     const __m512i sign = _mm512_set1_epi32((int)0x80000000u);
-    for (int s = 0; s < f->nslots; s++) {
-        const float *col = x + f->slot_feat[s];
-        const __m512 nan_as = _mm512_set1_ps(f->slot_nan[s]);
-        uint32_t *dst = tab + (size_t)s * (size_t)f->block;
-        for (int r = 0; r < nrows; r += WIDE_LANES) {
-            int left = nrows - r;
-            __mmask16 live = left >= WIDE_LANES ? (__mmask16)0xffff : (__mmask16)((1u << left) - 1);
-            __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, stride,
-                                                col + (size_t)r * nfeat, 4);
-            v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v, nan_as);
+    for (int r = 0; r < nrows; r += WIDE_LANES) {
+        int left = nrows - r;
+        __mmask16 live = left >= WIDE_LANES ? (__mmask16)0xffff : (__mmask16)((1u << left) - 1);
+        __m512i at = pix ? _mm512_sub_epi32(_mm512_maskz_loadu_epi32(live, pix + r), first)
+                         : _mm512_add_epi32(lane, _mm512_set1_epi32(r));
+        at = _mm512_maskz_mov_epi32(live, _mm512_mullo_epi32(at, nf));
+        for (int s = 0; s < f->nslots; s++) {
+            const float *col = base + f->slot_feat[s];
+            __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, at, col, 4);
+            v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v,
+                                     _mm512_set1_ps(f->slot_nan[s]));
             v = _mm512_add_ps(v, _mm512_setzero_ps()); /* -0 becomes +0 */
             __m512i b = _mm512_castps_si512(v);
             __mmask16 neg = _mm512_test_epi32_mask(b, sign);
             __m512i key = _mm512_mask_blend_epi32(neg, _mm512_or_si512(b, sign),
                                                   _mm512_xor_si512(b, _mm512_set1_epi32(-1)));
-            _mm512_storeu_si512(dst + r, _mm512_maskz_mov_epi32(live, key));
+            _mm512_storeu_si512(tab + (size_t)s * (size_t)f->block + r, _mm512_maskz_mov_epi32(live, key));
         }
     }
     if (f->nslots == 0)
@@ -761,14 +780,14 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
  * softmax exactly as xgboost::common::Softmax: max in float, expf of the
  * difference in float, their sum in double, each divided by the sum cast
  * to float. */
-static void block_probs(const struct forest *f, const float *x, size_t nfeat, int nrows,
-                        struct scratch *s, float *prob)
+static void block_probs(const struct forest *f, const float *x, const uint32_t *pix, size_t nfeat,
+                        int nrows, struct scratch *s, float *prob)
 {
     int K = f->nclasses;
     if (f->wide)
-        wide_fill_table(f, x, nfeat, nrows, s->tab);
+        wide_fill_table(f, x, pix, nfeat, nrows, s->tab);
     else
-        fill_table(f, x, nfeat, nrows, s->tab);
+        fill_table(f, x, pix, nfeat, nrows, s->tab);
     for (int k = 0; k < K; k++)
         for (int r = 0; r < MAX_BLOCK; r++)
             s->margin[k * MAX_BLOCK + r] = f->base_score;
@@ -805,7 +824,25 @@ void forest_predict(const struct forest *f, const float *x, size_t n, int nfeat,
     struct scratch s;
     for (size_t r = 0; r < n; r += (size_t)f->block) {
         int nrows = n - r < (size_t)f->block ? (int)(n - r) : f->block;
-        block_probs(f, x + r * (size_t)nfeat, (size_t)nfeat, nrows, &s, prob + r * K);
+        block_probs(f, x + r * (size_t)nfeat, NULL, (size_t)nfeat, nrows, &s, prob + r * K);
+    }
+}
+
+/* Class and confidence of the rows of one block, into cls[0..nrows). */
+static void block_classify(const struct forest *f, const float *x, const uint32_t *pix,
+                           size_t nfeat, int nrows, struct scratch *s, uint8_t *cls, float *conf)
+{
+    int K = f->nclasses;
+    float prob[MAX_BLOCK * MAX_CLASSES];
+    block_probs(f, x, pix, nfeat, nrows, s, prob);
+    for (int i = 0; i < nrows; i++) {
+        const float *p = prob + i * K;
+        int best = 0;
+        for (int k = 1; k < K; k++)
+            if (p[k] > p[best])
+                best = k;
+        cls[i] = (uint8_t)best;
+        conf[i] = p[best];
     }
 }
 
@@ -821,23 +858,26 @@ static void *job_run(void *arg)
 {
     const struct job *j = arg;
     const struct forest *f = j->f;
-    int K = f->nclasses;
     struct scratch s;
-    float prob[MAX_BLOCK * MAX_CLASSES];
     for (size_t r = 0; r < j->n; r += (size_t)f->block) {
         int nrows = j->n - r < (size_t)f->block ? (int)(j->n - r) : f->block;
-        block_probs(f, j->x + r * j->nfeat, j->nfeat, nrows, &s, prob);
-        for (int i = 0; i < nrows; i++) {
-            const float *p = prob + i * K;
-            int best = 0;
-            for (int k = 1; k < K; k++)
-                if (p[k] > p[best])
-                    best = k;
-            j->cls[r + (size_t)i] = (uint8_t)best;
-            j->conf[r + (size_t)i] = p[best];
-        }
+        block_classify(f, j->x + r * j->nfeat, NULL, j->nfeat, nrows, &s, j->cls + r, j->conf + r);
     }
     return NULL;
+}
+
+int forest_classify_at(const struct forest *f, const float *x, int nfeat, const uint32_t *pix,
+                       size_t n, uint8_t *cls, float *conf, struct err *e)
+{
+    if (nfeat < f->nfeatures || nfeat < 0)
+        return err_set(e, ST_EINVAL, "forest_classify_at: %d features given, the model uses %d",
+                       nfeat, f->nfeatures);
+    struct scratch s;
+    for (size_t r = 0; r < n; r += (size_t)f->block) {
+        int nrows = n - r < (size_t)f->block ? (int)(n - r) : f->block;
+        block_classify(f, x, pix + r, (size_t)nfeat, nrows, &s, cls + r, conf + r);
+    }
+    return ST_OK;
 }
 
 int forest_classify(const struct forest *f, const float *x, size_t n, int nfeat, int threads,

@@ -47,4 +47,13 @@ void forest_predict(const struct forest *f, const float *x, size_t n, int nfeat,
 int forest_classify(const struct forest *f, const float *x, size_t n, int nfeat, int threads,
                     uint8_t *cls, float *conf, struct err *e);
 
+/* forest_classify on the calling thread for n rows picked by index: row i
+ * is the nfeat floats at x + pix[i] * nfeat; its class and confidence go
+ * to cls[i] and conf[i].  Rows in any order, repeats allowed; blocks of
+ * rows are walked together whether or not they are adjacent in x, so a
+ * caller with many short runs of rows loses nothing by handing them over
+ * in one call.  ST_EINVAL when nfeat is smaller than the model needs. */
+int forest_classify_at(const struct forest *f, const float *x, int nfeat, const uint32_t *pix,
+                       size_t n, uint8_t *cls, float *conf, struct err *e);
+
 #endif

@@ -15,8 +15,9 @@
  * so this halves the classifier's work or better; what it can miss is part
  * of the part narrower than the margin (ROI_STEP * ROI_MARGIN = 8 px) lying
  * entirely between background samples, which no real part of a recipe has.
- * Both passes split rows over the inspector's threads; the second pass
- * classifies spans of the feature stack in place, without copying. */
+ * Both passes share grid rows between the inspector's threads and hand
+ * the forest each grid row's pixels by their index in the feature stack
+ * (at most IMAGE_MAX_PIXELS, so 32 bits), without copying. */
 #define ROI_STEP 8
 #define ROI_MARGIN 1
 #define MAX_WORKERS 64
@@ -46,10 +47,8 @@ struct inspector {
     float *cell_conf;
     uint64_t *cell_sum;     /* per cell: sum of its integer grey */
     int cx0, cy0, cx1, cy1; /* the cells features were computed for */
-    float *grid_rows;       /* per worker: one grid row of samples' features */
     int coarse;             /* [classifier] coarse: see coarse_pass */
-    float *list_rows;       /* per worker: a frame row of picked pixels' features */
-    int *list_x;            /* per worker: their columns */
+    uint32_t *list_pix;     /* per worker, ROI_STEP frame rows' worth: picked pixels */
     uint8_t *list_cls;      /* per worker: their classes */
     float *list_conf;       /* per worker: their confidences */
     struct region_set rs;
@@ -124,13 +123,11 @@ static void free_frame_buffers(struct inspector *in)
     free(in->cell_conf);
     free(in->cell_sum);
     in->cell_sum = NULL;
-    free(in->grid_rows);
-    free(in->list_rows);
-    free(in->list_x);
+    free(in->list_pix);
     free(in->list_cls);
     free(in->list_conf);
-    in->list_rows = in->list_conf = NULL;
-    in->list_x = NULL;
+    in->list_conf = NULL;
+    in->list_pix = NULL;
     in->list_cls = NULL;
     free(in->grey);
     free(in->last);
@@ -144,7 +141,7 @@ static void free_frame_buffers(struct inspector *in)
     in->classes = NULL;
     in->conf = NULL;
     in->cell_cls = in->need = NULL;
-    in->cell_conf = in->grid_rows = NULL;
+    in->cell_conf = NULL;
     in->w = in->h = 0;
 }
 
@@ -185,15 +182,13 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
     in->need = malloc(cells);
     in->cell_conf = malloc(cells * sizeof *in->cell_conf);
     in->cell_sum = malloc(cells * sizeof *in->cell_sum);
-    in->grid_rows = malloc((size_t)workers(in) * in->gw * in->fs->n * sizeof *in->grid_rows);
-    size_t nw = (size_t)workers(in) * w;
-    in->list_rows = malloc(nw * in->fs->n * sizeof *in->list_rows);
-    in->list_x = malloc(nw * sizeof *in->list_x);
+    size_t nw = (size_t)workers(in) * ROI_STEP * w;
+    in->list_pix = malloc(nw * sizeof *in->list_pix);
     in->list_cls = malloc(nw);
     in->list_conf = malloc(nw * sizeof *in->list_conf);
-    if (!in->list_rows || !in->list_x || !in->list_cls || !in->list_conf)
+    if (!in->list_pix || !in->list_cls || !in->list_conf)
         return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
-    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->grid_rows || !in->cell_sum ||
+    if (!in->conf || !in->cell_cls || !in->need || !in->cell_conf || !in->cell_sum ||
         !in->grey || !in->last)
         return err_set(e, ST_ENOMEM, "out of memory for a %dx%d frame", w, h);
     in->w = w;
@@ -223,54 +218,73 @@ static int worker_claim_row(struct worker *wk)
     return y < wk->y1 ? y : wk->y1;
 }
 
-/* Pass 1 for grid rows [y0, y1): the samples' features are gathered into
- * the worker's buffer and their results land directly in the cell maps. */
+/* The worker's share of the picked-pixel lists. */
+static uint32_t *worker_pix(const struct worker *wk)
+{
+    return wk->in->list_pix + (size_t)wk->index * ROI_STEP * (size_t)wk->in->w;
+}
+
+/* Pass 1 for grid rows: each row's samples go to the forest in one call,
+ * picked where they lie in the stack, and their results land directly in
+ * the cell maps. */
 static void *grid_pass(void *arg)
 {
     struct worker *wk = arg;
     struct inspector *in = wk->in;
-    const int nf = in->fs->n, gw = in->gw;
-    const int cx0 = in->cx0, cn = in->cx1 - in->cx0;
-    float *rows = in->grid_rows + (size_t)wk->index * gw * nf;
+    const int gw = in->gw, cx0 = in->cx0, cn = in->cx1 - in->cx0;
+    uint32_t *pix = worker_pix(wk);
     for (int gy; (gy = worker_claim_row(wk)) < wk->y1;) {
-        for (int gx = cx0; gx < cx0 + cn; gx++)
-            memcpy(rows + (size_t)(gx - cx0) * nf,
-                   in->fs->v + ((size_t)gy * ROI_STEP * in->w + (size_t)gx * ROI_STEP) * nf,
-                   (size_t)nf * sizeof *rows);
-        wk->rc = forest_classify(in->forest, rows, (size_t)cn, nf, 1,
-                                 in->cell_cls + (size_t)gy * gw + cx0,
-                                 in->cell_conf + (size_t)gy * gw + cx0, &wk->e);
+        for (int i = 0; i < cn; i++)
+            pix[i] = (uint32_t)((size_t)gy * ROI_STEP * in->w + (size_t)(cx0 + i) * ROI_STEP);
+        wk->rc = forest_classify_at(in->forest, in->fs->v, in->fs->n, pix, (size_t)cn,
+                                    in->cell_cls + (size_t)gy * gw + cx0,
+                                    in->cell_conf + (size_t)gy * gw + cx0, &wk->e);
     }
     return NULL;
 }
 
-/* Pass 2 for frame rows [y0, y1): runs of needed cells are contiguous in the
- * pixel-major stack, so they are classified where they lie. */
+/* Classifies the worker's n picked pixels and writes their classes and
+ * confidences into the frame's maps. */
+static int classify_list(struct worker *wk, int n)
+{
+    struct inspector *in = wk->in;
+    const size_t base = (size_t)wk->index * ROI_STEP * (size_t)in->w;
+    const uint32_t *pix = in->list_pix + base;
+    int rc = forest_classify_at(in->forest, in->fs->v, in->fs->n, pix, (size_t)n,
+                                in->list_cls + base, in->list_conf + base, &wk->e);
+    for (int i = 0; i < n && rc == ST_OK; i++) {
+        in->classes->px[pix[i]] = in->list_cls[base + i];
+        in->conf[pix[i]] = in->list_conf[base + i];
+    }
+    return rc;
+}
+
+/* Pass 2 for grid rows: the needed pixels of a grid row's ROI_STEP frame
+ * rows go to the forest in one call, so its blocks are full however short
+ * the part's runs of cells are; the other pixels are background with
+ * their sample's confidence. */
 static void *full_pass(void *arg)
 {
     struct worker *wk = arg;
     struct inspector *in = wk->in;
-    const int w = in->w, gw = in->gw, nf = in->fs->n;
-    for (int y; (y = worker_claim_row(wk)) < wk->y1;) {
-        const uint8_t *need = in->need + (size_t)(y / ROI_STEP) * gw;
-        const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
-        size_t row = (size_t)y * w;
-        for (int gx = 0; gx < gw && wk->rc == ST_OK;) {
-            int g1 = gx;
-            while (g1 < gw && need[g1] == need[gx])
-                g1++;
-            int x0 = gx * ROI_STEP, x1 = g1 * ROI_STEP < w ? g1 * ROI_STEP : w;
-            if (need[gx]) {
-                wk->rc = forest_classify(in->forest, in->fs->v + (row + x0) * nf,
-                                         (size_t)(x1 - x0), nf, 1, in->classes->px + row + x0,
-                                         in->conf + row + x0, &wk->e);
-            } else {
-                memset(in->classes->px + row + x0, 0, (size_t)(x1 - x0));
-                for (int x = x0; x < x1; x++)
+    const int w = in->w, gw = in->gw;
+    uint32_t *pix = worker_pix(wk);
+    for (int gy; (gy = worker_claim_row(wk)) < wk->y1;) {
+        const uint8_t *need = in->need + (size_t)gy * gw;
+        const float *cc = in->cell_conf + (size_t)gy * gw;
+        int n = 0;
+        for (int y = gy * ROI_STEP; y < (gy + 1) * ROI_STEP && y < in->h; y++) {
+            size_t row = (size_t)y * w;
+            for (int x = 0; x < w; x++) {
+                if (need[x / ROI_STEP]) {
+                    pix[n++] = (uint32_t)(row + (size_t)x);
+                } else {
+                    in->classes->px[row + x] = 0;
                     in->conf[row + x] = cc[x / ROI_STEP];
+                }
             }
-            gx = g1;
         }
+        wk->rc = classify_list(wk, n);
     }
     return NULL;
 }
@@ -286,27 +300,6 @@ static void *full_pass(void *arg)
  * neighbour outside the needed cells counts with what pass 2 gives it:
  * background, its sample's confidence. */
 
-/* Classifies the listed columns of row y (features gathered into the
- * worker's buffer) and writes their classes and confidences. */
-static int classify_list(struct worker *wk, int y, int n)
-{
-    struct inspector *in = wk->in;
-    const int w = in->w, nf = in->fs->n;
-    const size_t base = (size_t)wk->index * w;
-    float *rows = in->list_rows + base * nf;
-    const int *xs = in->list_x + base;
-    if (n == 0)
-        return ST_OK;
-    for (int i = 0; i < n; i++)
-        memcpy(rows + (size_t)i * nf, in->fs->v + ((size_t)y * w + xs[i]) * nf, (size_t)nf * sizeof *rows);
-    int rc = forest_classify(in->forest, rows, (size_t)n, nf, 1, in->list_cls + base, in->list_conf + base, &wk->e);
-    for (int i = 0; i < n && rc == ST_OK; i++) {
-        in->classes->px[(size_t)y * w + xs[i]] = in->list_cls[base + i];
-        in->conf[(size_t)y * w + xs[i]] = in->list_conf[base + i];
-    }
-    return rc;
-}
-
 static int needed(const struct inspector *in, int x, int y)
 {
     return in->need[(size_t)(y / ROI_STEP) * in->gw + x / ROI_STEP];
@@ -319,7 +312,7 @@ static void *coarse_pass(void *arg)
     struct worker *wk = arg;
     struct inspector *in = wk->in;
     const int w = in->w, gw = in->gw;
-    int *xs = in->list_x + (size_t)wk->index * w;
+    uint32_t *pix = worker_pix(wk);
     for (int y; (y = worker_claim_row(wk)) < wk->y1;) {
         const float *cc = in->cell_conf + (size_t)(y / ROI_STEP) * gw;
         size_t row = (size_t)y * w;
@@ -329,10 +322,10 @@ static void *coarse_pass(void *arg)
                 in->classes->px[row + x] = 0;
                 in->conf[row + x] = cc[x / ROI_STEP];
             } else if (!(x & 1) && !(y & 1)) {
-                xs[n++] = x;
+                pix[n++] = (uint32_t)(row + (size_t)x);
             }
         }
-        wk->rc = classify_list(wk, y, n);
+        wk->rc = classify_list(wk, n);
     }
     return NULL;
 }
@@ -366,7 +359,7 @@ static void *coarse_fill(void *arg)
     struct worker *wk = arg;
     struct inspector *in = wk->in;
     const int w = in->w;
-    int *xs = in->list_x + (size_t)wk->index * w;
+    uint32_t *pix = worker_pix(wk);
     for (int y; (y = worker_claim_row(wk)) < wk->y1;) {
         size_t row = (size_t)y * w;
         int n = 0;
@@ -382,10 +375,10 @@ static void *coarse_fill(void *arg)
                 in->classes->px[row + x] = c;
                 in->conf[row + x] = f;
             } else {
-                xs[n++] = x;
+                pix[n++] = (uint32_t)(row + (size_t)x);
             }
         }
-        wk->rc = classify_list(wk, y, n);
+        wk->rc = classify_list(wk, n);
     }
     return NULL;
 }
@@ -533,7 +526,7 @@ static int classify_located(struct inspector *in, double t0, struct inspect_time
         if (!rc)
             rc = run_workers(in, 0, in->h, coarse_fill, e);
     } else {
-        rc = run_workers(in, 0, in->h, full_pass, e);
+        rc = run_workers(in, 0, gh, full_pass, e);
     }
     if (t) {
         t->features_ms = feat_ms + box_feat_ms;

@@ -6,6 +6,7 @@
  * Also: classify is the argmax of predict at any thread count, and broken
  * model files are refused with ST_EFORMAT naming the file.  The
  * comparison with Python's XGBoost is tests/ref/test_xgboost.py. */
+#define _DEFAULT_SOURCE /* MAP_ANONYMOUS, MAP_NORESERVE */
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdint.h>
@@ -17,6 +18,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/mman.h>
 #include <unistd.h>
 
 #include "core/booster.h"
@@ -59,11 +61,13 @@ static void make_set(uint64_t seed, size_t n, float *x, float *y)
     }
 }
 
-#define NMODELS 2
-/* A shallow model as the station trains them and a deep one (depth 9)
- * whose trees no fixed small depth would cover. */
+#define NMODELS 3
+/* A shallow model, one of depth 6 as the demo recipe trains them (the
+ * evaluator's widest walk), and a deep one (depth 9) whose trees no fixed
+ * small depth would cover. */
 static const struct booster_params model_params[NMODELS] = {
     {.rounds = 20, .depth = 4, .eta = 0.3, .seed = 3, .threads = 1, .early_stop = 0},
+    {.rounds = 12, .depth = 6, .eta = 0.3, .seed = 5, .threads = 1, .early_stop = 0},
     {.rounds = 5, .depth = 9, .eta = 0.5, .seed = 4, .threads = 1, .early_stop = 0},
 };
 
@@ -326,6 +330,73 @@ static void test_classify_is_argmax(void **state)
     forest_free(f);
 }
 
+/* forest_classify_at on rows picked in any order, with repeats: the same
+ * bits as forest_classify on those rows (itself the argmax of
+ * forest_predict, which agrees with XGBoost above). */
+static void test_classify_at_picks_rows(void **state)
+{
+    struct fixture *fx = *state;
+    struct err e;
+    enum { NPICK = 1500 };
+    static uint8_t cls[NTEST], pcls[NPICK];
+    static float conf[NTEST], pconf[NPICK];
+    static uint32_t pix[NPICK];
+    for (int m = 0; m < NMODELS; m++) {
+        struct forest *f = NULL;
+        assert_int_equal(forest_load(fx->json[m], &f, &e), ST_OK);
+        make_set(109 + (uint64_t)m, NTEST, fx->xt, NULL);
+        assert_int_equal(forest_classify(f, fx->xt, NTEST, NFEAT, 1, cls, conf, &e), ST_OK);
+        uint64_t s = 77 + (uint64_t)m;
+        for (int i = 0; i < NPICK; i++)
+            pix[i] = (uint32_t)(rng_next(&s) % NTEST);
+        assert_int_equal(forest_classify_at(f, fx->xt, NFEAT, pix, NPICK, pcls, pconf, &e), ST_OK);
+        for (int i = 0; i < NPICK; i++) {
+            assert_int_equal(pcls[i], cls[pix[i]]);
+            assert_true(pconf[i] == conf[pix[i]]);
+        }
+        /* fewer features than the model splits on: refused */
+        assert_int_equal(forest_classify_at(f, fx->xt, forest_nfeatures(f) - 1, pix, 10, pcls,
+                                            pconf, &e),
+                         ST_EINVAL);
+        forest_free(f);
+    }
+}
+
+/* Rows further apart than a 32-bit gather index reaches (more than 2^31
+ * floats) in one block: still the rows' own results.  The rows lie in a
+ * sparse mapping of which only their pages are touched. */
+static void test_classify_at_far_rows(void **state)
+{
+    struct fixture *fx = *state;
+    struct err e;
+    struct forest *f = NULL;
+    assert_int_equal(forest_load(fx->json[1], &f, &e), ST_OK);
+    const size_t far = ((size_t)1 << 31) / NFEAT + 4096; /* rows */
+    const size_t bytes = (far + 64) * NFEAT * sizeof(float);
+    float *x = mmap(NULL, bytes, PROT_READ | PROT_WRITE, MAP_PRIVATE | MAP_ANONYMOUS | MAP_NORESERVE,
+                    -1, 0);
+    if (x == MAP_FAILED) {
+        print_error("cannot map %zu bytes of address space for the far rows\n", bytes);
+        fail();
+    }
+    make_set(111, 64, fx->xt, NULL);
+    uint32_t pix[64];
+    for (int i = 0; i < 64; i++) {
+        pix[i] = (uint32_t)(i % 2 ? far + (size_t)i : (size_t)i);
+        memcpy(x + (size_t)pix[i] * NFEAT, fx->xt + (size_t)i * NFEAT, NFEAT * sizeof(float));
+    }
+    uint8_t cls[64], pcls[64];
+    float conf[64], pconf[64];
+    assert_int_equal(forest_classify(f, fx->xt, 64, NFEAT, 1, cls, conf, &e), ST_OK);
+    assert_int_equal(forest_classify_at(f, x, NFEAT, pix, 64, pcls, pconf, &e), ST_OK);
+    for (int i = 0; i < 64; i++) {
+        assert_int_equal(pcls[i], cls[i]);
+        assert_true(pconf[i] == conf[i]);
+    }
+    munmap(x, bytes);
+    forest_free(f);
+}
+
 enum breakage {
     BREAK_TRUNCATED,
     BREAK_OBJECTIVE,
@@ -467,6 +538,8 @@ int main(void)
         cmocka_unit_test(test_signed_zero),
         cmocka_unit_test(test_single_leaf_trees),
         cmocka_unit_test(test_classify_is_argmax),
+        cmocka_unit_test(test_classify_at_picks_rows),
+        cmocka_unit_test(test_classify_at_far_rows),
         cmocka_unit_test(test_refuses_bad_files),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
