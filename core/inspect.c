@@ -561,6 +561,39 @@ int inspector_classify(struct inspector *in, const struct image *img, struct ins
     return rc;
 }
 
+/* The gates' measures read the frame, the classes and the confidences
+ * only, and write the quality and the grey frame, which nothing else
+ * touches until the verdict: with a second thread they run beside the
+ * part's location, zones and regions. */
+struct quality_job {
+    struct inspector *in;
+    int rc;
+    struct err e;
+};
+
+static void *quality_run(void *arg)
+{
+    struct quality_job *qj = arg;
+    struct inspector *in = qj->in;
+    qj->rc = judge_measure_quality(&in->r, in->frame, in->classes, in->conf, in->grey,
+                                   in->has_last ? in->last : NULL, &in->q, &qj->e);
+    return NULL;
+}
+
+static int measure_regions(struct inspector *in, const struct image *img, struct err *e)
+{
+    const struct recipe *r = &in->r;
+    const double sx = r->mm_per_px_x, sy = r->mm_per_px_y;
+    int rc = part_locate(in->classes, sx, sy, (enum part_orient)r->part.orient, &in->pose, e);
+    if (!rc && in->zones)
+        rc = zone_map_paint(in->zones, &in->pose, img->w, img->h, sx, sy, e);
+    if (rc)
+        return rc;
+    struct regions_opts ro;
+    judge_regions_opts(r, inspector_zone_map(in), &ro);
+    return regions_find(&in->rs, in->classes, in->conf, &ro, e);
+}
+
 int inspector_measure(struct inspector *in, const struct image *img, struct inspect_times *t,
                       struct err *e)
 {
@@ -573,19 +606,22 @@ int inspector_measure(struct inspector *in, const struct image *img, struct insp
     if (rc)
         return rc;
     double t0 = now_ms();
-    const double sx = r->mm_per_px_x, sy = r->mm_per_px_y;
-    if ((rc = part_locate(in->classes, sx, sy, (enum part_orient)r->part.orient, &in->pose, e)))
-        return rc;
-    if (in->zones && (rc = zone_map_paint(in->zones, &in->pose, img->w, img->h, sx, sy, e)))
-        return rc;
-    struct regions_opts ro;
-    judge_regions_opts(r, inspector_zone_map(in), &ro);
-    if ((rc = regions_find(&in->rs, in->classes, in->conf, &ro, e)))
-        return rc;
+    struct quality_job qj = {in, ST_OK, {0}};
+    err_clear(&qj.e);
+    pthread_t qt;
+    int beside = workers(in) > 1 && pthread_create(&qt, NULL, quality_run, &qj) == 0;
+    rc = measure_regions(in, img, e);
     double t1 = now_ms();
-    if ((rc = judge_measure_quality(r, in->frame, in->classes, in->conf, in->grey,
-                                    in->has_last ? in->last : NULL, &in->q, e)))
+    if (beside)
+        pthread_join(qt, NULL);
+    else
+        quality_run(&qj);
+    if (rc)
         return rc;
+    if (qj.rc) {
+        *e = qj.e;
+        return qj.rc;
+    }
     uint8_t *swap = in->last;
     in->last = in->grey;
     in->grey = swap;

@@ -28,6 +28,10 @@
 #include "regions.h"
 #include "zones.h"
 
+/* Wall-clock milliseconds per stage.  With two threads or more the gates'
+ * measures run beside the regions stage (part, zones, regions): verdict_ms
+ * is then what is left of them once the regions are done, plus the
+ * verdict itself, so the four always add up to the inspection's time. */
 struct inspect_times {
     double features_ms, classify_ms, regions_ms, verdict_ms;
 };
