@@ -415,20 +415,36 @@ static int run_workers(struct inspector *in, int y0, int y1, void *(*fn)(void *)
     return ST_OK;
 }
 
-/* The cells [cx0, cx1) x [cy0, cy1) of the bright box (BOX_GROW): one
- * pass sums each cell's integer grey (299 R + 587 G + 114 B, as the
- * features' brightness statistics), the frame's sum is theirs. */
-static void bright_cells(struct inspector *in, const struct image *img)
+/* Sums each cell's integer grey (299 R + 587 G + 114 B, as the features'
+ * brightness statistics) for grid rows claimed one at a time. */
+static void *bright_pass(void *arg)
 {
-    const int w = img->w, h = img->h, ch = img->channels, gw = in->gw, gh = in->gh;
-    uint64_t *sum = in->cell_sum, total = 0;
-    memset(sum, 0, (size_t)gw * gh * sizeof *sum);
-    for (int y = 0; y < h; y++) {
-        const uint8_t *p = img->px + (size_t)y * w * ch;
-        uint64_t *row = sum + (size_t)(y / ROI_STEP) * gw;
-        for (int x = 0; x < w; x++, p += ch)
-            row[x / ROI_STEP] += ch == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
+    struct worker *wk = arg;
+    struct inspector *in = wk->in;
+    const struct image *img = in->frame;
+    const int w = img->w, ch = img->channels;
+    for (int gy; (gy = worker_claim_row(wk)) < wk->y1;) {
+        uint64_t *row = in->cell_sum + (size_t)gy * in->gw;
+        memset(row, 0, (size_t)in->gw * sizeof *row);
+        for (int y = gy * ROI_STEP; y < (gy + 1) * ROI_STEP && y < img->h; y++) {
+            const uint8_t *p = img->px + (size_t)y * w * ch;
+            for (int x = 0; x < w; x++, p += ch)
+                row[x / ROI_STEP] += ch == 3 ? 299u * p[0] + 587u * p[1] + 114u * p[2] : 1000u * p[0];
+        }
     }
+    return NULL;
+}
+
+/* The cells [cx0, cx1) x [cy0, cy1) of the bright box (BOX_GROW): the
+ * frame's grey sum is its cells'. */
+static int bright_cells(struct inspector *in, struct err *e)
+{
+    const int w = in->w, h = in->h, gw = in->gw, gh = in->gh;
+    int rc = run_workers(in, 0, gh, bright_pass, e);
+    if (rc)
+        return rc;
+    const uint64_t *sum = in->cell_sum;
+    uint64_t total = 0;
     for (size_t i = 0; i < (size_t)gw * gh; i++)
         total += sum[i];
     const uint64_t npx = (uint64_t)w * h;
@@ -457,6 +473,7 @@ static void bright_cells(struct inspector *in, const struct image *img)
     in->cy0 = cy0 - BOX_GROW > 0 ? cy0 - BOX_GROW : 0;
     in->cx1 = cx1 + BOX_GROW < gw ? cx1 + BOX_GROW : gw;
     in->cy1 = cy1 + BOX_GROW < gh ? cy1 + BOX_GROW : gh;
+    return ST_OK;
 }
 
 /* Features of the cells [cx0, cx1) x [cy0, cy1), then their samples; the
@@ -499,10 +516,11 @@ static int box_cut(const struct inspector *in)
 static int classify_located(struct inspector *in, double t0, struct inspect_times *t, struct err *e)
 {
     const int gw = in->gw, gh = in->gh;
-    bright_cells(in, in->frame);
+    int rc = bright_cells(in, e);
     double feat_ms = now_ms() - t0; /* the box, then the features inside it */
     double start = now_ms(), box_feat_ms = 0;
-    int rc = sample_box(in, &box_feat_ms, e);
+    if (!rc)
+        rc = sample_box(in, &box_feat_ms, e);
     if (!rc && box_cut(in)) {
         in->cx0 = in->cy0 = 0;
         in->cx1 = gw;
