@@ -67,6 +67,11 @@
 #define WIDE_DEPTH 6
 #define WIDE_LANES 16
 #define WIDE_GROUPS 8 /* registers of rows walking one tree together */
+#define RANK_DEPTH 6
+#define RANK_LANES 64 /* rows per register of ranks */
+#define RANK_GROUPS 2
+#define RANK_CHAINS 4 /* slots whose ranks are searched together */
+#define RANK_CUTS 255 /* split values per slot a byte's rank can tell apart */
 
 /* One tree as a complete tree for the wide walk.  Level d < 5 holds its
  * 2^d nodes at [16 d, 16 d + 16); level 5 holds 32 at [80, 112). */
@@ -75,6 +80,25 @@ struct wide_tree {
     uint32_t key[112];
     float val[64];
 } __attribute__((aligned(64)));
+
+/* One tree for the rank walk: the wide tree's complete form at depth 6
+ * (shallower trees padded with always-right nodes), its splits as ranks.
+ * Level d's node n is key[d][n] (its split's rank among its slot's
+ * split values, plus one; 0 goes right always) and off[2^d - 1 + n] (its
+ * slot's offset into the rank table). */
+struct rank_tree {
+    uint8_t key[RANK_DEPTH][64];
+    uint32_t off[64];
+    float val[64];
+} __attribute__((aligned(64)));
+
+/* A slot's sorted split values as the levels of a complete binary search
+ * tree of depth 8, padded with UINT32_MAX: level L (2^L values) at
+ * RANK_LEVEL(L).  An input's rank is how many of them it reaches. */
+struct rank_cuts {
+    uint32_t lv[304];
+} __attribute__((aligned(64)));
+#define RANK_LEVEL(L) ((L) < 5 ? 16 * (L) : (L) == 5 ? 80 : (L) == 6 ? 112 : 176)
 
 struct tree {
     uint32_t first; /* index of the root in the node arrays */
@@ -94,6 +118,8 @@ struct forest {
     uint16_t slot_feat[MAX_SLOTS];
     float slot_nan[MAX_SLOTS];
     struct wide_tree *wide; /* NULL when the wide walk does not apply */
+    struct rank_tree *rank; /* NULL when the rank walk does not apply */
+    struct rank_cuts *cuts; /* per slot, with rank */
 };
 
 /* ---- loading ---------------------------------------------------------- */
@@ -390,6 +416,104 @@ static int wide_build(struct forest *f, const char *path, struct err *e)
     return ST_OK;
 }
 
+static int cmp_u64(const void *a, const void *b)
+{
+    uint64_t x = *(const uint64_t *)a, y = *(const uint64_t *)b;
+    return x < y ? -1 : x > y;
+}
+
+/* How many of a slot's split values key reaches (is at least): the
+ * rank, 0..RANK_CUTS, as the walk's fill computes it lane by lane. */
+static uint32_t rank_of(const struct rank_cuts *c, uint32_t key)
+{
+    uint32_t j = 0;
+    for (int L = 0; L < 8; L++)
+        j = 2 * j + (c->lv[RANK_LEVEL(L) + j] <= key);
+    return j;
+}
+
+/* The slots' sorted distinct split keys into f->cuts: 1 when done, 0 when a
+ * slot has more than RANK_CUTS values (no rank walk then), -1 out of
+ * memory. */
+static int rank_cuts_build(struct forest *f)
+{
+    size_t n = 0;
+    uint64_t *pairs = malloc((f->nnodes + 1) * sizeof *pairs);
+    if (!pairs)
+        return -1;
+    for (size_t i = 0; i < f->nnodes; i++)
+        if (!is_leaf(f->node[i]))
+            pairs[n++] = (uint64_t)((uint32_t)f->node[i] / (uint32_t)f->block) << 32 | (f->node[i] >> 32);
+    qsort(pairs, n, sizeof *pairs, cmp_u64);
+    uint32_t sorted[RANK_CUTS + 1];
+    size_t i = 0;
+    int ok = 1;
+    for (int sl = 0; sl < f->nslots && ok; sl++) {
+        int m = 0;
+        for (; i < n && pairs[i] >> 32 == (uint64_t)sl; i++) {
+            uint32_t k = (uint32_t)pairs[i];
+            if (m == 0 || sorted[m - 1] != k) {
+                if (m == RANK_CUTS) {
+                    ok = 0;
+                    break;
+                }
+                sorted[m++] = k;
+            }
+        }
+        for (int j = m; j <= RANK_CUTS; j++)
+            sorted[j] = UINT32_MAX;
+        /* level L's value j is the search's pivot after L halvings:
+         * sorted[(2j + 1) * 2^(7 - L) - 1] */
+        uint32_t *lv = f->cuts[sl].lv;
+        for (int L = 0; L < 8; L++)
+            for (int j = 0; j < 1 << L; j++)
+                lv[RANK_LEVEL(L) + j] = sorted[((2 * j + 1) << (7 - L)) - 1];
+    }
+    free(pairs);
+    return ok;
+}
+
+/* The rank walk: on processors with AVX-512 BW and VBMI, for trees no
+ * deeper than 6 and slots of at most RANK_CUTS split values. */
+static int rank_build(struct forest *f, const char *path, struct err *e)
+{
+    if (!__builtin_cpu_supports("avx512bw") || !__builtin_cpu_supports("avx512vbmi") ||
+        f->max_depth > RANK_DEPTH || f->block % (RANK_GROUPS * RANK_LANES) != 0 || f->ntrees == 0 ||
+        f->nslots == 0)
+        return ST_OK;
+    f->cuts = aligned_alloc(64, (size_t)f->nslots * sizeof *f->cuts);
+    f->rank = aligned_alloc(64, (size_t)f->ntrees * sizeof *f->rank);
+    struct wide_tree *w = aligned_alloc(64, sizeof *w);
+    int ok = f->cuts && f->rank && w ? rank_cuts_build(f) : -1;
+    for (int t = 0; t < f->ntrees && ok == 1; t++) {
+        /* the complete tree at depth 6, then its keys as ranks */
+        memset(w, 0, sizeof *w);
+        wide_fill(f, f->trees[t].first, f->trees[t].first, 0, RANK_DEPTH, 0, w);
+        struct rank_tree *rt = &f->rank[t];
+        memset(rt, 0, sizeof *rt);
+        for (int d = 0; d < RANK_DEPTH; d++)
+            for (int nn = 0; nn < 1 << d; nn++) {
+                uint32_t at = (d < 5 ? 16u * (uint32_t)d : 80u) + (uint32_t)nn;
+                /* x >= split iff rank(x) >= rank(split): the split is
+                 * among the values rank(x) counts; key 0 (padding) stays
+                 * 0, which every rank reaches */
+                rt->off[(1 << d) - 1 + nn] = w->off[at];
+                rt->key[d][nn] = w->key[at] ? (uint8_t)rank_of(&f->cuts[w->off[at] / (uint32_t)f->block],
+                                                               w->key[at])
+                                            : 0;
+            }
+        memcpy(rt->val, w->val, sizeof rt->val);
+    }
+    free(w);
+    if (ok == 1)
+        return ST_OK;
+    free(f->cuts);
+    free(f->rank);
+    f->cuts = NULL;
+    f->rank = NULL;
+    return ok < 0 ? err_set(e, ST_ENOMEM, "%s: out of memory for the model", path) : ST_OK;
+}
+
 static int check_tree_info(struct forest *f, const char *path, json_t *info, struct err *e)
 {
     int count[MAX_CLASSES] = {0};
@@ -446,8 +570,9 @@ static int load_trees(struct forest *f, const char *path, json_t *jtrees, struct
         if (rc != ST_OK)
             goto fail;
     }
-    if ((rc = check_margins(f, path, e)) == ST_OK && (rc = assign_slots(f, path, e)) == ST_OK)
-        rc = wide_build(f, path, e);
+    if ((rc = check_margins(f, path, e)) == ST_OK && (rc = assign_slots(f, path, e)) == ST_OK &&
+        (rc = wide_build(f, path, e)) == ST_OK)
+        rc = rank_build(f, path, e);
     goto fail;
 nomem:
     rc = err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
@@ -523,6 +648,8 @@ void forest_free(struct forest *f)
     free(f->left);
     free(f->val);
     free(f->wide);
+    free(f->rank);
+    free(f->cuts);
     free(f);
 }
 
@@ -530,11 +657,13 @@ int forest_nclasses(const struct forest *f) { return f->nclasses; }
 int forest_nfeatures(const struct forest *f) { return f->nfeatures; }
 int forest_ntrees(const struct forest *f) { return f->ntrees; }
 int forest_max_depth(const struct forest *f) { return f->max_depth; }
+const char *forest_walk(const struct forest *f) { return f->rank ? "rank" : f->wide ? "wide" : "scalar"; }
 
 /* ---- evaluation ------------------------------------------------------- */
 
 struct scratch {
     uint32_t tab[SCRATCH_KEYS];            /* key at slot * block + row */
+    uint8_t rtab[SCRATCH_KEYS] __attribute__((aligned(64))); /* the rank walk's: rank there */
     float margin[MAX_CLASSES * MAX_BLOCK]; /* class * block + row */
 };
 
@@ -776,6 +905,209 @@ __attribute__((target("avx512f"))) static void wide_walk(const struct wide_tree 
     }
 }
 
+/* ---- the rank walk ----------------------------------------------------
+ * A slot's inputs become ranks among its split values (one byte: at most
+ * RANK_CUTS values), and a node's split the rank of its own value, so that
+ * x >= split exactly when rank(x) >= rank(split).  A register then holds
+ * 64 rows, and every level's input comes from plain loads of the rank
+ * table blended by the bits of the position (the last level from 32),
+ * where the wide walk gathers: the gathers' latency is what bounds it.
+ * Same leaves, same order, so the sums are the same floats. */
+#define RANK_TARGET __attribute__((target("avx512f,avx512bw,avx512vbmi")))
+
+/* rank_of for 16 keys of each of n slots at once: each level of a slot's
+ * search tree is a permute of one to eight registers by the position so
+ * far.  The n searches are independent chains, interleaved so that one's
+ * latency hides behind the others'. */
+RANK_TARGET __attribute__((always_inline)) static inline void rank16(const struct rank_cuts *const *c, __m512i *key,
+                                                                     const int n)
+{
+    const __m512i one = _mm512_set1_epi32(1), b5 = _mm512_set1_epi32(32), b6 = _mm512_set1_epi32(64);
+    __m512i j[RANK_CHAINS];
+#pragma GCC unroll 4
+    for (int i = 0; i < n; i++)
+        j[i] = _mm512_setzero_si512();
+#pragma GCC unroll 8
+    for (int L = 0; L < 8; L++) {
+#pragma GCC unroll 4
+        for (int i = 0; i < n; i++) {
+            const uint32_t *lv = c[i]->lv;
+            __m512i t;
+            if (L < 5) {
+                t = _mm512_permutexvar_epi32(j[i], _mm512_load_si512(lv + 16 * L));
+            } else if (L == 5) {
+                t = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 80), j[i], _mm512_load_si512(lv + 96));
+            } else if (L == 6) {
+                __m512i a = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 112), j[i], _mm512_load_si512(lv + 128));
+                __m512i b = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 144), j[i], _mm512_load_si512(lv + 160));
+                t = _mm512_mask_blend_epi32(_mm512_test_epi32_mask(j[i], b5), a, b);
+            } else {
+                __mmask16 h5 = _mm512_test_epi32_mask(j[i], b5), h6 = _mm512_test_epi32_mask(j[i], b6);
+                __m512i a0 = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 176), j[i], _mm512_load_si512(lv + 192));
+                __m512i a1 = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 208), j[i], _mm512_load_si512(lv + 224));
+                __m512i a2 = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 240), j[i], _mm512_load_si512(lv + 256));
+                __m512i a3 = _mm512_permutex2var_epi32(_mm512_load_si512(lv + 272), j[i], _mm512_load_si512(lv + 288));
+                t = _mm512_mask_blend_epi32(h6, _mm512_mask_blend_epi32(h5, a0, a1),
+                                            _mm512_mask_blend_epi32(h5, a2, a3));
+            }
+            __mmask16 le = _mm512_cmple_epu32_mask(t, key[i]);
+            __m512i twice = _mm512_add_epi32(j[i], j[i]);
+            j[i] = _mm512_mask_add_epi32(twice, le, twice, one);
+        }
+    }
+#pragma GCC unroll 4
+    for (int i = 0; i < n; i++)
+        key[i] = j[i];
+}
+
+/* Ranks of 16 rows (gather offsets at, live lanes) for slots [s0, s0 + n)
+ * into the rank table at row r. */
+RANK_TARGET __attribute__((always_inline)) static inline void rank_slots(const struct forest *f, const float *base,
+                                                                         __m512i at, __mmask16 live, int s0,
+                                                                         const int n, int r, uint8_t *rt)
+{
+    const __m512i sign = _mm512_set1_epi32((int)0x80000000u);
+    const struct rank_cuts *c[RANK_CHAINS];
+    __m512i key[RANK_CHAINS];
+#pragma GCC unroll 4
+    for (int i = 0; i < n; i++) {
+        const int s = s0 + i;
+        __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, at, base + f->slot_feat[s], 4);
+        v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v, _mm512_set1_ps(f->slot_nan[s]));
+        v = _mm512_add_ps(v, _mm512_setzero_ps()); /* -0 becomes +0 */
+        __m512i b = _mm512_castps_si512(v);
+        __mmask16 neg = _mm512_test_epi32_mask(b, sign);
+        key[i] = _mm512_mask_blend_epi32(neg, _mm512_or_si512(b, sign), _mm512_xor_si512(b, _mm512_set1_epi32(-1)));
+        c[i] = &f->cuts[s];
+    }
+    rank16(c, key, n);
+#pragma GCC unroll 4
+    for (int i = 0; i < n; i++)
+        _mm_storeu_si128((__m128i *)(rt + (size_t)(s0 + i) * (size_t)f->block + (size_t)r), _mm512_cvtepi32_epi8(key[i]));
+}
+
+/* The rank table of rows [0, nrows) at slot * block + row, zero up to the
+ * next multiple of RANK_LANES.  Rows picked by index are gathered as in
+ * wide_fill_table, and rows too far apart for its 32-bit index go through
+ * fill_table's keys and rank_of. */
+RANK_TARGET static void rank_fill_table(const struct forest *f, const float *x, const uint32_t *pix,
+                                        size_t nfeat, int nrows, uint32_t *keys, uint8_t *rt)
+{
+    const size_t block = (size_t)f->block;
+    const int padded = (nrows + RANK_LANES - 1) / RANK_LANES * RANK_LANES;
+    const int lanes = (nrows + WIDE_LANES - 1) / WIDE_LANES * WIDE_LANES;
+    uint32_t lo = 0, hi = 0;
+    for (int r = 0; pix && r < nrows; r++) {
+        lo = r == 0 || pix[r] < lo ? pix[r] : lo;
+        hi = r == 0 || pix[r] > hi ? pix[r] : hi;
+    }
+    if ((uint64_t)(hi - lo) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
+        fill_table(f, x, pix, nfeat, nrows, keys);
+        for (int s = 0; s < f->nslots; s++)
+            for (int r = 0; r < lanes; r++)
+                rt[(size_t)s * block + (size_t)r] = (uint8_t)rank_of(&f->cuts[s], keys[(size_t)s * block + (size_t)r]);
+    } else {
+        const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
+        const __m512i nf = _mm512_set1_epi32((int)nfeat), first = _mm512_set1_epi32((int)lo);
+        const float *base = x + (size_t)lo * nfeat;
+        /* rows outer: a group's lines stay in L1 for all its slots */
+        for (int r = 0; r < nrows; r += WIDE_LANES) {
+            int left = nrows - r;
+            __mmask16 live = left >= WIDE_LANES ? (__mmask16)0xffff : (__mmask16)((1u << left) - 1);
+            __m512i at = pix ? _mm512_sub_epi32(_mm512_maskz_loadu_epi32(live, pix + r), first)
+                             : _mm512_add_epi32(lane, _mm512_set1_epi32(r));
+            at = _mm512_maskz_mov_epi32(live, _mm512_mullo_epi32(at, nf));
+            int s = 0;
+            for (; s + RANK_CHAINS <= f->nslots; s += RANK_CHAINS)
+                rank_slots(f, base, at, live, s, RANK_CHAINS, r, rt);
+            for (; s < f->nslots; s++)
+                rank_slots(f, base, at, live, s, 1, r, rt);
+        }
+    }
+    for (int s = 0; s < f->nslots; s++)
+        memset(rt + (size_t)s * block + (size_t)lanes, 0, (size_t)(padded - lanes));
+}
+
+/* A level's input for 64 rows: the rank of the slot of node p of the level,
+ * for each row's position p, as a tree of blends on p's bits (b[k] = bit
+ * k) over the level's 2^d loads. */
+RANK_TARGET __attribute__((always_inline)) static inline __m512i rsel1(const uint8_t *t, const uint32_t *o, int r, const __mmask64 *b)
+{
+    (void)b;
+    return _mm512_loadu_si512(t + o[0] + r);
+}
+#define RSEL(name, half, prev, bit)                                                                  \
+    RANK_TARGET __attribute__((always_inline)) static inline __m512i name(const uint8_t *t, const uint32_t *o, int r, \
+                                                                           const __mmask64 *b)             \
+    {                                                                                                \
+        return _mm512_mask_blend_epi8(b[bit], prev(t, o, r, b), prev(t, o + half, r, b));            \
+    }
+RSEL(rsel2, 1, rsel1, 0)
+RSEL(rsel4, 2, rsel2, 1)
+RSEL(rsel8, 4, rsel4, 2)
+RSEL(rsel16, 8, rsel8, 3)
+RSEL(rsel32, 16, rsel16, 4)
+
+/* Tree w for `groups` registers of 64 rows from row r of the rank table;
+ * inlined with groups constant (rank_walk). */
+RANK_TARGET __attribute__((always_inline)) static inline void rank_chunk(const struct rank_tree *w, const uint8_t *tab,
+                                                                         int r, const int groups, float *m)
+{
+    const __m512i one = _mm512_set1_epi8(1);
+    __m512i p[RANK_GROUPS];
+#pragma GCC unroll 2
+    for (int g = 0; g < RANK_GROUPS; g++)
+        p[g] = _mm512_setzero_si512();
+#pragma GCC unroll 6
+    for (int d = 0; d < RANK_DEPTH; d++) {
+        const __m512i key = _mm512_load_si512(w->key[d]);
+        const uint32_t *off = w->off + (1 << d) - 1;
+#pragma GCC unroll 2
+        for (int g = 0; g < groups; g++) {
+            __mmask64 bit[5];
+#pragma GCC unroll 5
+            for (int k = 0; k < d && k < 5; k++)
+                bit[k] = _mm512_test_epi8_mask(p[g], _mm512_set1_epi8((char)(1 << k)));
+            const int rr = r + RANK_LANES * g;
+            __m512i x = d == 0 ? rsel1(tab, off, rr, bit)
+                      : d == 1 ? rsel2(tab, off, rr, bit)
+                      : d == 2 ? rsel4(tab, off, rr, bit)
+                      : d == 3 ? rsel8(tab, off, rr, bit)
+                      : d == 4 ? rsel16(tab, off, rr, bit)
+                               : rsel32(tab, off, rr, bit);
+            __mmask64 right = _mm512_cmpge_epu8_mask(x, _mm512_permutexvar_epi8(p[g], key));
+            __m512i twice = _mm512_add_epi8(p[g], p[g]);
+            p[g] = _mm512_mask_add_epi8(twice, right, twice, one);
+        }
+    }
+    const __m512 v0 = _mm512_load_ps(w->val), v1 = _mm512_load_ps(w->val + 16);
+    const __m512 v2 = _mm512_load_ps(w->val + 32), v3 = _mm512_load_ps(w->val + 48);
+    const __m512i upper = _mm512_set1_epi32(32);
+#pragma GCC unroll 2
+    for (int g = 0; g < groups; g++) {
+#pragma GCC unroll 4
+        for (int q = 0; q < 4; q++) {
+            __m512i idx = _mm512_cvtepu8_epi32(_mm512_extracti32x4_epi32(p[g], q));
+            __m512 leaf = _mm512_mask_blend_ps(_mm512_test_epi32_mask(idx, upper),
+                                               _mm512_permutex2var_ps(v0, idx, v1),
+                                               _mm512_permutex2var_ps(v2, idx, v3));
+            float *mg = m + r + RANK_LANES * g + WIDE_LANES * q;
+            _mm512_storeu_ps(mg, _mm512_add_ps(_mm512_loadu_ps(mg), leaf));
+        }
+    }
+}
+
+/* Tree w for the rows [0, nrows <= block) of a filled rank table. */
+RANK_TARGET static void rank_walk(const struct rank_tree *w, const uint8_t *tab, int nrows, float *m)
+{
+    for (int r = 0; r < nrows; r += RANK_GROUPS * RANK_LANES) {
+        if (nrows - r > RANK_LANES)
+            rank_chunk(w, tab, r, RANK_GROUPS, m);
+        else
+            rank_chunk(w, tab, r, 1, m);
+    }
+}
+
 /* Probabilities of rows [0, nrows <= block) into prob[row * nclasses + k],
  * softmax exactly as xgboost::common::Softmax: max in float, expf of the
  * difference in float, their sum in double, each divided by the sum cast
@@ -784,14 +1116,19 @@ static void block_probs(const struct forest *f, const float *x, const uint32_t *
                         int nrows, struct scratch *s, float *prob)
 {
     int K = f->nclasses;
-    if (f->wide)
+    if (f->rank)
+        rank_fill_table(f, x, pix, nfeat, nrows, s->tab, s->rtab);
+    else if (f->wide)
         wide_fill_table(f, x, pix, nfeat, nrows, s->tab);
     else
         fill_table(f, x, pix, nfeat, nrows, s->tab);
     for (int k = 0; k < K; k++)
         for (int r = 0; r < MAX_BLOCK; r++)
             s->margin[k * MAX_BLOCK + r] = f->base_score;
-    if (f->wide)
+    if (f->rank)
+        for (int t = 0; t < f->ntrees; t++)
+            rank_walk(&f->rank[t], s->rtab, nrows, s->margin + (size_t)f->trees[t].cls * MAX_BLOCK);
+    else if (f->wide)
         for (int t = 0; t < f->ntrees; t++)
             wide_walk(&f->wide[t], f->trees[t].depth, s->tab, nrows,
                       s->margin + (size_t)f->trees[t].cls * MAX_BLOCK);

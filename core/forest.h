@@ -15,7 +15,7 @@
  * trees (every node reached once from the root) at most 64 deep.  Nodes
  * not reachable from the root (XGBoost's deleted nodes) are ignored.
  * Evaluation allocates nothing: its scratch lives on the stack (about
- * 80 KiB per calling or worker thread). */
+ * 90 KiB per calling or worker thread). */
 #ifndef ST_FOREST_H
 #define ST_FOREST_H
 
@@ -33,6 +33,11 @@ int forest_nclasses(const struct forest *f);
 int forest_nfeatures(const struct forest *f);  /* largest split index + 1 */
 int forest_ntrees(const struct forest *f);
 int forest_max_depth(const struct forest *f);
+/* Which tree walk evaluation takes on this processor: "rank" (AVX-512 BW
+ * and VBMI, trees at most 6 deep, at most 255 distinct split values per
+ * (feature, default direction)), "wide" (AVX-512, trees at most 6 deep)
+ * or "scalar".  All three give the same bits. */
+const char *forest_walk(const struct forest *f);
 
 /* Probabilities for n rows of nfeat floats: prob[i * nclasses + k].
  * nfeat must be at least forest_nfeatures(f); if it is not, every

@@ -67,7 +67,7 @@ static void make_set(uint64_t seed, size_t n, float *x, float *y)
  * small depth would cover. */
 static const struct booster_params model_params[NMODELS] = {
     {.rounds = 20, .depth = 4, .eta = 0.3, .seed = 3, .threads = 1, .early_stop = 0},
-    {.rounds = 12, .depth = 6, .eta = 0.3, .seed = 5, .threads = 1, .early_stop = 0},
+    {.rounds = 30, .depth = 6, .eta = 0.3, .seed = 5, .threads = 1, .early_stop = 0},
     {.rounds = 5, .depth = 9, .eta = 0.5, .seed = 4, .threads = 1, .early_stop = 0},
 };
 
@@ -252,6 +252,59 @@ static void test_signed_zero(void **state)
     double d = max_abs_diff(fx->p, fx->q, NTEST * NCLASSES);
     if (!(d <= TOL)) {
         print_error("zero splits: max |dp| = %g\n", d);
+        fail();
+    }
+    booster_free(b);
+    forest_free(f);
+}
+
+/* The depth-6 model with every split value made distinct (each moved by a
+ * few float steps, so no slot has 255 or fewer): evaluated by the wide
+ * walk instead of the rank walk, still in agreement with XGBoost on the
+ * same file.  On a processor with AVX-512 BW and VBMI the model as
+ * trained takes the rank walk. */
+static void test_rank_walk_limits(void **state)
+{
+    struct fixture *fx = *state;
+    struct err e;
+    struct forest *f = NULL;
+    assert_int_equal(forest_load(fx->json[1], &f, &e), ST_OK);
+    __builtin_cpu_init();
+    int bytes = __builtin_cpu_supports("avx512bw") && __builtin_cpu_supports("avx512vbmi");
+    assert_string_equal(forest_walk(f), bytes ? "rank" : __builtin_cpu_supports("avx512f") ? "wide" : "scalar");
+    forest_free(f);
+    json_error_t jerr;
+    json_t *root = json_load_file(fx->json[1], 0, &jerr);
+    assert_non_null(root);
+    json_t *trees = model_trees(root);
+    int moved = 0;
+    for (size_t t = 0; t < json_array_size(trees); t++) {
+        json_t *tr = json_array_get(trees, t);
+        json_t *sc = json_object_get(tr, "split_conditions");
+        for (size_t i = 0; i < json_array_size(sc); i++) {
+            if (get_int(tr, "left_children", i) < 0)
+                continue;
+            float c = (float)json_number_value(json_array_get(sc, i));
+            for (int k = 0; k < moved % 7 + 1; k++)
+                c = nextafterf(c, moved % 2 ? INFINITY : -INFINITY);
+            json_array_set_new(sc, i, json_real(c));
+            moved++;
+        }
+    }
+    assert_true(moved > 2 * 256);
+    assert_int_equal(json_dump_file(root, fx->bad, JSON_COMPACT), 0);
+    json_decref(root);
+    struct booster *b = NULL;
+    assert_int_equal(forest_load(fx->bad, &f, &e), ST_OK);
+    assert_int_equal(booster_load(fx->bad, 1, &b, &e), ST_OK);
+    assert_string_equal(forest_walk(f), __builtin_cpu_supports("avx512f") ? "wide" : "scalar");
+    make_test_rows(fx->bad, fx->xt);
+    forest_predict(f, fx->xt, NTEST, NFEAT, fx->p);
+    assert_int_equal(booster_predict(b, fx->xt, NTEST, NFEAT, NCLASSES, fx->q, &e), ST_OK);
+    /* reference: XGBoosterPredictFromDense on the same file; tolerance 1e-6 */
+    double d = max_abs_diff(fx->p, fx->q, NTEST * NCLASSES);
+    if (!(d <= TOL)) {
+        print_error("distinct splits: max |dp| = %g\n", d);
         fail();
     }
     booster_free(b);
@@ -540,6 +593,7 @@ int main(void)
         cmocka_unit_test(test_classify_is_argmax),
         cmocka_unit_test(test_classify_at_picks_rows),
         cmocka_unit_test(test_classify_at_far_rows),
+        cmocka_unit_test(test_rank_walk_limits),
         cmocka_unit_test(test_refuses_bad_files),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
