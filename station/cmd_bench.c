@@ -27,7 +27,8 @@ static void usage(FILE *f)
                "Inspects K simulated-bench frames of the given size with N threads and prints\n"
                "one JSON line: median, min and max milliseconds of features, classify,\n"
                "regions, verdict and the whole inspection, and the process's peak resident\n"
-               "memory (frames are rendered first; frames_mb of it are those frames). With\n"
+               "memory (frames are rendered first; frames_mb of it are those frames), and\n"
+"which tree walk the model got (walk: rank, wide or scalar; core/forest.h). With\n"
                "--xgboost, each frame is also done without the locating pass:\n"
                "the filter bank over the whole frame (filter_bank) and our evaluator on every\n"
                "pixel (forest_all_pixels), then XGBoost's XGBoosterPredictFromDense on the\n"
@@ -315,11 +316,11 @@ int cmd_bench(int argc, char **argv)
     }
     static const char *names[NSTAGES] = {"features", "classify", "regions", "verdict", "total",
                                          "xgboost_predict", "forest_all_pixels", "filter_bank"};
-    json_t *o = json_pack("{s:i,s:i,s:i,s:i,s:i,s:i,s:i,s:i}", "width", w, "height", h,
+    json_t *o = json_pack("{s:i,s:i,s:i,s:i,s:i,s:i,s:i,s:i,s:s}", "width", w, "height", h,
                           "threads", threads, "repeat", repeat, "feature_count",
                           feat_count(&r.feat), "trees", forest_ntrees(inspector_forest(in)),
                           "depth", forest_max_depth(inspector_forest(in)), "classes",
-                          r.nclasses);
+                          r.nclasses, "walk", forest_walk(inspector_forest(in)));
     if (agreement >= 0)
         json_object_set_new(o, "locating_agreement", json_real(agreement));
     if (coarse_agreement >= 0)

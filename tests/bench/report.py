@@ -7,7 +7,7 @@ rows = [json.loads(l) for l in open(sys.argv[1])]
 extra = json.load(open(sys.argv[2]))
 s0, p0 = rows[0]["station"], rows[0]["peer"]
 print(f"demo model: {s0['classes']} classes, {s0['trees']} trees, depth {s0['depth']}, "
-      f"{s0['feature_count']} features; OpenCV bank: {rows[0]['opencv']['features']} features; "
+      f"{s0['feature_count']} features, evaluated by the {s0['walk']} walk; OpenCV bank: {rows[0]['opencv']['features']} features; "
       f"Python peer: torch CNN block 1 ({p0['features']} features) + XGBoost inplace_predict, "
       f"{p0['trees']} trees")
 print(f"median ms (min-max) over {s0['repeat']} frames per stage (peers: {p0['repeat']} runs)")
