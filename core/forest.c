@@ -60,7 +60,7 @@
 #define MAX_NODES (1 << 24)
 #define MAX_THREADS 64
 #define GROUP 8
-#define MAX_BLOCK 128
+#define MAX_BLOCK 256
 /* Keys in the per-call slot table; MAX_SLOTS * GROUP fits. */
 #define SCRATCH_KEYS 16384
 #define LEAF_KEY UINT32_MAX
@@ -69,7 +69,7 @@
 #define WIDE_GROUPS 8 /* registers of rows walking one tree together */
 #define RANK_DEPTH 6
 #define RANK_LANES 64 /* rows per register of ranks */
-#define RANK_GROUPS 2
+#define RANK_GROUPS 4
 #define RANK_CHAINS 4 /* slots whose ranks are searched together */
 #define RANK_CUTS 255 /* split values per slot a byte's rank can tell apart */
 
@@ -478,7 +478,7 @@ static int rank_cuts_build(struct forest *f)
 static int rank_build(struct forest *f, const char *path, struct err *e)
 {
     if (!__builtin_cpu_supports("avx512bw") || !__builtin_cpu_supports("avx512vbmi") ||
-        f->max_depth > RANK_DEPTH || f->block % (RANK_GROUPS * RANK_LANES) != 0 || f->ntrees == 0 ||
+        f->max_depth > RANK_DEPTH || f->block % RANK_LANES != 0 || f->ntrees == 0 ||
         f->nslots == 0)
         return ST_OK;
     f->cuts = aligned_alloc(64, (size_t)f->nslots * sizeof *f->cuts);
@@ -1055,14 +1055,14 @@ RANK_TARGET __attribute__((always_inline)) static inline void rank_chunk(const s
 {
     const __m512i one = _mm512_set1_epi8(1);
     __m512i p[RANK_GROUPS];
-#pragma GCC unroll 2
+#pragma GCC unroll 4
     for (int g = 0; g < RANK_GROUPS; g++)
         p[g] = _mm512_setzero_si512();
 #pragma GCC unroll 6
     for (int d = 0; d < RANK_DEPTH; d++) {
         const __m512i key = _mm512_load_si512(w->key[d]);
         const uint32_t *off = w->off + (1 << d) - 1;
-#pragma GCC unroll 2
+#pragma GCC unroll 4
         for (int g = 0; g < groups; g++) {
             __mmask64 bit[5];
 #pragma GCC unroll 5
@@ -1083,7 +1083,7 @@ RANK_TARGET __attribute__((always_inline)) static inline void rank_chunk(const s
     const __m512 v0 = _mm512_load_ps(w->val), v1 = _mm512_load_ps(w->val + 16);
     const __m512 v2 = _mm512_load_ps(w->val + 32), v3 = _mm512_load_ps(w->val + 48);
     const __m512i upper = _mm512_set1_epi32(32);
-#pragma GCC unroll 2
+#pragma GCC unroll 4
     for (int g = 0; g < groups; g++) {
 #pragma GCC unroll 4
         for (int q = 0; q < 4; q++) {
@@ -1097,12 +1097,18 @@ RANK_TARGET __attribute__((always_inline)) static inline void rank_chunk(const s
     }
 }
 
-/* Tree w for the rows [0, nrows <= block) of a filled rank table. */
+/* Tree w for the rows [0, nrows <= block) of a filled rank table, up to
+ * RANK_GROUPS registers at a time: their chains overlap. */
 RANK_TARGET static void rank_walk(const struct rank_tree *w, const uint8_t *tab, int nrows, float *m)
 {
     for (int r = 0; r < nrows; r += RANK_GROUPS * RANK_LANES) {
-        if (nrows - r > RANK_LANES)
-            rank_chunk(w, tab, r, RANK_GROUPS, m);
+        int g = (nrows - r + RANK_LANES - 1) / RANK_LANES;
+        if (g >= 4)
+            rank_chunk(w, tab, r, 4, m);
+        else if (g == 3)
+            rank_chunk(w, tab, r, 3, m);
+        else if (g == 2)
+            rank_chunk(w, tab, r, 2, m);
         else
             rank_chunk(w, tab, r, 1, m);
     }

@@ -15,7 +15,7 @@
  * trees (every node reached once from the root) at most 64 deep.  Nodes
  * not reachable from the root (XGBoost's deleted nodes) are ignored.
  * Evaluation allocates nothing: its scratch lives on the stack (about
- * 90 KiB per calling or worker thread). */
+ * 120 KiB per calling or worker thread). */
 #ifndef ST_FOREST_H
 #define ST_FOREST_H
 
