@@ -119,6 +119,7 @@ struct forest {
     float slot_nan[MAX_SLOTS];
     struct wide_tree *wide; /* NULL when the wide walk does not apply */
     struct rank_tree *rank; /* NULL when the rank walk does not apply */
+    enum walk { WALK_SCALAR, WALK_WIDE, WALK_RANK } walk; /* the one evaluation takes */
     struct rank_cuts *cuts; /* per slot, with rank */
 };
 
@@ -366,7 +367,11 @@ static int assign_slots(struct forest *f, const char *path, struct err *e)
         slot_of[k] = (uint16_t)s++;
     }
     f->nslots = s;
-    int block = s ? SCRATCH_KEYS / s / GROUP * GROUP : MAX_BLOCK;
+    /* the most rows whose keys fit the table, in whole registers of the
+     * widest walk they allow (64 rows of ranks, 16 of keys, 8 scalar) */
+    int block = s ? SCRATCH_KEYS / s : MAX_BLOCK;
+    int unit = block >= RANK_LANES ? RANK_LANES : block >= WIDE_LANES ? WIDE_LANES : GROUP;
+    block = block / unit * unit;
     f->block = block < MAX_BLOCK ? block : MAX_BLOCK;
     for (size_t i = 0; i < f->nnodes; i++)
         if (!is_leaf(f->node[i]))
@@ -413,6 +418,7 @@ static int wide_build(struct forest *f, const char *path, struct err *e)
     for (int t = 0; t < f->ntrees; t++)
         wide_fill(f, f->trees[t].first, f->trees[t].first, 0, f->trees[t].depth, 0,
                   &f->wide[t]);
+    f->walk = WALK_WIDE;
     return ST_OK;
 }
 
@@ -433,14 +439,14 @@ static uint32_t rank_of(const struct rank_cuts *c, uint32_t key)
 }
 
 /* The slots' sorted distinct split keys into f->cuts: 1 when done, 0 when a
- * slot has more than RANK_CUTS values (no rank walk then), -1 out of
- * memory. */
+ * slot has more than RANK_CUTS values or memory ran out (no rank walk
+ * then). */
 static int rank_cuts_build(struct forest *f)
 {
     size_t n = 0;
     uint64_t *pairs = malloc((f->nnodes + 1) * sizeof *pairs);
     if (!pairs)
-        return -1;
+        return 0;
     for (size_t i = 0; i < f->nnodes; i++)
         if (!is_leaf(f->node[i]))
             pairs[n++] = (uint64_t)((uint32_t)f->node[i] / (uint32_t)f->block) << 32 | (f->node[i] >> 32);
@@ -475,16 +481,21 @@ static int rank_cuts_build(struct forest *f)
 
 /* The rank walk: on processors with AVX-512 BW and VBMI, for trees no
  * deeper than 6 and slots of at most RANK_CUTS split values. */
-static int rank_build(struct forest *f, const char *path, struct err *e)
+static void rank_build(struct forest *f)
 {
     if (!__builtin_cpu_supports("avx512bw") || !__builtin_cpu_supports("avx512vbmi") ||
         f->max_depth > RANK_DEPTH || f->block % RANK_LANES != 0 || f->ntrees == 0 ||
         f->nslots == 0)
-        return ST_OK;
+        return;
     f->cuts = aligned_alloc(64, (size_t)f->nslots * sizeof *f->cuts);
     f->rank = aligned_alloc(64, (size_t)f->ntrees * sizeof *f->rank);
     struct wide_tree *w = aligned_alloc(64, sizeof *w);
-    int ok = f->cuts && f->rank && w ? rank_cuts_build(f) : -1;
+    int ok = 0;
+    if (f->cuts && f->rank && w) {
+        /* whole registers are loaded, unused lanes included */
+        memset(f->cuts, 0xff, (size_t)f->nslots * sizeof *f->cuts);
+        ok = rank_cuts_build(f);
+    }
     for (int t = 0; t < f->ntrees && ok == 1; t++) {
         /* the complete tree at depth 6, then its keys as ranks */
         memset(w, 0, sizeof *w);
@@ -505,13 +516,15 @@ static int rank_build(struct forest *f, const char *path, struct err *e)
         memcpy(rt->val, w->val, sizeof rt->val);
     }
     free(w);
-    if (ok == 1)
-        return ST_OK;
+    if (ok == 1) {
+        f->walk = WALK_RANK;
+        return;
+    }
+    /* optional: without memory for it, or past its limits, the wide walk */
     free(f->cuts);
     free(f->rank);
     f->cuts = NULL;
     f->rank = NULL;
-    return ok < 0 ? err_set(e, ST_ENOMEM, "%s: out of memory for the model", path) : ST_OK;
 }
 
 static int check_tree_info(struct forest *f, const char *path, json_t *info, struct err *e)
@@ -572,7 +585,7 @@ static int load_trees(struct forest *f, const char *path, json_t *jtrees, struct
     }
     if ((rc = check_margins(f, path, e)) == ST_OK && (rc = assign_slots(f, path, e)) == ST_OK &&
         (rc = wide_build(f, path, e)) == ST_OK)
-        rc = rank_build(f, path, e);
+        rank_build(f);
     goto fail;
 nomem:
     rc = err_set(e, ST_ENOMEM, "%s: out of memory for the model", path);
@@ -657,7 +670,21 @@ int forest_nclasses(const struct forest *f) { return f->nclasses; }
 int forest_nfeatures(const struct forest *f) { return f->nfeatures; }
 int forest_ntrees(const struct forest *f) { return f->ntrees; }
 int forest_max_depth(const struct forest *f) { return f->max_depth; }
-const char *forest_walk(const struct forest *f) { return f->rank ? "rank" : f->wide ? "wide" : "scalar"; }
+static const char *const walk_names[] = {"scalar", "wide", "rank"};
+
+const char *forest_walk(const struct forest *f) { return walk_names[f->walk]; }
+
+int forest_use_walk(struct forest *f, const char *walk)
+{
+    for (int k = WALK_SCALAR; k <= WALK_RANK; k++)
+        if (!strcmp(walk, walk_names[k])) {
+            if ((k == WALK_WIDE && !f->wide) || (k == WALK_RANK && !f->rank))
+                return ST_EINVAL;
+            f->walk = (enum walk)k;
+            return ST_OK;
+        }
+    return ST_EINVAL;
+}
 
 /* ---- evaluation ------------------------------------------------------- */
 
@@ -710,7 +737,7 @@ __attribute__((target("avx512f"))) static void wide_fill_table(const struct fore
         lo = r == 0 || pix[r] < lo ? pix[r] : lo;
         hi = r == 0 || pix[r] > hi ? pix[r] : hi;
     }
-    if ((uint64_t)(hi - lo) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
+    if ((uint64_t)(pix ? hi - lo : (uint32_t)nrows - 1) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
         fill_table(f, x, pix, nfeat, nrows, tab);
         return;
     }
@@ -986,8 +1013,9 @@ RANK_TARGET __attribute__((always_inline)) static inline void rank_slots(const s
         _mm_storeu_si128((__m128i *)(rt + (size_t)(s0 + i) * (size_t)f->block + (size_t)r), _mm512_cvtepi32_epi8(key[i]));
 }
 
-/* The rank table of rows [0, nrows) at slot * block + row, zero up to the
- * next multiple of RANK_LANES.  Rows picked by index are gathered as in
+/* The rank table of rows [0, nrows) at slot * block + row; up to the next
+ * multiple of 16 the rank of +0, then zero up to the next multiple of
+ * RANK_LANES (rows the walk takes along and nothing reads).  Rows picked by index are gathered as in
  * wide_fill_table, and rows too far apart for its 32-bit index go through
  * fill_table's keys and rank_of. */
 RANK_TARGET static void rank_fill_table(const struct forest *f, const float *x, const uint32_t *pix,
@@ -1001,7 +1029,7 @@ RANK_TARGET static void rank_fill_table(const struct forest *f, const float *x, 
         lo = r == 0 || pix[r] < lo ? pix[r] : lo;
         hi = r == 0 || pix[r] > hi ? pix[r] : hi;
     }
-    if ((uint64_t)(hi - lo) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
+    if ((uint64_t)(pix ? hi - lo : (uint32_t)nrows - 1) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
         fill_table(f, x, pix, nfeat, nrows, keys);
         for (int s = 0; s < f->nslots; s++)
             for (int r = 0; r < lanes; r++)
@@ -1122,19 +1150,19 @@ static void block_probs(const struct forest *f, const float *x, const uint32_t *
                         int nrows, struct scratch *s, float *prob)
 {
     int K = f->nclasses;
-    if (f->rank)
+    if (f->walk == WALK_RANK)
         rank_fill_table(f, x, pix, nfeat, nrows, s->tab, s->rtab);
-    else if (f->wide)
+    else if (f->walk == WALK_WIDE)
         wide_fill_table(f, x, pix, nfeat, nrows, s->tab);
     else
         fill_table(f, x, pix, nfeat, nrows, s->tab);
     for (int k = 0; k < K; k++)
         for (int r = 0; r < MAX_BLOCK; r++)
             s->margin[k * MAX_BLOCK + r] = f->base_score;
-    if (f->rank)
+    if (f->walk == WALK_RANK)
         for (int t = 0; t < f->ntrees; t++)
             rank_walk(&f->rank[t], s->rtab, nrows, s->margin + (size_t)f->trees[t].cls * MAX_BLOCK);
-    else if (f->wide)
+    else if (f->walk == WALK_WIDE)
         for (int t = 0; t < f->ntrees; t++)
             wide_walk(&f->wide[t], f->trees[t].depth, s->tab, nrows,
                       s->margin + (size_t)f->trees[t].cls * MAX_BLOCK);

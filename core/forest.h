@@ -35,9 +35,14 @@ int forest_ntrees(const struct forest *f);
 int forest_max_depth(const struct forest *f);
 /* Which tree walk evaluation takes on this processor: "rank" (AVX-512 BW
  * and VBMI, trees at most 6 deep, at most 255 distinct split values per
- * (feature, default direction)), "wide" (AVX-512, trees at most 6 deep)
- * or "scalar".  All three give the same bits. */
+ * (feature, default direction) and at most 256 such pairs), "wide"
+ * (AVX-512, trees at most 6 deep) or "scalar".  All three give the same
+ * bits; forest_load picks the fastest that applies. */
 const char *forest_walk(const struct forest *f);
+/* Makes evaluation take the named walk instead (for tests and benchmarks
+ * comparing them); ST_EINVAL, nothing changed, when it does not apply to
+ * this model or processor.  Not while other threads evaluate f. */
+int forest_use_walk(struct forest *f, const char *walk);
 
 /* Probabilities for n rows of nfeat floats: prob[i * nclasses + k].
  * nfeat must be at least forest_nfeatures(f); if it is not, every

@@ -15,9 +15,10 @@
  * so this halves the classifier's work or better; what it can miss is part
  * of the part narrower than the margin (ROI_STEP * ROI_MARGIN = 8 px) lying
  * entirely between background samples, which no real part of a recipe has.
- * Both passes share grid rows between the inspector's threads and hand
- * the forest each grid row's pixels by their index in the feature stack
- * (at most IMAGE_MAX_PIXELS, so 32 bits), without copying. */
+ * Both passes share grid rows between the inspector's threads (the coarse
+ * option's passes frame rows) and hand the forest the pixels by their
+ * index in the feature stack (at most IMAGE_MAX_PIXELS, so 32 bits),
+ * without copying. */
 #define ROI_STEP 8
 #define ROI_MARGIN 1
 #define MAX_WORKERS 64
@@ -199,10 +200,11 @@ static int ensure_size(struct inspector *in, int w, int h, struct err *e)
 struct worker {
     struct inspector *in;
     int index; /* which worker: its share of the per-worker buffers */
-    /* Rows below y1 of the grid (pass 1) or the frame (pass 2) are claimed
-     * one at a time from *next, shared by the pass's workers: the part, and
-     * so the work, sits in some rows only, and a worker whose core is busy
-     * elsewhere takes fewer of them instead of holding the frame. */
+    /* Rows below y1 (grid rows, or frame rows for the coarse option's
+     * passes) are claimed one at a time from *next, shared by the pass's
+     * workers: the part, and so the work, sits in some rows only, and a
+     * worker whose core is busy elsewhere takes fewer of them instead of
+     * holding the frame. */
     atomic_int *next;
     int y1;
     int rc;
@@ -305,7 +307,7 @@ static int needed(const struct inspector *in, int x, int y)
     return in->need[(size_t)(y / ROI_STEP) * in->gw + x / ROI_STEP];
 }
 
-/* Pass C1 for frame rows [y0, y1): the pixels pass 2 leaves out, as pass 2
+/* Pass C1 for the claimed frame rows: the pixels pass 2 leaves out, as pass 2
  * does them; in the needed cells the even pixels of even rows. */
 static void *coarse_pass(void *arg)
 {
@@ -351,7 +353,7 @@ static int neighbours_agree(const struct inspector *in, int x, int y, const int 
     return seen;
 }
 
-/* Pass C2 for frame rows [y0, y1): the needed pixels pass C1 left. */
+/* Pass C2 for the claimed frame rows: the needed pixels pass C1 left. */
 static void *coarse_fill(void *arg)
 {
     static const int across[2][2] = {{-1, 0}, {1, 0}}, down[2][2] = {{0, -1}, {0, 1}};

@@ -28,7 +28,7 @@
 #define NFEAT 7
 #define NTRAIN 2000
 #define NVAL 500
-#define NTEST 1001 /* not a multiple of the 8-row groups or 64-row blocks */
+#define NTEST 1001 /* not a multiple of the 8-row groups or 256-row blocks */
 #define TOL 1e-6
 
 static uint64_t rng_next(uint64_t *s)
@@ -258,11 +258,12 @@ static void test_signed_zero(void **state)
     forest_free(f);
 }
 
-/* The depth-6 model with every split value made distinct (each moved by a
- * few float steps, so no slot has 255 or fewer): evaluated by the wide
- * walk instead of the rank walk, still in agreement with XGBoost on the
- * same file.  On a processor with AVX-512 BW and VBMI the model as
- * trained takes the rank walk. */
+/* The depth-6 model with its split values moved by one to seven float
+ * steps each, so that its slots hold more distinct values than a byte's
+ * rank tells apart: evaluated by the wide walk instead of the rank walk
+ * (the assertion on forest_walk checks that it was), still in agreement
+ * with XGBoost on the same file.  On a processor with AVX-512 BW and VBMI
+ * the model as trained takes the rank walk. */
 static void test_rank_walk_limits(void **state)
 {
     struct fixture *fx = *state;
@@ -309,6 +310,43 @@ static void test_rank_walk_limits(void **state)
     }
     booster_free(b);
     forest_free(f);
+}
+
+/* Every walk this processor has gives the same bits as the scalar one
+ * (which the comparisons with XGBoost above cover): probabilities by
+ * memcmp, for the shallow and the depth-6 model, on the edge rows. */
+static void test_walks_agree_bitwise(void **state)
+{
+    struct fixture *fx = *state;
+    struct err e;
+    static const char *walks[] = {"wide", "rank"};
+    int compared = 0;
+    for (int m = 0; m < 2; m++) {
+        struct forest *f = NULL;
+        assert_int_equal(forest_load(fx->json[m], &f, &e), ST_OK);
+        make_test_rows(fx->json[m], fx->xt);
+        assert_int_equal(forest_use_walk(f, "scalar"), ST_OK);
+        forest_predict(f, fx->xt, NTEST, NFEAT, fx->q);
+        for (int k = 0; k < 2; k++) {
+            if (forest_use_walk(f, walks[k]) != ST_OK)
+                continue;
+            assert_string_equal(forest_walk(f), walks[k]);
+            forest_predict(f, fx->xt, NTEST, NFEAT, fx->p);
+            if (memcmp(fx->p, fx->q, sizeof fx->p) != 0) {
+                print_error("model %d: the %s walk differs from the scalar one\n", m, walks[k]);
+                fail();
+            }
+            compared++;
+        }
+        assert_int_equal(forest_use_walk(f, "none"), ST_EINVAL);
+        forest_free(f);
+    }
+    __builtin_cpu_init();
+    /* each model gets the wide walk on AVX-512, and the rank walk with BW and VBMI */
+    int expect = __builtin_cpu_supports("avx512f") ? 2 : 0;
+    if (__builtin_cpu_supports("avx512bw") && __builtin_cpu_supports("avx512vbmi"))
+        expect += 2;
+    assert_int_equal(compared, expect);
 }
 
 /* Every label 0: the gradients are the same for all rows, no split gains,
@@ -594,6 +632,7 @@ int main(void)
         cmocka_unit_test(test_classify_at_picks_rows),
         cmocka_unit_test(test_classify_at_far_rows),
         cmocka_unit_test(test_rank_walk_limits),
+        cmocka_unit_test(test_walks_agree_bitwise),
         cmocka_unit_test(test_refuses_bad_files),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
