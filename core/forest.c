@@ -723,6 +723,45 @@ static void fill_table(const struct forest *f, const float *x, const uint32_t *p
         memset(tab, 0, (size_t)padded * sizeof *tab);
 }
 
+/* Whether the block's rows (picked by pix, else consecutive) lie close
+ * enough together for a gather's 32-bit index from the lowest of them,
+ * which *lo receives (0 for consecutive rows). */
+static int rows_gatherable(const struct forest *f, const uint32_t *pix, size_t nfeat, int nrows,
+                           uint32_t *lo)
+{
+    uint32_t l = 0, h = 0;
+    for (int r = 0; pix && r < nrows; r++) {
+        l = r == 0 || pix[r] < l ? pix[r] : l;
+        h = r == 0 || pix[r] > h ? pix[r] : h;
+    }
+    *lo = l;
+    return (uint64_t)(pix ? h - l : (uint32_t)nrows - 1) * nfeat + (uint64_t)f->nfeatures <= INT32_MAX;
+}
+
+/* The gather offsets of rows r..r+15 (the live ones) from row lo. */
+__attribute__((target("avx512f"), always_inline)) static inline __m512i
+rows_index(const uint32_t *pix, int r, __mmask16 live, uint32_t lo, size_t nfeat)
+{
+    const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
+    __m512i at = pix ? _mm512_sub_epi32(_mm512_maskz_loadu_epi32(live, pix + r), _mm512_set1_epi32((int)lo))
+                     : _mm512_add_epi32(lane, _mm512_set1_epi32(r));
+    return _mm512_maskz_mov_epi32(live, _mm512_mullo_epi32(at, _mm512_set1_epi32((int)nfeat)));
+}
+
+/* Slot s's keys of 16 rows gathered at offsets at from base: NaN replaced
+ * by the slot's infinity, -0 made +0, the float turned into its key. */
+__attribute__((target("avx512f"), always_inline)) static inline __m512i
+slot_keys(const struct forest *f, const float *base, __m512i at, __mmask16 live, int s)
+{
+    const __m512i sign = _mm512_set1_epi32((int)0x80000000u);
+    __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, at, base + f->slot_feat[s], 4);
+    v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v, _mm512_set1_ps(f->slot_nan[s]));
+    v = _mm512_add_ps(v, _mm512_setzero_ps()); /* -0 becomes +0 */
+    __m512i b = _mm512_castps_si512(v);
+    __mmask16 neg = _mm512_test_epi32_mask(b, sign);
+    return _mm512_mask_blend_epi32(neg, _mm512_or_si512(b, sign), _mm512_xor_si512(b, _mm512_set1_epi32(-1)));
+}
+
 /* fill_table for the wide walk: 16 rows of a slot gathered at once, NaN
  * replaced and turned into keys in registers; lanes past nrows hold 0.
  * Picked rows are gathered by their offsets from the block's first one,
@@ -732,37 +771,19 @@ __attribute__((target("avx512f"))) static void wide_fill_table(const struct fore
                                                               const float *x, const uint32_t *pix,
                                                               size_t nfeat, int nrows, uint32_t *tab)
 {
-    uint32_t lo = 0, hi = 0;
-    for (int r = 0; pix && r < nrows; r++) {
-        lo = r == 0 || pix[r] < lo ? pix[r] : lo;
-        hi = r == 0 || pix[r] > hi ? pix[r] : hi;
-    }
-    if ((uint64_t)(pix ? hi - lo : (uint32_t)nrows - 1) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
+    uint32_t lo;
+    if (!rows_gatherable(f, pix, nfeat, nrows, &lo)) {
         fill_table(f, x, pix, nfeat, nrows, tab);
         return;
     }
-    const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
-    const __m512i nf = _mm512_set1_epi32((int)nfeat), first = _mm512_set1_epi32((int)lo);
     const float *base = x + (size_t)lo * nfeat;
-    const __m512i sign = _mm512_set1_epi32((int)0x80000000u);
     for (int r = 0; r < nrows; r += WIDE_LANES) {
         int left = nrows - r;
         __mmask16 live = left >= WIDE_LANES ? (__mmask16)0xffff : (__mmask16)((1u << left) - 1);
-        __m512i at = pix ? _mm512_sub_epi32(_mm512_maskz_loadu_epi32(live, pix + r), first)
-                         : _mm512_add_epi32(lane, _mm512_set1_epi32(r));
-        at = _mm512_maskz_mov_epi32(live, _mm512_mullo_epi32(at, nf));
-        for (int s = 0; s < f->nslots; s++) {
-            const float *col = base + f->slot_feat[s];
-            __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, at, col, 4);
-            v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v,
-                                     _mm512_set1_ps(f->slot_nan[s]));
-            v = _mm512_add_ps(v, _mm512_setzero_ps()); /* -0 becomes +0 */
-            __m512i b = _mm512_castps_si512(v);
-            __mmask16 neg = _mm512_test_epi32_mask(b, sign);
-            __m512i key = _mm512_mask_blend_epi32(neg, _mm512_or_si512(b, sign),
-                                                  _mm512_xor_si512(b, _mm512_set1_epi32(-1)));
-            _mm512_storeu_si512(tab + (size_t)s * (size_t)f->block + r, _mm512_maskz_mov_epi32(live, key));
-        }
+        __m512i at = rows_index(pix, r, live, lo, nfeat);
+        for (int s = 0; s < f->nslots; s++)
+            _mm512_storeu_si512(tab + (size_t)s * (size_t)f->block + r,
+                                _mm512_maskz_mov_epi32(live, slot_keys(f, base, at, live, s)));
     }
     if (f->nslots == 0)
         memset(tab, 0, (size_t)(nrows + WIDE_LANES - 1) / WIDE_LANES * WIDE_LANES * sizeof *tab);
@@ -993,19 +1014,12 @@ RANK_TARGET __attribute__((always_inline)) static inline void rank_slots(const s
                                                                          __m512i at, __mmask16 live, int s0,
                                                                          const int n, int r, uint8_t *rt)
 {
-    const __m512i sign = _mm512_set1_epi32((int)0x80000000u);
     const struct rank_cuts *c[RANK_CHAINS];
     __m512i key[RANK_CHAINS];
 #pragma GCC unroll 4
     for (int i = 0; i < n; i++) {
-        const int s = s0 + i;
-        __m512 v = _mm512_mask_i32gather_ps(_mm512_setzero_ps(), live, at, base + f->slot_feat[s], 4);
-        v = _mm512_mask_blend_ps(_mm512_cmp_ps_mask(v, v, _CMP_UNORD_Q), v, _mm512_set1_ps(f->slot_nan[s]));
-        v = _mm512_add_ps(v, _mm512_setzero_ps()); /* -0 becomes +0 */
-        __m512i b = _mm512_castps_si512(v);
-        __mmask16 neg = _mm512_test_epi32_mask(b, sign);
-        key[i] = _mm512_mask_blend_epi32(neg, _mm512_or_si512(b, sign), _mm512_xor_si512(b, _mm512_set1_epi32(-1)));
-        c[i] = &f->cuts[s];
+        key[i] = slot_keys(f, base, at, live, s0 + i);
+        c[i] = &f->cuts[s0 + i];
     }
     rank16(c, key, n);
 #pragma GCC unroll 4
@@ -1024,27 +1038,19 @@ RANK_TARGET static void rank_fill_table(const struct forest *f, const float *x, 
     const size_t block = (size_t)f->block;
     const int padded = (nrows + RANK_LANES - 1) / RANK_LANES * RANK_LANES;
     const int lanes = (nrows + WIDE_LANES - 1) / WIDE_LANES * WIDE_LANES;
-    uint32_t lo = 0, hi = 0;
-    for (int r = 0; pix && r < nrows; r++) {
-        lo = r == 0 || pix[r] < lo ? pix[r] : lo;
-        hi = r == 0 || pix[r] > hi ? pix[r] : hi;
-    }
-    if ((uint64_t)(pix ? hi - lo : (uint32_t)nrows - 1) * nfeat + (uint64_t)f->nfeatures > INT32_MAX) {
+    uint32_t lo;
+    if (!rows_gatherable(f, pix, nfeat, nrows, &lo)) {
         fill_table(f, x, pix, nfeat, nrows, keys);
         for (int s = 0; s < f->nslots; s++)
             for (int r = 0; r < lanes; r++)
                 rt[(size_t)s * block + (size_t)r] = (uint8_t)rank_of(&f->cuts[s], keys[(size_t)s * block + (size_t)r]);
     } else {
-        const __m512i lane = _mm512_setr_epi32(0, 1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12, 13, 14, 15);
-        const __m512i nf = _mm512_set1_epi32((int)nfeat), first = _mm512_set1_epi32((int)lo);
         const float *base = x + (size_t)lo * nfeat;
         /* rows outer: a group's lines stay in L1 for all its slots */
         for (int r = 0; r < nrows; r += WIDE_LANES) {
             int left = nrows - r;
             __mmask16 live = left >= WIDE_LANES ? (__mmask16)0xffff : (__mmask16)((1u << left) - 1);
-            __m512i at = pix ? _mm512_sub_epi32(_mm512_maskz_loadu_epi32(live, pix + r), first)
-                             : _mm512_add_epi32(lane, _mm512_set1_epi32(r));
-            at = _mm512_maskz_mov_epi32(live, _mm512_mullo_epi32(at, nf));
+            __m512i at = rows_index(pix, r, live, lo, nfeat);
             int s = 0;
             for (; s + RANK_CHAINS <= f->nslots; s += RANK_CHAINS)
                 rank_slots(f, base, at, live, s, RANK_CHAINS, r, rt);
@@ -1113,9 +1119,12 @@ RANK_TARGET __attribute__((always_inline)) static inline void rank_chunk(const s
     const __m512i upper = _mm512_set1_epi32(32);
 #pragma GCC unroll 4
     for (int g = 0; g < groups; g++) {
+        /* the immediates spelled out: unrolling the loop is not guaranteed */
+        const __m128i quarter[4] = {_mm512_extracti32x4_epi32(p[g], 0), _mm512_extracti32x4_epi32(p[g], 1),
+                                    _mm512_extracti32x4_epi32(p[g], 2), _mm512_extracti32x4_epi32(p[g], 3)};
 #pragma GCC unroll 4
         for (int q = 0; q < 4; q++) {
-            __m512i idx = _mm512_cvtepu8_epi32(_mm512_extracti32x4_epi32(p[g], q));
+            __m512i idx = _mm512_cvtepu8_epi32(quarter[q]);
             __m512 leaf = _mm512_mask_blend_ps(_mm512_test_epi32_mask(idx, upper),
                                                _mm512_permutex2var_ps(v0, idx, v1),
                                                _mm512_permutex2var_ps(v2, idx, v3));

@@ -212,6 +212,23 @@ static void test_agrees_with_xgboost(void **state)
     }
 }
 
+/* f against XGBoosterPredictFromDense on the same model file, on fx->xt:
+ * the reference, tolerance 1e-6. */
+static void agrees_with_booster(struct fixture *fx, struct forest *f, const char *path, const char *what)
+{
+    struct err e;
+    struct booster *b = NULL;
+    assert_int_equal(booster_load(path, 1, &b, &e), ST_OK);
+    forest_predict(f, fx->xt, NTEST, NFEAT, fx->p);
+    assert_int_equal(booster_predict(b, fx->xt, NTEST, NFEAT, NCLASSES, fx->q, &e), ST_OK);
+    double d = max_abs_diff(fx->p, fx->q, NTEST * NCLASSES);
+    if (!(d <= TOL)) {
+        print_error("%s: max |dp| = %g\n", what, d);
+        fail();
+    }
+    booster_free(b);
+}
+
 /* Splits at exactly 0 on features 0 and 1, inputs +0.0 and -0.0 there:
  * XGBoost's float compare treats -0.0 < 0.0 as false, so -0.0 goes right. */
 static void test_signed_zero(void **state)
@@ -243,18 +260,8 @@ static void test_signed_zero(void **state)
                 fx->xt[r * NFEAT + (size_t)k] = (r >> (k + 2)) & 1 ? -0.0f : 0.0f;
     struct err e;
     struct forest *f = NULL;
-    struct booster *b = NULL;
     assert_int_equal(forest_load(fx->bad, &f, &e), ST_OK);
-    assert_int_equal(booster_load(fx->bad, 1, &b, &e), ST_OK);
-    forest_predict(f, fx->xt, NTEST, NFEAT, fx->p);
-    assert_int_equal(booster_predict(b, fx->xt, NTEST, NFEAT, NCLASSES, fx->q, &e), ST_OK);
-    /* reference: XGBoosterPredictFromDense on the same file; tolerance 1e-6 */
-    double d = max_abs_diff(fx->p, fx->q, NTEST * NCLASSES);
-    if (!(d <= TOL)) {
-        print_error("zero splits: max |dp| = %g\n", d);
-        fail();
-    }
-    booster_free(b);
+    agrees_with_booster(fx, f, fx->bad, "zero splits");
     forest_free(f);
 }
 
@@ -295,20 +302,10 @@ static void test_rank_walk_limits(void **state)
     assert_true(moved > 2 * 256);
     assert_int_equal(json_dump_file(root, fx->bad, JSON_COMPACT), 0);
     json_decref(root);
-    struct booster *b = NULL;
     assert_int_equal(forest_load(fx->bad, &f, &e), ST_OK);
-    assert_int_equal(booster_load(fx->bad, 1, &b, &e), ST_OK);
     assert_string_equal(forest_walk(f), __builtin_cpu_supports("avx512f") ? "wide" : "scalar");
     make_test_rows(fx->bad, fx->xt);
-    forest_predict(f, fx->xt, NTEST, NFEAT, fx->p);
-    assert_int_equal(booster_predict(b, fx->xt, NTEST, NFEAT, NCLASSES, fx->q, &e), ST_OK);
-    /* reference: XGBoosterPredictFromDense on the same file; tolerance 1e-6 */
-    double d = max_abs_diff(fx->p, fx->q, NTEST * NCLASSES);
-    if (!(d <= TOL)) {
-        print_error("distinct splits: max |dp| = %g\n", d);
-        fail();
-    }
-    booster_free(b);
+    agrees_with_booster(fx, f, fx->bad, "distinct splits");
     forest_free(f);
 }
 
