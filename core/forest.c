@@ -380,6 +380,9 @@ static int assign_slots(struct forest *f, const char *path, struct err *e)
     return ST_OK;
 }
 
+/* Where level d's node n of a wide tree lies in its off and key arrays. */
+static uint32_t wide_at(int d, uint32_t n) { return (d < 5 ? 16u * (uint32_t)d : 80u) + n; }
+
 static void wide_fill(const struct forest *f, size_t base, size_t nid, int d, int depth,
                       uint32_t pos, struct wide_tree *w)
 {
@@ -388,7 +391,7 @@ static void wide_fill(const struct forest *f, size_t base, size_t nid, int d, in
         w->val[pos] = f->val[nid];
         return;
     }
-    uint32_t at = (d < 5 ? 16u * (uint32_t)d : 80u) + pos;
+    uint32_t at = wide_at(d, pos);
     if (is_leaf(node)) {
         /* key 0: every input key is >= 0, so the walk goes right and meets
          * this leaf's value at the bottom whichever way */
@@ -504,7 +507,7 @@ static void rank_build(struct forest *f)
         memset(rt, 0, sizeof *rt);
         for (int d = 0; d < RANK_DEPTH; d++)
             for (int nn = 0; nn < 1 << d; nn++) {
-                uint32_t at = (d < 5 ? 16u * (uint32_t)d : 80u) + (uint32_t)nn;
+                uint32_t at = wide_at(d, (uint32_t)nn);
                 /* x >= split iff rank(x) >= rank(split): the split is
                  * among the values rank(x) counts; key 0 (padding) stays
                  * 0, which every rank reaches */

@@ -220,10 +220,15 @@ static int worker_claim_row(struct worker *wk)
     return y < wk->y1 ? y : wk->y1;
 }
 
-/* The worker's share of the picked-pixel lists. */
+/* Where the worker's share of the picked-pixel lists starts. */
+static size_t worker_share(const struct worker *wk)
+{
+    return (size_t)wk->index * ROI_STEP * (size_t)wk->in->w;
+}
+
 static uint32_t *worker_pix(const struct worker *wk)
 {
-    return wk->in->list_pix + (size_t)wk->index * ROI_STEP * (size_t)wk->in->w;
+    return wk->in->list_pix + worker_share(wk);
 }
 
 /* Pass 1 for grid rows: each row's samples go to the forest in one call,
@@ -250,7 +255,7 @@ static void *grid_pass(void *arg)
 static int classify_list(struct worker *wk, int n)
 {
     struct inspector *in = wk->in;
-    const size_t base = (size_t)wk->index * ROI_STEP * (size_t)in->w;
+    const size_t base = worker_share(wk);
     const uint32_t *pix = in->list_pix + base;
     int rc = forest_classify_at(in->forest, in->fs->v, in->fs->n, pix, (size_t)n,
                                 in->list_cls + base, in->list_conf + base, &wk->e);
@@ -277,13 +282,16 @@ static void *full_pass(void *arg)
         int n = 0;
         for (int y = gy * ROI_STEP; y < (gy + 1) * ROI_STEP && y < in->h; y++) {
             size_t row = (size_t)y * w;
-            for (int x = 0; x < w; x++) {
-                if (need[x / ROI_STEP]) {
-                    pix[n++] = (uint32_t)(row + (size_t)x);
-                } else {
-                    in->classes->px[row + x] = 0;
-                    in->conf[row + x] = cc[x / ROI_STEP];
+            for (int gx = 0; gx < gw; gx++) {
+                int x0 = gx * ROI_STEP, x1 = x0 + ROI_STEP < w ? x0 + ROI_STEP : w;
+                if (need[gx]) {
+                    for (int x = x0; x < x1; x++)
+                        pix[n++] = (uint32_t)(row + (size_t)x);
+                    continue;
                 }
+                memset(in->classes->px + row + x0, 0, (size_t)(x1 - x0));
+                for (int x = x0; x < x1; x++)
+                    in->conf[row + x] = cc[gx];
             }
         }
         wk->rc = classify_list(wk, n);
@@ -634,7 +642,7 @@ int inspector_measure(struct inspector *in, const struct image *img, struct insp
     double t1 = now_ms();
     if (beside)
         pthread_join(qt, NULL);
-    else
+    else if (!rc)
         quality_run(&qj);
     if (rc)
         return rc;
