@@ -17,7 +17,7 @@ out="$BUILD/bench-central"
 rm -rf "$out"
 mkdir -p "$out/pg"
 pgcluster_start "$out/pg"
-trap pgcluster_stop EXIT
+trap pgcluster_cleanup EXIT
 log="$out/local.db"
 echo "central bench: a local log of $N records, forwarded as three stations" >&2
 "$BUILD/tests/tools/auditlog" "$log" "$N" 3 --station bench-1 --verify-every 100 >/dev/null

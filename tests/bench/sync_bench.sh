@@ -21,7 +21,7 @@ out="$BUILD/bench-sync"
 rm -rf "$out"
 mkdir -p "$out/pg" "$out/share"
 pgcluster_start "$out/pg"
-trap pgcluster_stop EXIT
+trap pgcluster_cleanup EXIT
 log="$out/local.db"
 field() { "$PYTHON" -c 'import json, sys; o = json.loads(sys.stdin.readline()); print(eval(sys.argv[1], {}, o))' "$1"; }
 

@@ -7,7 +7,11 @@
 #                           PGCLUSTER_CONNINFO  host=DIR/sock port=... user=... dbname=central
 #                           PGCLUSTER_URI       the same as a postgresql:// URI
 #                           PGPASSFILE          DIR/pgpass (0600): the only place the password is
+#                         Run as root in a folder the postgres user cannot reach (a clone under a
+#                         0700 home or mktemp -d), the cluster lives in a fresh folder under
+#                         ${TMPDIR:-/tmp} instead, named in DIR/where
 #   pgcluster_stop        fast shutdown (waits)
+#   pgcluster_cleanup     pgcluster_stop, then removes such a folder (the tests' EXIT trap)
 #   pgcluster_kill        immediate shutdown: what a cut connection or a crashed server looks like
 #   pgcluster_resume      start the same cluster again after a stop or kill
 #   pgcluster_pause       SIGSTOP this cluster's postmaster and its own children (a server
@@ -40,6 +44,17 @@ pgcluster_as() {
 
 pgcluster_start() {
     PGCLUSTER_DIR=$(cd "$1" && pwd)
+    PGCLUSTER_TMP=""
+    if [ "$(id -u)" = 0 ]; then
+        # the server's user must reach DIR; it gets the data folder and socket only
+        chmod o+x "$PGCLUSTER_DIR"
+        if ! runuser -u postgres -- test -x "$PGCLUSTER_DIR"; then
+            PGCLUSTER_TMP=$(mktemp -d "${TMPDIR:-/tmp}/station-pg.XXXXXX")
+            chmod 0711 "$PGCLUSTER_TMP"
+            echo "$PGCLUSTER_TMP" >"$PGCLUSTER_DIR/where"
+            PGCLUSTER_DIR=$PGCLUSTER_TMP
+        fi
+    fi
     rm -rf "$PGCLUSTER_DIR/data" "$PGCLUSTER_DIR/sock"
     mkdir -p "$PGCLUSTER_DIR/data" "$PGCLUSTER_DIR/sock"
     chmod 0700 "$PGCLUSTER_DIR/data"
@@ -47,8 +62,6 @@ pgcluster_start() {
     pwfile="$PGCLUSTER_DIR/data.pw"
     printf '%s\n' "$pw" >"$pwfile"
     if [ "$(id -u)" = 0 ]; then
-        # the server's user must reach DIR; it gets the data folder and socket only
-        chmod o+x "$PGCLUSTER_DIR"
         chown postgres "$PGCLUSTER_DIR/data" "$PGCLUSTER_DIR/sock" "$pwfile"
     fi
     chmod 0600 "$pwfile"
@@ -88,6 +101,13 @@ pgcluster_resume() {
 
 pgcluster_stop() {
     pgcluster_as "$PGCLUSTER_BIN/pg_ctl" -D "$PGCLUSTER_DIR/data" -m fast -w stop >/dev/null 2>&1 || true
+}
+
+pgcluster_cleanup() {
+    pgcluster_stop
+    if [ -n "${PGCLUSTER_TMP:-}" ]; then
+        rm -rf "$PGCLUSTER_TMP"
+    fi
 }
 
 pgcluster_kill() {

@@ -24,7 +24,7 @@ rm -rf "$out"
 mkdir -p "$out/pg" "$out/share"
 fail() { echo "FAIL $*"; exit 1; }
 pgcluster_start "$out/pg"
-trap pgcluster_stop EXIT
+trap pgcluster_cleanup EXIT
 CHECK="$PYTHON tests/e2e/check_central.py"
 C="$PGCLUSTER_CONNINFO"
 pyq() { "$PYTHON" -c 'import psycopg2, sys

@@ -39,7 +39,7 @@ rm -rf "$out"
 mkdir -p "$out/pg" "$out/share"
 fail() { echo "FAIL $*"; exit 1; }
 pgcluster_start "$out/pg"
-trap pgcluster_stop EXIT
+trap pgcluster_cleanup EXIT
 CHECK="$PYTHON tests/e2e/check_sync.py"
 # one value from a local log, through Python's sqlite3
 sq() { "$PYTHON" -c 'import sqlite3, sys; print(sqlite3.connect(sys.argv[1]).execute(sys.argv[2]).fetchone()[0])' "$@"; }
