@@ -43,6 +43,8 @@ enum slot {
     SLOT_LOCALSTD,
     NSLOTS
 };
+/* the most features a bank spec yields */
+#define FEAT_MAX_BANK (3 + FEAT_MAX_SIGMAS * NSLOTS + FEAT_MAX_GABORS)
 
 static const struct {
     unsigned family;
@@ -79,6 +81,7 @@ struct feat_gabor {
 struct feat_worker {
     float *pad;
     float *fb;      /* the strip being finished: per row, its n features as planar rows */
+    float *orow;    /* one row of the box's output, pixel-major, before it is streamed out */
     int strip_y0;   /* first row of that strip */
     const float **src;
     float *row[NROWS];
@@ -95,7 +98,7 @@ struct feat_job {
     struct feat_ctx *ctx;
     feat_phase fn;
     struct feat_worker *wk;
-    int y0, y1;
+    int y1;
     atomic_int *next; /* the phase's next unclaimed row */
 };
 
@@ -111,7 +114,6 @@ struct feat_ctx {
     float *grey, *sob_d, *sob_s;
     float *planes, *kernels, *rows;
     float *zero; /* a row of zeros standing in for column passes that vanish */
-    int32_t *weave; /* value f of a 16-pixel output block: offset of its planar source */
     const float **srcs;
     uint32_t *hist;
     struct feat_worker *wk;
@@ -406,6 +408,7 @@ static int ctx_alloc_workers(struct feat_ctx *ctx, struct block_plan *p)
         wk->src = ctx->srcs + (size_t)t * nsrc;
         plan_add(p, &wk->pad, (size_t)ctx->w + 2 * (size_t)ctx->rmax);
         plan_add(p, &wk->fb, (size_t)ctx->w * (size_t)ctx->n * STRIP);
+        plan_add(p, &wk->orow, (size_t)ctx->w * (size_t)ctx->n);
         for (int b = 0; b < NROWS; b++)
             plan_add(p, &wk->row[b], (size_t)ctx->w * STRIP);
     }
@@ -466,11 +469,8 @@ struct feat_ctx *feat_ctx_new(const struct feat_spec *spec, int w, int h, struct
     if (ctx_plan_kernels(ctx, plan) || ctx_plan_planes(ctx, plan) || ctx_alloc_workers(ctx, plan))
         goto fail;
     ctx->zero = calloc((size_t)w, sizeof *ctx->zero);
-    ctx->weave = malloc((size_t)(16 * ctx->n + 1) * sizeof *ctx->weave);
-    if (!ctx->zero || !ctx->weave)
+    if (!ctx->zero)
         goto fail;
-    for (int f = 0; f < 16 * ctx->n; f++)
-        ctx->weave[f] = (f % ctx->n) * w + f / ctx->n;
     if (spec->normalise) {
         ctx->hist = malloc((GREY_KEY_MAX + 1) * sizeof *ctx->hist);
         if (!ctx->hist)
@@ -498,7 +498,6 @@ void feat_ctx_free(struct feat_ctx *ctx)
     free(ctx->kernels);
     free(ctx->rows);
     free(ctx->zero);
-    free(ctx->weave);
     free(ctx->srcs);
     free(ctx->hist);
     free(ctx->wk);
@@ -604,39 +603,100 @@ FILT_HOT static void interleave_block(const float *restrict fb, size_t w, size_t
 }
 
 #ifdef FEAT_WIDE
-/* The same copy on AVX-512: each 16 values of the output are one gather
- * from the planar rows and one full store, where the loop above stores
- * value by value (about a sixth of the bank's time before). */
-__attribute__((target("avx512f"))) static void interleave_wide(const float *fb, const int32_t *weave, int n,
-                                                               size_t x0, size_t nx, float *o)
+/* 16 vectors transposed in registers: row i of the result holds element i
+ * of every input, in input order (unpacks within 128-bit lanes, then the
+ * lanes themselves). */
+__attribute__((target("avx512f"), always_inline)) static inline void transpose16(__m512 v[16])
 {
-    const float *base = fb + x0;
-    int total = (int)nx * n, f = 0;
-    for (; f + 16 <= total; f += 16)
-        _mm512_storeu_ps(o + f, _mm512_i32gather_ps(_mm512_loadu_si512(weave + f), base, 4));
-    if (f < total) {
-        __mmask16 m = (__mmask16)((1u << (total - f)) - 1);
-        __m512i idx = _mm512_maskz_loadu_epi32(m, weave + f);
-        _mm512_mask_storeu_ps(o + f, m, _mm512_mask_i32gather_ps(_mm512_setzero_ps(), m, idx, base, 4));
+    __m512 t[16];
+#pragma GCC unroll 16
+    for (int i = 0; i < 16; i += 2) {
+        t[i] = _mm512_unpacklo_ps(v[i], v[i + 1]);
+        t[i + 1] = _mm512_unpackhi_ps(v[i], v[i + 1]);
     }
+#pragma GCC unroll 16
+    for (int i = 0; i < 16; i += 4)
+#pragma GCC unroll 2
+        for (int j = 0; j < 2; j++) {
+            __m512d a = _mm512_castps_pd(t[i + j]), b = _mm512_castps_pd(t[i + j + 2]);
+            v[i + 2 * j] = _mm512_castpd_ps(_mm512_unpacklo_pd(a, b));
+            v[i + 2 * j + 1] = _mm512_castpd_ps(_mm512_unpackhi_pd(a, b));
+        }
+    /* v[4q + m] now holds, in lane quarter l, element 4l + m of inputs 4q..4q+3 */
+#pragma GCC unroll 2
+    for (int q = 0; q < 16; q += 8)
+#pragma GCC unroll 4
+        for (int m = 0; m < 4; m++) {
+            t[q + m] = _mm512_shuffle_f32x4(v[q + m], v[q + 4 + m], 0x88);
+            t[q + 4 + m] = _mm512_shuffle_f32x4(v[q + m], v[q + 4 + m], 0xdd);
+        }
+#pragma GCC unroll 4
+    for (int m = 0; m < 4; m++)
+#pragma GCC unroll 2
+        for (int half = 0; half < 2; half++) {
+            __m512 a = t[4 * half + m], b = t[8 + 4 * half + m];
+            v[m + 4 * half] = _mm512_shuffle_f32x4(a, b, 0x88);
+            v[m + 4 * half + 8] = _mm512_shuffle_f32x4(a, b, 0xdd);
+        }
+}
+
+/* The same copy on AVX-512: 16 features of 16 pixels are loaded as 16
+ * vectors, transposed in registers and stored as 16 pixels' runs of
+ * features; a gather per 16 values (the form before) cost a sixth of the
+ * bank's time. */
+__attribute__((target("avx512f"))) static void interleave_wide(const float *fb, size_t w, int n, size_t x0,
+                                                               size_t nx, float *o)
+{
+    __mmask16 mx = (__mmask16)(nx >= 16 ? 0xffff : (1u << nx) - 1);
+    for (int k0 = 0; k0 < n; k0 += 16) {
+        int nk = n - k0 < 16 ? n - k0 : 16;
+        __mmask16 mk = (__mmask16)(nk == 16 ? 0xffff : (1u << nk) - 1);
+        __m512 v[16];
+#pragma GCC unroll 16
+        for (int k = 0; k < 16; k++)
+            v[k] = k < nk ? _mm512_maskz_loadu_ps(mx, fb + (size_t)(k0 + k) * w + x0) : _mm512_setzero_ps();
+        transpose16(v);
+        for (size_t p = 0; p < nx; p++)
+            _mm512_mask_storeu_ps(o + p * (size_t)n + k0, mk, v[p]);
+    }
+}
+
+/* dst[0 .. len) = src[0 .. len) with streaming stores for the whole
+ * 64-byte lines: the stack is far larger than the caches and is read back
+ * only by the classifier, so fetching each line before overwriting it (what
+ * a plain store does) only doubled the traffic. */
+__attribute__((target("avx512f"))) static void stream_copy(float *dst, const float *src, size_t len)
+{
+    size_t head = (size_t)((64 - (uintptr_t)dst % 64) % 64) / sizeof *dst;
+    if (dst != NULL && (uintptr_t)dst % sizeof *dst)
+        head = len; /* not float-aligned: no streaming */
+    if (head > len)
+        head = len;
+    memcpy(dst, src, head * sizeof *dst);
+    size_t i = head;
+    for (; i + 16 <= len; i += 16)
+        _mm512_stream_ps(dst + i, _mm512_loadu_ps(src + i));
+    memcpy(dst + i, src + i, (len - i) * sizeof *dst);
+    _mm_sfence();
 }
 #endif
 
 static void interleave_row(const struct feat_ctx *ctx, const struct feat_worker *wk, int y)
 {
     size_t n = (size_t)ctx->n, w = (size_t)ctx->w;
-    float *o = ctx->out->v + (size_t)y * w * n;
+    size_t bx0 = (size_t)ctx->box.x0, x1 = (size_t)ctx->box.x1;
+    float *o = ctx->out->v + ((size_t)y * w + bx0) * n;
     const float *fb = frow(ctx, wk, 0, y);
-    size_t x1 = (size_t)ctx->box.x1;
 #ifdef FEAT_WIDE
     if (__builtin_cpu_supports("avx512f")) {
-        for (size_t x0 = (size_t)ctx->box.x0; x0 < x1; x0 += 16)
-            interleave_wide(fb, ctx->weave, ctx->n, x0, x1 - x0 < 16 ? x1 - x0 : 16, o + x0 * n);
+        for (size_t x0 = bx0; x0 < x1; x0 += 16)
+            interleave_wide(fb, w, ctx->n, x0, x1 - x0 < 16 ? x1 - x0 : 16, wk->orow + (x0 - bx0) * n);
+        stream_copy(o, wk->orow, (x1 - bx0) * n);
         return;
     }
 #endif
-    for (size_t x0 = (size_t)ctx->box.x0; x0 < x1; x0 += 16)
-        interleave_block(fb, w, n, x0, x1 - x0 < 16 ? x1 - x0 : 16, o + x0 * n);
+    for (size_t x0 = bx0; x0 < x1; x0 += 16)
+        interleave_block(fb, w, n, x0, x1 - x0 < 16 ? x1 - x0 : 16, o + (x0 - bx0) * n);
 }
 
 FILT_HOT static void grey_row(const uint8_t *restrict px, int ch, int w, float scale, float *restrict g)
@@ -1017,7 +1077,9 @@ static void gabor_rows(struct feat_ctx *ctx, struct feat_worker *wk, const struc
 /* Every feature of a strip into the planar buffer, one pass at a time over
  * the strip's rows, then out row by row while the buffer is hot.  Each row's
  * values do not depend on the strip bounds, so any split into workers gives
- * the same bits. */
+ * the same bits.  (Narrow column tiles, which would keep a strip's sources
+ * in L2 for the next strip, measured slower: the row streams of the whole
+ * width are what the hardware prefetches well.) */
 static void phase_final(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1)
 {
     for (int ys = y0; ys < y1; ys += STRIP) {
@@ -1058,7 +1120,7 @@ static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn, int y0, int y1)
     char started[FEAT_MAX_THREADS] = {0};
     atomic_int next = y0;
     for (int t = 0; t < nt; t++)
-        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y0, y1, &next};
+        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y1, &next};
     for (int t = 1; t < nt; t++)
         started[t] = pthread_create(&ctx->tids[t], NULL, feat_job_run, &ctx->jobs[t]) == 0;
     feat_job_run(&ctx->jobs[0]);

@@ -207,68 +207,95 @@ __attribute__((target("avx512f"))) static void wide_pair(const float *const *src
 /* ROWS output rows of one pass, 16 columns at a time: the sources of those
  * columns (2r + ROWS lines of 64 bytes) stay in L1 for every tap of every
  * row, where a row at a time across the width reloads each source line
- * from L2 for each output row.  Per output the same arithmetic as above. */
+ * from L2 for each output row.
+ *
+ * Tap j of output row i pairs sources r + i - j and r + i + j, so from one
+ * tap to the next the ROWS low sources slide down by one row and the ROWS
+ * high ones up by one: both windows live in registers as rings, and a tap
+ * of all ROWS outputs loads two vectors (the rows entering the windows)
+ * instead of 2 ROWS.  Blocks of ROWS taps bring the rings back to the same
+ * register names, so every ring index below is a constant after
+ * unrolling; the taps past the last whole block load their pairs.  Per
+ * output the arithmetic is the single-row pass's (centre product, then
+ * taps j = 1..r, each one FMA of the pre-added pair), so the bits are too. */
 #define ROWS 8
 /* Prefetch distance in floats: two chunks on. */
 #define ROWS_AHEAD 32
 
-__attribute__((target("avx512f"), always_inline)) static inline void
-rows_chunk(const float *const *src, const float *ks, const float *ka, int r, int x, __mmask16 m, const int nr,
-           float *const *os, float *const *oa)
+__attribute__((target("avx512f"), always_inline)) static inline __m512 rows_pair(__m512 h, __m512 l, int anti)
 {
-    __m512 s[ROWS], a[ROWS];
-    const __m512 k0 = _mm512_set1_ps(os ? ks[0] : 0.0f), zero = _mm512_setzero_ps();
+    return anti ? _mm512_sub_ps(h, l) : _mm512_add_ps(h, l);
+}
+
+__attribute__((target("avx512f"), always_inline)) static inline void
+rows_chunk(const float *const *src, const float *k, int r, int x, __mmask16 m, int anti, float *const *o)
+{
+    __m512 acc[ROWS], lo[ROWS], hi[ROWS];
+    const __m512 k0 = _mm512_set1_ps(anti ? 0.0f : k[0]);
     /* the lines two chunks on: a source row's lines are 2 KB and more apart
      * and the hardware does not follow 2r + ROWS such streams */
-    for (int t = 0; t < 2 * r + nr; t++)
+    for (int t = 0; t < 2 * r + ROWS; t++)
         _mm_prefetch((const char *)(src[t] + x + ROWS_AHEAD), _MM_HINT_T0);
 #pragma GCC unroll 8
-    for (int i = 0; i < nr; i++) {
-        __m512 cv = _mm512_maskz_loadu_ps(m, src[r + i] + x);
-        s[i] = _mm512_mul_ps(k0, cv);
-        a[i] = _mm512_mul_ps(zero, cv);
-    }
-    for (int j = 1; j <= r; j++) {
-        const __m512 kj = _mm512_set1_ps(os ? ks[j] : 0.0f), kd = _mm512_set1_ps(oa ? ka[j] : 0.0f);
+    for (int i = 0; i < ROWS; i++)
+        acc[i] = _mm512_mul_ps(k0, _mm512_maskz_loadu_ps(m, src[r + i] + x));
+    int j = 1;
+    if (r >= ROWS) {
+        /* before tap j: lo[i] = source r - j + i, hi[i] = source r + j + i */
 #pragma GCC unroll 8
-        for (int i = 0; i < nr; i++) {
+        for (int i = 1; i < ROWS; i++)
+            lo[i] = _mm512_maskz_loadu_ps(m, src[r - 1 + i] + x);
+#pragma GCC unroll 8
+        for (int i = 0; i < ROWS - 1; i++)
+            hi[i] = _mm512_maskz_loadu_ps(m, src[r + 1 + i] + x);
+        for (; j + ROWS - 1 <= r; j += ROWS) {
+            const float *const *sl = src + (r - j), *const *sh = src + (r + j);
+#pragma GCC unroll 8
+            for (int u = 0; u < ROWS; u++) {
+                /* tap j + u: output i reads sl[i - u] and sh[i + u] */
+                lo[(ROWS - u) % ROWS] = _mm512_maskz_loadu_ps(m, sl[-u] + x);
+                hi[(u + ROWS - 1) % ROWS] = _mm512_maskz_loadu_ps(m, sh[u + ROWS - 1] + x);
+                const __m512 kj = _mm512_set1_ps(k[j + u]);
+#pragma GCC unroll 8
+                for (int i = 0; i < ROWS; i++)
+                    acc[i] = _mm512_fmadd_ps(kj, rows_pair(hi[(u + i) % ROWS], lo[(i - u + ROWS) % ROWS], anti),
+                                             acc[i]);
+            }
+        }
+    }
+    for (; j <= r; j++) {
+        const __m512 kj = _mm512_set1_ps(k[j]);
+#pragma GCC unroll 8
+        for (int i = 0; i < ROWS; i++) {
             __m512 l = _mm512_maskz_loadu_ps(m, src[r + i - j] + x), h = _mm512_maskz_loadu_ps(m, src[r + i + j] + x);
-            if (os)
-                s[i] = _mm512_fmadd_ps(kj, _mm512_add_ps(h, l), s[i]);
-            if (oa)
-                a[i] = _mm512_fmadd_ps(kd, _mm512_sub_ps(h, l), a[i]);
+            acc[i] = _mm512_fmadd_ps(kj, rows_pair(h, l, anti), acc[i]);
         }
     }
 #pragma GCC unroll 8
-    for (int i = 0; i < nr; i++) {
-        if (os)
-            _mm512_mask_storeu_ps(os[i] + x, m, s[i]);
-        if (oa)
-            _mm512_mask_storeu_ps(oa[i] + x, m, a[i]);
-    }
+    for (int i = 0; i < ROWS; i++)
+        _mm512_mask_storeu_ps(o[i] + x, m, acc[i]);
 }
 
 __attribute__((target("avx512f"), always_inline)) static inline void
-rows_run(const float *const *src, const float *ks, const float *ka, int r, int w, float *const *os,
-         float *const *oa)
+rows_run(const float *const *src, const float *k, int r, int w, int anti, float *const *o)
 {
     int x = 0;
     for (; x + 16 <= w; x += 16)
-        rows_chunk(src, ks, ka, r, x, (__mmask16)0xffff, ROWS, os, oa);
+        rows_chunk(src, k, r, x, (__mmask16)0xffff, anti, o);
     if (x < w)
-        rows_chunk(src, ks, ka, r, x, (__mmask16)((1u << (w - x)) - 1), ROWS, os, oa);
+        rows_chunk(src, k, r, x, (__mmask16)((1u << (w - x)) - 1), anti, o);
 }
 
+/* The two parts of a pair in two sweeps: both rings and both sets of
+ * outputs would need more than the 32 registers. */
 __attribute__((target("avx512f"))) static void rows_wide(const float *const *src, const float *ks,
                                                          const float *ka, int r, int w, float *const *os,
                                                          float *const *oa)
 {
-    if (os && oa)
-        rows_run(src, ks, ka, r, w, os, oa);
-    else if (os)
-        rows_run(src, ks, NULL, r, w, os, NULL);
-    else
-        rows_run(src, NULL, ka, r, w, NULL, oa);
+    if (os)
+        rows_run(src, ks, r, w, 0, os);
+    if (oa)
+        rows_run(src, ka, r, w, 1, oa);
 }
 
 static int filt_has_wide(void)
