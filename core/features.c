@@ -26,6 +26,13 @@
  * pass's source windows and the strip's planar features stay in L2; row by
  * row, every pass's window would be live at once and spill. */
 #define STRIP 8
+/* The row phases run TGROUP rows at a time: their passes of radius
+ * TRANSPOSE_MIN_R and more run on the group transposed (see pass_group);
+ * below that radius the two transposes cost more than the taps save. */
+#define TGROUP 16
+#define TRANSPOSE_MIN_R 8
+/* row passes of one source: per sigma two, the Sobel pair, the Gabors */
+#define MAX_ROW_PASSES (2 * FEAT_MAX_SIGMAS + 1 + FEAT_MAX_GABOR_FREQS * FEAT_MAX_ORIENT)
 /* the largest of the three plans: worker rows, planes, kernels */
 #define PLAN_MAX (FEAT_MAX_THREADS * (NROWS + 2))
 _Static_assert(PLAN_MAX >= 3 + FEAT_MAX_SIGMAS * 8 + FEAT_MAX_GABORS * 2 &&
@@ -78,8 +85,22 @@ struct feat_gabor {
     int shared;     /* this orientation is another one's mirror: no kernels, no planes */
 };
 
+/* One row pass: radius r, a symmetric kernel ks into plane ps and / or an
+ * antisymmetric one ka into pa, output columns [x0, x0 + n). */
+struct row_pass {
+    int r;
+    const float *ks, *ka;
+    float *ps, *pa;
+    int x0, n;
+};
+
 struct feat_worker {
     float *pad;
+    float *pads;       /* TGROUP padded rows, pw = w + 2 rmax apart */
+    float *tp;         /* the same transposed: padded column c of the group at tp + 16 c */
+    float *to_s, *to_a; /* a transposed pass's outputs, column i at + 16 i */
+    const float **tsrc; /* its sources, pw + 16 */
+    float **tos, **toa; /* its outputs, w + 16 each */
     float *fb;      /* the strip being finished: per row, its n features as planar rows */
     float *orow;    /* one row of the box's output, pixel-major, before it is streamed out */
     int strip_y0;   /* first row of that strip */
@@ -90,7 +111,7 @@ struct feat_worker {
 struct feat_ctx;
 typedef void (*feat_phase)(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int y1);
 
-/* A phase's rows are handed out STRIP at a time from one counter, so a
+/* A phase's rows are handed out a few at a time from one counter, so a
  * worker whose core is busy elsewhere (the screen, the camera, another
  * guest on the host) takes fewer strips instead of holding the frame: with
  * halves fixed in advance, one slowed core set the whole phase's time. */
@@ -98,7 +119,7 @@ struct feat_job {
     struct feat_ctx *ctx;
     feat_phase fn;
     struct feat_worker *wk;
-    int y1;
+    int y1, step;
     atomic_int *next; /* the phase's next unclaimed row */
 };
 
@@ -115,6 +136,13 @@ struct feat_ctx {
     float *planes, *kernels, *rows;
     float *zero; /* a row of zeros standing in for column passes that vanish */
     const float **srcs;
+    const float **tsrcs;
+    float **touts;
+    int pw; /* a padded row's length */
+    /* the row passes per source, set per frame (their columns follow the
+     * box): the grey, J^2 and each Sobel product */
+    struct row_pass grey_pass[MAX_ROW_PASSES], sq_pass[FEAT_MAX_SIGMAS], prod_pass[3][FEAT_MAX_SIGMAS];
+    int ngrey_pass, nsq_pass, nprod_pass;
     uint32_t *hist;
     struct feat_worker *wk;
     struct feat_job *jobs;
@@ -400,13 +428,24 @@ static int ctx_alloc_workers(struct feat_ctx *ctx, struct block_plan *p)
     ctx->jobs = calloc((size_t)nt, sizeof *ctx->jobs);
     ctx->tids = calloc((size_t)nt, sizeof *ctx->tids);
     ctx->srcs = calloc((size_t)nt * nsrc, sizeof *ctx->srcs);
-    if (!ctx->wk || !ctx->jobs || !ctx->tids || !ctx->srcs)
+    size_t pw = (size_t)ctx->w + 2 * (size_t)ctx->rmax, nout = (size_t)ctx->w + 16;
+    ctx->pw = (int)pw;
+    ctx->tsrcs = calloc((size_t)nt * (pw + 16), sizeof *ctx->tsrcs);
+    ctx->touts = calloc((size_t)nt * 2 * nout, sizeof *ctx->touts);
+    if (!ctx->wk || !ctx->jobs || !ctx->tids || !ctx->srcs || !ctx->tsrcs || !ctx->touts)
         return ST_ENOMEM;
     p->n = 0;
     for (int t = 0; t < nt; t++) {
         struct feat_worker *wk = &ctx->wk[t];
         wk->src = ctx->srcs + (size_t)t * nsrc;
-        plan_add(p, &wk->pad, (size_t)ctx->w + 2 * (size_t)ctx->rmax);
+        wk->tsrc = ctx->tsrcs + (size_t)t * (pw + 16);
+        wk->tos = ctx->touts + (size_t)t * 2 * nout;
+        wk->toa = wk->tos + nout;
+        plan_add(p, &wk->pad, pw);
+        plan_add(p, &wk->pads, TGROUP * pw);
+        plan_add(p, &wk->tp, (pw + 15) / 16 * 16 * 16);
+        plan_add(p, &wk->to_s, nout * 16);
+        plan_add(p, &wk->to_a, nout * 16);
         plan_add(p, &wk->fb, (size_t)ctx->w * (size_t)ctx->n * STRIP);
         plan_add(p, &wk->orow, (size_t)ctx->w * (size_t)ctx->n);
         for (int b = 0; b < NROWS; b++)
@@ -499,6 +538,8 @@ void feat_ctx_free(struct feat_ctx *ctx)
     free(ctx->rows);
     free(ctx->zero);
     free(ctx->srcs);
+    free(ctx->tsrcs);
+    free(ctx->touts);
     free(ctx->hist);
     free(ctx->wk);
     free(ctx->jobs);
@@ -778,6 +819,108 @@ static void sources_row_at(const float *pad, int rpad, int r, int x0, const floa
     filt_sources_row(pad + x0, rpad, r, src);
 }
 
+/* Pass d over the padded row pad of row y. */
+static void pass_row(struct feat_ctx *ctx, struct feat_worker *wk, const float *pad, int y, const struct row_pass *d)
+{
+    sources_row_at(pad, ctx->rmax, d->r, d->x0, wk->src);
+    sym_anti(wk->src, d->ks, d->ka, d->r, d->n, d->ps ? at(ctx, d->ps, y, d->x0) : NULL,
+             d->pa ? at(ctx, d->pa, y, d->x0) : NULL);
+}
+
+#ifdef FEAT_WIDE
+/* The group's padded rows into wk->tp, column by column. */
+__attribute__((target("avx512f"))) static void group_transpose_in(const struct feat_ctx *ctx, struct feat_worker *wk)
+{
+    int pw = ctx->pw;
+    for (int c0 = 0; c0 < pw; c0 += 16) {
+        __mmask16 m = (__mmask16)(pw - c0 >= 16 ? 0xffff : (1u << (pw - c0)) - 1);
+        __m512 v[16];
+#pragma GCC unroll 16
+        for (int i = 0; i < 16; i++)
+            v[i] = _mm512_maskz_loadu_ps(m, wk->pads + (size_t)i * pw + c0);
+        transpose16(v);
+#pragma GCC unroll 16
+        for (int c = 0; c < 16; c++)
+            _mm512_storeu_ps(wk->tp + (size_t)(c0 + c) * 16, v[c]);
+    }
+}
+
+/* n transposed output columns back into rows y .. y + 15 of a plane at x0. */
+__attribute__((target("avx512f"))) static void group_transpose_out(const struct feat_ctx *ctx, const float *to, int n,
+                                                                   float *plane, int y, int x0)
+{
+    for (int c0 = 0; c0 < n; c0 += 16) {
+        int nc = n - c0 < 16 ? n - c0 : 16;
+        __mmask16 m = (__mmask16)(nc == 16 ? 0xffff : (1u << nc) - 1);
+        __m512 v[16];
+#pragma GCC unroll 16
+        for (int c = 0; c < 16; c++)
+            v[c] = c < nc ? _mm512_loadu_ps(to + (size_t)(c0 + c) * 16) : _mm512_setzero_ps();
+        transpose16(v);
+#pragma GCC unroll 16
+        for (int i = 0; i < 16; i++)
+            _mm512_mask_storeu_ps(at(ctx, plane, y + i, x0 + c0), m, v[i]);
+    }
+}
+
+/* Pass d over the TGROUP rows from y, transposed: a row pass reads
+ * neighbouring columns, which in a row's own layout are loads one float
+ * apart (nearly all split across two cache lines) and two per tap; in the
+ * transposed group a column is one aligned vector of the group's rows, so
+ * the pass is filt_rows' column pass with its rings (two loads per tap of
+ * eight outputs).  The same arithmetic per output, so the same bits. */
+static void pass_group(struct feat_ctx *ctx, struct feat_worker *wk, int y, const struct row_pass *d)
+{
+    int span = 2 * d->r + d->n;
+    const float *first = wk->tp + (size_t)(d->x0 + ctx->rmax - d->r) * 16;
+    for (int t = 0; t < span; t++)
+        wk->tsrc[t] = first + (size_t)t * 16;
+    for (int i = 0; i < d->n; i++) {
+        wk->tos[i] = wk->to_s + (size_t)i * 16;
+        wk->toa[i] = wk->to_a + (size_t)i * 16;
+    }
+    filt_rows(wk->tsrc, d->ks, d->ka, d->r, 16, d->n, d->ps ? wk->tos : NULL, d->pa ? wk->toa : NULL);
+    if (d->ps)
+        group_transpose_out(ctx, wk->to_s, d->n, d->ps, y, d->x0);
+    if (d->pa)
+        group_transpose_out(ctx, wk->to_a, d->n, d->pa, y, d->x0);
+}
+#endif
+
+/* The passes of list over the g padded rows in wk->pads (rows y ..). */
+static void run_passes(struct feat_ctx *ctx, struct feat_worker *wk, int y, int g, const struct row_pass *list,
+                       int count)
+{
+    int big = 0;
+#ifdef FEAT_WIDE
+    for (int k = 0; k < count && g == TGROUP; k++)
+        big |= list[k].r >= TRANSPOSE_MIN_R;
+    if (big)
+        group_transpose_in(ctx, wk);
+#endif
+    for (int k = 0; k < count; k++) {
+#ifdef FEAT_WIDE
+        if (big && list[k].r >= TRANSPOSE_MIN_R) {
+            pass_group(ctx, wk, y, &list[k]);
+            continue;
+        }
+#endif
+        for (int i = 0; i < g; i++)
+            pass_row(ctx, wk, wk->pads + (size_t)i * ctx->pw, y + i, &list[k]);
+    }
+}
+
+/* Rows of a group: TGROUP where the wide path exists and as many rows are
+ * left, else one. */
+static int group_rows(int left)
+{
+#ifdef FEAT_WIDE
+    if (left >= TGROUP && __builtin_cpu_supports("avx512f"))
+        return TGROUP;
+#endif
+    return 1;
+}
+
 /* Every pass that needs only its own row: grey, the row passes, the Sobel
  * row parts.  Grey and its padded copy are whole rows (the reflection at the
  * frame's border must see the frame's pixels); the passes cover only the
@@ -786,43 +929,21 @@ static void phase_rows(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int
 {
     const struct image *img = ctx->img;
     int w = ctx->w, ch = img->channels, rmax = ctx->rmax;
-    const int gx0 = ctx->gx0, gn = ctx->gx1 - ctx->gx0, bx0 = ctx->box.x0, bn = ctx->box.x1 - ctx->box.x0;
-    const float **src = wk->src;
-    for (int y = y0; y < y1 && ctx->grey; y++) {
-        const uint8_t *px = img->px + (size_t)y * (size_t)w * (size_t)ch;
-        size_t off = (size_t)y * (size_t)w;
-        float *g = ctx->grey + off;
-        grey_row(px, ch, w, ctx->scale_grey, g);
-        filt_pad_row(g, w, rmax, wk->pad);
-        for (int i = 0; i < ctx->nsig; i++) {
-            struct feat_sigma *s = &ctx->sig[i];
-            sources_row_at(wk->pad, rmax, s->r, gx0, src);
-            sym_anti(src, s->k0, s->k1, s->r, gn, s->r0 ? at(ctx, s->r0, y, gx0) : NULL,
-                     s->r1 ? at(ctx, s->r1, y, gx0) : NULL);
-            if (s->r2)
-                filt_sym(src, s->k2, s->r, gn, at(ctx, s->r2, y, gx0));
+    for (int y = y0, g; y < y1 && ctx->grey; y += g) {
+        g = group_rows(y1 - y);
+        for (int i = 0; i < g; i++) {
+            float *gr = ctx->grey + (size_t)(y + i) * (size_t)w;
+            grey_row(img->px + (size_t)(y + i) * (size_t)w * (size_t)ch, ch, w, ctx->scale_grey, gr);
+            filt_pad_row(gr, w, rmax, wk->pads + (size_t)i * ctx->pw);
         }
-        if (ctx->sob_d) {
-            sources_row_at(wk->pad, rmax, 1, ctx->wx0, src);
-            filt_anti(src, sobel_diff, 1, ctx->wx1 - ctx->wx0, at(ctx, ctx->sob_d, y, ctx->wx0));
-            filt_sym(src, sobel_smooth, 1, ctx->wx1 - ctx->wx0, at(ctx, ctx->sob_s, y, ctx->wx0));
+        run_passes(ctx, wk, y, g, ctx->grey_pass, ctx->ngrey_pass);
+        if (!ctx->nsq_pass)
+            continue;
+        for (int i = 0; i < g; i++) {
+            centred_square(ctx->grey + (size_t)(y + i) * (size_t)w, ctx->mean_grey, w, wk->row[0]);
+            filt_pad_row(wk->row[0], w, rmax, wk->pads + (size_t)i * ctx->pw);
         }
-        for (int i = 0; i < ctx->ngab; i++) {
-            struct feat_gabor *gb = &ctx->gab[i];
-            if (gb->shared)
-                continue;
-            sources_row_at(wk->pad, rmax, gb->r, bx0, src);
-            sym_anti(src, gb->xre, gb->xim, gb->r, bn, at(ctx, gb->re, y, bx0), gb->im ? at(ctx, gb->im, y, bx0) : NULL);
-        }
-        if (ctx->spec.families & FEAT_LOCALSTD) {
-            centred_square(g, ctx->mean_grey, w, wk->row[0]);
-            filt_pad_row(wk->row[0], w, rmax, wk->pad);
-            for (int i = 0; i < ctx->nsig; i++) {
-                struct feat_sigma *s = &ctx->sig[i];
-                sources_row_at(wk->pad, rmax, s->r, bx0, src);
-                filt_sym(src, s->k0, s->r, bn, at(ctx, s->q0, y, bx0));
-            }
-        }
+        run_passes(ctx, wk, y, g, ctx->sq_pass, ctx->nsq_pass);
     }
 }
 
@@ -833,7 +954,6 @@ static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int 
 {
     int w = ctx->w, rmax = ctx->rmax;
     const int gx0 = ctx->gx0, gn = ctx->gx1 - ctx->gx0, wx0 = ctx->wx0, wn = ctx->wx1 - ctx->wx0;
-    const int bx0 = ctx->box.x0, bn = ctx->box.x1 - ctx->box.x0;
     const float **src = wk->src;
     /* the Hessian's differences reach 2 rows beyond the box */
     const int hy0 = y0 > ctx->box.y0 - 2 ? y0 : ctx->box.y0 - 2, hy1 = y1 < ctx->box.y1 + 2 ? y1 : ctx->box.y1 + 2;
@@ -850,24 +970,21 @@ static void phase_mid(struct feat_ctx *ctx, struct feat_worker *wk, int y0, int 
             filt_rows(src, s->k0, NULL, s->r, gn, nr, o, NULL);
         }
     }
-    for (int y = y0; y < y1; y++) {
-        if (!ctx->sob_d)
-            continue;
+    for (int y = y0, g; y < y1 && ctx->sob_d; y += g) {
+        g = group_rows(y1 - y);
         /* the products are valid on [wx0, wx1) only; the box's row passes
          * read no further, the frame's border reflecting inside it */
         float *dx = wk->row[0], *dy = wk->row[1], *prod = wk->row[2];
-        sources_col(ctx, ctx->sob_d, y, wx0, 1, src);
-        filt_sym(src, sobel_smooth, 1, wn, dx + wx0);
-        sources_col(ctx, ctx->sob_s, y, wx0, 1, src);
-        filt_anti(src, sobel_diff, 1, wn, dy + wx0);
         for (int c = 0; c < 3; c++) {
-            sobel_product(dx + wx0, dy + wx0, c, wn, prod + wx0);
-            filt_pad_row(prod, w, rmax, wk->pad);
-            for (int i = 0; i < ctx->nsig; i++) {
-                struct feat_sigma *s = &ctx->sig[i];
-                sources_row_at(wk->pad, rmax, s->r, bx0, src);
-                filt_sym(src, s->k0, s->r, bn, at(ctx, s->pr[c], y, bx0));
+            for (int i = 0; i < g; i++) {
+                sources_col(ctx, ctx->sob_d, y + i, wx0, 1, src);
+                filt_sym(src, sobel_smooth, 1, wn, dx + wx0);
+                sources_col(ctx, ctx->sob_s, y + i, wx0, 1, src);
+                filt_anti(src, sobel_diff, 1, wn, dy + wx0);
+                sobel_product(dx + wx0, dy + wx0, c, wn, prod + wx0);
+                filt_pad_row(prod, w, rmax, wk->pads + (size_t)i * ctx->pw);
             }
+            run_passes(ctx, wk, y, g, ctx->prod_pass[c], ctx->nprod_pass);
         }
     }
 }
@@ -1103,24 +1220,24 @@ static void phase_final(struct feat_ctx *ctx, struct feat_worker *wk, int y0, in
 static void *feat_job_run(void *arg)
 {
     struct feat_job *job = arg;
-    for (int y; (y = atomic_fetch_add(job->next, STRIP)) < job->y1;)
-        job->fn(job->ctx, job->wk, y, job->y1 - y < STRIP ? job->y1 : y + STRIP);
+    for (int y; (y = atomic_fetch_add(job->next, job->step)) < job->y1;)
+        job->fn(job->ctx, job->wk, y, job->y1 - y < job->step ? job->y1 : y + job->step);
     return NULL;
 }
 
-/* Shares the rows between the workers; joining them is the barrier between
- * phases.  A worker whose thread cannot start leaves its strips to the
- * others, which costs time but not the frame. */
-static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn, int y0, int y1)
+/* Shares the rows between the workers, step at a time; joining them is the
+ * barrier between phases.  A worker whose thread cannot start leaves its
+ * rows to the others, which costs time but not the frame. */
+static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn, int y0, int y1, int step)
 {
-    int strips = (y1 - y0 + STRIP - 1) / STRIP;
+    int strips = (y1 - y0 + step - 1) / step;
     int nt = ctx->nthreads < strips ? ctx->nthreads : strips;
     if (nt < 1)
         return;
     char started[FEAT_MAX_THREADS] = {0};
     atomic_int next = y0;
     for (int t = 0; t < nt; t++)
-        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y1, &next};
+        ctx->jobs[t] = (struct feat_job){ctx, fn, &ctx->wk[t], y1, step, &next};
     for (int t = 1; t < nt; t++)
         started[t] = pthread_create(&ctx->tids[t], NULL, feat_job_run, &ctx->jobs[t]) == 0;
     feat_job_run(&ctx->jobs[0]);
@@ -1135,6 +1252,39 @@ static void feat_run_phase(struct feat_ctx *ctx, feat_phase fn, int y0, int y1)
 static int clamp(int v, int lo, int hi)
 {
     return v < lo ? lo : v > hi ? hi : v;
+}
+
+/* The row passes per source for the current box, in the order the row
+ * phases ran them before they were listed. */
+static void plan_row_passes(struct feat_ctx *ctx)
+{
+    const int gx0 = ctx->gx0, gn = ctx->gx1 - ctx->gx0, bx0 = ctx->box.x0, bn = ctx->box.x1 - ctx->box.x0;
+    int n = 0;
+    for (int i = 0; i < ctx->nsig; i++) {
+        struct feat_sigma *s = &ctx->sig[i];
+        if (s->r0 || s->r1)
+            ctx->grey_pass[n++] = (struct row_pass){s->r, s->k0, s->k1, s->r0, s->r1, gx0, gn};
+        if (s->r2)
+            ctx->grey_pass[n++] = (struct row_pass){s->r, s->k2, NULL, s->r2, NULL, gx0, gn};
+    }
+    if (ctx->sob_d)
+        ctx->grey_pass[n++] = (struct row_pass){1, sobel_smooth, sobel_diff, ctx->sob_s, ctx->sob_d, ctx->wx0,
+                                                ctx->wx1 - ctx->wx0};
+    for (int i = 0; i < ctx->ngab; i++) {
+        struct feat_gabor *gb = &ctx->gab[i];
+        if (!gb->shared)
+            ctx->grey_pass[n++] = (struct row_pass){gb->r, gb->xre, gb->xim, gb->re, gb->im, bx0, bn};
+    }
+    ctx->ngrey_pass = n;
+    ctx->nsq_pass = ctx->nprod_pass = 0;
+    for (int i = 0; i < ctx->nsig; i++) {
+        struct feat_sigma *s = &ctx->sig[i];
+        if (s->q0)
+            ctx->sq_pass[ctx->nsq_pass++] = (struct row_pass){s->r, s->k0, NULL, s->q0, NULL, bx0, bn};
+        for (int c = 0; c < 3 && s->pr[0]; c++)
+            ctx->prod_pass[c][ctx->nprod_pass] = (struct row_pass){s->r, s->k0, NULL, s->pr[c], NULL, bx0, bn};
+        ctx->nprod_pass += s->pr[0] != NULL;
+    }
 }
 
 /* The rows and columns each phase covers for the box.  A pass of radius r
@@ -1157,6 +1307,7 @@ static void set_box(struct feat_ctx *ctx, const struct feat_box *b)
     ctx->my0 = clamp(box.y0 - ctx->rmax, 0, h);
     ctx->my1 = clamp(box.y1 + ctx->rmax, 0, h);
     ctx->ps = (size_t)(ctx->wx1 - ctx->wx0);
+    plan_row_passes(ctx);
 }
 
 /* The filter bank's features alone for the box, into a stack of ctx->n. */
@@ -1167,10 +1318,10 @@ static int bank_compute(struct feat_ctx *ctx, const struct image *img, const str
     ctx->out = out;
     set_box(ctx, box);
     frame_level(ctx, img);
-    feat_run_phase(ctx, phase_rows, ctx->ry0, ctx->ry1);
+    feat_run_phase(ctx, phase_rows, ctx->ry0, ctx->ry1, TGROUP);
     if (ctx->spec.families & (FEAT_HESSIAN | FEAT_STRUCTURE))
-        feat_run_phase(ctx, phase_mid, ctx->my0, ctx->my1);
-    feat_run_phase(ctx, phase_final, ctx->box.y0, ctx->box.y1);
+        feat_run_phase(ctx, phase_mid, ctx->my0, ctx->my1, TGROUP);
+    feat_run_phase(ctx, phase_final, ctx->box.y0, ctx->box.y1, STRIP);
     ctx->img = NULL;
     ctx->out = NULL;
     return ST_OK;
