@@ -891,8 +891,8 @@ static void pass_group(struct feat_ctx *ctx, struct feat_worker *wk, int y, cons
 static void run_passes(struct feat_ctx *ctx, struct feat_worker *wk, int y, int g, const struct row_pass *list,
                        int count)
 {
-    int big = 0;
 #ifdef FEAT_WIDE
+    int big = 0;
     for (int k = 0; k < count && g == TGROUP; k++)
         big |= list[k].r >= TRANSPOSE_MIN_R;
     if (big)
@@ -917,6 +917,8 @@ static int group_rows(int left)
 #ifdef FEAT_WIDE
     if (left >= TGROUP && __builtin_cpu_supports("avx512f"))
         return TGROUP;
+#else
+    (void)left;
 #endif
     return 1;
 }
