@@ -681,25 +681,39 @@ __attribute__((target("avx512f"), always_inline)) static inline void transpose16
         }
 }
 
-/* The same copy on AVX-512: 16 features of 16 pixels are loaded as 16
- * vectors, transposed in registers and stored as 16 pixels' runs of
- * features; a gather per 16 values (the form before) cost a sixth of the
- * bank's time. */
-__attribute__((target("avx512f"))) static void interleave_wide(const float *fb, size_t w, int n, size_t x0,
+/* The first n of 16 lanes (all of them for n >= 16). */
+static inline __mmask16 lanes_first(size_t n)
+{
+    return (__mmask16)(n >= 16 ? 0xffff : (1u << n) - 1);
+}
+
+/* A block of nr <= 16 rows of nc <= 16 values (row i at src + i ss)
+ * transposed into nc rows of nr values (row c at dst + c ds): the three
+ * layout changes of the bank (pixel-major copy, group in, group out) are
+ * each this with their own strides. */
+__attribute__((target("avx512f"), always_inline)) static inline void transpose_block(const float *src, size_t ss,
+                                                                                    size_t nr, size_t nc, float *dst,
+                                                                                    size_t ds)
+{
+    __mmask16 mc = lanes_first(nc), mr = lanes_first(nr);
+    __m512 v[16];
+#pragma GCC unroll 16
+    for (size_t i = 0; i < 16; i++)
+        v[i] = i < nr ? _mm512_maskz_loadu_ps(mc, src + i * ss) : _mm512_setzero_ps();
+    transpose16(v);
+#pragma GCC unroll 16
+    for (size_t c = 0; c < 16; c++)
+        if (c < nc)
+            _mm512_mask_storeu_ps(dst + c * ds, mr, v[c]);
+}
+
+/* The same copy on AVX-512, 16 features of 16 pixels at a time; a gather
+ * per 16 values (the form before) cost a sixth of the bank's time. */
+__attribute__((target("avx512f"))) static void interleave_wide(const float *fb, size_t w, size_t n, size_t x0,
                                                                size_t nx, float *o)
 {
-    __mmask16 mx = (__mmask16)(nx >= 16 ? 0xffff : (1u << nx) - 1);
-    for (int k0 = 0; k0 < n; k0 += 16) {
-        int nk = n - k0 < 16 ? n - k0 : 16;
-        __mmask16 mk = (__mmask16)(nk == 16 ? 0xffff : (1u << nk) - 1);
-        __m512 v[16];
-#pragma GCC unroll 16
-        for (int k = 0; k < 16; k++)
-            v[k] = k < nk ? _mm512_maskz_loadu_ps(mx, fb + (size_t)(k0 + k) * w + x0) : _mm512_setzero_ps();
-        transpose16(v);
-        for (size_t p = 0; p < nx; p++)
-            _mm512_mask_storeu_ps(o + p * (size_t)n + k0, mk, v[p]);
-    }
+    for (size_t k0 = 0; k0 < n; k0 += 16)
+        transpose_block(fb + k0 * w + x0, w, n - k0 < 16 ? n - k0 : 16, nx, o + k0, n);
 }
 
 /* dst[0 .. len) = src[0 .. len) with streaming stores for the whole
@@ -731,7 +745,7 @@ static void interleave_row(const struct feat_ctx *ctx, const struct feat_worker 
 #ifdef FEAT_WIDE
     if (__builtin_cpu_supports("avx512f")) {
         for (size_t x0 = bx0; x0 < x1; x0 += 16)
-            interleave_wide(fb, w, ctx->n, x0, x1 - x0 < 16 ? x1 - x0 : 16, wk->orow + (x0 - bx0) * n);
+            interleave_wide(fb, w, n, x0, x1 - x0 < 16 ? x1 - x0 : 16, wk->orow + (x0 - bx0) * n);
         stream_copy(o, wk->orow, (x1 - bx0) * n);
         return;
     }
@@ -831,36 +845,18 @@ static void pass_row(struct feat_ctx *ctx, struct feat_worker *wk, const float *
 /* The group's padded rows into wk->tp, column by column. */
 __attribute__((target("avx512f"))) static void group_transpose_in(const struct feat_ctx *ctx, struct feat_worker *wk)
 {
-    int pw = ctx->pw;
-    for (int c0 = 0; c0 < pw; c0 += 16) {
-        __mmask16 m = (__mmask16)(pw - c0 >= 16 ? 0xffff : (1u << (pw - c0)) - 1);
-        __m512 v[16];
-#pragma GCC unroll 16
-        for (int i = 0; i < 16; i++)
-            v[i] = _mm512_maskz_loadu_ps(m, wk->pads + (size_t)i * pw + c0);
-        transpose16(v);
-#pragma GCC unroll 16
-        for (int c = 0; c < 16; c++)
-            _mm512_storeu_ps(wk->tp + (size_t)(c0 + c) * 16, v[c]);
-    }
+    size_t pw = (size_t)ctx->pw;
+    for (size_t c0 = 0; c0 < pw; c0 += 16)
+        transpose_block(wk->pads + c0, pw, 16, pw - c0 < 16 ? pw - c0 : 16, wk->tp + c0 * 16, 16);
 }
 
 /* n transposed output columns back into rows y .. y + 15 of a plane at x0. */
 __attribute__((target("avx512f"))) static void group_transpose_out(const struct feat_ctx *ctx, const float *to, int n,
                                                                    float *plane, int y, int x0)
 {
-    for (int c0 = 0; c0 < n; c0 += 16) {
-        int nc = n - c0 < 16 ? n - c0 : 16;
-        __mmask16 m = (__mmask16)(nc == 16 ? 0xffff : (1u << nc) - 1);
-        __m512 v[16];
-#pragma GCC unroll 16
-        for (int c = 0; c < 16; c++)
-            v[c] = c < nc ? _mm512_loadu_ps(to + (size_t)(c0 + c) * 16) : _mm512_setzero_ps();
-        transpose16(v);
-#pragma GCC unroll 16
-        for (int i = 0; i < 16; i++)
-            _mm512_mask_storeu_ps(at(ctx, plane, y + i, x0 + c0), m, v[i]);
-    }
+    for (int c0 = 0; c0 < n; c0 += 16)
+        transpose_block(to + (size_t)c0 * 16, 16, (size_t)(n - c0 < 16 ? n - c0 : 16), 16, at(ctx, plane, y, x0 + c0),
+                        (size_t)ctx->ps);
 }
 
 /* Pass d over the TGROUP rows from y, transposed: a row pass reads
