@@ -29,10 +29,10 @@ static void usage(FILE *f)
                "regions, verdict and the whole inspection, and the process's peak resident\n"
                "memory (frames are rendered first; frames_mb of it are those frames), and\n"
 "which tree walk the model got (walk: rank, wide or scalar; core/forest.h). With\n"
-               "--xgboost, each frame is also done without the locating pass:\n"
+               "--xgboost, the same frames are then done again without the locating pass:\n"
                "the filter bank over the whole frame (filter_bank) and our evaluator on every\n"
-               "pixel (forest_all_pixels), then XGBoost's XGBoosterPredictFromDense on the\n"
-               "same features and model; max_abs_dp is the largest difference between its\n"
+               "pixel (forest_all_pixels), and after that, each frame's features again,\n"
+               "XGBoost's XGBoosterPredictFromDense on them with the same model; max_abs_dp is the largest difference between its\n"
                "probabilities and ours, class_mismatches the pixels whose most likely class\n"
                "differs, both on the first frame; fma_peak the multiply-adds per second of a\n"
                "register-only kernel on N threads and filter_floor the filter passes' own\n"
@@ -151,6 +151,131 @@ static json_t *stat_json(double *v, int n)
     return json_pack("{s:f,s:f,s:f}", "median", med, "min", v[0], "max", v[n - 1]);
 }
 
+enum { NSTAGES = 8 };
+
+/* The frames and the figures the three timed phases fill. */
+struct bench_run {
+    struct inspector *in;
+    struct booster *b;
+    struct image **frames; /* frame, truth of warm-up and every timed frame */
+    int repeat, nclasses;
+    size_t npix;
+    double *v; /* repeat rows of NSTAGES figures */
+    uint8_t *located;
+    float *prob, *ours;
+    double max_dp, agreement, coarse_agreement;
+    size_t mismatches;
+};
+
+static double bench_same_share(const struct bench_run *br)
+{
+    size_t same = 0;
+    for (size_t i = 0; i < br->npix; i++)
+        same += br->located[i] == inspector_classes(br->in)->px[i];
+    return (double)same / (double)br->npix;
+}
+
+/* Every frame inspected back to back, as at the station.  Frame -1 (the
+ * warm-up: first touch of the buffers is not the steady state) also says
+ * how far the locating pass and the coarse option move its class map. */
+static int bench_inspections(struct bench_run *br, const char *save_dir, int compare_maps, int coarse,
+                             struct err *e)
+{
+    for (int k = -1; k < br->repeat; k++) {
+        const struct image *img = br->frames[2 * (k + 1)], *truth = br->frames[2 * (k + 1) + 1];
+        struct judgement j;
+        struct inspect_times t;
+        if (inspector_run(br->in, img, &j, &t, e))
+            return -1;
+        if (k == 0 && save_dir && save_frame(save_dir, img, truth, e))
+            return -1;
+        if (k < 0 && compare_maps) {
+            memcpy(br->located, inspector_classes(br->in)->px, br->npix);
+            if (coarse) {
+                inspector_set_coarse(br->in, 0);
+                int rc = inspector_classify(br->in, img, NULL, e);
+                inspector_set_coarse(br->in, 1);
+                if (rc)
+                    return -1;
+                br->coarse_agreement = bench_same_share(br);
+            }
+            inspector_set_locating(br->in, 0);
+            int rc = inspector_classify(br->in, img, NULL, e);
+            inspector_set_locating(br->in, 1);
+            if (rc)
+                return -1;
+            br->agreement = bench_same_share(br);
+        }
+        if (k < 0)
+            continue;
+        double *row = br->v + (size_t)k * NSTAGES;
+        row[0] = t.features_ms;
+        row[1] = t.classify_ms;
+        row[2] = t.regions_ms;
+        row[3] = t.verdict_ms;
+        row[4] = t.features_ms + t.classify_ms + t.regions_ms + t.verdict_ms;
+    }
+    return 0;
+}
+
+/* The bank alone over each whole frame, frame after frame, as the OpenCV
+ * peer runs it: timed after the classifier, it started with the caches
+ * full of the feature stack the classifier had just read (29 ms against
+ * 21 at 640x480 on two threads). */
+static int bench_bank(struct bench_run *br, struct feat_ctx *fc, struct fstack *fs, struct err *e)
+{
+    for (int k = -1; k < br->repeat; k++) {
+        double t0 = cli_now_ms();
+        if (feat_compute(fc, br->frames[2 * (k + 1)], fs, e))
+            return -1;
+        if (k >= 0)
+            br->v[(size_t)k * NSTAGES + 7] = cli_now_ms() - t0;
+    }
+    return 0;
+}
+
+/* The same frames without the locating pass: our evaluator on every pixel;
+ * then, in a phase of its own, XGBoost on each frame's features.  Apart
+ * because libgomp's threads spin for milliseconds after each of XGBoost's
+ * calls, and whatever ran next shared the two cores with them (features of
+ * the inspection 15.6 ms against 11.5 alone). */
+static int bench_whole_frames(struct bench_run *br, struct err *e)
+{
+    for (int k = -1; k < br->repeat; k++) {
+        struct inspect_times full;
+        if (inspector_classify(br->in, br->frames[2 * (k + 1)], &full, e))
+            return -1;
+        if (k >= 0)
+            br->v[(size_t)k * NSTAGES + 6] = full.classify_ms;
+    }
+    for (int k = -1; k < br->repeat; k++) {
+        if (inspector_classify(br->in, br->frames[2 * (k + 1)], NULL, e))
+            return -1;
+        const struct fstack *fs = inspector_features(br->in);
+        double t0 = cli_now_ms();
+        if (booster_predict(br->b, fs->v, br->npix, fs->n, br->nclasses, br->prob, e))
+            return -1;
+        if (k >= 0) {
+            br->v[(size_t)k * NSTAGES + 5] = cli_now_ms() - t0;
+            continue;
+        }
+        /* the agreement of our evaluator with XGBoost's on this real model */
+        forest_predict(inspector_forest(br->in), fs->v, br->npix, fs->n, br->ours);
+        int K = br->nclasses;
+        for (size_t i = 0; i < br->npix; i++) {
+            int a = 0, bx = 0;
+            for (int q = 0; q < K; q++) {
+                double d = fabs((double)br->ours[i * K + q] - br->prob[i * K + q]);
+                br->max_dp = d > br->max_dp ? d : br->max_dp;
+                a = br->ours[i * K + q] > br->ours[i * K + a] ? q : a;
+                bx = br->prob[i * K + q] > br->prob[i * K + bx] ? q : bx;
+            }
+            br->mismatches += a != bx;
+        }
+    }
+    return 0;
+}
+
 int cmd_bench(int argc, char **argv)
 {
     if (cli_wants_help(argc, argv)) {
@@ -196,12 +321,11 @@ int cmd_bench(int argc, char **argv)
     err_clear(&e);
     struct inspector *in = NULL;
     struct booster *b = NULL;
+    struct feat_ctx *fc = NULL; /* --xgboost: the bank alone */
+    struct fstack *bank = NULL;
     struct image **frames = NULL;  /* frame, truth of warm-up and every timed frame */
     float *prob = NULL, *ours = NULL;
     uint8_t *located = NULL;
-    double max_dp = 0, agreement = -1, coarse_agreement = -1;
-    size_t mismatches = 0;
-    enum { NSTAGES = 8 };
     double *v = calloc((size_t)repeat * NSTAGES, sizeof *v);
     int status = EXIT_ERROR;
     struct simbench_conditions cond;
@@ -233,86 +357,18 @@ int cmd_bench(int argc, char **argv)
         err_set(&e, ST_ENOMEM, "out of memory");
         goto done;
     }
-    /* one warm-up frame: first touch of the buffers is not the steady state */
-    for (int k = -1; k < repeat; k++) {
-        const struct image *img = frames[2 * (k + 1)], *truth = frames[2 * (k + 1) + 1];
-        struct judgement j;
-        struct inspect_times t;
-        if (inspector_run(in, img, &j, &t, &e))
+    struct bench_run br = {in, b, frames, repeat, r.nclasses, npix, v, located, prob, ours, 0, -1, -1, 0};
+    if (bench_inspections(&br, save_dir, !frames_only, r.coarse_classify, &e))
+        goto done;
+    if (xgb) {
+        if (!(fc = feat_ctx_new(&r.feat, w, h, &e)) || !(bank = fstack_new(w, h, feat_count(&r.feat), &e)) ||
+            bench_bank(&br, fc, bank, &e))
             goto done;
-        if (k == 0 && save_dir && save_frame(save_dir, img, truth, &e))
+        inspector_set_locating(in, 0);
+        int rc = bench_whole_frames(&br, &e);
+        inspector_set_locating(in, 1);
+        if (rc)
             goto done;
-        int compare = k < 0 && !frames_only;
-        if (compare)
-            memcpy(located, inspector_classes(in)->px, npix);
-        if (compare && r.coarse_classify) {
-            /* how far the coarse approximation moves the class map from the exact pixel pass */
-            inspector_set_coarse(in, 0);
-            int rc = inspector_classify(in, img, NULL, &e);
-            inspector_set_coarse(in, 1);
-            if (rc)
-                goto done;
-            size_t same = 0;
-            for (size_t i = 0; i < npix; i++)
-                same += located[i] == inspector_classes(in)->px[i];
-            coarse_agreement = (double)same / (double)npix;
-        }
-        double x = 0, all = 0, bank = 0;
-        if (xgb) {
-            /* the same frame without the locating pass: the whole frame's
-             * features and every pixel classified, then XGBoost on them */
-            struct inspect_times full;
-            inspector_set_locating(in, 0);
-            int rc = inspector_classify(in, img, &full, &e);
-            inspector_set_locating(in, 1);
-            if (rc)
-                goto done;
-            bank = full.features_ms;
-            all = full.classify_ms;
-            const struct fstack *fs = inspector_features(in);
-            double t0 = cli_now_ms();
-            if (booster_predict(b, fs->v, npix, fs->n, r.nclasses, prob, &e))
-                goto done;
-            x = cli_now_ms() - t0;
-            if (k < 0) {
-                /* the agreement of our evaluator with XGBoost's on this real model */
-                forest_predict(inspector_forest(in), fs->v, npix, fs->n, ours);
-                int K = r.nclasses;
-                for (size_t i = 0; i < npix; i++) {
-                    int a = 0, bx = 0;
-                    for (int q = 0; q < K; q++) {
-                        double d = fabs((double)ours[i * K + q] - prob[i * K + q]);
-                        max_dp = d > max_dp ? d : max_dp;
-                        a = ours[i * K + q] > ours[i * K + a] ? q : a;
-                        bx = prob[i * K + q] > prob[i * K + bx] ? q : bx;
-                    }
-                    mismatches += a != bx;
-                }
-            }
-        }
-        if (compare) {
-            /* how far the locating pass changes the class map of this frame */
-            inspector_set_locating(in, 0);
-            int rc = xgb ? ST_OK : inspector_classify(in, img, NULL, &e);
-            inspector_set_locating(in, 1);
-            if (rc)
-                goto done;
-            size_t same = 0;
-            for (size_t i = 0; i < npix; i++)
-                same += located[i] == inspector_classes(in)->px[i];
-            agreement = (double)same / (double)npix;
-        }
-        if (k < 0)
-            continue;
-        double *row = v + (size_t)k * NSTAGES;
-        row[0] = t.features_ms;
-        row[1] = t.classify_ms;
-        row[2] = t.regions_ms;
-        row[3] = t.verdict_ms;
-        row[4] = t.features_ms + t.classify_ms + t.regions_ms + t.verdict_ms;
-        row[5] = x;
-        row[6] = all;
-        row[7] = bank;
     }
     static const char *names[NSTAGES] = {"features", "classify", "regions", "verdict", "total",
                                          "xgboost_predict", "forest_all_pixels", "filter_bank"};
@@ -321,18 +377,14 @@ int cmd_bench(int argc, char **argv)
                           feat_count(&r.feat), "trees", forest_ntrees(inspector_forest(in)),
                           "depth", forest_max_depth(inspector_forest(in)), "classes",
                           r.nclasses, "walk", forest_walk(inspector_forest(in)));
-    if (agreement >= 0)
-        json_object_set_new(o, "locating_agreement", json_real(agreement));
-    if (coarse_agreement >= 0)
-        json_object_set_new(o, "coarse_agreement", json_real(coarse_agreement));
+    if (br.agreement >= 0)
+        json_object_set_new(o, "locating_agreement", json_real(br.agreement));
+    if (br.coarse_agreement >= 0)
+        json_object_set_new(o, "coarse_agreement", json_real(br.coarse_agreement));
     if (xgb) {
-        json_object_set_new(o, "max_abs_dp", json_real(max_dp));
-        json_object_set_new(o, "class_mismatches", json_integer((json_int_t)mismatches));
-        struct feat_ctx *fc = feat_ctx_new(&r.feat, w, h, &e);
-        if (!fc)
-            goto done;
+        json_object_set_new(o, "max_abs_dp", json_real(br.max_dp));
+        json_object_set_new(o, "class_mismatches", json_integer((json_int_t)br.mismatches));
         double ops = feat_pass_ops(fc), peak = fma_peak(threads);
-        feat_ctx_free(fc);
         json_object_set_new(o, "filter_ops_per_px", json_real(ops));
         json_object_set_new(o, "fma_peak", json_real(peak));
         json_object_set_new(o, "filter_floor_ms", json_real(peak > 0 ? ops * (double)npix / peak * 1e3 : 0));
@@ -362,6 +414,8 @@ done:
         image_free(frames[k]);
     free(frames);
     booster_free(b);
+    fstack_free(bank);
+    feat_ctx_free(fc);
     inspector_free(in);
     return status;
 }
