@@ -23,25 +23,29 @@
 static void usage(FILE *f)
 {
     fprintf(f, "usage: station bench RECIPE [--size WxH] [--threads N] [--repeat K] [--xgboost]\n"
-               "                    [--frames-only] [--save-frame DIR]\n\n"
+               "                    [--frames-only] [--save-frame DIR]\n"
+               "\n"
                "Inspects K simulated-bench frames of the given size with N threads and prints\n"
                "one JSON line: median, min and max milliseconds of features, classify,\n"
                "regions, verdict and the whole inspection, and the process's peak resident\n"
                "memory (frames are rendered first; frames_mb of it are those frames), and\n"
-"which tree walk the model got (walk: rank, wide or scalar; core/forest.h). With\n"
-               "--xgboost, the same frames are then done again without the locating pass:\n"
-               "the filter bank over the whole frame (filter_bank) and our evaluator on every\n"
-               "pixel (forest_all_pixels), and after that, each frame's features again,\n"
-               "XGBoost's XGBoosterPredictFromDense on them with the same model; max_abs_dp is the largest difference between its\n"
-               "probabilities and ours, class_mismatches the pixels whose most likely class\n"
-               "differs, both on the first frame; fma_peak the multiply-adds per second of a\n"
-               "register-only kernel on N threads and filter_floor the filter passes' own\n"
-               "arithmetic (filter_ops_per_px) at that rate. locating_agreement is the share\n"
-               "of the warm-up frame's pixels whose class is the same with and without the\n"
-               "locating pass (--frames-only skips it); with a recipe's [classifier] coarse\n"
-               "on, coarse_agreement the share that is the same with and without it.\n"
-               "--save-frame writes the first\n"
-               "frame and its true classes as DIR/frame.png and DIR/truth.png.\n");
+               "which tree walk the model got (walk: rank, wide or scalar; core/forest.h).\n"
+               "\n"
+               "With --xgboost, the same frames are then done again, each measure in a phase\n"
+               "of its own: the filter bank alone over each whole frame (filter_bank), our\n"
+               "evaluator on every pixel without the locating pass (forest_all_pixels), and\n"
+               "XGBoost's XGBoosterPredictFromDense on each frame's features with the same\n"
+               "model. max_abs_dp is the largest difference between its probabilities and\n"
+               "ours, class_mismatches the pixels whose most likely class differs, both on the\n"
+               "first frame; fma_peak the multiply-adds per second of a register-only kernel\n"
+               "on N threads, measured just before the bank, and filter_floor the filter\n"
+               "passes' own arithmetic (filter_ops_per_px) at that rate.\n"
+               "\n"
+               "locating_agreement is the share of the warm-up frame's pixels whose class is\n"
+               "the same with and without the locating pass (--frames-only skips it); with a\n"
+               "recipe's [classifier] coarse on, coarse_agreement the share that is the same\n"
+               "with and without it. --save-frame writes the first frame and its true classes\n"
+               "as DIR/frame.png and DIR/truth.png.\n");
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -360,7 +364,11 @@ int cmd_bench(int argc, char **argv)
     struct bench_run br = {in, b, frames, repeat, r.nclasses, npix, v, located, prob, ours, 0, -1, -1, 0};
     if (bench_inspections(&br, save_dir, !frames_only, r.coarse_classify, &e))
         goto done;
+    double peak = 0;
     if (xgb) {
+        /* the peak just before the bank: on a shared machine the floor is
+         * then the one of the moment the bank ran in */
+        peak = fma_peak(threads);
         if (!(fc = feat_ctx_new(&r.feat, w, h, &e)) || !(bank = fstack_new(w, h, feat_count(&r.feat), &e)) ||
             bench_bank(&br, fc, bank, &e))
             goto done;
@@ -384,7 +392,7 @@ int cmd_bench(int argc, char **argv)
     if (xgb) {
         json_object_set_new(o, "max_abs_dp", json_real(br.max_dp));
         json_object_set_new(o, "class_mismatches", json_integer((json_int_t)br.mismatches));
-        double ops = feat_pass_ops(fc), peak = fma_peak(threads);
+        double ops = feat_pass_ops(fc);
         json_object_set_new(o, "filter_ops_per_px", json_real(ops));
         json_object_set_new(o, "fma_peak", json_real(peak));
         json_object_set_new(o, "filter_floor_ms", json_real(peak > 0 ? ops * (double)npix / peak * 1e3 : 0));
