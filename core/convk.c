@@ -44,107 +44,47 @@ struct dblock {
     int ci0, nci, first, last;
 };
 
-__attribute__((target("avx512f"))) static void direct_6(const struct dblock *k, int x0, int cb, float *o)
-{
-    const struct onnx_op *op = k->op;
-    int cin = k->cin, cout = k->cout, os = k->os, first = k->first;
-    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
-    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
-    float *oa = o + cb, *ob = oa + os, *oc = ob + os, *od = oc + os, *oe = od + os, *of = oe + os;
-    ACC4(a, oa);
-    ACC4(b, ob);
-    ACC4(c, oc);
-    ACC4(d, od);
-    ACC4(e, oe);
-    ACC4(f, of);
-    for (int ky = 0; ky < op->kh; ky++)
-        for (int kx = 0; kx < op->kw; kx++) {
-            const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;
-            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
-            for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
-                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
-                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
-                __m512 v = _mm512_set1_ps(x[0]);
-                FMA4(a, v);
-                v = _mm512_set1_ps(x[cin]);
-                FMA4(b, v);
-                v = _mm512_set1_ps(x[2 * cin]);
-                FMA4(c, v);
-                v = _mm512_set1_ps(x[3 * cin]);
-                FMA4(d, v);
-                v = _mm512_set1_ps(x[4 * cin]);
-                FMA4(e, v);
-                v = _mm512_set1_ps(x[5 * cin]);
-                FMA4(f, v);
-            }
-        }
-    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
-    STORE4(a, oa);
-    STORE4(b, ob);
-    STORE4(c, oc);
-    STORE4(d, od);
-    STORE4(e, oe);
-    STORE4(f, of);
-}
+/* The pixels of a kernel: each one's accumulator name and its offset in
+ * pixels, so that one body serves the 6-, 4- and 1-pixel kernels with
+ * named accumulators. */
+#define PIXELS_6(X) X(a, 0) X(b, 1) X(c, 2) X(d, 3) X(e, 4) X(f, 5)
+#define PIXELS_4(X) X(a, 0) X(b, 1) X(c, 2) X(d, 3)
+#define PIXELS_1(X) X(a, 0)
+#define PIX_OUT(q, p) float *o##q = o + cb + (p) * os;
+#define PIX_ACC(q, p) ACC4(q, o##q);
+#define PIX_FMA(q, p)                                                                                               \
+    {                                                                                                               \
+        __m512 v = _mm512_set1_ps(x[(p) * cin]);                                                                      \
+        FMA4(q, v);                                                                                                 \
+    }
+#define PIX_STORE(q, p) STORE4(q, o##q);
+#define DIRECT_KERNEL(name, PIXELS)                                                                                 \
+    __attribute__((target("avx512f"))) static void name(const struct dblock *k, int x0, int cb, float *o)          \
+    {                                                                                                               \
+        const struct onnx_op *op = k->op;                                                                           \
+        int cin = k->cin, cout = k->cout, os = k->os, first = k->first;                                             \
+        __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);                             \
+        __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);                        \
+        PIXELS(PIX_OUT)                                                                                             \
+        PIXELS(PIX_ACC)                                                                                             \
+        for (int ky = 0; ky < op->kh; ky++)                                                                         \
+            for (int kx = 0; kx < op->kw; kx++) {                                                                   \
+                const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;                   \
+                const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;                  \
+                for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {                                              \
+                    __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);                                 \
+                    __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);                            \
+                    PIXELS(PIX_FMA)                                                                                 \
+                }                                                                                                   \
+            }                                                                                                       \
+        __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY); \
+        PIXELS(PIX_STORE)                                                                                           \
+    }
 
-__attribute__((target("avx512f"))) static void direct_1(const struct dblock *k, int x0, int cb, float *o)
-{
-    const struct onnx_op *op = k->op;
-    int cin = k->cin, cout = k->cout, first = k->first;
-    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
-    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
-    float *oa = o + cb;
-    ACC4(a, oa);
-    for (int ky = 0; ky < op->kh; ky++)
-        for (int kx = 0; kx < op->kw; kx++) {
-            const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;
-            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
-            for (int ci = 0; ci < k->nci; ci++, wt += cout) {
-                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
-                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
-                __m512 v = _mm512_set1_ps(x[ci]);
-                FMA4(a, v);
-            }
-        }
-    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
-    STORE4(a, oa);
-}
-
+DIRECT_KERNEL(direct_6, PIXELS_6)
 /* Four pixels: a row's remainder of 4 or 5 (640 = 6 x 106 + 4). */
-__attribute__((target("avx512f"))) static void direct_4(const struct dblock *k, int x0, int cb, float *o)
-{
-    const struct onnx_op *op = k->op;
-    int cin = k->cin, cout = k->cout, os = k->os, first = k->first;
-    __m512 z0 = _mm512_loadu_ps(op->b + cb), z1 = _mm512_loadu_ps(op->b + cb + 16);
-    __m512 z2 = _mm512_loadu_ps(op->b + cb + 32), z3 = _mm512_loadu_ps(op->b + cb + 48);
-    float *oa = o + cb, *ob = oa + os, *oc = ob + os, *od = oc + os;
-    ACC4(a, oa);
-    ACC4(b, ob);
-    ACC4(c, oc);
-    ACC4(d, od);
-    for (int ky = 0; ky < op->kh; ky++)
-        for (int kx = 0; kx < op->kw; kx++) {
-            const float *x = k->rows[ky] + ((size_t)x0 + (size_t)kx * op->dw) * cin + k->ci0;
-            const float *wt = op->w + ((size_t)(ky * op->kw + kx) * cin + k->ci0) * cout + cb;
-            for (int ci = 0; ci < k->nci; ci++, wt += cout, x++) {
-                __m512 w0 = _mm512_loadu_ps(wt), w1 = _mm512_loadu_ps(wt + 16);
-                __m512 w2 = _mm512_loadu_ps(wt + 32), w3 = _mm512_loadu_ps(wt + 48);
-                __m512 v = _mm512_set1_ps(x[0]);
-                FMA4(a, v);
-                v = _mm512_set1_ps(x[cin]);
-                FMA4(b, v);
-                v = _mm512_set1_ps(x[2 * cin]);
-                FMA4(c, v);
-                v = _mm512_set1_ps(x[3 * cin]);
-                FMA4(d, v);
-            }
-        }
-    __m512 lo = _mm512_set1_ps(k->last ? op->lo : -INFINITY), hi = _mm512_set1_ps(k->last ? op->hi : INFINITY);
-    STORE4(a, oa);
-    STORE4(b, ob);
-    STORE4(c, oc);
-    STORE4(d, od);
-}
+DIRECT_KERNEL(direct_4, PIXELS_4)
+DIRECT_KERNEL(direct_1, PIXELS_1)
 
 void convk_run_direct(const float *const *rows, int cin, int cout, const struct onnx_op *op, int w, float *o, int os)
 {
