@@ -252,6 +252,36 @@ static int chain_key(struct central *c, const char **key, struct err *e)
                    logpg_name(c->pg), n, names);
 }
 
+/* Runs sql on the one chain the reader is on: $1 is that chain's station
+ * (into *key when key is not NULL), $2 on the nmore values of more. */
+static int chain_run(struct central *c, const char *sql, const char *const *more, int nmore, const char *what,
+                     const char **key, PGresult **out, struct err *e)
+{
+    enum { MORE_MAX = 4 };
+    const char *p[1 + MORE_MAX];
+    int rc = nmore > MORE_MAX ? err_set(e, ST_EINVAL, "chain_run: %d parameters", nmore) : chain_key(c, &p[0], e);
+    if (rc)
+        return rc;
+    for (int i = 0; i < nmore; i++)
+        p[1 + i] = more[i];
+    if (key)
+        *key = p[0];
+    *out = run(c, sql, 1 + nmore, p, what, e);
+    return *out ? ST_OK : e ? e->code : ST_ELIB;
+}
+
+/* chain_run's rows, each read into an element of elem bytes (rows_read);
+ * *out is NULL when it fails. */
+static int chain_rows(struct central *c, const char *sql, const char *const *more, int nmore, const char *what,
+                      size_t elem, int (*read)(PGresult *, int, void *), void (*free_rows)(void *, int),
+                      void **out, int *n, struct err *e)
+{
+    PGresult *r;
+    *out = NULL;
+    int rc = chain_run(c, sql, more, nmore, what, NULL, &r, e);
+    return rc ? rc : rows_read(c, r, elem, read, free_rows, out, n, e);
+}
+
 static int scope(void *self, const char *station, struct err *e)
 {
     struct central *c = self;
@@ -518,24 +548,17 @@ static void free_dispositions(void *a, int n)
 static int dispositions_get(void *self, int64_t seq, struct log_disposition **out, int *n,
                             struct err *e)
 {
-    struct central *c = self;
-    const char *key;
-    int rc = chain_key(c, &key, e);
-    if (rc)
-        return rc;
     char num[24];
     snprintf(num, sizeof num, "%" PRId64, seq);
-    const char *p[2] = {key, num};
-    PGresult *r = run(c,
-                      seq > 0 ? "SELECT " DISP_COLS " FROM dispositions WHERE station = $1"
-                                " AND record_seq = $2 ORDER BY dseq"
-                              : "SELECT " DISP_COLS " FROM dispositions WHERE station = $1"
-                                " ORDER BY dseq",
-                      seq > 0 ? 2 : 1, p, "cannot read dispositions", e);
-    if (!r)
-        return e ? e->code : ST_ELIB;
-    void *a = NULL;
-    rc = rows_read(c, r, sizeof **out, read_disposition_row, free_dispositions, &a, n, e);
+    const char *more[1] = {num};
+    void *a;
+    int rc = chain_rows(self,
+                        seq > 0 ? "SELECT " DISP_COLS " FROM dispositions WHERE station = $1"
+                                  " AND record_seq = $2 ORDER BY dseq"
+                                : "SELECT " DISP_COLS " FROM dispositions WHERE station = $1"
+                                  " ORDER BY dseq",
+                        more, seq > 0, "cannot read dispositions", sizeof **out, read_disposition_row,
+                        free_dispositions, &a, n, e);
     *out = a;
     return rc;
 }
@@ -544,17 +567,14 @@ static int record_hash(void *self, int64_t seq, char hex[SHA256_HEX_LEN], struct
 {
     struct central *c = self;
     hex[0] = '\0';
-    const char *key;
-    int rc = chain_key(c, &key, e);
-    if (rc)
-        return rc;
     char num[24];
     snprintf(num, sizeof num, "%" PRId64, seq);
-    const char *p[2] = {key, num};
-    PGresult *r = run(c, "SELECT hash FROM records WHERE station = $1 AND seq = $2", 2, p,
-                      "cannot read a record", e);
-    if (!r)
-        return e ? e->code : ST_ELIB;
+    const char *more[1] = {num}, *key;
+    PGresult *r;
+    int rc = chain_run(c, "SELECT hash FROM records WHERE station = $1 AND seq = $2", more, 1,
+                       "cannot read a record", &key, &r, e);
+    if (rc)
+        return rc;
     if (PQntuples(r) == 1)
         col_copy(r, 0, 0, hex, SHA256_HEX_LEN);
     PQclear(r);
@@ -588,21 +608,17 @@ static int verification_last(void *self, const char *station, const char *recipe
     struct central *c = self;
     memset(v, 0, sizeof *v);
     *found = 0;
-    const char *key;
-    int rc = chain_key(c, &key, e);
-    if (rc)
-        return rc;
     char ver[16];
     snprintf(ver, sizeof ver, "%d", recipe_version);
-    const char *p[5] = {key, station ? station : "", recipe_id ? recipe_id : "", ver,
-                        model_sha256 ? model_sha256 : ""};
-    PGresult *r = run(c,
-                      "SELECT " VER_COLS " FROM verifications WHERE station = $1"
-                      " AND rec_station = $2 AND recipe_id = $3 AND recipe_version = $4"
-                      " AND model_sha256 = $5 ORDER BY vseq DESC LIMIT 1",
-                      5, p, "cannot read the last verification", e);
-    if (!r)
-        return e ? e->code : ST_ELIB;
+    const char *more[4] = {station ? station : "", recipe_id ? recipe_id : "", ver, model_sha256 ? model_sha256 : ""};
+    PGresult *r;
+    int rc = chain_run(c,
+                       "SELECT " VER_COLS " FROM verifications WHERE station = $1"
+                       " AND rec_station = $2 AND recipe_id = $3 AND recipe_version = $4"
+                       " AND model_sha256 = $5 ORDER BY vseq DESC LIMIT 1",
+                       more, 4, "cannot read the last verification", NULL, &r, e);
+    if (rc)
+        return rc;
     *found = PQntuples(r) == 1;
     if (*found)
         read_verification(r, 0, v, 0);
@@ -622,18 +638,10 @@ static void free_verifications(void *a, int n)
 
 static int verifications_get(void *self, struct log_verification **out, int *n, struct err *e)
 {
-    struct central *c = self;
-    const char *key;
-    int rc = chain_key(c, &key, e);
-    if (rc)
-        return rc;
-    const char *p[1] = {key};
-    PGresult *r = run(c, "SELECT " VER_COLS " FROM verifications WHERE station = $1 ORDER BY vseq",
-                      1, p, "cannot read the verifications", e);
-    if (!r)
-        return e ? e->code : ST_ELIB;
-    void *a = NULL;
-    rc = rows_read(c, r, sizeof **out, read_verification_row, free_verifications, &a, n, e);
+    void *a;
+    int rc = chain_rows(self, "SELECT " VER_COLS " FROM verifications WHERE station = $1 ORDER BY vseq", NULL, 0,
+                        "cannot read the verifications", sizeof **out, read_verification_row, free_verifications,
+                        &a, n, e);
     *out = a;
     return rc;
 }
@@ -650,21 +658,12 @@ static int read_purge(PGresult *r, int i, void *out)
 
 static int purges_get(void *self, struct log_purge **out, int *n, struct err *e)
 {
-    struct central *c = self;
-    const char *key;
-    int rc = chain_key(c, &key, e);
-    if (rc)
-        return rc;
-    const char *p[1] = {key};
+    void *a;
     /* PostgreSQL keeps no insertion order a query can rely on */
-    PGresult *r = run(c,
-                      "SELECT name, record_seq, utc, reason FROM evidence_purged"
-                      " WHERE station = $1 ORDER BY utc, record_seq, name COLLATE \"C\"",
-                      1, p, "cannot read the evidence purges", e);
-    if (!r)
-        return e ? e->code : ST_ELIB;
-    void *a = NULL;
-    rc = rows_read(c, r, sizeof **out, read_purge, free_plain, &a, n, e);
+    int rc = chain_rows(self,
+                        "SELECT name, record_seq, utc, reason FROM evidence_purged"
+                        " WHERE station = $1 ORDER BY utc, record_seq, name COLLATE \"C\"",
+                        NULL, 0, "cannot read the evidence purges", sizeof **out, read_purge, free_plain, &a, n, e);
     *out = a;
     return rc;
 }
@@ -673,18 +672,14 @@ static int signing_get(void *self, struct log_signing *s, struct err *e)
 {
     struct central *c = self;
     memset(s, 0, sizeof *s);
-    const char *key;
-    int rc = chain_key(c, &key, e);
+    PGresult *r;
+    int rc = chain_run(c,
+                       "SELECT public_key, statement_sig, signed_from_record,"
+                       " signed_from_disposition, signed_from_verification FROM stations"
+                       " WHERE station = $1",
+                       NULL, 0, "cannot read the station's signing key", NULL, &r, e);
     if (rc)
         return rc;
-    const char *p[1] = {key};
-    PGresult *r = run(c,
-                      "SELECT public_key, statement_sig, signed_from_record,"
-                      " signed_from_disposition, signed_from_verification FROM stations"
-                      " WHERE station = $1",
-                      1, p, "cannot read the station's signing key", e);
-    if (!r)
-        return e ? e->code : ST_ELIB;
     if (PQntuples(r) == 1) {
         col_copy(r, 0, 0, s->public_key, sizeof s->public_key);
         col_copy(r, 0, 1, s->statement_sig, sizeof s->statement_sig);
