@@ -155,7 +155,8 @@ static json_t *stat_json(double *v, int n)
     return json_pack("{s:f,s:f,s:f}", "median", med, "min", v[0], "max", v[n - 1]);
 }
 
-enum { NSTAGES = 8 };
+/* the figures of a frame, in the order of names[] in cmd_bench */
+enum { S_FEATURES, S_CLASSIFY, S_REGIONS, S_VERDICT, S_TOTAL, S_XGBOOST, S_ALL_PIXELS, S_BANK, NSTAGES };
 
 /* The frames and the figures the three timed phases fill. */
 struct bench_run {
@@ -179,6 +180,20 @@ static double bench_same_share(const struct bench_run *br)
     return (double)same / (double)br->npix;
 }
 
+/* The share of img's pixels whose class stays that of br->located with
+ * an option of the inspector (set) off for one classification. */
+static int bench_share_without(struct bench_run *br, const struct image *img, void (*set)(struct inspector *, int),
+                               double *share, struct err *e)
+{
+    set(br->in, 0);
+    int rc = inspector_classify(br->in, img, NULL, e);
+    set(br->in, 1);
+    if (rc)
+        return -1;
+    *share = bench_same_share(br);
+    return 0;
+}
+
 /* Every frame inspected back to back, as at the station.  Frame -1 (the
  * warm-up: first touch of the buffers is not the steady state) also says
  * how far the locating pass and the coarse option move its class map. */
@@ -195,37 +210,26 @@ static int bench_inspections(struct bench_run *br, const char *save_dir, int com
             return -1;
         if (k < 0 && compare_maps) {
             memcpy(br->located, inspector_classes(br->in)->px, br->npix);
-            if (coarse) {
-                inspector_set_coarse(br->in, 0);
-                int rc = inspector_classify(br->in, img, NULL, e);
-                inspector_set_coarse(br->in, 1);
-                if (rc)
-                    return -1;
-                br->coarse_agreement = bench_same_share(br);
-            }
-            inspector_set_locating(br->in, 0);
-            int rc = inspector_classify(br->in, img, NULL, e);
-            inspector_set_locating(br->in, 1);
-            if (rc)
+            if (coarse && bench_share_without(br, img, inspector_set_coarse, &br->coarse_agreement, e))
                 return -1;
-            br->agreement = bench_same_share(br);
+            if (bench_share_without(br, img, inspector_set_locating, &br->agreement, e))
+                return -1;
         }
         if (k < 0)
             continue;
         double *row = br->v + (size_t)k * NSTAGES;
-        row[0] = t.features_ms;
-        row[1] = t.classify_ms;
-        row[2] = t.regions_ms;
-        row[3] = t.verdict_ms;
-        row[4] = t.features_ms + t.classify_ms + t.regions_ms + t.verdict_ms;
+        row[S_FEATURES] = t.features_ms;
+        row[S_CLASSIFY] = t.classify_ms;
+        row[S_REGIONS] = t.regions_ms;
+        row[S_VERDICT] = t.verdict_ms;
+        row[S_TOTAL] = t.features_ms + t.classify_ms + t.regions_ms + t.verdict_ms;
     }
     return 0;
 }
 
 /* The bank alone over each whole frame, frame after frame, as the OpenCV
- * peer runs it: timed after the classifier, it started with the caches
- * full of the feature stack the classifier had just read (29 ms against
- * 21 at 640x480 on two threads). */
+ * peer runs it: timed right after the classifier, it started with the
+ * caches full of the feature stack the classifier had just read. */
 static int bench_bank(struct bench_run *br, struct feat_ctx *fc, struct fstack *fs, struct err *e)
 {
     for (int k = -1; k < br->repeat; k++) {
@@ -233,7 +237,7 @@ static int bench_bank(struct bench_run *br, struct feat_ctx *fc, struct fstack *
         if (feat_compute(fc, br->frames[2 * (k + 1)], fs, e))
             return -1;
         if (k >= 0)
-            br->v[(size_t)k * NSTAGES + 7] = cli_now_ms() - t0;
+            br->v[(size_t)k * NSTAGES + S_BANK] = cli_now_ms() - t0;
     }
     return 0;
 }
@@ -250,7 +254,7 @@ static int bench_whole_frames(struct bench_run *br, struct err *e)
         if (inspector_classify(br->in, br->frames[2 * (k + 1)], &full, e))
             return -1;
         if (k >= 0)
-            br->v[(size_t)k * NSTAGES + 6] = full.classify_ms;
+            br->v[(size_t)k * NSTAGES + S_ALL_PIXELS] = full.classify_ms;
     }
     for (int k = -1; k < br->repeat; k++) {
         if (inspector_classify(br->in, br->frames[2 * (k + 1)], NULL, e))
@@ -260,7 +264,7 @@ static int bench_whole_frames(struct bench_run *br, struct err *e)
         if (booster_predict(br->b, fs->v, br->npix, fs->n, br->nclasses, br->prob, e))
             return -1;
         if (k >= 0) {
-            br->v[(size_t)k * NSTAGES + 5] = cli_now_ms() - t0;
+            br->v[(size_t)k * NSTAGES + S_XGBOOST] = cli_now_ms() - t0;
             continue;
         }
         /* the agreement of our evaluator with XGBoost's on this real model */
@@ -398,7 +402,7 @@ int cmd_bench(int argc, char **argv)
         json_object_set_new(o, "filter_floor_ms", json_real(peak > 0 ? ops * (double)npix / peak * 1e3 : 0));
     }
     double *col = malloc((size_t)repeat * sizeof *col);
-    for (int s = 0; s < (xgb ? NSTAGES : 5) && col; s++) {
+    for (int s = 0; s < (xgb ? NSTAGES : S_XGBOOST) && col; s++) {
         for (int k = 0; k < repeat; k++)
             col[k] = v[(size_t)k * NSTAGES + s];
         json_object_set_new(o, names[s], stat_json(col, repeat));
